@@ -1,0 +1,372 @@
+//! Attack files (TOML): catalogue entries for built-in families and user `kraus` attacks.
+//!
+//! Catalogue entry:
+//! ```toml
+//! family = "intercept-resend"
+//! description = "one line"
+//! [params]
+//! fraction = 1.0
+//! basis = "random"
+//! [sweep]            # optional: the default sweep of one numeric parameter
+//! param = "fraction"
+//! from = 0.0
+//! to = 1.0
+//! steps = 11
+//! ```
+//! Kraus file: `name`, `eve_dim`, `operators` = a list of matrices, each a list of
+//! 2·eve_dim rows, each row two entries, each entry `[re, im]` (tensor order B first), and
+//! an optional `description`. Parsing collects every problem it can find, each naming the
+//! file and the key (e.g. `operators[1][3][0]`), so `validate` reports them all at once.
+//! The built-in catalogue is embedded in the binary ([`builtin_catalogue`]).
+
+use super::{Attack, Value};
+use crate::error::{Error, Result};
+use crate::linalg::{c, CMat, Tolerance};
+use std::collections::BTreeMap;
+use std::path::Path;
+
+/// A parsed attack file.
+#[derive(Clone, Debug)]
+pub enum AttackFile {
+    /// A catalogue entry for a built-in family.
+    Catalogue(CatalogueEntry),
+    /// A user-defined attack.
+    Kraus(KrausAttack),
+}
+
+/// A catalogue entry: a built-in family, its parameters and an optional sweep.
+#[derive(Clone, Debug)]
+pub struct CatalogueEntry {
+    /// Family name.
+    pub family: String,
+    /// One-line description.
+    pub description: String,
+    /// Parameters set by the entry (others take the family defaults).
+    pub params: BTreeMap<String, Value>,
+    /// The entry's default sweep.
+    pub sweep: Option<Sweep>,
+}
+
+/// A sweep of one numeric parameter over `steps` evenly spaced values from `from` to `to`.
+#[derive(Clone, Debug, PartialEq)]
+pub struct Sweep {
+    /// Parameter name.
+    pub param: String,
+    /// First value.
+    pub from: f64,
+    /// Last value.
+    pub to: f64,
+    /// Number of points (≥ 1; with 1 only `from` is used).
+    pub steps: usize,
+}
+
+impl Sweep {
+    /// The swept values.
+    pub fn values(&self) -> Vec<f64> {
+        if self.steps <= 1 {
+            return vec![self.from];
+        }
+        (0..self.steps).map(|i| self.from + (self.to - self.from) * i as f64 / (self.steps - 1) as f64).collect()
+    }
+}
+
+/// A user-defined attack read from a file.
+#[derive(Clone, Debug)]
+pub struct KrausAttack {
+    /// Name used as the attack's label.
+    pub name: String,
+    /// Optional description.
+    pub description: String,
+    /// Dimension of Eve's register.
+    pub eve_dim: usize,
+    /// The Kraus operators, (2·eve_dim) × 2 each.
+    pub operators: Vec<CMat>,
+}
+
+impl AttackFile {
+    /// Builds the attack, applying `overrides` to a catalogue entry's parameters (a kraus
+    /// file has no parameters, so overrides are an error).
+    pub fn attack(&self, overrides: &BTreeMap<String, Value>) -> Result<Attack> {
+        match self {
+            AttackFile::Catalogue(e) => {
+                let mut params = e.params.clone();
+                params.extend(overrides.iter().map(|(k, v)| (k.clone(), v.clone())));
+                Attack::builtin(&e.family, &params).map_err(|err| if err.key().is_some() { err.with_key("params") } else { err })
+            }
+            AttackFile::Kraus(k) => {
+                if let Some(key) = overrides.keys().next() {
+                    return Err(Error::input_key(key.clone(), "a kraus attack has no parameters to set"));
+                }
+                Attack::from_kraus(&k.name, k.eve_dim, k.operators.clone(), Tolerance::default())
+            }
+        }
+    }
+    /// The entry's sweep, if any.
+    pub fn sweep(&self) -> Option<&Sweep> {
+        match self {
+            AttackFile::Catalogue(e) => e.sweep.as_ref(),
+            AttackFile::Kraus(_) => None,
+        }
+    }
+    /// Label of the file's attack (family or kraus name).
+    pub fn label(&self) -> &str {
+        match self {
+            AttackFile::Catalogue(e) => &e.family,
+            AttackFile::Kraus(k) => &k.name,
+        }
+    }
+}
+
+/// Reads and parses an attack file; the first problem is returned with the file named.
+pub fn load(path: &Path) -> Result<AttackFile> {
+    let text = std::fs::read_to_string(path).map_err(|e| Error::from(e).with_file(path))?;
+    parse(&text).map_err(|mut errs| errs.remove(0).with_file(path))
+}
+
+/// Checks a file completely: every problem found (parse, parameters, shapes, entries,
+/// completeness), each naming the file.
+pub fn validate(path: &Path) -> Vec<Error> {
+    let text = match std::fs::read_to_string(path) {
+        Ok(t) => t,
+        Err(e) => return vec![Error::from(e).with_file(path)],
+    };
+    match parse(&text) {
+        Err(errs) => errs.into_iter().map(|e| e.with_file(path)).collect(),
+        Ok(file) => {
+            let mut errs = Vec::new();
+            if let Err(e) = file.attack(&BTreeMap::new()) {
+                errs.push(e.with_file(path));
+            }
+            if let (AttackFile::Catalogue(entry), Some(sweep)) = (&file, file.sweep()) {
+                for v in sweep.values() {
+                    let mut o = BTreeMap::new();
+                    o.insert(sweep.param.clone(), Value::Num(v));
+                    if let Err(e) = file.attack(&o) {
+                        errs.push(e.with_key("sweep").with_file(path));
+                        break;
+                    }
+                }
+                let _ = entry;
+            }
+            errs
+        }
+    }
+}
+
+/// Parses the text of an attack file. Returns every problem found.
+pub fn parse(text: &str) -> std::result::Result<AttackFile, Vec<Error>> {
+    let table: toml::Table = text.parse().map_err(|e: toml::de::Error| vec![Error::input(format!("not valid TOML: {}", e.message().trim()))])?;
+    if table.contains_key("operators") {
+        parse_kraus(&table)
+    } else {
+        parse_catalogue(&table).map_err(|e| vec![e])
+    }
+}
+
+fn parse_catalogue(t: &toml::Table) -> Result<AttackFile> {
+    for key in t.keys() {
+        if !["family", "description", "params", "sweep"].contains(&key.as_str()) {
+            return Err(Error::input_key(key.clone(), "unknown key; a catalogue entry has family, description, params, sweep (a kraus file has operators)"));
+        }
+    }
+    let family = match t.get("family") {
+        Some(toml::Value::String(s)) => s.clone(),
+        Some(_) => return Err(Error::input_key("family", "must be a string")),
+        None => return Err(Error::input_key("family", "missing; an attack file needs `family` (catalogue entry) or `operators` (kraus file)")),
+    };
+    super::family(&family)?;
+    let description = match t.get("description") {
+        Some(toml::Value::String(s)) => s.clone(),
+        None => String::new(),
+        Some(_) => return Err(Error::input_key("description", "must be a string")),
+    };
+    let mut params = BTreeMap::new();
+    match t.get("params") {
+        None => {}
+        Some(toml::Value::Table(p)) => {
+            for (k, v) in p {
+                let value = match v {
+                    toml::Value::Float(x) => Value::Num(*x),
+                    toml::Value::Integer(i) => Value::Num(*i as f64),
+                    toml::Value::String(s) => Value::Text(s.clone()),
+                    _ => return Err(Error::input_key(format!("params.{k}"), "must be a number or a string")),
+                };
+                params.insert(k.clone(), value);
+            }
+        }
+        Some(_) => return Err(Error::input_key("params", "must be a table")),
+    }
+    let sweep = match t.get("sweep") {
+        None => None,
+        Some(toml::Value::Table(s)) => Some(parse_sweep(s).map_err(|e| e.with_key("sweep"))?),
+        Some(_) => return Err(Error::input_key("sweep", "must be a table")),
+    };
+    if let Some(s) = &sweep {
+        let fam = super::family(&family)?;
+        match fam.params().iter().find(|p| p.name == s.param) {
+            Some(p) if matches!(p.kind, super::ParamKind::Number { .. }) => {}
+            Some(_) => return Err(Error::input_key("sweep.param", format!("`{}` is not a numeric parameter", s.param))),
+            None => return Err(Error::input_key("sweep.param", format!("`{family}` has no parameter `{}`", s.param))),
+        }
+    }
+    Ok(AttackFile::Catalogue(CatalogueEntry { family, description, params, sweep }))
+}
+
+fn parse_sweep(s: &toml::Table) -> Result<Sweep> {
+    for key in s.keys() {
+        if !["param", "from", "to", "steps"].contains(&key.as_str()) {
+            return Err(Error::input_key(key.clone(), "unknown key; a sweep has param, from, to, steps"));
+        }
+    }
+    let param = match s.get("param") {
+        Some(toml::Value::String(p)) => p.clone(),
+        _ => return Err(Error::input_key("param", "missing or not a string: the name of the swept parameter")),
+    };
+    let num = |k: &str| -> Result<f64> {
+        match s.get(k) {
+            Some(toml::Value::Float(x)) if x.is_finite() => Ok(*x),
+            Some(toml::Value::Integer(i)) => Ok(*i as f64),
+            _ => Err(Error::input_key(k, "missing or not a finite number")),
+        }
+    };
+    let steps = match s.get("steps") {
+        Some(toml::Value::Integer(i)) if (1..=100_000).contains(i) => *i as usize,
+        _ => return Err(Error::input_key("steps", "missing or not an integer in [1, 100000]")),
+    };
+    Ok(Sweep { param, from: num("from")?, to: num("to")?, steps })
+}
+
+fn parse_kraus(t: &toml::Table) -> std::result::Result<AttackFile, Vec<Error>> {
+    let mut errs = Vec::new();
+    for key in t.keys() {
+        if !["name", "description", "eve_dim", "operators", "family"].contains(&key.as_str()) {
+            errs.push(Error::input_key(key.clone(), "unknown key; a kraus file has name, description, eve_dim, operators"));
+        }
+    }
+    if let Some(f) = t.get("family") {
+        if f.as_str() != Some("kraus") {
+            errs.push(Error::input_key("family", "a file with operators must have family = \"kraus\" or no family"));
+        }
+    }
+    let name = match t.get("name") {
+        Some(toml::Value::String(s)) if !s.trim().is_empty() => s.clone(),
+        _ => {
+            errs.push(Error::input_key("name", "missing or not a non-empty string"));
+            String::new()
+        }
+    };
+    let description = t.get("description").and_then(|v| v.as_str()).unwrap_or("").to_string();
+    let eve_dim = match t.get("eve_dim") {
+        Some(toml::Value::Integer(i)) if (1..=64).contains(i) => Some(*i as usize),
+        _ => {
+            errs.push(Error::input_key("eve_dim", "missing or not an integer in [1, 64]"));
+            None
+        }
+    };
+    let mut operators = Vec::new();
+    match t.get("operators") {
+        Some(toml::Value::Array(ops)) if !ops.is_empty() => {
+            for (k, op) in ops.iter().enumerate() {
+                if let Some(m) = parse_operator(op, k, eve_dim, &mut errs) {
+                    operators.push(m);
+                }
+            }
+        }
+        _ => errs.push(Error::input_key("operators", "must be a non-empty list of matrices")),
+    }
+    if errs.is_empty() {
+        let d = eve_dim.unwrap_or(1);
+        if let Err(e) = Attack::from_kraus(&name, d, operators.clone(), Tolerance::default()) {
+            errs.push(e);
+        }
+    }
+    if errs.is_empty() {
+        Ok(AttackFile::Kraus(KrausAttack { name, description, eve_dim: eve_dim.unwrap_or(1), operators }))
+    } else {
+        Err(errs)
+    }
+}
+
+fn parse_operator(op: &toml::Value, k: usize, eve_dim: Option<usize>, errs: &mut Vec<Error>) -> Option<CMat> {
+    let key = format!("operators[{k}]");
+    let rows = match op.as_array() {
+        Some(r) => r,
+        None => {
+            errs.push(Error::input_key(key, "must be a matrix: a list of rows"));
+            return None;
+        }
+    };
+    if let Some(d) = eve_dim {
+        if rows.len() != 2 * d {
+            errs.push(Error::input_key(key.clone(), format!("has {} rows, expected 2·eve_dim = {}", rows.len(), 2 * d)));
+            return None;
+        }
+    }
+    let mut m = CMat::zeros(rows.len(), 2);
+    let mut ok = true;
+    for (i, row) in rows.iter().enumerate() {
+        let entries = match row.as_array() {
+            Some(e) if e.len() == 2 => e,
+            _ => {
+                errs.push(Error::input_key(format!("{key}[{i}]"), "must be a row of exactly two entries"));
+                ok = false;
+                continue;
+            }
+        };
+        for (j, entry) in entries.iter().enumerate() {
+            let parts = entry.as_array().filter(|p| p.len() == 2).and_then(|p| Some((num_of(&p[0])?, num_of(&p[1])?)));
+            match parts {
+                Some((re, im)) if re.is_finite() && im.is_finite() => m[(i, j)] = c(re, im),
+                Some(_) => {
+                    errs.push(Error::input_key(format!("{key}[{i}][{j}]"), "entry is not finite"));
+                    ok = false;
+                }
+                None => {
+                    errs.push(Error::input_key(format!("{key}[{i}][{j}]"), "entry must be [re, im] with two numbers"));
+                    ok = false;
+                }
+            }
+        }
+    }
+    ok.then_some(m)
+}
+
+fn num_of(v: &toml::Value) -> Option<f64> {
+    match v {
+        toml::Value::Float(x) => Some(*x),
+        toml::Value::Integer(i) => Some(*i as f64),
+        _ => None,
+    }
+}
+
+/// The built-in catalogue, embedded at build time: `(file name, contents)`.
+pub fn builtin_catalogue() -> &'static [(&'static str, &'static str)] {
+    &[
+        ("intercept-resend.toml", include_str!("../../attacks/intercept-resend.toml")),
+        ("breidbart.toml", include_str!("../../attacks/breidbart.toml")),
+        ("universal-cloner.toml", include_str!("../../attacks/universal-cloner.toml")),
+        ("phase-covariant-cloner.toml", include_str!("../../attacks/phase-covariant-cloner.toml")),
+        ("entangling-probe.toml", include_str!("../../attacks/entangling-probe.toml")),
+        ("pauli.toml", include_str!("../../attacks/pauli.toml")),
+    ]
+}
+
+/// Writes a user attack as a kraus TOML file's text.
+pub fn kraus_toml(name: &str, description: &str, eve_dim: usize, ops: &[CMat]) -> String {
+    let mut s = format!("name = {name:?}\ndescription = {description:?}\neve_dim = {eve_dim}\noperators = [\n");
+    for op in ops {
+        s.push_str("  [\n");
+        for i in 0..op.nrows() {
+            s.push_str(&format!(
+                "    [[{:e}, {:e}], [{:e}, {:e}]],\n",
+                op[(i, 0)].re,
+                op[(i, 0)].im,
+                op[(i, 1)].re,
+                op[(i, 1)].im
+            ));
+        }
+        s.push_str("  ],\n");
+    }
+    s.push_str("]\n");
+    s
+}

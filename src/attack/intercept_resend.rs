@@ -1,0 +1,73 @@
+//! `intercept-resend`: with probability 1 − `fraction` the qubit passes untouched;
+//! otherwise Eve measures it in a basis chosen by `basis` and resends the state she found.
+//! E records the flag, the basis used and the outcome: d_E = 1 + 2·(number of bases), with
+//! index 0 = "passed" and `1 + 2β + o` = "measured in basis β with outcome o". The Breidbart
+//! basis is {cos(π/8)|0> + sin(π/8)|1>, −sin(π/8)|0> + cos(π/8)|1>} (Bennett, Bessette,
+//! Brassard, Salvail, Smolin, J. Cryptology 5, 3, 1992).
+
+use super::{Family, ParamKind, ParamSet, ParamSpec, Value};
+use crate::linalg::{c, kron, kron_vec, CMat, CVec};
+use crate::protocol::Basis;
+
+/// The `intercept-resend` family.
+pub struct InterceptResend;
+
+const PARAMS: &[ParamSpec] = &[
+    ParamSpec {
+        name: "fraction",
+        kind: ParamKind::Number { lo: 0.0, hi: 1.0 },
+        help: "probability p that Eve intercepts a signal (default 1)",
+    },
+    ParamSpec {
+        name: "basis",
+        kind: ParamKind::Choice(&["z", "x", "random", "breidbart"]),
+        help: "Eve's measurement: z, x, random (z or x with probability 1/2), breidbart (default random)",
+    },
+];
+
+impl Family for InterceptResend {
+    fn name(&self) -> &'static str {
+        "intercept-resend"
+    }
+    fn summary(&self) -> &'static str {
+        "measure a fraction of the signals and resend what was found"
+    }
+    fn params(&self) -> &'static [ParamSpec] {
+        PARAMS
+    }
+    fn default_value(&self, name: &str, _earlier: &ParamSet) -> Value {
+        match name {
+            "fraction" => Value::Num(1.0),
+            _ => Value::Text("random".into()),
+        }
+    }
+    fn kraus(&self, p: &ParamSet) -> (usize, Vec<CMat>) {
+        let fraction = p.num("fraction");
+        let bases: Vec<(f64, [CVec; 2])> = match p.text("basis") {
+            "z" => vec![(1.0, [Basis::Z.ket(0), Basis::Z.ket(1)])],
+            "x" => vec![(1.0, [Basis::X.ket(0), Basis::X.ket(1)])],
+            "breidbart" => vec![(1.0, breidbart())],
+            _ => vec![(0.5, [Basis::Z.ket(0), Basis::Z.ket(1)]), (0.5, [Basis::X.ket(0), Basis::X.ket(1)])],
+        };
+        let d_e = 1 + 2 * bases.len();
+        let record = |i: usize| CVec::from_fn(d_e, |r, _| c(if r == i { 1.0 } else { 0.0 }, 0.0));
+        let mut ops = Vec::new();
+        // Pass: √(1−p) · 1_B ⊗ |0>_E.
+        let pass = kron(&CMat::identity(2, 2), &CMat::from_column_slice(d_e, 1, record(0).as_slice()));
+        ops.push(pass * c((1.0 - fraction).sqrt(), 0.0));
+        for (beta, (weight, kets)) in bases.iter().enumerate() {
+            for (o, ket) in kets.iter().enumerate() {
+                // √(p·w) |φ_o>_B |1+2β+o>_E <φ_o|
+                let out = kron_vec(ket, &record(1 + 2 * beta + o));
+                ops.push(out * ket.adjoint() * c((fraction * weight).sqrt(), 0.0));
+            }
+        }
+        (d_e, ops)
+    }
+}
+
+/// The Breidbart basis: polarisation angle π/8, halfway between Z and X on the Bloch circle.
+pub fn breidbart() -> [CVec; 2] {
+    let a = std::f64::consts::PI / 8.0;
+    [CVec::from_vec(vec![c(a.cos(), 0.0), c(a.sin(), 0.0)]), CVec::from_vec(vec![c(-a.sin(), 0.0), c(a.cos(), 0.0)])]
+}

@@ -1,0 +1,22 @@
+//! qkd-audit: audit quantum key distribution configurations against eavesdropping attacks
+//! and proven security bounds.
+//!
+//! Layers, each depending only on those above it:
+//! 1. [`linalg`]: matrices, tolerances, tensor products, partial traces, eigen-solves;
+//! 2. [`state`], [`channel`]: validated density matrices, Kraus channels;
+//! 3. [`measures`]: entropies, trace norm, Helstrom, Holevo, accessible information;
+//! 4. [`protocol`]: BB84 and six-state signal states;
+//! 5. [`attack`]: the attack catalogue and user Kraus attacks;
+//! 6. [`bounds`]: security bounds and thresholds; [`eval`]: the exact per-attack evaluator.
+
+pub mod attack;
+pub mod bounds;
+pub mod channel;
+pub mod error;
+pub mod eval;
+pub mod linalg;
+pub mod measures;
+pub mod protocol;
+pub mod state;
+
+pub use error::{Error, ErrorKind, Result};

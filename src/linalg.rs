@@ -1,0 +1,297 @@
+//! Linear algebra kernel: the only module that names the matrix crate.
+//!
+//! Owns the complex matrix aliases, the tolerance type, tensor products, partial traces
+//! over any bipartition of a multi-party system, Hermitian eigen-solves and the matrix
+//! functions built on them. It knows nothing about physics; `state`, `channel` and
+//! `measures` build on it. Dimension mismatches are programmer errors and panic with
+//! `#[track_caller]`; nothing here returns data-dependent errors.
+
+use nalgebra::{DMatrix, DVector};
+pub use num_complex::Complex64 as C64;
+
+/// Dense complex matrix (row-major semantics as in nalgebra: `m[(row, col)]`).
+pub type CMat = DMatrix<C64>;
+/// Dense complex column vector.
+pub type CVec = DVector<C64>;
+
+/// Default absolute tolerance for physical checks (Hermiticity, trace, positivity,
+/// Kraus completeness): 1e-9.
+pub const DEFAULT_TOL: f64 = 1e-9;
+
+/// An absolute tolerance, passed explicitly wherever a check or a cut-off is made.
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub struct Tolerance {
+    /// Largest accepted absolute deviation.
+    pub abs: f64,
+}
+
+impl Default for Tolerance {
+    fn default() -> Self {
+        Tolerance { abs: DEFAULT_TOL }
+    }
+}
+
+impl Tolerance {
+    /// A tolerance of `abs`.
+    pub fn new(abs: f64) -> Self {
+        Tolerance { abs }
+    }
+}
+
+/// Complex number shorthand.
+#[inline]
+pub fn c(re: f64, im: f64) -> C64 {
+    C64::new(re, im)
+}
+
+/// Conjugate transpose.
+pub fn dagger(m: &CMat) -> CMat {
+    m.adjoint()
+}
+
+/// Tensor (Kronecker) product `a ⊗ b`.
+pub fn kron(a: &CMat, b: &CMat) -> CMat {
+    a.kronecker(b)
+}
+
+/// Tensor product of two kets.
+pub fn kron_vec(a: &CVec, b: &CVec) -> CVec {
+    a.kronecker(b)
+}
+
+/// Outer product `|a><b|`.
+pub fn outer(a: &CVec, b: &CVec) -> CMat {
+    a * b.adjoint()
+}
+
+/// Largest absolute entry of `m − m†`.
+pub fn hermiticity_defect(m: &CMat) -> f64 {
+    assert_square(m);
+    let n = m.nrows();
+    let mut worst = 0.0_f64;
+    for i in 0..n {
+        for j in i..n {
+            worst = worst.max((m[(i, j)] - m[(j, i)].conj()).norm());
+        }
+    }
+    worst
+}
+
+/// Real part of the trace.
+pub fn trace_re(m: &CMat) -> f64 {
+    assert_square(m);
+    (0..m.nrows()).map(|i| m[(i, i)].re).sum()
+}
+
+/// Eigenvalues of a Hermitian matrix, ascending. Only the lower triangle is read,
+/// so pass a matrix that is Hermitian up to rounding.
+#[track_caller]
+pub fn hermitian_eigenvalues(m: &CMat) -> Vec<f64> {
+    assert_square(m);
+    let n = m.nrows();
+    match n {
+        0 => Vec::new(),
+        1 => vec![m[(0, 0)].re],
+        2 => {
+            // Closed form for 2×2 Hermitian matrices.
+            let a = m[(0, 0)].re;
+            let d = m[(1, 1)].re;
+            let b = (m[(1, 0)] + m[(0, 1)].conj()) * 0.5;
+            let mean = 0.5 * (a + d);
+            let r = (0.25 * (a - d) * (a - d) + b.norm_sqr()).sqrt();
+            vec![mean - r, mean + r]
+        }
+        _ => {
+            let mut v: Vec<f64> = m.clone().symmetric_eigenvalues().iter().copied().collect();
+            v.sort_by(|x, y| x.total_cmp(y));
+            v
+        }
+    }
+}
+
+/// Eigen-decomposition of a Hermitian matrix: eigenvalues (ascending) and the matching
+/// orthonormal eigenvectors as columns.
+#[track_caller]
+pub fn hermitian_eigen(m: &CMat) -> (Vec<f64>, CMat) {
+    assert_square(m);
+    let eig = m.clone().symmetric_eigen();
+    let n = m.nrows();
+    let mut order: Vec<usize> = (0..n).collect();
+    order.sort_by(|&i, &j| eig.eigenvalues[i].total_cmp(&eig.eigenvalues[j]));
+    let vals = order.iter().map(|&i| eig.eigenvalues[i]).collect();
+    let mut vecs = CMat::zeros(n, n);
+    for (col, &i) in order.iter().enumerate() {
+        vecs.set_column(col, &eig.eigenvectors.column(i));
+    }
+    (vals, vecs)
+}
+
+/// Applies a real function to the eigenvalues of a Hermitian matrix:
+/// `f(m) = Σ f(λ_i) |v_i><v_i|`.
+pub fn hermitian_function(m: &CMat, f: impl Fn(f64) -> f64) -> CMat {
+    let (vals, vecs) = hermitian_eigen(m);
+    let n = m.nrows();
+    let mut out = CMat::zeros(n, n);
+    for (i, &lam) in vals.iter().enumerate() {
+        let v = vecs.column(i);
+        out += (v * v.adjoint()) * c(f(lam), 0.0);
+    }
+    out
+}
+
+/// Inverse square root on the support of a positive semidefinite matrix (eigenvalues at or
+/// below `cutoff` are treated as zero: pseudo-inverse).
+pub fn psd_inverse_sqrt(m: &CMat, cutoff: f64) -> CMat {
+    hermitian_function(m, |x| if x > cutoff { 1.0 / x.sqrt() } else { 0.0 })
+}
+
+/// Partial trace of an operator on a multi-party space with subsystem dimensions `dims`
+/// (first subsystem most significant in the row index), keeping the subsystems listed in
+/// `keep` (in increasing order of position) and tracing out the rest.
+#[track_caller]
+pub fn partial_trace(m: &CMat, dims: &[usize], keep: &[usize]) -> CMat {
+    assert_square(m);
+    let total: usize = dims.iter().product();
+    assert_eq!(m.nrows(), total, "partial_trace: matrix dimension {} does not match dims {:?}", m.nrows(), dims);
+    for w in keep.windows(2) {
+        assert!(w[0] < w[1], "partial_trace: keep must be strictly increasing, got {keep:?}");
+    }
+    assert!(keep.iter().all(|&k| k < dims.len()), "partial_trace: keep index out of range");
+    let traced: Vec<usize> = (0..dims.len()).filter(|i| !keep.contains(i)).collect();
+    let d_keep: usize = keep.iter().map(|&k| dims[k]).product();
+    let d_trace: usize = traced.iter().map(|&k| dims[k]).product();
+    // Strides of each subsystem in the full index.
+    let mut stride = vec![1usize; dims.len()];
+    for i in (0..dims.len().saturating_sub(1)).rev() {
+        stride[i] = stride[i + 1] * dims[i + 1];
+    }
+    let compose = |sub: &[usize], idx: usize| -> usize {
+        // Full-index offset of index `idx` of the product space over `sub`.
+        let mut rest = idx;
+        let mut off = 0;
+        for &s in sub.iter().rev() {
+            off += (rest % dims[s]) * stride[s];
+            rest /= dims[s];
+        }
+        off
+    };
+    let keep_off: Vec<usize> = (0..d_keep).map(|i| compose(keep, i)).collect();
+    let trace_off: Vec<usize> = (0..d_trace).map(|i| compose(&traced, i)).collect();
+    let mut out = CMat::zeros(d_keep, d_keep);
+    for (i, &ri) in keep_off.iter().enumerate() {
+        for (j, &cj) in keep_off.iter().enumerate() {
+            let mut s = C64::new(0.0, 0.0);
+            for &t in &trace_off {
+                s += m[(ri + t, cj + t)];
+            }
+            out[(i, j)] = s;
+        }
+    }
+    out
+}
+
+/// Identity matrix of dimension `n`.
+pub fn identity(n: usize) -> CMat {
+    CMat::identity(n, n)
+}
+
+/// Largest absolute entry of `a − b`.
+#[track_caller]
+pub fn max_abs_diff(a: &CMat, b: &CMat) -> f64 {
+    assert_eq!(a.shape(), b.shape(), "max_abs_diff: shape mismatch");
+    a.iter().zip(b.iter()).map(|(x, y)| (x - y).norm()).fold(0.0, f64::max)
+}
+
+#[track_caller]
+fn assert_square(m: &CMat) {
+    assert_eq!(m.nrows(), m.ncols(), "expected a square matrix, got {}×{}", m.nrows(), m.ncols());
+}
+
+/// Orthonormalises the columns of a complex matrix by QR (Gram–Schmidt via Householder);
+/// the result has orthonormal columns spanning the same space when the input has full
+/// column rank. Phases are fixed so that the R factor has a positive real diagonal, which
+/// makes QR of a complex Gaussian matrix Haar-distributed (Mezzadri 2007).
+pub fn orthonormal_columns(m: &CMat) -> CMat {
+    let qr = m.clone().qr();
+    let mut q = qr.q();
+    let r = qr.r();
+    for j in 0..q.ncols().min(r.nrows()) {
+        let d = r[(j, j)];
+        let n = d.norm();
+        if n > 0.0 {
+            let phase = d / n;
+            let mut col = q.column_mut(j);
+            col *= phase;
+        }
+    }
+    q
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn rand_herm(n: usize, seed: u64) -> CMat {
+        use rand::{Rng, SeedableRng};
+        let mut rng = rand_chacha::ChaCha8Rng::seed_from_u64(seed);
+        let a = CMat::from_fn(n, n, |_, _| c(rng.gen::<f64>() - 0.5, rng.gen::<f64>() - 0.5));
+        (&a + a.adjoint()) * c(0.5, 0.0)
+    }
+
+    #[test]
+    fn eigenvalues_sum_to_trace_and_match_full_solver() {
+        for n in 1..7 {
+            let m = rand_herm(n, n as u64);
+            let v = hermitian_eigenvalues(&m);
+            let s: f64 = v.iter().sum();
+            assert!((s - trace_re(&m)).abs() < 1e-12);
+            let (v2, vecs) = hermitian_eigen(&m);
+            for (a, b) in v.iter().zip(&v2) {
+                assert!((a - b).abs() < 1e-10);
+            }
+            // Reconstruct m from its eigen-decomposition.
+            let mut r = CMat::zeros(n, n);
+            for (i, lam) in v2.iter().enumerate() {
+                let col = vecs.column(i);
+                r += (col * col.adjoint()) * c(*lam, 0.0);
+            }
+            assert!(max_abs_diff(&r, &m) < 1e-10);
+        }
+    }
+
+    #[test]
+    fn partial_trace_of_product_returns_factor() {
+        let a = rand_herm(2, 10);
+        let b = rand_herm(3, 11);
+        let d = rand_herm(2, 12);
+        let abd = kron(&kron(&a, &b), &d);
+        let tr_b = trace_re(&b);
+        let tr_a = trace_re(&a);
+        let tr_d = trace_re(&d);
+        let keep_a = partial_trace(&abd, &[2, 3, 2], &[0]);
+        assert!(max_abs_diff(&keep_a, &(&a * c(tr_b * tr_d, 0.0))) < 1e-12);
+        let keep_ad = partial_trace(&abd, &[2, 3, 2], &[0, 2]);
+        assert!(max_abs_diff(&keep_ad, &(kron(&a, &d) * c(tr_b, 0.0))) < 1e-12);
+        let keep_b = partial_trace(&abd, &[2, 3, 2], &[1]);
+        assert!(max_abs_diff(&keep_b, &(&b * c(tr_a * tr_d, 0.0))) < 1e-12);
+        let keep_all = partial_trace(&abd, &[2, 3, 2], &[0, 1, 2]);
+        assert!(max_abs_diff(&keep_all, &abd) < 1e-15);
+    }
+
+    #[test]
+    fn inverse_sqrt_inverts_on_support() {
+        let m = rand_herm(4, 3);
+        let psd = &m * m.adjoint() + identity(4) * c(0.1, 0.0);
+        let s = psd_inverse_sqrt(&psd, 1e-14);
+        let prod = &s * &psd * &s;
+        assert!(max_abs_diff(&prod, &identity(4)) < 1e-10);
+    }
+
+    #[test]
+    fn orthonormal_columns_are_orthonormal() {
+        let m = rand_herm(5, 4);
+        let q = orthonormal_columns(&m.columns(0, 3).into_owned());
+        let g = q.adjoint() * &q;
+        assert!(max_abs_diff(&g, &identity(3)) < 1e-12);
+    }
+}

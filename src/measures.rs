@@ -1,0 +1,369 @@
+//! Information measures, all in bits.
+//!
+//! Binary and Shannon entropy, von Neumann entropy, trace norm, the Helstrom guessing
+//! probability, the Holevo quantity, classical mutual information of a joint
+//! distribution, and the accessible information of an ensemble (maximised over POVMs by a
+//! seeded multi-start iteration). Each function's doc gives the formula and its source.
+//! Inputs are plain matrices: callers pass Hermitian (and, where stated, positive)
+//! operators; this module does not re-validate them on the hot path.
+
+use crate::error::{Error, ErrorKind, Result};
+use crate::linalg::{c, hermitian_eigen, hermitian_eigenvalues, CMat, CVec};
+use rand::{Rng, SeedableRng};
+use rand_distr::StandardNormal;
+
+/// Binary entropy `h(p) = −p log₂ p − (1−p) log₂(1−p)`, with `h(0) = h(1) = 0`.
+/// Arguments outside [0, 1] are a programmer error (NaN is returned so it propagates).
+pub fn binary_entropy(p: f64) -> f64 {
+    if !(0.0..=1.0).contains(&p) {
+        return f64::NAN;
+    }
+    xlog(p) + xlog(1.0 - p)
+}
+
+/// `−x log₂ x` with the limit 0 at x = 0.
+#[inline]
+fn xlog(x: f64) -> f64 {
+    if x <= 0.0 {
+        0.0
+    } else {
+        -x * x.log2()
+    }
+}
+
+/// Shannon entropy of a probability vector, in bits. Zero entries contribute nothing.
+pub fn shannon_entropy(p: &[f64]) -> f64 {
+    p.iter().map(|&x| xlog(x)).sum()
+}
+
+/// Mutual information `I(A:B) = H(A) + H(B) − H(AB)` of a joint distribution given as
+/// rows (A) by columns (B), in bits.
+pub fn mutual_information(joint: &[Vec<f64>]) -> f64 {
+    let cols = joint.first().map_or(0, |r| r.len());
+    let pa: Vec<f64> = joint.iter().map(|r| r.iter().sum()).collect();
+    let pb: Vec<f64> = (0..cols).map(|j| joint.iter().map(|r| r[j]).sum()).collect();
+    let pab: Vec<f64> = joint.iter().flatten().copied().collect();
+    shannon_entropy(&pa) + shannon_entropy(&pb) - shannon_entropy(&pab)
+}
+
+/// Von Neumann entropy `S(ρ) = −Tr ρ log₂ ρ` of a density matrix, in bits. Eigenvalues at
+/// or below zero (rounding on a validated state) contribute nothing.
+pub fn von_neumann_entropy(rho: &CMat) -> f64 {
+    hermitian_eigenvalues(rho).into_iter().map(xlog).sum()
+}
+
+/// Trace norm `‖A‖₁ = Σ |λ_i|` of a Hermitian matrix.
+pub fn trace_norm(a: &CMat) -> f64 {
+    hermitian_eigenvalues(a).into_iter().map(f64::abs).sum()
+}
+
+/// Helstrom's optimal probability of telling `ρ₀` (prior `p0`) from `ρ₁` (prior `p1`):
+/// `½(1 + ‖p₀ρ₀ − p₁ρ₁‖₁)` (Helstrom, Quantum Detection and Estimation Theory, 1976).
+pub fn helstrom_guess(p0: f64, rho0: &CMat, p1: f64, rho1: &CMat) -> f64 {
+    let diff = rho0 * c(p0, 0.0) - rho1 * c(p1, 0.0);
+    0.5 * (1.0 + trace_norm(&diff))
+}
+
+/// Holevo quantity `χ = S(Σ pᵢρᵢ) − Σ pᵢ S(ρᵢ)` in bits (Holevo 1973).
+pub fn holevo_quantity(priors: &[f64], states: &[CMat]) -> f64 {
+    assert_eq!(priors.len(), states.len(), "holevo_quantity: one prior per state");
+    let d = states[0].nrows();
+    let mut avg = CMat::zeros(d, d);
+    let mut inner = 0.0;
+    for (p, rho) in priors.iter().zip(states) {
+        avg += rho * c(*p, 0.0);
+        inner += p * von_neumann_entropy(rho);
+    }
+    von_neumann_entropy(&avg) - inner
+}
+
+/// Classical mutual information `I(X:M)` in bits when the ensemble `{pᵢ, ρᵢ}` is measured
+/// with the rank-one POVM `{|a_k><a_k|}`.
+pub fn measured_information(priors: &[f64], states: &[CMat], povm: &[CVec]) -> f64 {
+    let joint: Vec<Vec<f64>> = priors
+        .iter()
+        .zip(states)
+        .map(|(p, rho)| povm.iter().map(|a| p * (a.adjoint() * rho * a)[(0, 0)].re.max(0.0)).collect())
+        .collect();
+    mutual_information(&joint)
+}
+
+/// Settings of [`accessible_information`].
+#[derive(Clone, Debug)]
+pub struct AccessibleOptions {
+    /// Random starting POVMs in addition to the structured ones (default 3).
+    pub random_starts: usize,
+    /// Seed of the starting POVMs (default 0x5eed): the result is deterministic.
+    pub seed: u64,
+    /// Convergence: stop a start when `window` consecutive accepted steps together gain
+    /// less than this many bits (default 1e-12).
+    pub gain_tol: f64,
+    /// See `gain_tol` (default 25).
+    pub window: usize,
+    /// Iteration cap per start (default 20 000); hitting it is reported, not hidden.
+    pub max_iter: usize,
+}
+
+impl Default for AccessibleOptions {
+    fn default() -> Self {
+        AccessibleOptions { random_starts: 3, seed: 0x5eed, gain_tol: 1e-12, window: 25, max_iter: 20_000 }
+    }
+}
+
+/// Result of [`accessible_information`].
+#[derive(Clone, Debug, PartialEq)]
+pub struct Accessible {
+    /// The largest mutual information found, in bits.
+    pub bits: f64,
+    /// The optimal rank-one POVM vectors found (zero vectors are unused outcomes).
+    pub povm: Vec<CVec>,
+    /// Iterations summed over all starts.
+    pub iterations: usize,
+}
+
+/// Accessible information of the ensemble `{pᵢ, ρᵢ}`: the maximum of `I(X:M)` over all
+/// POVMs, in bits.
+///
+/// Rank-one POVMs with at most `d²` outcomes suffice (Davies, IEEE TIT 24, 596, 1978). The
+/// maximum is found by the steepest-ascent iteration of Řeháček, Englert and Kaszlikowski
+/// (PRA 71, 054303, 2005): with `Π_k = |a_k><a_k|` and
+/// `R_k = Σᵢ pᵢ ρᵢ ln(p(i|k)/p(i))`… written in the equivalent form
+/// `b_k = (1 + ε R̃_k) a_k`, `R̃_k = Σᵢ pᵢ ln(P(i,k)/(pᵢ P(k)))·ρᵢ`, the update
+/// `a_k ← G^{-1/2} b_k` with `G = Σ b_k b_k†` keeps a valid POVM and, for small enough
+/// `ε`, increases `I`. The step `ε` adapts (grows by 1.5 after an accepted step, halves after
+/// a rejected one), so the ascent is monotone. Starts: the eigenbasis of `p₀ρ₀ − p₁ρ₁`
+/// (a refinement of the Helstrom measurement, so the result is never below the Helstrom
+/// measurement's information), the eigenbasis of a generic combination `Σ (i+π)ρᵢ` (the
+/// common eigenbasis when the states commute, where the answer is the Holevo quantity),
+/// and `random_starts` random `d²`-outcome POVMs. The iteration finds local maxima; the
+/// multi-start result is a lower bound on the true accessible information that met the
+/// stated convergence test. An iteration that hits `max_iter` without converging is an
+/// error.
+pub fn accessible_information(priors: &[f64], states: &[CMat], opts: &AccessibleOptions) -> Result<Accessible> {
+    assert_eq!(priors.len(), states.len(), "accessible_information: one prior per state");
+    assert!(!states.is_empty(), "accessible_information: empty ensemble");
+    let d = states[0].nrows();
+    let chi = holevo_quantity(priors, states);
+    let mut starts: Vec<Vec<CVec>> = Vec::new();
+    // Start 1: eigenbasis of the Helstrom operator (or of ρ₀ for one state).
+    let mut helstrom_op = states[0].clone() * c(priors[0], 0.0);
+    if states.len() > 1 {
+        helstrom_op -= &states[1] * c(priors[1], 0.0);
+    }
+    starts.push(eigen_columns(&helstrom_op));
+    // Start 2: a generic combination, whose eigenbasis is common when the states commute.
+    let mut generic = CMat::zeros(d, d);
+    for (i, rho) in states.iter().enumerate() {
+        generic += rho * c(i as f64 + std::f64::consts::PI, 0.0);
+    }
+    starts.push(eigen_columns(&generic));
+    let mut rng = rand_chacha::ChaCha8Rng::seed_from_u64(opts.seed);
+    for _ in 0..opts.random_starts {
+        let raw: Vec<CVec> = (0..d * d)
+            .map(|_| CVec::from_fn(d, |_, _| c(rng.sample(StandardNormal), rng.sample(StandardNormal))))
+            .collect();
+        starts.push(complete_povm(&raw));
+    }
+    let mut best = Accessible { bits: f64::NEG_INFINITY, povm: Vec::new(), iterations: 0 };
+    let mut total_iter = 0;
+    for start in starts {
+        let (bits, povm, iters) = ascend(priors, states, start, opts)?;
+        total_iter += iters;
+        if bits > best.bits {
+            best = Accessible { bits, povm, iterations: 0 };
+        }
+        // No POVM can beat the Holevo quantity; once reached, the maximum is found.
+        if best.bits >= chi - opts.gain_tol {
+            break;
+        }
+    }
+    best.iterations = total_iter;
+    Ok(best)
+}
+
+fn eigen_columns(m: &CMat) -> Vec<CVec> {
+    let (_, vecs) = hermitian_eigen(m);
+    (0..vecs.ncols()).map(|i| vecs.column(i).into_owned()).collect()
+}
+
+/// Rescales vectors `b_k` to a POVM: `a_k = G^{-1/2} b_k`, `G = Σ b_k b_k†`.
+fn complete_povm(b: &[CVec]) -> Vec<CVec> {
+    let d = b[0].len();
+    let mut g = CMat::zeros(d, d);
+    for v in b {
+        g += v * v.adjoint();
+    }
+    let t = crate::linalg::psd_inverse_sqrt(&g, 1e-300);
+    b.iter().map(|v| &t * v).collect()
+}
+
+fn ascend(priors: &[f64], states: &[CMat], mut a: Vec<CVec>, opts: &AccessibleOptions) -> Result<(f64, Vec<CVec>, usize)> {
+    let mut value = measured_information(priors, states, &a);
+    let mut eps = 1.0;
+    let mut gains: std::collections::VecDeque<f64> = std::collections::VecDeque::new();
+    let mut window_gain = 0.0;
+    for iter in 0..opts.max_iter {
+        // Ascent direction b_k = (1 + ε R_k) a_k.
+        let mut prob = vec![vec![0.0; a.len()]; states.len()];
+        let mut rho_a: Vec<Vec<CVec>> = Vec::with_capacity(states.len());
+        for (i, rho) in states.iter().enumerate() {
+            let row: Vec<CVec> = a.iter().map(|v| rho * v).collect();
+            for (k, rv) in row.iter().enumerate() {
+                prob[i][k] = priors[i] * a[k].dotc(rv).re.max(0.0);
+            }
+            rho_a.push(row);
+        }
+        let step = |eps: f64| -> Vec<CVec> {
+            let b: Vec<CVec> = (0..a.len())
+                .map(|k| {
+                    let pk: f64 = (0..states.len()).map(|i| prob[i][k]).sum();
+                    let mut v = a[k].clone();
+                    if pk > 0.0 {
+                        for i in 0..states.len() {
+                            let ratio = if prob[i][k] > 0.0 { (prob[i][k] / (priors[i] * pk)).ln().max(-60.0) } else { -60.0 };
+                            v += &rho_a[i][k] * c(eps * priors[i] * ratio, 0.0);
+                        }
+                    }
+                    v
+                })
+                .collect();
+            complete_povm(&b)
+        };
+        loop {
+            let cand = step(eps);
+            let v = measured_information(priors, states, &cand);
+            if v >= value {
+                let gain = v - value;
+                a = cand;
+                value = v;
+                eps = (eps * 1.5).min(1e6);
+                gains.push_back(gain);
+                window_gain += gain;
+                if gains.len() > opts.window {
+                    window_gain -= gains.pop_front().unwrap_or(0.0);
+                }
+                break;
+            }
+            eps *= 0.5;
+            if eps < 1e-14 {
+                // No ascent direction at machine precision: a stationary point.
+                return Ok((value, a, iter));
+            }
+        }
+        if gains.len() >= opts.window && window_gain < opts.gain_tol {
+            return Ok((value, a, iter + 1));
+        }
+    }
+    Err(Error::new(
+        ErrorKind::NoConvergence,
+        format!("accessible information did not converge in {} iterations (last value {value})", opts.max_iter),
+    ))
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::linalg::{kron, outer};
+    use crate::state::{DensityMatrix, Ket};
+    use approx::assert_abs_diff_eq;
+
+    #[test]
+    fn binary_entropy_values() {
+        // Values recomputed in REFERENCES.md §15 row 1 [N].
+        assert_abs_diff_eq!(binary_entropy(0.01), 0.0807931359, epsilon = 1e-10);
+        assert_abs_diff_eq!(binary_entropy(0.25), 0.8112781245, epsilon = 1e-10);
+        assert_eq!(binary_entropy(0.0), 0.0);
+        assert_eq!(binary_entropy(0.5), 1.0);
+        assert!(binary_entropy(1.5).is_nan());
+    }
+
+    #[test]
+    fn entropy_is_between_zero_and_log_d_and_additive() {
+        let mut rng = rand_chacha::ChaCha8Rng::seed_from_u64(3);
+        for d in 1..6 {
+            let rho = DensityMatrix::random_hilbert_schmidt(d, &mut rng);
+            let s = von_neumann_entropy(rho.matrix());
+            assert!(s >= -1e-12 && s <= (d as f64).log2() + 1e-12);
+            let sigma = DensityMatrix::random_hilbert_schmidt(2, &mut rng);
+            let s2 = von_neumann_entropy(&kron(rho.matrix(), sigma.matrix()));
+            assert_abs_diff_eq!(s2, s + von_neumann_entropy(sigma.matrix()), epsilon = 1e-10);
+        }
+        assert_abs_diff_eq!(von_neumann_entropy(DensityMatrix::maximally_mixed(4).matrix()), 2.0, epsilon = 1e-12);
+    }
+
+    #[test]
+    fn helstrom_and_holevo_for_zero_and_plus() {
+        // REFERENCES.md §14 [N]: |0> vs |+>: P_succ = 0.8535533906, χ = 0.6008760.
+        let s = 1.0 / 2f64.sqrt();
+        let zero = Ket::normalized(CVec::from_vec(vec![c(1.0, 0.0), c(0.0, 0.0)]));
+        let plus = Ket::normalized(CVec::from_vec(vec![c(s, 0.0), c(s, 0.0)]));
+        let (r0, r1) = (zero.density(), plus.density());
+        assert_abs_diff_eq!(helstrom_guess(0.5, r0.matrix(), 0.5, r1.matrix()), 0.8535533906, epsilon = 1e-10);
+        assert_abs_diff_eq!(holevo_quantity(&[0.5, 0.5], &[r0.matrix().clone(), r1.matrix().clone()]), 0.6008760, epsilon = 1e-6);
+    }
+
+    #[test]
+    fn mutual_information_of_binary_symmetric_channel() {
+        let q = 0.1;
+        let joint = vec![vec![0.5 * (1.0 - q), 0.5 * q], vec![0.5 * q, 0.5 * (1.0 - q)]];
+        assert_abs_diff_eq!(mutual_information(&joint), 1.0 - binary_entropy(q), epsilon = 1e-14);
+    }
+
+    #[test]
+    fn accessible_equals_holevo_for_commuting_states() {
+        let d0 = CMat::from_diagonal(&CVec::from_vec(vec![c(0.7, 0.0), c(0.2, 0.0), c(0.1, 0.0)]));
+        let d1 = CMat::from_diagonal(&CVec::from_vec(vec![c(0.1, 0.0), c(0.3, 0.0), c(0.6, 0.0)]));
+        let acc = accessible_information(&[0.5, 0.5], &[d0.clone(), d1.clone()], &AccessibleOptions::default()).unwrap();
+        let chi = holevo_quantity(&[0.5, 0.5], &[d0, d1]);
+        assert_abs_diff_eq!(acc.bits, chi, epsilon = 1e-9);
+    }
+
+    #[test]
+    fn accessible_matches_levitin_for_two_pure_states() {
+        // Levitin (1995): two equiprobable pure states with overlap s have accessible
+        // information 1 − h(P_err), P_err = (1 − √(1 − s²))/2. REFERENCES.md §14 row s = cos(π/8):
+        // 0.1083810 [N].
+        for &theta in &[0.1_f64, 0.3, std::f64::consts::PI / 8.0, 0.7, 1.2] {
+            let a = Ket::normalized(CVec::from_vec(vec![c(1.0, 0.0), c(0.0, 0.0)]));
+            let b = Ket::normalized(CVec::from_vec(vec![c(theta.cos(), 0.0), c(theta.sin(), 0.0)]));
+            let s = theta.cos();
+            let p_err = (1.0 - (1.0 - s * s).sqrt()) / 2.0;
+            let acc = accessible_information(&[0.5, 0.5], &[a.density().matrix().clone(), b.density().matrix().clone()], &AccessibleOptions::default())
+                .unwrap();
+            assert_abs_diff_eq!(acc.bits, 1.0 - binary_entropy(p_err), epsilon = 1e-9);
+        }
+        let s = (std::f64::consts::PI / 8.0).cos();
+        let p_err = (1.0 - (1.0 - s * s).sqrt()) / 2.0;
+        assert_abs_diff_eq!(1.0 - binary_entropy(p_err), 0.1083810, epsilon = 1e-7);
+    }
+
+    #[test]
+    fn accessible_between_helstrom_information_and_holevo_for_random_mixed_states() {
+        let mut rng = rand_chacha::ChaCha8Rng::seed_from_u64(11);
+        for d in 2..5 {
+            for _ in 0..5 {
+                let r0 = DensityMatrix::random_hilbert_schmidt(d, &mut rng).matrix().clone();
+                let r1 = DensityMatrix::random_hilbert_schmidt(d, &mut rng).matrix().clone();
+                let acc = accessible_information(&[0.5, 0.5], &[r0.clone(), r1.clone()], &AccessibleOptions::default()).unwrap();
+                let chi = holevo_quantity(&[0.5, 0.5], &[r0.clone(), r1.clone()]);
+                // Information of the two-outcome Helstrom measurement.
+                let diff = &r0 - &r1;
+                let (vals, vecs) = hermitian_eigen(&diff);
+                let mut p_plus = CMat::zeros(d, d);
+                for (i, v) in vals.iter().enumerate() {
+                    if *v > 0.0 {
+                        p_plus += outer(&vecs.column(i).into_owned(), &vecs.column(i).into_owned());
+                    }
+                }
+                let p_minus = CMat::identity(d, d) - &p_plus;
+                let joint: Vec<Vec<f64>> = [&r0, &r1]
+                    .iter()
+                    .map(|r| vec![0.5 * (&p_plus * *r).trace().re, 0.5 * (&p_minus * *r).trace().re])
+                    .collect();
+                let helstrom_info = mutual_information(&joint);
+                assert!(acc.bits <= chi + 1e-12, "accessible {} above Holevo {}", acc.bits, chi);
+                assert!(acc.bits >= helstrom_info - 1e-12, "accessible {} below Helstrom {}", acc.bits, helstrom_info);
+            }
+        }
+    }
+}
