@@ -6,7 +6,7 @@
 //! fit. Random isometries and Kraus sets for property tests live here too.
 
 use crate::error::{Error, ErrorKind, Result};
-use crate::linalg::{c, identity, max_abs_diff, orthonormal_columns, CMat, Tolerance};
+use crate::linalg::{c, identity, max_abs_diff, orthonormal_columns, CMat, Tolerance, C64};
 use rand::Rng;
 use rand_distr::StandardNormal;
 
@@ -111,6 +111,22 @@ impl KrausChannel {
         let v = Self::random_isometry(d_in, d_out * n_ops, rng);
         let ops = (0..n_ops).map(|k| v.rows(k * d_out, d_out).into_owned()).collect();
         KrausChannel { ops, d_in, d_out }
+    }
+
+    /// A near-identity interaction: Eve's probe starts in |0> of C^d_e and interacts with the
+    /// signal by `U = exp(−i t H)`, `H` a random Hermitian matrix on C² ⊗ C^d_e (GUE-like,
+    /// normalised to unit operator norm), so `t` bounds the interaction strength. Returns the
+    /// (2·d_e) × 2 isometry `U (1 ⊗ |0>)` in tensor order signal first.
+    pub fn random_interaction(d_e: usize, t: f64, rng: &mut impl Rng) -> CMat {
+        let n = 2 * d_e;
+        let g = CMat::from_fn(n, n, |_, _| c(rng.sample(StandardNormal), rng.sample(StandardNormal)));
+        let h = (&g + g.adjoint()) * c(0.5, 0.0);
+        let (vals, vecs) = crate::linalg::hermitian_eigen(&h);
+        let norm = vals.iter().fold(0.0_f64, |m, v| m.max(v.abs())).max(1e-300);
+        let phases = CMat::from_diagonal(&crate::linalg::CVec::from_iterator(n, vals.iter().map(|v| C64::from_polar(1.0, -t * v / norm))));
+        let u = &vecs * phases * vecs.adjoint();
+        // Columns of U for inputs |b>|0>: column index b·d_e.
+        CMat::from_fn(n, 2, |r, b| u[(r, b * d_e)])
     }
 }
 

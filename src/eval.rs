@@ -82,6 +82,8 @@ pub struct Evaluation {
     pub accessible_z: Option<f64>,
     /// Accessible information, X basis, bits.
     pub accessible_x: Option<f64>,
+    /// Whether the accessible-information searches met their convergence test (extra).
+    pub accessible_converged: Option<bool>,
     /// Mutual information of Alice's and Bob's Z-basis bits.
     pub i_ab: f64,
     /// Tripartite guessing-game winning probability with honest Bob.
@@ -190,12 +192,13 @@ pub fn evaluate(attack: &Attack, opts: &EvalOptions) -> Result<Evaluation> {
             (1.0 - h, h_x_given_e - (1.0 - h + hz))
         }
     };
-    let (accessible_z, accessible_x) = match &opts.accessible {
-        Some(acc) => (
-            Some(accessible_information(&[0.5, 0.5], &z.eve, acc)?.bits),
-            Some(accessible_information(&[0.5, 0.5], &x.eve, acc)?.bits),
-        ),
-        None => (None, None),
+    let (accessible_z, accessible_x, accessible_converged) = match &opts.accessible {
+        Some(acc) => {
+            let az = accessible_information(&[0.5, 0.5], &z.eve, acc)?;
+            let ax = accessible_information(&[0.5, 0.5], &x.eve, acc)?;
+            (Some(az.bits), Some(ax.bits), Some(az.converged && ax.converged))
+        }
+        None => (None, None, None),
     };
     let eval = Evaluation {
         qber_z: z.qber,
@@ -210,6 +213,7 @@ pub fn evaluate(attack: &Attack, opts: &EvalOptions) -> Result<Evaluation> {
         h_x_given_e,
         accessible_z,
         accessible_x,
+        accessible_converged,
         i_ab: mutual_information(&z.joint_ab),
         game_win: 0.5 * (z.game + x.game),
         bound_rate,
@@ -268,4 +272,27 @@ pub fn bob_fidelity(attack: &Attack, psi: &CVec) -> f64 {
     let rho_be = attack.channel.apply(&rho_in);
     let bob = crate::linalg::partial_trace(&rho_be, &[2, attack.eve_dim], &[0]);
     psi.dotc(&(&bob * psi)).re
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use std::collections::BTreeMap;
+
+    #[test]
+    fn doctored_evaluations_are_reported_as_bound_violations() {
+        let attack = Attack::builtin("cloner", &BTreeMap::new()).unwrap();
+        let good = evaluate(&attack, &EvalOptions::fast(Protocol::Bb84)).unwrap();
+        assert!(check_bounds("x", &good).is_ok());
+        let mut bad = good.clone();
+        bad.margin = -1e-6;
+        assert!(check_bounds("x", &bad).unwrap_err().is_bound_violation());
+        let mut bad = good.clone();
+        bad.game_win = game_bound() + 1e-6;
+        let err = check_bounds("x", &bad).unwrap_err();
+        assert!(err.is_bound_violation() && err.to_string().starts_with("BOUND VIOLATED"), "{err}");
+        let mut bad = good;
+        bad.accessible_z = Some(bad.holevo_z + 1e-6);
+        assert!(check_bounds("x", &bad).unwrap_err().is_bound_violation());
+    }
 }

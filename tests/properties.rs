@@ -1,0 +1,123 @@
+//! Invariants every physical attack satisfies, checked on random channels (seeded
+//! proptest): Haar-random isometries and Kraus sets with d_E ∈ {2, 3, 4}, and near-identity
+//! random interactions.
+//! - margin ≥ −1e-9 in BB84 and six-state (entropic uncertainty relation with quantum
+//!   memory, Berta, Christandl, Colbeck, Renes, Renner, Nature Phys. 6, 659, 2010; the
+//!   six-state form via the Pauli-twirl argument of Renner, Gisin, Kraus, PRA 72, 012332, 2005);
+//! - QBERs in [0, 1]; p_guess in [½, 1]; 0 ≤ accessible ≤ Holevo ≤ 1 (Holevo 1973);
+//! - game_win ≤ ½ + 1/(2√2) (Tomamichel, Fehr, Kaniewski, Wehner, NJP 15, 103002, 2013).
+
+use proptest::prelude::*;
+use proptest::test_runner::{Config, FileFailurePersistence, RngAlgorithm, TestRng, TestRunner};
+use qkd_audit::attack::Attack;
+use qkd_audit::bounds::game_bound;
+use qkd_audit::channel::KrausChannel;
+use qkd_audit::eval::{evaluate, EvalOptions, Evaluation};
+use qkd_audit::linalg::{CMat, Tolerance};
+use qkd_audit::measures::AccessibleOptions;
+use qkd_audit::protocol::Protocol;
+use rand::SeedableRng;
+
+const SLACK: f64 = 1e-9;
+
+fn runner(cases: u32, seed: u8) -> TestRunner {
+    let config = Config { cases, failure_persistence: Some(Box::new(FileFailurePersistence::Off)), ..Config::default() };
+    TestRunner::new_with_rng(config, TestRng::from_seed(RngAlgorithm::ChaCha, &[seed; 32]))
+}
+
+fn check(e: &Evaluation, with_accessible: bool) -> Result<(), TestCaseError> {
+    prop_assert!(e.margin >= -SLACK, "margin {} ({})", e.margin, e.protocol);
+    for q in [e.qber_z, e.qber_x, e.qber_y] {
+        prop_assert!((-SLACK..=1.0 + SLACK).contains(&q), "qber {q}");
+    }
+    for p in [e.p_guess_z, e.p_guess_x, e.p_guess_y] {
+        prop_assert!((0.5 - SLACK..=1.0 + SLACK).contains(&p), "p_guess {p}");
+    }
+    for chi in [e.holevo_z, e.holevo_x, e.holevo_y] {
+        prop_assert!((-SLACK..=1.0 + SLACK).contains(&chi), "holevo {chi}");
+    }
+    if with_accessible {
+        for (a, chi) in [(e.accessible_z.unwrap(), e.holevo_z), (e.accessible_x.unwrap(), e.holevo_x)] {
+            prop_assert!(a >= -SLACK && a <= chi + SLACK, "accessible {a} vs holevo {chi}");
+        }
+    }
+    prop_assert!(e.game_win <= game_bound() + SLACK, "game {}", e.game_win);
+    prop_assert!(e.game_win >= 0.0);
+    Ok(())
+}
+
+fn evaluate_both(attack: &Attack, with_accessible: bool) -> Result<(), TestCaseError> {
+    let acc = with_accessible.then(|| AccessibleOptions { random_starts: 1, ..AccessibleOptions::default() });
+    for protocol in [Protocol::Bb84, Protocol::SixState] {
+        let opts = EvalOptions { protocol, accessible: if protocol == Protocol::Bb84 { acc.clone() } else { None } };
+        match evaluate(attack, &opts) {
+            Ok(e) => check(&e, opts.accessible.is_some())?,
+            Err(err) => return Err(TestCaseError::fail(format!("{err}"))),
+        }
+    }
+    Ok(())
+}
+
+#[test]
+fn random_kraus_sets_respect_every_bound() {
+    // 1200 channels: Haar isometries (one Kraus operator) and Kraus sets of 2–4 operators.
+    let strategy = (any::<u64>(), 2usize..=4, 1usize..=4);
+    runner(1200, 7)
+        .run(&strategy, |(seed, d_e, n_ops)| {
+            let mut rng = rand_chacha::ChaCha8Rng::seed_from_u64(seed);
+            let ch = KrausChannel::random(2, 2 * d_e, n_ops, &mut rng);
+            let attack = Attack::from_kraus("random", d_e, ch.operators().to_vec(), Tolerance::default()).unwrap();
+            // Accessible information (slow) on one channel in four.
+            evaluate_both(&attack, seed % 4 == 0)
+        })
+        .unwrap();
+}
+
+#[test]
+fn near_identity_interactions_respect_every_bound() {
+    let strategy = (any::<u64>(), 2usize..=4, 0.0f64..0.3);
+    runner(1000, 9)
+        .run(&strategy, |(seed, d_e, t)| {
+            let mut rng = rand_chacha::ChaCha8Rng::seed_from_u64(seed);
+            let v: CMat = KrausChannel::random_interaction(d_e, t, &mut rng);
+            let attack = Attack::from_kraus("interaction", d_e, vec![v], Tolerance::default()).unwrap();
+            evaluate_both(&attack, seed % 4 == 0)
+        })
+        .unwrap();
+}
+
+#[test]
+fn built_in_families_respect_every_bound_over_their_ranges() {
+    use qkd_audit::attack::Value;
+    use std::collections::BTreeMap;
+    let strategy = (0.0f64..=0.5, 0.0f64..=1.0, 0usize..4);
+    runner(300, 3)
+        .run(&strategy, |(d, p, which)| {
+            let mut given = BTreeMap::new();
+            let family = match which {
+                0 => {
+                    given.insert("fraction".into(), Value::Num(p));
+                    given.insert("basis".into(), Value::Text(["z", "x", "random", "breidbart"][(p * 3.99) as usize].into()));
+                    "intercept-resend"
+                }
+                1 => {
+                    given.insert("qber".into(), Value::Num(d));
+                    given.insert("kind".into(), Value::Text(if p < 0.5 { "universal" } else { "phase-covariant" }.into()));
+                    "cloner"
+                }
+                2 => {
+                    given.insert("qber".into(), Value::Num(d));
+                    "entangling-probe"
+                }
+                _ => {
+                    given.insert("px".into(), Value::Num(d / 2.0));
+                    given.insert("pz".into(), Value::Num(p / 3.0));
+                    "pauli"
+                }
+            };
+            let attack = Attack::builtin(family, &given).unwrap();
+            prop_assert!(attack.channel.completeness_defect() < 1e-12);
+            evaluate_both(&attack, true)
+        })
+        .unwrap();
+}
