@@ -7,16 +7,22 @@
 //! 3. [`measures`]: entropies, trace norm, Helstrom, Holevo, accessible information;
 //! 4. [`protocol`]: BB84 and six-state signal states;
 //! 5. [`attack`]: the attack catalogue and user Kraus attacks;
-//! 6. [`bounds`]: security bounds and thresholds; [`eval`]: the exact per-attack evaluator.
+//! 6. [`bounds`]: security bounds and thresholds; [`eval`]: the exact per-attack evaluator;
+//!    [`thresholds`]: threshold table; [`sweep`]: parameter sweeps and their CSV;
+//! 7. [`output`]: safe file writing.
 
 pub mod attack;
 pub mod bounds;
 pub mod channel;
+pub mod cli;
 pub mod error;
 pub mod eval;
 pub mod linalg;
 pub mod measures;
+pub mod output;
 pub mod protocol;
 pub mod state;
+pub mod sweep;
+pub mod thresholds;
 
 pub use error::{Error, ErrorKind, Result};

@@ -1,1 +1,25 @@
-fn main(){}
+//! The `qkd-audit` binary: parse arguments, run, map the outcome to an exit status
+//! (0 clean, 1 findings, 2 error).
+
+use clap::Parser;
+use qkd_audit::cli::{run, Cli, Outcome};
+use std::process::ExitCode;
+
+fn main() -> ExitCode {
+    let cli = match Cli::try_parse() {
+        Ok(c) => c,
+        Err(e) => {
+            let code = if e.use_stderr() { 2 } else { 0 };
+            let _ = e.print();
+            return ExitCode::from(code);
+        }
+    };
+    match run(cli) {
+        Ok(Outcome::Clean) => ExitCode::SUCCESS,
+        Ok(Outcome::Findings) => ExitCode::from(1),
+        Err(e) => {
+            eprintln!("error: {e}");
+            ExitCode::from(2)
+        }
+    }
+}

@@ -1,0 +1,266 @@
+//! Command-line interface: argument parsing (clap) and one function per subcommand.
+//!
+//! Results go to stdout or to files; diagnostics go to stderr. Each subcommand returns an
+//! [`Outcome`] that `main` maps to the exit status: 0 clean, 1 findings, 2 error.
+
+use crate::attack::file::{self as attack_file, AttackFile};
+use crate::attack::{Attack, Value, FAMILIES};
+use crate::error::{Error, Result};
+use crate::eval::{evaluate, EvalOptions, Evaluation};
+use crate::protocol::Protocol;
+use clap::{Parser, Subcommand};
+use std::collections::BTreeMap;
+use std::io::Write;
+use std::path::{Path, PathBuf};
+
+/// Audit quantum key distribution configurations against eavesdropping attacks and the
+/// proven security bounds.
+#[derive(Parser, Debug)]
+#[command(name = "qkd-audit", version, about, long_about = None)]
+pub struct Cli {
+    /// What to do.
+    #[command(subcommand)]
+    pub command: Command,
+}
+
+/// The subcommands.
+#[derive(Subcommand, Debug)]
+pub enum Command {
+    /// Evaluate one single-photon attack exactly: error rates, Eve's information, bounds.
+    Eval(EvalArgs),
+    /// Evaluate an attack file's parameter sweep and write a tidy CSV.
+    Sweep(SweepArgs),
+    /// Print the zero-rate and attack thresholds, each computed and with its source.
+    Thresholds(ThresholdArgs),
+    /// Check attack files and report every problem found.
+    Validate(ValidateArgs),
+}
+
+/// Options of `eval`.
+#[derive(clap::Args, Debug)]
+pub struct EvalArgs {
+    /// Built-in attack family: intercept-resend, cloner, entangling-probe, pauli.
+    #[arg(long, conflicts_with = "attack_file", required_unless_present = "attack_file")]
+    pub attack: Option<String>,
+    /// Attack file: a catalogue entry or a kraus file (see attacks/README.md).
+    #[arg(long, value_name = "PATH")]
+    pub attack_file: Option<PathBuf>,
+    /// Set an attack parameter, e.g. --set fraction=0.5 (repeatable).
+    #[arg(long = "set", value_name = "KEY=VALUE")]
+    pub set: Vec<String>,
+    /// Protocol whose bound the attack is judged against.
+    #[arg(long, default_value = "bb84", value_parser = ["bb84", "six-state"])]
+    pub protocol: String,
+    /// Print one JSON object instead of a table.
+    #[arg(long)]
+    pub json: bool,
+}
+
+/// Options of `sweep`.
+#[derive(clap::Args, Debug)]
+pub struct SweepArgs {
+    /// Attack file with a [sweep] table (catalogue entry).
+    #[arg(long, value_name = "PATH")]
+    pub attack_file: PathBuf,
+    /// Number of points (overrides the file's `steps`).
+    #[arg(long, value_name = "N")]
+    pub steps: Option<usize>,
+    /// Protocol whose bound the attack is judged against.
+    #[arg(long, default_value = "bb84", value_parser = ["bb84", "six-state"])]
+    pub protocol: String,
+    /// Output CSV file (default: stdout).
+    #[arg(short, long, value_name = "FILE")]
+    pub output: Option<PathBuf>,
+    /// Replace the output file if it exists.
+    #[arg(long)]
+    pub force: bool,
+}
+
+/// Options of `thresholds`.
+#[derive(clap::Args, Debug)]
+pub struct ThresholdArgs {
+    /// Error-correction efficiency f ≥ 1 (leak = f·h(Q) per bit); 1 is the Shannon limit.
+    #[arg(long, default_value_t = 1.0, value_name = "F")]
+    pub f_ec: f64,
+    /// Print JSON instead of a table.
+    #[arg(long)]
+    pub json: bool,
+}
+
+/// Options of `validate`.
+#[derive(clap::Args, Debug)]
+pub struct ValidateArgs {
+    /// Attack files to check.
+    #[arg(required = true, value_name = "FILE")]
+    pub files: Vec<PathBuf>,
+}
+
+/// What a command found.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub enum Outcome {
+    /// Nothing to report (exit 0).
+    Clean,
+    /// Findings such as a leak verdict (exit 1).
+    Findings,
+}
+
+/// Runs the parsed command.
+pub fn run(cli: Cli) -> Result<Outcome> {
+    match cli.command {
+        Command::Eval(a) => cmd_eval(a),
+        Command::Sweep(a) => cmd_sweep(a),
+        Command::Thresholds(a) => cmd_thresholds(a),
+        Command::Validate(a) => cmd_validate(a),
+    }
+}
+
+fn parse_protocol(s: &str) -> Result<Protocol> {
+    s.parse().map_err(|e: String| Error::input_key("--protocol", e))
+}
+
+/// Parses `KEY=VALUE` overrides.
+pub fn parse_sets(sets: &[String]) -> Result<BTreeMap<String, Value>> {
+    let mut out = BTreeMap::new();
+    for s in sets {
+        let (k, v) = s
+            .split_once('=')
+            .ok_or_else(|| Error::input_key("--set", format!("`{s}` is not KEY=VALUE")))?;
+        if k.trim().is_empty() {
+            return Err(Error::input_key("--set", format!("`{s}` has an empty key")));
+        }
+        out.insert(k.trim().to_string(), Value::parse(v));
+    }
+    Ok(out)
+}
+
+fn load_attack_file(path: &Path) -> Result<AttackFile> {
+    attack_file::load(path)
+}
+
+fn cmd_eval(a: EvalArgs) -> Result<Outcome> {
+    let protocol = parse_protocol(&a.protocol)?;
+    let sets = parse_sets(&a.set)?;
+    let attack = match (&a.attack, &a.attack_file) {
+        (Some(f), None) => Attack::builtin(f, &sets).map_err(|e| if e.key().is_some() && !e.message().contains("unknown attack family") { e.with_key("--set") } else { e })?,
+        (None, Some(p)) => load_attack_file(p)?.attack(&sets).map_err(|e| e.with_file(p))?,
+        _ => return Err(Error::input("give exactly one of --attack and --attack-file")),
+    };
+    let eval = evaluate(&attack, &EvalOptions::full(protocol))?;
+    let mut out = std::io::stdout().lock();
+    let text = if a.json { eval_json(&attack, &eval)? + "\n" } else { eval_table(&attack, &eval) };
+    write_stdout(&mut out, &text)?;
+    Ok(Outcome::Clean)
+}
+
+/// The JSON object of `eval`: the evaluator's fields plus `attack`, `family`, `params`.
+pub fn eval_json(attack: &Attack, eval: &Evaluation) -> Result<String> {
+    let mut v = serde_json::to_value(eval).map_err(|e| Error::input(e.to_string()))?;
+    if let serde_json::Value::Object(m) = &mut v {
+        m.insert("attack".into(), attack.label.clone().into());
+        m.insert("family".into(), attack.family.clone().into());
+        let params: serde_json::Map<String, serde_json::Value> =
+            attack.params.0.iter().map(|(k, v)| (k.clone(), serde_json::to_value(v).unwrap_or_default())).collect();
+        m.insert("params".into(), params.into());
+    }
+    serde_json::to_string_pretty(&v).map_err(|e| Error::input(e.to_string()))
+}
+
+fn eval_table(attack: &Attack, e: &Evaluation) -> String {
+    let params: Vec<String> = attack.params.0.iter().map(|(k, v)| format!("{k}={v}")).collect();
+    let mut s = format!("attack {} ({}) {}  eve_dim {}  protocol {}\n", attack.label, attack.family, params.join(" "), e.eve_dim, e.protocol);
+    let opt = |x: Option<f64>| x.map_or("-".to_string(), |v| format!("{v:.10}"));
+    let rows: Vec<(&str, String, &str)> = vec![
+        ("qber_z", format!("{:.10}", e.qber_z), "error rate, Z (key) basis"),
+        ("qber_x", format!("{:.10}", e.qber_x), "error rate, X basis"),
+        ("qber_y", format!("{:.10}", e.qber_y), "error rate, Y basis"),
+        ("p_guess_z", format!("{:.10}", e.p_guess_z), "Eve's Helstrom guessing probability, Z"),
+        ("p_guess_x", format!("{:.10}", e.p_guess_x), "same, X"),
+        ("p_guess_y", format!("{:.10}", e.p_guess_y), "same, Y"),
+        ("holevo_z", format!("{:.10}", e.holevo_z), "Holevo quantity of Eve's states, Z (bits)"),
+        ("holevo_x", format!("{:.10}", e.holevo_x), "same, X (bits)"),
+        ("holevo_y", format!("{:.10}", e.holevo_y), "same, Y (bits)"),
+        ("h_x_given_e", format!("{:.10}", e.h_x_given_e), "H(X|E) of the key bit (bits)"),
+        ("accessible_z", opt(e.accessible_z), "accessible information, Z (bits)"),
+        ("accessible_x", opt(e.accessible_x), "accessible information, X (bits)"),
+        ("i_ab", format!("{:.10}", e.i_ab), "I(A:B), Z basis (bits)"),
+        ("game_win", format!("{:.10}", e.game_win), "guessing game with honest Bob (bound 0.8535533906)"),
+        ("bound_rate", format!("{:.10}", e.bound_rate), "proven rate at these QBERs (bits/sifted bit)"),
+        ("attack_rate", format!("{:.10}", e.attack_rate), "Devetak-Winter rate against this attack"),
+        ("individual_rate", opt(e.individual_rate), "Csiszar-Korner rate, attack measured individually"),
+        ("margin", format!("{:.10}", e.margin), "H(X|E) minus what the bound assumes (>= 0)"),
+    ];
+    for (k, v, m) in rows {
+        s.push_str(&format!("  {k:<16} {v:>14}  {m}\n"));
+    }
+    if e.accessible_converged == Some(false) {
+        s.push_str("  note: the accessible-information search hit its iteration cap; the values are lower bounds\n");
+    }
+    s
+}
+
+fn write_stdout(out: &mut impl Write, text: &str) -> Result<()> {
+    match out.write_all(text.as_bytes()).and_then(|_| out.flush()) {
+        Ok(()) => Ok(()),
+        // A closed pipe (e.g. `| head`) is not an error.
+        Err(e) if e.kind() == std::io::ErrorKind::BrokenPipe => Ok(()),
+        Err(e) => Err(e.into()),
+    }
+}
+
+fn cmd_sweep(a: SweepArgs) -> Result<Outcome> {
+    let protocol = parse_protocol(&a.protocol)?;
+    if let Some(o) = &a.output {
+        crate::output::check_overwrite(o, a.force)?;
+    }
+    let file = load_attack_file(&a.attack_file)?;
+    let points = crate::sweep::run_sweep(&file, a.steps, &EvalOptions::full(protocol)).map_err(|e| e.with_file(&a.attack_file))?;
+    let csv = crate::sweep::sweep_csv(&points)?;
+    match &a.output {
+        Some(o) => {
+            crate::output::write_atomic(o, csv.as_bytes(), a.force)?;
+            eprintln!("wrote {} points to {}", points.len(), o.display());
+        }
+        None => write_stdout(&mut std::io::stdout().lock(), &csv)?,
+    }
+    Ok(Outcome::Clean)
+}
+
+fn cmd_thresholds(a: ThresholdArgs) -> Result<Outcome> {
+    crate::error::check_range("--f-ec", a.f_ec, 1.0, 3.0)?;
+    let table = crate::thresholds::threshold_table(a.f_ec)?;
+    let text = if a.json {
+        serde_json::to_string_pretty(&table).map_err(|e| Error::input(e.to_string()))? + "\n"
+    } else {
+        let mut s = format!("thresholds (QBER as a fraction; error-correction efficiency f = {})\n", a.f_ec);
+        for t in &table {
+            s.push_str(&format!("  {:<34} {:.10}  {}\n  {:<34} {:>12}  source: {}\n", t.name, t.qber, t.method, "", "", t.source));
+        }
+        s
+    };
+    write_stdout(&mut std::io::stdout().lock(), &text)?;
+    Ok(Outcome::Clean)
+}
+
+fn cmd_validate(a: ValidateArgs) -> Result<Outcome> {
+    let mut problems = 0;
+    for f in &a.files {
+        let errs = attack_file::validate(f);
+        if errs.is_empty() {
+            println!("ok {}", f.display());
+        } else {
+            for e in &errs {
+                eprintln!("error: {e}");
+            }
+            problems += errs.len();
+        }
+    }
+    if problems > 0 {
+        return Err(Error::input(format!("{problems} problem(s) found in {} file(s)", a.files.len())));
+    }
+    Ok(Outcome::Clean)
+}
+
+/// Names of the built-in families, for help texts.
+pub fn family_names() -> Vec<&'static str> {
+    FAMILIES.iter().map(|f| f.name()).collect()
+}
