@@ -21,6 +21,8 @@ pub mod linalg;
 pub mod measures;
 pub mod output;
 pub mod protocol;
+pub mod rules;
+pub mod setup;
 pub mod state;
 pub mod sweep;
 pub mod thresholds;
