@@ -34,6 +34,11 @@ pub enum Command {
     Thresholds(ThresholdArgs),
     /// Check attack files and report every problem found.
     Validate(ValidateArgs),
+    /// Run a finite-key audit campaign and write the attack-versus-bound table
+    /// (without a file: the built-in demo campaign).
+    Run(crate::audit::cli::RunArgs),
+    /// Write the round-by-round transcript of one small block as CSV.
+    Transcript(crate::audit::cli::TranscriptArgs),
 }
 
 /// Options of `eval`.
@@ -111,6 +116,8 @@ pub fn run(cli: Cli) -> Result<Outcome> {
         Command::Sweep(a) => cmd_sweep(a),
         Command::Thresholds(a) => cmd_thresholds(a),
         Command::Validate(a) => cmd_validate(a),
+        Command::Run(a) => crate::audit::cli::cmd_run(a),
+        Command::Transcript(a) => crate::audit::cli::cmd_transcript(a),
     }
 }
 

@@ -12,6 +12,7 @@
 //! 7. [`output`]: safe file writing.
 
 pub mod attack;
+pub mod audit;
 pub mod bounds;
 pub mod channel;
 pub mod cli;
@@ -21,8 +22,10 @@ pub mod linalg;
 pub mod measures;
 pub mod output;
 pub mod protocol;
+pub mod report;
 pub mod rules;
 pub mod setup;
+pub mod sim;
 pub mod state;
 pub mod sweep;
 pub mod thresholds;

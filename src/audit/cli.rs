@@ -1,0 +1,178 @@
+//! The `run` and `transcript` subcommands.
+
+use super::{point_count, run, Campaign};
+use crate::attack::Attack;
+use crate::cli::{parse_sets, Outcome};
+use crate::error::{Error, Result};
+use crate::report::manifest::{sha256_hex, InputHash, Manifest};
+use crate::setup::Setup;
+use crate::sim::round::{RoundRecord, RoundSampler};
+use crate::sim::{trial_rng, SignalModel};
+use std::io::IsTerminal;
+use std::path::PathBuf;
+
+/// Options of `run`.
+#[derive(clap::Args, Debug)]
+pub struct RunArgs {
+    /// Campaign file (TOML). Without it, the built-in demo campaign runs.
+    #[arg(value_name = "CAMPAIGN")]
+    pub campaign: Option<PathBuf>,
+    /// Folder that receives `<campaign name>/`.
+    #[arg(long, default_value = "results", value_name = "DIR")]
+    pub results_dir: PathBuf,
+    /// Replace an existing output folder.
+    #[arg(long)]
+    pub force: bool,
+    /// No progress bar.
+    #[arg(long, short)]
+    pub quiet: bool,
+    /// Worker threads (default: all cores, or RAYON_NUM_THREADS). Results do not depend on it.
+    #[arg(long, value_name = "N")]
+    pub threads: Option<usize>,
+}
+
+/// Runs `qkd-audit run`.
+pub fn cmd_run(a: RunArgs) -> Result<Outcome> {
+    let campaign = match &a.campaign {
+        Some(p) => Campaign::load(p)?,
+        None => Campaign::demo(),
+    };
+    let dir = a.results_dir.join(&campaign.name);
+    if dir.exists() && !a.force {
+        return Err(Error::input("output folder already exists; refusing to overwrite results (pass --force to replace it)").with_file(&dir));
+    }
+    let pool = {
+        let mut b = rayon::ThreadPoolBuilder::new();
+        if let Some(n) = a.threads {
+            if n == 0 {
+                return Err(Error::input_key("--threads", "must be at least 1"));
+            }
+            b = b.num_threads(n);
+        }
+        b.build().map_err(|e| Error::input(format!("cannot start worker threads: {e}")))?
+    };
+    let started = std::time::SystemTime::now();
+    let clock = std::time::Instant::now();
+    let total = point_count(&campaign) as u64;
+    let bar = if !a.quiet && std::io::stderr().is_terminal() {
+        let pb = indicatif::ProgressBar::new(total);
+        pb.set_style(indicatif::ProgressStyle::with_template("{bar:40} {pos}/{len} attack points {elapsed}").expect("valid template"));
+        Some(pb)
+    } else {
+        None
+    };
+    let tick = || {
+        if let Some(b) = &bar {
+            b.inc(1);
+        }
+    };
+    let results = pool.install(|| run(&campaign, &tick))?;
+    if let Some(b) = &bar {
+        b.finish_and_clear();
+    }
+    let manifest = Manifest {
+        tool: "qkd-audit",
+        version: env!("CARGO_PKG_VERSION"),
+        command_line: std::env::args().collect(),
+        campaign: campaign.name.clone(),
+        seed: campaign.seed,
+        trials: campaign.trials,
+        sampler: campaign.sampler,
+        inputs: campaign.inputs.iter().map(|(o, t)| InputHash { origin: o.clone(), sha256: sha256_hex(t) }).collect(),
+        started_unix_s: started.duration_since(std::time::UNIX_EPOCH).map(|d| d.as_secs()).unwrap_or(0),
+        elapsed_s: clock.elapsed().as_secs_f64(),
+        threads: pool.current_num_threads(),
+    };
+    crate::report::write_folder(&dir, &campaign, &results, &manifest, a.force)?;
+    let leaks = results.iter().filter(|r| r.stats.verdict == "leak").count();
+    if !a.quiet {
+        eprintln!(
+            "{} attack points, {} trials each, {:.1} s; {}",
+            results.len(),
+            campaign.trials,
+            manifest.elapsed_s,
+            if leaks > 0 { format!("LEAK at {leaks} point(s)") } else { "no leak found".to_string() }
+        );
+    }
+    println!("{}", dir.display());
+    Ok(if leaks > 0 { Outcome::Findings } else { Outcome::Clean })
+}
+
+/// Options of `transcript`.
+#[derive(clap::Args, Debug)]
+pub struct TranscriptArgs {
+    /// Built-in attack family.
+    #[arg(long, conflicts_with = "attack_file", required_unless_present = "attack_file")]
+    pub attack: Option<String>,
+    /// Attack file (catalogue entry or kraus file).
+    #[arg(long, value_name = "PATH")]
+    pub attack_file: Option<PathBuf>,
+    /// Set an attack parameter (repeatable).
+    #[arg(long = "set", value_name = "KEY=VALUE")]
+    pub set: Vec<String>,
+    /// Setup file for protocol, basis probabilities and test sample (default: built-in defaults).
+    #[arg(long, value_name = "FILE")]
+    pub setup: Option<PathBuf>,
+    /// Number of signals (at most 1000000).
+    #[arg(long, default_value_t = 1000)]
+    pub signals: u64,
+    /// Seed of the random stream.
+    #[arg(long, default_value_t = 0)]
+    pub seed: u64,
+    /// Output CSV (default: stdout).
+    #[arg(short, long, value_name = "FILE")]
+    pub output: Option<PathBuf>,
+    /// Replace the output file if it exists.
+    #[arg(long)]
+    pub force: bool,
+}
+
+/// Runs `qkd-audit transcript`: the round-by-round transcript of one block (per-round sampler).
+pub fn cmd_transcript(a: TranscriptArgs) -> Result<Outcome> {
+    if a.signals == 0 || a.signals > 1_000_000 {
+        return Err(Error::input_key("--signals", format!("{} is outside [1, 1000000]", a.signals)));
+    }
+    if let Some(o) = &a.output {
+        crate::output::check_overwrite(o, a.force)?;
+    }
+    let setup = match &a.setup {
+        Some(p) => Setup::load(p)?,
+        None => Setup::default(),
+    };
+    let sets = parse_sets(&a.set)?;
+    let attack = match (&a.attack, &a.attack_file) {
+        (Some(f), None) => Attack::builtin(f, &sets)?,
+        (None, Some(p)) => crate::attack::file::load(p)?.attack(&sets).map_err(|e| e.with_file(p))?,
+        _ => return Err(Error::input("give exactly one of --attack and --attack-file")),
+    };
+    let model = SignalModel::new(&attack, setup.protocol, &setup.basis_probabilities());
+    let mut rng = trial_rng(a.seed, 0, 0);
+    let mut w = csv::Writer::from_writer(Vec::new());
+    let mut failure: Option<csv::Error> = None;
+    let mut sink = |r: RoundRecord| {
+        if failure.is_none() {
+            if let Err(e) = w.serialize(&r) {
+                failure = Some(e);
+            }
+        }
+    };
+    let test_size = |z: u64| setup.test_sample.size(z);
+    RoundSampler::new(&model).sample(a.signals, &test_size, &mut rng, Some(&mut sink));
+    if let Some(e) = failure {
+        return Err(Error::input(e.to_string()));
+    }
+    let bytes = w.into_inner().map_err(|e| Error::input(e.to_string()))?;
+    match &a.output {
+        Some(o) => crate::output::write_atomic(o, &bytes, a.force)?,
+        None => {
+            use std::io::Write;
+            let mut out = std::io::stdout().lock();
+            if let Err(e) = out.write_all(&bytes) {
+                if e.kind() != std::io::ErrorKind::BrokenPipe {
+                    return Err(e.into());
+                }
+            }
+        }
+    }
+    Ok(Outcome::Clean)
+}

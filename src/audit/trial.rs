@@ -1,0 +1,134 @@
+//! One trial of a campaign: from a sampled block to the configured key length and a
+//! verdict against what the attack actually leaves secret.
+//!
+//! For the n key bits of an i.i.d. attack with per-round conditional entropy H(X|E):
+//! - `capacity = n·H(X|E) − leak_EC`: no privacy amplification extracts more secret key
+//!   against this attack, up to O(log n) terms (the smooth min-entropy of n i.i.d. rounds
+//!   lies below n·H(X|E) for small ε; Tomamichel & Hayashi, IEEE TIT 59, 7693, 2013);
+//! - `achievable = AEP(n, H(X|E), ε_smooth) − leak_EC − 2 log₂(1/(2ε_PA))`: a rigorous lower
+//!   bound (Tomamichel, Colbeck, Renner 2009 with the leftover hash lemma), ε budget as in
+//!   [`crate::rules`].
+//!
+//! Verdicts: `aborted`; `no-key` (the rule gives length 0); `secure` if ℓ ≤ achievable;
+//! `leak` if ℓ > capacity + allowance with allowance = 2·log₂ n (the O(log n) slack of the
+//! converse): the key is provably not secret against this attack at any small ε;
+//! `inconclusive` otherwise (the AEP band is loose, so honest keys from a proven rule often
+//! land here; they remain covered by the rule's own security proof).
+
+use crate::rules::{aep_min_entropy, ec_leak_bits, pa_cost_bits, BlockStats, EpsilonBudget};
+use crate::setup::Setup;
+use crate::sim::BlockCounts;
+use serde::Serialize;
+
+/// A trial's verdict.
+#[derive(Clone, Copy, Debug, PartialEq, Eq, Serialize, PartialOrd, Ord, Hash)]
+#[serde(rename_all = "kebab-case")]
+pub enum Verdict {
+    /// The protocol aborted (observed error rate above threshold, or nothing to test).
+    Aborted,
+    /// The rule gave no key.
+    NoKey,
+    /// ℓ ≤ achievable: secret against this attack, rigorously.
+    Secure,
+    /// Between the rigorous bound and the converse.
+    Inconclusive,
+    /// ℓ > capacity + allowance: provably not secret against this attack.
+    Leak,
+}
+
+impl Verdict {
+    /// Interface name.
+    pub fn name(self) -> &'static str {
+        match self {
+            Verdict::Aborted => "aborted",
+            Verdict::NoKey => "no-key",
+            Verdict::Secure => "secure",
+            Verdict::Inconclusive => "inconclusive",
+            Verdict::Leak => "leak",
+        }
+    }
+}
+
+/// The outcome of one trial.
+#[derive(Clone, Debug, PartialEq, Serialize)]
+pub struct TrialOutcome {
+    /// What the post-processing saw.
+    pub stats: BlockStats,
+    /// Observed Y error rate (six-state; NaN otherwise or without Y rounds).
+    pub e_y: f64,
+    /// Whether the protocol aborted.
+    pub aborted: bool,
+    /// Extracted key length ℓ (0 when aborted or no key).
+    pub length: u64,
+    /// Error-correction leak including verification, bits.
+    pub leak_ec: f64,
+    /// n·H(X|E) − leak_EC.
+    pub capacity: f64,
+    /// Rigorous achievable length against this attack (−∞ when the AEP bound does not apply).
+    pub achievable: f64,
+    /// ℓ − capacity.
+    pub excess: f64,
+    /// Key bits Eve guessed correctly (her Helstrom guess after the basis announcement).
+    pub eve_correct_key: u64,
+    /// The verdict.
+    pub verdict: Verdict,
+}
+
+/// The slack of the converse: 2·log₂ n bits.
+pub fn allowance_bits(n: u64) -> f64 {
+    2.0 * (n.max(1) as f64).log2()
+}
+
+fn rate(errors: u64, total: u64) -> f64 {
+    if total == 0 {
+        f64::NAN
+    } else {
+        errors as f64 / total as f64
+    }
+}
+
+/// Post-processes a block and judges the key against the attack's `h_x_given_e`.
+pub fn judge(counts: &BlockCounts, setup: &Setup, h_x_given_e: f64) -> TrialOutcome {
+    let key = counts.key_cells();
+    let n: u64 = key.iter().sum();
+    let m: u64 = counts.test_z.iter().sum();
+    let k = counts.sifted[1];
+    let stats = BlockStats {
+        n,
+        k,
+        m,
+        e_z: rate(BlockCounts::errors(&counts.test_z), m),
+        e_x: rate(BlockCounts::errors(&counts.cells[1]), k),
+    };
+    let e_y = rate(BlockCounts::errors(&counts.cells[2]), counts.sifted[2]);
+    let exceeds = |e: f64| !e.is_nan() && e > setup.abort_qber;
+    let aborted = n == 0 || k == 0 || exceeds(stats.e_x) || exceeds(stats.e_z) || exceeds(e_y);
+    let leak_ec = ec_leak_bits(&stats, setup);
+    let capacity = n as f64 * h_x_given_e - leak_ec;
+    let budget = EpsilonBudget::split(setup.epsilon_sec);
+    let achievable = aep_min_entropy(n, h_x_given_e, budget.smooth).map_or(f64::NEG_INFINITY, |h| h - leak_ec - pa_cost_bits(budget.pa));
+    let length = if aborted { 0 } else { setup.key_rule.length(&stats, setup).length };
+    let verdict = if aborted {
+        Verdict::Aborted
+    } else if length == 0 {
+        Verdict::NoKey
+    } else if (length as f64) <= achievable {
+        Verdict::Secure
+    } else if length as f64 > capacity + allowance_bits(n) {
+        Verdict::Leak
+    } else {
+        Verdict::Inconclusive
+    };
+    TrialOutcome {
+        stats,
+        e_y,
+        aborted,
+        length,
+        leak_ec,
+        capacity,
+        achievable,
+        excess: length as f64 - capacity,
+        eve_correct_key: BlockCounts::eve_correct(&key),
+        verdict,
+    }
+}
