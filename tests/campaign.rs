@@ -40,15 +40,7 @@ fn verdicts(a: &Attack, setup: &Setup, trials: u64, seed: u64) -> Vec<Verdict> {
 
 /// Summary statistics of a block used to compare the samplers.
 fn features(c: &BlockCounts) -> [u64; 6] {
-    let key = c.key_cells();
-    [
-        c.sifted[0],
-        BlockCounts::errors(&key),
-        BlockCounts::errors(&c.test_z),
-        BlockCounts::errors(&c.cells[1]),
-        BlockCounts::eve_correct(&key),
-        c.sifted[2],
-    ]
+    [c.sifted[0], c.key_errors(), c.test_z_errors, c.errors[1], c.eve_correct_key(), c.sifted[2]]
 }
 
 /// Two-sample chi-square test of homogeneity on binned values; returns the p-value.
@@ -132,12 +124,11 @@ fn monte_carlo_rates_fall_in_intervals_around_exact_values() {
         let (mut key, mut err, mut eve, mut k, mut xerr) = (0u64, 0u64, 0u64, 0u64, 0u64);
         for t in 0..400 {
             let c = sample_block(sampler, &model, 5000, &ts, &mut trial_rng(5, 0, t));
-            let kc = c.key_cells();
-            key += kc.iter().sum::<u64>();
-            err += BlockCounts::errors(&kc);
-            eve += BlockCounts::eve_correct(&kc);
+            key += c.key_bits();
+            err += c.key_errors();
+            eve += c.eve_correct_key();
             k += c.sifted[1];
-            xerr += BlockCounts::errors(&c.cells[1]);
+            xerr += c.errors[1];
         }
         // 5 standard errors of a binomial proportion.
         let within = |hits: u64, n: u64, p: f64| ((hits as f64 / n as f64) - p).abs() < 5.0 * (p * (1.0 - p) / n as f64).sqrt();

@@ -13,9 +13,25 @@ pub fn clopper_pearson(k: u64, n: u64) -> (f64, f64) {
         return (0.0, 1.0);
     }
     let alpha = 0.05;
-    let lo = if k == 0 { 0.0 } else { Beta::new(k as f64, (n - k + 1) as f64).expect("positive shape").inverse_cdf(alpha / 2.0) };
-    let hi = if k == n { 1.0 } else { Beta::new((k + 1) as f64, (n - k) as f64).expect("positive shape").inverse_cdf(1.0 - alpha / 2.0) };
+    let lo = if k == 0 { 0.0 } else { beta_quantile(k as f64, (n - k + 1) as f64, alpha / 2.0) };
+    let hi = if k == n { 1.0 } else { beta_quantile((k + 1) as f64, (n - k) as f64, 1.0 - alpha / 2.0) };
     (lo, hi)
+}
+
+/// Quantile of the Beta(a, b) law by bisection on statrs' regularised incomplete beta
+/// function to 1e-13 (statrs' own `inverse_cdf` stops near 1e-5).
+fn beta_quantile(a: f64, b: f64, p: f64) -> f64 {
+    let dist = Beta::new(a, b).expect("positive shape parameters");
+    let (mut lo, mut hi) = (0.0_f64, 1.0_f64);
+    while hi - lo > 1e-13 {
+        let mid = 0.5 * (lo + hi);
+        if dist.cdf(mid) < p {
+            lo = mid;
+        } else {
+            hi = mid;
+        }
+    }
+    0.5 * (lo + hi)
 }
 
 /// Nearest-rank quantile (the smallest value with at least `q` of the sample at or below

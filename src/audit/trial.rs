@@ -89,18 +89,11 @@ fn rate(errors: u64, total: u64) -> f64 {
 
 /// Post-processes a block and judges the key against the attack's `h_x_given_e`.
 pub fn judge(counts: &BlockCounts, setup: &Setup, h_x_given_e: f64) -> TrialOutcome {
-    let key = counts.key_cells();
-    let n: u64 = key.iter().sum();
-    let m: u64 = counts.test_z.iter().sum();
+    let n = counts.key_bits();
+    let m = counts.test_z;
     let k = counts.sifted[1];
-    let stats = BlockStats {
-        n,
-        k,
-        m,
-        e_z: rate(BlockCounts::errors(&counts.test_z), m),
-        e_x: rate(BlockCounts::errors(&counts.cells[1]), k),
-    };
-    let e_y = rate(BlockCounts::errors(&counts.cells[2]), counts.sifted[2]);
+    let stats = BlockStats { n, k, m, e_z: rate(counts.test_z_errors, m), e_x: rate(counts.errors[1], k) };
+    let e_y = rate(counts.errors[2], counts.sifted[2]);
     let exceeds = |e: f64| !e.is_nan() && e > setup.abort_qber;
     let aborted = n == 0 || k == 0 || exceeds(stats.e_x) || exceeds(stats.e_z) || exceeds(e_y);
     let leak_ec = ec_leak_bits(&stats, setup);
@@ -128,7 +121,7 @@ pub fn judge(counts: &BlockCounts, setup: &Setup, h_x_given_e: f64) -> TrialOutc
         capacity,
         achievable,
         excess: length as f64 - capacity,
-        eve_correct_key: BlockCounts::eve_correct(&key),
+        eve_correct_key: counts.eve_correct_key(),
         verdict,
     }
 }

@@ -1,11 +1,10 @@
-//! Count-level block sampler: the whole block from a handful of multinomial (sequential
-//! binomial) and multivariate hypergeometric draws, so its cost does not depend on the
-//! number of signals.
+//! Count-level block sampler: the whole block from a handful of binomial and multinomial
+//! (sequential binomial) draws, so its cost does not depend on the number of signals.
 
 use super::{BlockCounts, SignalModel};
 use rand::Rng;
 use rand_chacha::ChaCha8Rng;
-use rand_distr::{Binomial, Distribution, Hypergeometric};
+use rand_distr::{Binomial, Distribution};
 
 /// Multinomial draw of `n` items over probabilities `p` (summing to 1) by sequential
 /// conditional binomials. Zero-probability categories cost nothing.
@@ -31,62 +30,22 @@ pub fn multinomial(n: u64, p: &[f64], rng: &mut impl Rng, out: &mut [u64]) {
     }
 }
 
-/// Multivariate hypergeometric draw: `draws` items without replacement from categories of
-/// sizes `counts`, by sequential hypergeometric draws.
-pub fn multivariate_hypergeometric(counts: &[u64], draws: u64, rng: &mut impl Rng, out: &mut [u64]) {
-    let mut total: u64 = counts.iter().sum();
-    let mut left = draws.min(total);
-    for (i, &c) in counts.iter().enumerate() {
-        out[i] = 0;
-        if left == 0 || c == 0 {
-            total -= c;
-            continue;
-        }
-        if c == total {
-            out[i] = left;
-            left = 0;
-            continue;
-        }
-        let x = hypergeometric(total, c, left, rng);
-        out[i] = x;
-        left -= x;
-        total -= c;
+/// One binomial draw (0 when `n` = 0 or `p` = 0).
+fn binomial(n: u64, p: f64, rng: &mut impl Rng) -> u64 {
+    if n == 0 || p <= 0.0 {
+        return 0;
     }
+    if p >= 1.0 {
+        return n;
+    }
+    Binomial::new(n, p).expect("probability in [0, 1]").sample(rng)
 }
 
-/// Number of marked items in `draws` items drawn without replacement from `total` items
-/// of which `marked` are marked. Uses `rand_distr`'s H2PE/HIN sampler; where that sampler
-/// cannot start (its HIN branch underflows for very large populations), an exact
-/// sequential draw over the smaller of `marked` and `draws` (each step selects with
-/// probability remaining-slots / remaining-items). Beyond 10⁷ steps, which needs a mean
-/// below 10 with both `marked` and `draws` above 10⁷ (so a sampling fraction below 10⁻⁶),
-/// the binomial(draws, marked/total) law is used; its total-variation distance from the
-/// hypergeometric is at most draws/total (Diaconis & Freedman, Ann. Prob. 8, 745, 1980).
-pub fn hypergeometric(total: u64, marked: u64, draws: u64, rng: &mut impl Rng) -> u64 {
-    if let Ok(h) = Hypergeometric::new(total, marked, draws) {
-        return h.sample(rng);
-    }
-    let steps = marked.min(draws);
-    if steps > 10_000_000 {
-        return Binomial::new(draws, marked as f64 / total as f64).expect("probability in [0, 1]").sample(rng);
-    }
-    // Walk over the smaller set: the marked items (are they drawn?) or the draws (are
-    // they marked?).
-    let (walk, other) = if marked <= draws { (marked, draws) } else { (draws, marked) };
-    let mut hits = 0u64;
-    for j in 0..walk {
-        let p = (other - hits) as f64 / (total - j) as f64;
-        if rng.gen::<f64>() < p {
-            hits += 1;
-        }
-    }
-    hits
-}
-
-/// Draws one block.
+/// Draws one block: basis pairs (multinomial), then per sifted basis the errors, and for
+/// Z the test sample (binomial errors among m) and the key (multinomial over the four
+/// categories among n_Z − m).
 pub fn sample(model: &SignalModel, signals: u64, test_size: &dyn Fn(u64) -> u64, rng: &mut ChaCha8Rng) -> BlockCounts {
     let nb = model.bases.len();
-    // Basis pairs: sifted in each basis, or not sifted.
     let mut p = [0.0; 4];
     let mut sifted_total = 0.0;
     for (i, q) in p.iter_mut().enumerate().take(nb) {
@@ -97,16 +56,17 @@ pub fn sample(model: &SignalModel, signals: u64, test_size: &dyn Fn(u64) -> u64,
     let mut pairs = [0u64; 4];
     multinomial(signals, &p[..=nb], rng, &mut pairs[..=nb]);
     let mut out = BlockCounts { signals, ..BlockCounts::default() };
-    for i in 0..nb {
-        out.sifted[i] = pairs[i];
-        let mut cells = [0u64; 8];
-        multinomial(pairs[i], &model.cells[i][i], rng, &mut cells);
-        out.cells[i] = cells;
+    out.sifted[..nb].copy_from_slice(&pairs[..nb]);
+    let m = test_size(out.sifted[0]).min(out.sifted[0]);
+    out.test_z = m;
+    out.test_z_errors = binomial(m, model.qber(0), rng);
+    let mut key = [0u64; 4];
+    multinomial(out.sifted[0] - m, &model.categories(0), rng, &mut key);
+    out.key = key;
+    out.errors[0] = out.test_z_errors + out.key_errors();
+    for i in 1..nb {
+        out.errors[i] = binomial(out.sifted[i], model.qber(i), rng);
     }
-    let m = test_size(out.sifted[0]);
-    let mut test = [0u64; 8];
-    multivariate_hypergeometric(&out.cells[0], m, rng, &mut test);
-    out.test_z = test;
     out
 }
 
@@ -133,34 +93,6 @@ mod tests {
             // Mean within 5 standard errors: sd of the mean = √(1000 p(1−p)/2000).
             let se = (1000.0 * p[i] * (1.0 - p[i]) / 2000.0).sqrt().max(1e-9);
             assert!((sum[i] / 2000.0 - 1000.0 * p[i]).abs() < 5.0 * se, "category {i}");
-        }
-    }
-
-    #[test]
-    fn hypergeometric_fallback_has_the_right_mean_for_huge_populations() {
-        let mut rng = ChaCha8Rng::seed_from_u64(3);
-        let (total, marked, draws) = (1_000_000_000_000u64, 5_000u64, 400_000_000u64);
-        let trials = 4000;
-        let mean: f64 = (0..trials).map(|_| hypergeometric(total, marked, draws, &mut rng) as f64).sum::<f64>() / trials as f64;
-        let expect = marked as f64 * draws as f64 / total as f64;
-        let sd = (expect * (1.0 - draws as f64 / total as f64)).sqrt() / (trials as f64).sqrt();
-        assert!((mean - expect).abs() < 5.0 * sd, "mean {mean}, expected {expect}");
-        // Degenerate cases.
-        assert_eq!(hypergeometric(10, 10, 4, &mut rng), 4);
-        assert_eq!(hypergeometric(10, 0, 4, &mut rng), 0);
-    }
-
-    #[test]
-    fn hypergeometric_split_conserves() {
-        let mut rng = ChaCha8Rng::seed_from_u64(2);
-        let counts = [5, 0, 100, 7, 0, 0, 3, 1];
-        let mut out = [0u64; 8];
-        for draws in [0, 1, 50, 116, 200] {
-            multivariate_hypergeometric(&counts, draws, &mut rng, &mut out);
-            assert_eq!(out.iter().sum::<u64>(), draws.min(116));
-            for i in 0..8 {
-                assert!(out[i] <= counts[i]);
-            }
         }
     }
 }

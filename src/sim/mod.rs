@@ -8,10 +8,10 @@
 //! size; the default) and [`round`] (an alias table, one draw per signal; can also write
 //! the transcript of a small block). Both return [`BlockCounts`].
 //!
-//! Test sample: a uniformly random subset of the sifted Z rounds of the configured size is
+//! Test sample: a uniformly random subset of the sifted Z rounds of the configured size m is
 //! disclosed. Rounds are i.i.d. and hence exchangeable, so the per-round sampler may take
-//! the first sifted Z rounds as that subset; the count-level sampler draws it by a
-//! multivariate hypergeometric split.
+//! the first m sifted Z rounds as that subset, and the count-level sampler may draw the
+//! test sample and the key as independent multinomials of sizes m and n_Z − m given n_Z.
 //!
 //! Every (point, trial) has its own random stream ([`trial_rng`]), so results do not
 //! depend on the number of threads.
@@ -104,6 +104,15 @@ impl SignalModel {
         (0..2).flat_map(|x| (0..2).map(move |g| (x, g))).map(|(x, g)| c[cell(x, 1 - x, g)]).sum()
     }
 
+    /// Probabilities of the four categories (see [`category`]) of a sifted round in basis `i`.
+    pub fn categories(&self, i: usize) -> [f64; 4] {
+        let mut out = [0.0; 4];
+        for (c, p) in self.cells[i][i].iter().enumerate() {
+            out[CELL_CATEGORY[c] as usize] += p;
+        }
+        out
+    }
+
     /// Exact probability that Eve's guess equals Alice's bit on sifted rounds in basis `i`.
     pub fn eve_guess_rate(&self, i: usize) -> f64 {
         let c = &self.cells[i][i];
@@ -123,35 +132,54 @@ fn eve_state(attack: &Attack, psi: &crate::linalg::CVec) -> CMat {
     rho * c(1.0, 0.0)
 }
 
-/// Counts of one simulated block.
+/// Category of a sifted round: `2·error + eve_correct` (error: Bob's outcome differs
+/// from Alice's bit; eve_correct: Eve's guess equals Alice's bit).
+#[inline]
+pub fn category(x: usize, b: usize, g: usize) -> usize {
+    usize::from(b != x) * 2 + usize::from(g == x)
+}
+
+/// Category of each cell index (see [`cell`] and [`category`]).
+pub const CELL_CATEGORY: [u8; 8] = {
+    let mut t = [0u8; 8];
+    let mut c = 0;
+    while c < 8 {
+        let (x, b, g) = (c / 4, (c / 2) % 2, c % 2);
+        t[c] = ((b != x) as u8) * 2 + (g == x) as u8;
+        c += 1;
+    }
+    t
+};
+
+/// Counts of one simulated block: what the post-processing and the judge need.
 #[derive(Clone, Debug, Default, PartialEq, Eq, Serialize)]
 pub struct BlockCounts {
     /// Signals sent.
     pub signals: u64,
     /// Sifted rounds per basis (Z, X, Y).
     pub sifted: [u64; 3],
-    /// Cell counts `(x, b, g)` of the sifted rounds per basis.
-    pub cells: [[u64; 8]; 3],
-    /// Cell counts of the Z test sample (a subset of `cells[0]`).
-    pub test_z: [u64; 8],
+    /// Errors among the sifted rounds of each basis (for Z: test sample and key together).
+    pub errors: [u64; 3],
+    /// Size of the disclosed Z test sample.
+    pub test_z: u64,
+    /// Errors in the Z test sample.
+    pub test_z_errors: u64,
+    /// Key bits (sifted Z not in the test sample) by category `2·error + eve_correct`.
+    pub key: [u64; 4],
 }
 
 impl BlockCounts {
-    /// Errors among `cells`.
-    pub fn errors(cells: &[u64; 8]) -> u64 {
-        (0..2).flat_map(|x| (0..2).map(move |g| (x, g))).map(|(x, g)| cells[cell(x, 1 - x, g)]).sum()
+    /// Number of key bits n.
+    pub fn key_bits(&self) -> u64 {
+        self.key.iter().sum()
     }
-    /// Eve's correct guesses among `cells`.
-    pub fn eve_correct(cells: &[u64; 8]) -> u64 {
-        (0..2).flat_map(|x| (0..2).map(move |b| (x, b))).map(|(x, b)| cells[cell(x, b, x)]).sum()
+    /// Errors among the key bits.
+    pub fn key_errors(&self) -> u64 {
+        self.key[2] + self.key[3]
     }
-    /// Cell counts of the key bits (sifted Z minus the test sample).
-    pub fn key_cells(&self) -> [u64; 8] {
-        let mut k = self.cells[0];
-        for (a, t) in k.iter_mut().zip(self.test_z.iter()) {
-            *a -= t;
-        }
-        k
+    /// Key bits Eve guessed correctly.
+    pub fn eve_correct_key(&self) -> u64 {
+        self.key[1] + self.key[3]
     }
 }
 

@@ -2,11 +2,12 @@
 //! 1991) over the full joint distribution (Alice's basis, Bob's basis, Alice's bit, Bob's
 //! outcome, Eve's guess). Optionally reports every round, for transcripts of small blocks.
 //!
-//! A draw uses one 64-bit random number: its top 53 bits give a uniform `x ∈ [0, K)`, the
-//! integer part picks a column and the fractional part decides between the column and its
-//! alias.
+//! A draw uses one 64-bit random number u: the high word of the 128-bit product u·K picks
+//! a column uniformly and the low word (the fractional part, uniform on 64 bits) is
+//! compared with the column's integer threshold to choose between the column and its
+//! alias (Lemire's multiply-shift; thresholds have 2⁻⁶⁴ resolution).
 
-use super::{BlockCounts, SignalModel};
+use super::{BlockCounts, SignalModel, CELL_CATEGORY};
 use rand::RngCore;
 use rand_chacha::ChaCha8Rng;
 use serde::Serialize;
@@ -33,7 +34,7 @@ pub struct RoundRecord {
 
 /// An alias table over the joint cells of a [`SignalModel`].
 pub struct RoundSampler {
-    prob: Vec<f64>,
+    threshold: Vec<u64>,
     alias: Vec<u32>,
     /// For each column: (alice basis, bob basis, cell).
     meaning: Vec<(u8, u8, u8)>,
@@ -70,16 +71,16 @@ impl RoundSampler {
             }
         }
         // Leftovers have probability 1 up to rounding.
+        let threshold = prob.iter().map(|&p| if p >= 1.0 { u64::MAX } else { (p * 18_446_744_073_709_551_616.0) as u64 }).collect();
         let bases = model.bases.iter().map(|b| b.name()).collect();
-        RoundSampler { prob, alias, meaning, bases }
+        RoundSampler { threshold, alias, meaning, bases }
     }
 
     #[inline]
     fn draw(&self, rng: &mut ChaCha8Rng) -> usize {
-        let u = rng.next_u64();
-        let x = (u >> 11) as f64 * (1.0 / (1u64 << 53) as f64) * self.prob.len() as f64;
-        let i = (x as usize).min(self.prob.len() - 1);
-        if x - (i as f64) < self.prob[i] {
+        let wide = u128::from(rng.next_u64()) * self.threshold.len() as u128;
+        let i = (wide >> 64) as usize;
+        if (wide as u64) < self.threshold[i] {
             i
         } else {
             self.alias[i] as usize
@@ -98,15 +99,16 @@ impl RoundSampler {
         mut transcript: Option<&mut dyn FnMut(RoundRecord)>,
     ) -> BlockCounts {
         let mut out = BlockCounts { signals, ..BlockCounts::default() };
-        let mut z_cells: Vec<u8> = Vec::new();
+        let mut tally = [[0u64; 4]; 3];
+        let mut z_categories: Vec<u8> = Vec::new();
         let mut records: Vec<RoundRecord> = Vec::new();
         for round in 0..signals {
             let (a, b, c) = self.meaning[self.draw(rng)];
             if a == b {
-                out.sifted[a as usize] += 1;
-                out.cells[a as usize][c as usize] += 1;
+                let cat = CELL_CATEGORY[c as usize];
+                tally[a as usize][cat as usize] += 1;
                 if a == 0 {
-                    z_cells.push(c);
+                    z_categories.push(cat);
                 }
             }
             if transcript.is_some() {
@@ -127,9 +129,16 @@ impl RoundSampler {
                 });
             }
         }
-        let m = test_size(out.sifted[0]) as usize;
-        for &c in &z_cells[..m.min(z_cells.len())] {
-            out.test_z[c as usize] += 1;
+        for i in 0..3 {
+            out.sifted[i] = tally[i].iter().sum();
+            out.errors[i] = tally[i][2] + tally[i][3];
+        }
+        let m = (test_size(out.sifted[0]) as usize).min(z_categories.len());
+        out.test_z = m as u64;
+        out.test_z_errors = z_categories[..m].iter().filter(|&&c| c >= 2).count() as u64;
+        out.key = tally[0];
+        for &c in &z_categories[..m] {
+            out.key[c as usize] -= 1;
         }
         if let Some(f) = transcript.as_mut() {
             let mut seen = 0usize;

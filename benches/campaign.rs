@@ -1,0 +1,79 @@
+//! Monte Carlo throughput. Targets (issue: finite-key audit campaigns), on 2 cores:
+//! count-level ≥ 10⁶ trials/s, flat from 10³ to 10¹² signals per block; per-round ≥ 10⁸
+//! signals/s; the default campaign in under 10 s. Results are recorded in DEVELOPERS.md.
+
+use criterion::{criterion_group, criterion_main, BenchmarkId, Criterion, Throughput};
+use qkd_audit::attack::{Attack, Value};
+use qkd_audit::audit::trial::judge;
+use qkd_audit::audit::{run, Campaign};
+use qkd_audit::protocol::Protocol;
+use qkd_audit::setup::Setup;
+use qkd_audit::sim::round::RoundSampler;
+use qkd_audit::sim::{sample_block, trial_rng, Sampler, SignalModel};
+use rayon::prelude::*;
+use std::collections::BTreeMap;
+
+fn cloner() -> Attack {
+    let mut g = BTreeMap::new();
+    g.insert("qber".to_string(), Value::Num(0.03));
+    Attack::builtin("cloner", &g).unwrap()
+}
+
+fn count_level(c: &mut Criterion) {
+    let attack = cloner();
+    let model = SignalModel::new(&attack, Protocol::Bb84, &[0.8, 0.2]);
+    let mut group = c.benchmark_group("count-level trials (2 threads, sample + judge)");
+    let trials = 20_000u64;
+    group.throughput(Throughput::Elements(trials));
+    for exp in [3u32, 6, 9, 12] {
+        let setup = Setup { signals: 10u64.pow(exp), basis_z_probability: 0.8, ..Setup::default() };
+        let ts = |z: u64| setup.test_sample.size(z);
+        group.bench_with_input(BenchmarkId::from_parameter(format!("1e{exp} signals")), &setup, |b, setup| {
+            b.iter(|| {
+                (0..trials)
+                    .into_par_iter()
+                    .map(|t| {
+                        let mut rng = trial_rng(1, 0, t);
+                        let counts = sample_block(Sampler::Count, &model, setup.signals, &ts, &mut rng);
+                        judge(&counts, setup, 0.8).length
+                    })
+                    .sum::<u64>()
+            })
+        });
+    }
+    group.finish();
+}
+
+fn per_round(c: &mut Criterion) {
+    let attack = cloner();
+    let model = SignalModel::new(&attack, Protocol::Bb84, &[0.5, 0.5]);
+    let sampler = RoundSampler::new(&model);
+    let mut group = c.benchmark_group("per-round signals (2 threads)");
+    let blocks = 8u64;
+    let signals = 2_000_000u64;
+    group.throughput(Throughput::Elements(blocks * signals));
+    group.bench_function("8 blocks of 2e6", |b| {
+        b.iter(|| {
+            (0..blocks)
+                .into_par_iter()
+                .map(|t| sampler.sample(signals, &|z| z / 10, &mut trial_rng(2, 0, t), None).sifted[0])
+                .sum::<u64>()
+        })
+    });
+    group.finish();
+}
+
+fn demo_campaign(c: &mut Criterion) {
+    let campaign = Campaign::demo();
+    let mut group = c.benchmark_group("campaign");
+    group.sample_size(10);
+    group.bench_function("built-in demo", |b| b.iter(|| run(&campaign, &|| {}).unwrap().len()));
+    group.finish();
+}
+
+criterion_group! {
+    name = benches;
+    config = Criterion::default().sample_size(10).measurement_time(std::time::Duration::from_secs(3)).warm_up_time(std::time::Duration::from_millis(500));
+    targets = count_level, per_round, demo_campaign
+}
+criterion_main!(benches);
