@@ -114,15 +114,25 @@ struct Conditional {
     rho_e: CMat,
     /// Eve's unnormalised state given that Bob found Alice's state: `<ψ|_B ρ_BE |ψ>_B`.
     sigma_right: CMat,
+    /// Von Neumann entropy of `rho_e`, bits.
+    s_e: f64,
 }
 
 fn conditional(attack: &Attack, psi: &CVec) -> Conditional {
     let d = attack.eve_dim;
+    let one = c(1.0, 0.0);
     let mut rho_b = CMat::zeros(2, 2);
     let mut rho_e = CMat::zeros(d, d);
     let mut sigma_right = CMat::zeros(d, d);
-    for k in attack.channel.operators() {
-        let v = k * psi;
+    let ops = attack.channel.operators();
+    // ρ_E = Σ u u† over the 2K vectors u = (<b|_B ⊗ 1) K|ψ>; when 2K < d_E its non-zero
+    // spectrum is that of the smaller Gram matrix <u_i|u_j> (for an isometry: ρ_B's).
+    let small = 2 * ops.len() < d;
+    let mut parts: Vec<CVec> = Vec::new();
+    let mut v = CVec::zeros(2 * d);
+    let mut w = CVec::zeros(d);
+    for k in ops {
+        v.gemv(one, k, psi, c(0.0, 0.0));
         let v0 = v.rows(0, d);
         let v1 = v.rows(d, d);
         rho_b[(0, 0)] += c(v0.norm_squared(), 0.0);
@@ -130,11 +140,24 @@ fn conditional(attack: &Attack, psi: &CVec) -> Conditional {
         let off = v1.dotc(&v0); // <0|ρ_B|1> = Σ_e v0[e]·conj(v1[e])
         rho_b[(0, 1)] += off;
         rho_b[(1, 0)] += off.conj();
-        rho_e += v0 * v0.adjoint() + v1 * v1.adjoint();
-        let w = v0 * psi[0].conj() + v1 * psi[1].conj();
-        sigma_right += &w * w.adjoint();
+        rho_e.gerc(one, &v0, &v0, one);
+        rho_e.gerc(one, &v1, &v1, one);
+        w.copy_from(&v0);
+        w *= psi[0].conj();
+        w.axpy(psi[1].conj(), &v1, one);
+        sigma_right.gerc(one, &w, &w, one);
+        if small {
+            parts.push(v0.into_owned());
+            parts.push(v1.into_owned());
+        }
     }
-    Conditional { rho_b, rho_e, sigma_right }
+    let s_e = if small {
+        let gram = CMat::from_fn(parts.len(), parts.len(), |i, j| parts[i].dotc(&parts[j]));
+        von_neumann_entropy(&gram)
+    } else {
+        von_neumann_entropy(&rho_e)
+    };
+    Conditional { rho_b, rho_e, sigma_right, s_e }
 }
 
 /// Per-basis quantities.
@@ -148,8 +171,11 @@ struct BasisStats {
 }
 
 fn basis_stats(attack: &Attack, basis: Basis, s_avg: f64) -> BasisStats {
+    basis_stats_from(basis, [conditional(attack, &basis.ket(0)), conditional(attack, &basis.ket(1))], s_avg)
+}
+
+fn basis_stats_from(basis: Basis, cond: [Conditional; 2], s_avg: f64) -> BasisStats {
     let kets = [basis.ket(0), basis.ket(1)];
-    let cond = [conditional(attack, &kets[0]), conditional(attack, &kets[1])];
     let mut qber = 0.0;
     let mut joint_ab = vec![vec![0.0; 2]; 2];
     for x in 0..2 {
@@ -160,7 +186,7 @@ fn basis_stats(attack: &Attack, basis: Basis, s_avg: f64) -> BasisStats {
     }
     let diff = &cond[0].rho_e - &cond[1].rho_e;
     let p_guess = 0.5 + 0.25 * trace_norm(&diff);
-    let holevo = s_avg - 0.5 * (von_neumann_entropy(&cond[0].rho_e) + von_neumann_entropy(&cond[1].rho_e));
+    let holevo = s_avg - 0.5 * (cond[0].s_e + cond[1].s_e);
     let s0 = &cond[0].sigma_right;
     let s1 = &cond[1].sigma_right;
     let game = 0.25 * (s0.trace().re + s1.trace().re + trace_norm(&(s0 - s1)));
@@ -173,12 +199,11 @@ fn basis_stats(attack: &Attack, basis: Basis, s_avg: f64) -> BasisStats {
 pub fn evaluate(attack: &Attack, opts: &EvalOptions) -> Result<Evaluation> {
     let d = attack.eve_dim;
     // Eve's state averaged over Alice's bit is the same in every basis (the average input
-    // is 1/2 in each), so its entropy is computed once from the channel on 1/2.
-    let half = CMat::identity(2, 2) * c(0.5, 0.0);
-    let rho_be = attack.channel.apply(&half);
-    let rho_e_avg = crate::linalg::partial_trace(&rho_be, &[2, d], &[1]);
+    // is 1/2 in each), so its entropy is computed once, from the Z-basis conditionals.
+    let z_cond = [conditional(attack, &Basis::Z.ket(0)), conditional(attack, &Basis::Z.ket(1))];
+    let rho_e_avg = (&z_cond[0].rho_e + &z_cond[1].rho_e) * c(0.5, 0.0);
     let s_avg = von_neumann_entropy(&rho_e_avg);
-    let z = basis_stats(attack, Basis::Z, s_avg);
+    let z = basis_stats_from(Basis::Z, z_cond, s_avg);
     let x = basis_stats(attack, Basis::X, s_avg);
     let y = basis_stats(attack, Basis::Y, s_avg);
     let h_x_given_e = 1.0 - z.holevo;

@@ -101,12 +101,27 @@ pub fn hermitian_eigenvalues(m: &CMat) -> Vec<f64> {
             let r = (0.25 * (a - d) * (a - d) + b.norm_sqr()).sqrt();
             vec![mean - r, mean + r]
         }
-        _ => {
-            let mut v: Vec<f64> = m.clone().symmetric_eigenvalues().iter().copied().collect();
+        _ if is_diagonal(m) => {
+            // Exactly diagonal (e.g. classical records): the diagonal is the spectrum.
+            let mut v: Vec<f64> = (0..n).map(|i| m[(i, i)].re).collect();
             v.sort_by(|x, y| x.total_cmp(y));
             v
         }
+        3 => sorted(nalgebra::Matrix3::<C64>::from_fn(|i, j| m[(i, j)]).symmetric_eigenvalues().iter().copied().collect()),
+        4 => sorted(nalgebra::Matrix4::<C64>::from_fn(|i, j| m[(i, j)]).symmetric_eigenvalues().iter().copied().collect()),
+        _ => sorted(m.clone().symmetric_eigenvalues().iter().copied().collect()),
     }
+}
+
+fn sorted(mut v: Vec<f64>) -> Vec<f64> {
+    v.sort_by(|x, y| x.total_cmp(y));
+    v
+}
+
+/// True when every off-diagonal entry is exactly zero.
+fn is_diagonal(m: &CMat) -> bool {
+    let n = m.nrows();
+    (0..n).all(|i| (0..n).all(|j| i == j || m[(i, j)] == C64::new(0.0, 0.0)))
 }
 
 /// Eigen-decomposition of a Hermitian matrix: eigenvalues (ascending) and the matching
