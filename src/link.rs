@@ -1,0 +1,323 @@
+//! Optical links: the source (ideal single photons, or phase-randomised weak coherent
+//! pulses with up to two decoy intensities), the channel (fibre or a fixed loss) and Bob's
+//! threshold detectors (efficiency, dark counts, misalignment; double clicks get a random
+//! bit, so a squashing model to qubits applies). Computes the exact expected statistics
+//! per intensity (gains and error rates) in the standard model of Ma, Qi, Zhao and Lo
+//! (PRA 72, 012326, 2005), with the first-order forms used there:
+//! `Y_n = Y₀ + η_n − Y₀η_n`, `η_n = 1 − (1 − η)ⁿ`, `e_n = (e₀Y₀ + e_d η_n)/Y_n`,
+//! `Q_μ = Y₀ + 1 − e^{−ημ}`, `E_μQ_μ = e₀Y₀ + e_d(1 − e^{−ημ})`, e₀ = ½, where η is the
+//! overall transmittance (channel × Bob's efficiency) and Y₀ the dark-count probability per
+//! gate. No attack or key-length logic lives here.
+
+use crate::error::{check_range, Error, Result};
+use serde::Serialize;
+
+/// Error rate of a dark count (random bit).
+pub const E0: f64 = 0.5;
+
+/// What Alice sends.
+#[derive(Clone, Debug, PartialEq, Serialize)]
+#[serde(tag = "kind", rename_all = "kebab-case")]
+pub enum Source {
+    /// One photon per signal.
+    SinglePhoton,
+    /// Phase-randomised weak coherent pulses (Poisson photon number).
+    WeakCoherent {
+        /// Signal intensity μ (mean photon number per pulse).
+        intensity: f64,
+        /// Probability of sending the signal intensity.
+        probability: f64,
+        /// Decoy intensities with their probabilities (at most two; one may be 0 = vacuum).
+        decoys: Vec<(f64, f64)>,
+    },
+}
+
+impl Source {
+    /// The intensities in order (signal first) with their probabilities; a single-photon
+    /// source has none.
+    pub fn intensities(&self) -> Vec<(f64, f64)> {
+        match self {
+            Source::SinglePhoton => Vec::new(),
+            Source::WeakCoherent { intensity, probability, decoys } => {
+                let mut v = vec![(*intensity, *probability)];
+                v.extend(decoys.iter().copied());
+                v
+            }
+        }
+    }
+}
+
+/// The optical link.
+#[derive(Clone, Debug, PartialEq, Serialize)]
+pub struct Link {
+    /// Source.
+    pub source: Source,
+    /// Channel loss in dB (fibre length × attenuation, or a fixed loss).
+    pub channel_loss_db: f64,
+    /// Fibre length in km, when given (for reports).
+    pub length_km: Option<f64>,
+    /// Fibre attenuation in dB/km, when given.
+    pub attenuation_db_per_km: Option<f64>,
+    /// Bob's detection efficiency η_Bob.
+    pub detector_efficiency: f64,
+    /// Dark-count probability per gate Y₀.
+    pub dark_count_probability: f64,
+    /// Misalignment error e_d: probability that a photon hits the wrong detector.
+    pub misalignment: f64,
+}
+
+impl Default for Link {
+    fn default() -> Self {
+        Link {
+            source: Source::SinglePhoton,
+            channel_loss_db: 0.0,
+            length_km: None,
+            attenuation_db_per_km: None,
+            detector_efficiency: 1.0,
+            dark_count_probability: 0.0,
+            misalignment: 0.0,
+        }
+    }
+}
+
+impl Link {
+    /// True for the ideal single-photon link (no loss, perfect detectors), where the
+    /// qubit-level campaign applies unchanged.
+    pub fn is_ideal_single_photon(&self) -> bool {
+        matches!(self.source, Source::SinglePhoton)
+            && self.channel_loss_db == 0.0
+            && self.detector_efficiency == 1.0
+            && self.dark_count_probability == 0.0
+            && self.misalignment == 0.0
+    }
+
+    /// Channel transmittance `10^{−loss/10}`.
+    pub fn channel_transmittance(&self) -> f64 {
+        10f64.powf(-self.channel_loss_db / 10.0)
+    }
+
+    /// Overall transmittance η = channel × Bob's efficiency.
+    pub fn transmittance(&self) -> f64 {
+        self.channel_transmittance() * self.detector_efficiency
+    }
+
+    /// The same link at another fibre length (attenuation taken from the link, default
+    /// 0.2 dB/km if the link was given as a fixed loss).
+    pub fn at_distance(&self, km: f64) -> Link {
+        let att = self.attenuation_db_per_km.unwrap_or(0.2);
+        Link { channel_loss_db: att * km, length_km: Some(km), attenuation_db_per_km: Some(att), ..self.clone() }
+    }
+
+    /// Expected statistics of intensity μ (per pulse, either basis).
+    pub fn stats(&self, mu: f64) -> IntensityStats {
+        gains(mu, self.transmittance(), self.dark_count_probability, self.misalignment)
+    }
+
+    /// Parses the `[source]`, `[channel]` and `[detector]` tables of a setup file.
+    pub fn from_tables(source: Option<&toml::Value>, channel: Option<&toml::Value>, detector: Option<&toml::Value>) -> Result<Link> {
+        let mut link = Link::default();
+        if let Some(s) = source {
+            let t = s.as_table().ok_or_else(|| Error::input_key("source", "must be a table"))?;
+            link.source = parse_source(t).map_err(|e| e.with_key("source"))?;
+        }
+        if let Some(c) = channel {
+            let t = c.as_table().ok_or_else(|| Error::input_key("channel", "must be a table"))?;
+            allowed(t, &["length_km", "attenuation_db_per_km", "loss_db"]).map_err(|e| e.with_key("channel"))?;
+            match (t.get("loss_db"), t.get("length_km")) {
+                (Some(_), Some(_)) => return Err(Error::input_key("channel.loss_db", "give loss_db or length_km (with attenuation_db_per_km), not both")),
+                (Some(l), None) => link.channel_loss_db = check_range("channel.loss_db", num(l, "channel.loss_db")?, 0.0, 100.0)?,
+                (None, Some(l)) => {
+                    let km = check_range("channel.length_km", num(l, "channel.length_km")?, 0.0, 1000.0)?;
+                    let att = match t.get("attenuation_db_per_km") {
+                        Some(a) => check_range("channel.attenuation_db_per_km", num(a, "channel.attenuation_db_per_km")?, 0.0, 10.0)?,
+                        None => return Err(Error::input_key("channel.attenuation_db_per_km", "missing: needed with length_km (dB/km)")),
+                    };
+                    link.length_km = Some(km);
+                    link.attenuation_db_per_km = Some(att);
+                    link.channel_loss_db = km * att;
+                }
+                (None, None) => {}
+            }
+        }
+        if let Some(d) = detector {
+            let t = d.as_table().ok_or_else(|| Error::input_key("detector", "must be a table"))?;
+            allowed(t, &["efficiency", "dark_count_probability", "misalignment"]).map_err(|e| e.with_key("detector"))?;
+            if let Some(v) = t.get("efficiency") {
+                let e = num(v, "detector.efficiency")?;
+                if !(e > 0.0 && e <= 1.0) {
+                    return Err(Error::input_key("detector.efficiency", format!("{e} is outside (0, 1]")));
+                }
+                link.detector_efficiency = e;
+            }
+            if let Some(v) = t.get("dark_count_probability") {
+                link.dark_count_probability = check_range("detector.dark_count_probability", num(v, "detector.dark_count_probability")?, 0.0, 0.1)?;
+            }
+            if let Some(v) = t.get("misalignment") {
+                link.misalignment = check_range("detector.misalignment", num(v, "detector.misalignment")?, 0.0, 0.5)?;
+            }
+        }
+        Ok(link)
+    }
+}
+
+fn allowed(t: &toml::Table, keys: &[&str]) -> Result<()> {
+    for k in t.keys() {
+        if !keys.contains(&k.as_str()) {
+            return Err(Error::input_key(k.clone(), format!("unknown key; allowed: {}", keys.join(", "))));
+        }
+    }
+    Ok(())
+}
+
+fn num(v: &toml::Value, key: &str) -> Result<f64> {
+    match v {
+        toml::Value::Float(x) if x.is_finite() => Ok(*x),
+        toml::Value::Integer(i) => Ok(*i as f64),
+        _ => Err(Error::input_key(key, "must be a finite number")),
+    }
+}
+
+fn parse_source(t: &toml::Table) -> Result<Source> {
+    allowed(t, &["kind", "intensity", "probability", "decoys", "decoy_probabilities"])?;
+    match t.get("kind").and_then(|v| v.as_str()) {
+        Some("single-photon") => {
+            if t.len() > 1 {
+                return Err(Error::input_key("kind", "a single-photon source takes no other keys"));
+            }
+            Ok(Source::SinglePhoton)
+        }
+        Some("weak-coherent") => {
+            let intensity = match t.get("intensity") {
+                Some(v) => num(v, "intensity")?,
+                None => return Err(Error::input_key("intensity", "missing: the signal's mean photon number per pulse")),
+            };
+            if !(intensity > 0.0 && intensity <= 10.0) {
+                return Err(Error::input_key("intensity", format!("{intensity} is outside (0, 10] photons per pulse")));
+            }
+            let decoys: Vec<f64> = match t.get("decoys") {
+                None => Vec::new(),
+                Some(toml::Value::Array(a)) => a.iter().enumerate().map(|(i, v)| num(v, &format!("decoys[{i}]"))).collect::<Result<_>>()?,
+                Some(_) => return Err(Error::input_key("decoys", "must be a list of at most two intensities")),
+            };
+            if decoys.len() > 2 {
+                return Err(Error::input_key("decoys", "at most two decoy intensities"));
+            }
+            for (i, d) in decoys.iter().enumerate() {
+                if !(*d >= 0.0 && *d < intensity) {
+                    return Err(Error::input_key(format!("decoys[{i}]"), format!("{d} is outside [0, intensity = {intensity})")));
+                }
+            }
+            if decoys.len() == 2 && decoys[0] == decoys[1] {
+                return Err(Error::input_key("decoys", "the two decoy intensities must differ"));
+            }
+            let probs: Vec<f64> = match t.get("decoy_probabilities") {
+                None if decoys.is_empty() => Vec::new(),
+                None => return Err(Error::input_key("decoy_probabilities", "missing: one probability per decoy")),
+                Some(toml::Value::Array(a)) => a.iter().enumerate().map(|(i, v)| num(v, &format!("decoy_probabilities[{i}]"))).collect::<Result<_>>()?,
+                Some(_) => return Err(Error::input_key("decoy_probabilities", "must be a list")),
+            };
+            if probs.len() != decoys.len() {
+                return Err(Error::input_key("decoy_probabilities", format!("has {} entries for {} decoys", probs.len(), decoys.len())));
+            }
+            for (i, p) in probs.iter().enumerate() {
+                if !(*p > 0.0 && *p < 1.0) {
+                    return Err(Error::input_key(format!("decoy_probabilities[{i}]"), format!("{p} is outside (0, 1)")));
+                }
+            }
+            let probability = 1.0 - probs.iter().sum::<f64>();
+            if let Some(p) = t.get("probability") {
+                let p = num(p, "probability")?;
+                if (p - probability).abs() > 1e-9 {
+                    return Err(Error::input_key("probability", format!("{p} does not equal 1 minus the decoy probabilities ({probability})")));
+                }
+            }
+            if probability <= 0.0 {
+                return Err(Error::input_key("decoy_probabilities", "sum to 1 or more: nothing is left for the signal"));
+            }
+            Ok(Source::WeakCoherent { intensity, probability, decoys: decoys.into_iter().zip(probs).collect() })
+        }
+        _ => Err(Error::input_key("kind", "missing or unknown: single-photon or weak-coherent")),
+    }
+}
+
+/// Expected statistics of one intensity.
+#[derive(Clone, Copy, Debug, PartialEq, Serialize)]
+pub struct IntensityStats {
+    /// Intensity μ.
+    pub mu: f64,
+    /// Gain Q_μ: probability that a pulse gives a detection.
+    pub gain: f64,
+    /// Error rate E_μ of detections.
+    pub error_rate: f64,
+    /// Single-photon gain Q₁ = Y₁ μ e^{−μ}.
+    pub single_gain: f64,
+    /// Single-photon yield Y₁.
+    pub y1: f64,
+    /// Single-photon error rate e₁.
+    pub e1: f64,
+}
+
+/// Gains and error rates for intensity `mu`, overall transmittance `eta`, dark-count
+/// probability `y0` and misalignment `e_d` (module doc for the formulas).
+pub fn gains(mu: f64, eta: f64, y0: f64, e_d: f64) -> IntensityStats {
+    let click = 1.0 - (-eta * mu).exp();
+    let gain = y0 + click;
+    let error_rate = if gain > 0.0 { (E0 * y0 + e_d * click) / gain } else { 0.0 };
+    let y1 = y0 + eta - y0 * eta;
+    let e1 = if y1 > 0.0 { (E0 * y0 + e_d * eta) / y1 } else { 0.0 };
+    IntensityStats { mu, gain, error_rate, single_gain: y1 * mu * (-mu).exp(), y1, e1 }
+}
+
+/// Poisson probability of `n` photons at intensity `mu`.
+pub fn poisson(mu: f64, n: u32) -> f64 {
+    let mut p = (-mu).exp();
+    for k in 1..=n {
+        p *= mu / k as f64;
+    }
+    p
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use approx::assert_relative_eq;
+
+    /// The standard parameter set of Ma, Qi, Zhao, Lo (2005), from the GYS experiment
+    /// (Gobby, Yuan, Shields, APL 84, 3762, 2004) [M]: 0.21 dB/km, e_d = 3.3 %,
+    /// Y₀ = 1.7e-6, η_Bob = 4.5 %.
+    pub(crate) fn gys(km: f64) -> Link {
+        Link {
+            source: Source::WeakCoherent { intensity: 0.48, probability: 1.0, decoys: vec![] },
+            channel_loss_db: 0.21 * km,
+            length_km: Some(km),
+            attenuation_db_per_km: Some(0.21),
+            detector_efficiency: 0.045,
+            dark_count_probability: 1.7e-6,
+            misalignment: 0.033,
+        }
+    }
+
+    #[test]
+    fn gys_gains_at_50_km() {
+        // REFERENCES.md §9 table [N]: L = 50 km, μ = 0.48: Q_μ = 1.924950e-3, E_μ = 0.033412,
+        // η = 4.010629e-3, Y₁ = 4.012322e-3, e₁ = 0.033198.
+        let l = gys(50.0);
+        assert_relative_eq!(l.transmittance(), 4.010629e-3, max_relative = 1e-6);
+        let s = l.stats(0.48);
+        assert_relative_eq!(s.gain, 1.924950e-3, max_relative = 1e-6);
+        assert!((s.error_rate - 0.033412).abs() < 1e-6, "{}", s.error_rate);
+        assert_relative_eq!(s.y1, 4.012322e-3, max_relative = 1e-6);
+        assert!((s.e1 - 0.033198).abs() < 1e-6, "{}", s.e1);
+    }
+
+    #[test]
+    fn closed_forms_match_photon_number_sums() {
+        // Q_μ = Σ Y_n P_n with the exact yields equals 1 − (1 − Y₀)e^{−ημ}; the first-order
+        // form differs only by the Y₀(1 − e^{−ημ}) cross term.
+        let (mu, eta, y0): (f64, f64, f64) = (0.6, 0.02, 1e-5);
+        let exact: f64 = (0..60).map(|n| poisson(mu, n) * (y0 + (1.0 - (1.0 - eta).powi(n as i32)) - y0 * (1.0 - (1.0 - eta).powi(n as i32)))).sum();
+        assert_relative_eq!(exact, 1.0 - (1.0 - y0) * (-eta * mu).exp(), max_relative = 1e-12);
+        let s = gains(mu, eta, y0, 0.01);
+        assert!((s.gain - exact).abs() <= y0 * (1.0 - (-eta * mu).exp()) * 1.000001);
+    }
+}
