@@ -108,6 +108,11 @@ impl Link {
         Link { channel_loss_db: att * km, length_km: Some(km), attenuation_db_per_km: Some(att), ..self.clone() }
     }
 
+    /// The same link with the signal intensity set to `mu` (no decoys).
+    pub fn at_mu(&self, mu: f64) -> Link {
+        Link { source: Source::WeakCoherent { intensity: mu, probability: 1.0, decoys: vec![] }, ..self.clone() }
+    }
+
     /// Expected statistics of intensity μ (per pulse, either basis).
     pub fn stats(&self, mu: f64) -> IntensityStats {
         gains(mu, self.transmittance(), self.dark_count_probability, self.misalignment)

@@ -8,10 +8,13 @@
 //! `test_count` ≥ 0 (sifted Z bits disclosed to estimate the bit error rate; at most one of
 //! the two, default `test_fraction = 0.1`), `abort_qber` [0, 0.5], `ec_efficiency` [1, 3],
 //! `epsilon_sec` and `epsilon_cor` (0, 0.1], `key_rule` (finite-uncertainty | asymptotic |
-//! individual | game-min-entropy), optional `name`.
+//! individual | game-min-entropy | naive-single-photon | gllp-no-decoy | decoy-vacuum-weak),
+//! optional `name`, and the link tables `[source]`, `[channel]`, `[detector]` of
+//! [`crate::link`].
 
 use crate::error::{check_range, Error, Result};
 use crate::protocol::Protocol;
+use crate::link::Link;
 use crate::rules::KeyRule;
 use serde::Serialize;
 use std::path::Path;
@@ -60,6 +63,8 @@ pub struct Setup {
     pub epsilon_cor: f64,
     /// The key-length rule the system uses.
     pub key_rule: KeyRule,
+    /// The optical link (default: ideal single photons, no loss, perfect detectors).
+    pub link: Link,
 }
 
 impl Default for Setup {
@@ -75,6 +80,7 @@ impl Default for Setup {
             epsilon_sec: 1e-10,
             epsilon_cor: 1e-12,
             key_rule: KeyRule::FiniteUncertainty,
+            link: Link::default(),
         }
     }
 }
@@ -91,6 +97,9 @@ const KEYS: &[&str] = &[
     "epsilon_sec",
     "epsilon_cor",
     "key_rule",
+    "source",
+    "channel",
+    "detector",
 ];
 
 impl Setup {
@@ -174,7 +183,25 @@ impl Setup {
             let r = v.as_str().ok_or_else(|| Error::input_key("key_rule", "must be a string"))?;
             s.key_rule = r.parse().map_err(|e: String| Error::input_key("key_rule", e))?;
         }
+        s.link = Link::from_tables(t.get("source"), t.get("channel"), t.get("detector"))?;
+        s.check_rule(s.key_rule).map_err(|e| e.with_key("key_rule"))?;
         Ok(s)
+    }
+
+    /// Checks that `rule` can run on this setup's link (decoy rules need the decoys they
+    /// read).
+    pub fn check_rule(&self, rule: KeyRule) -> Result<()> {
+        let ints = self.link.source.intensities();
+        if rule.needs_weak_coherent_source() && ints.len() < rule.intensities_needed() {
+            return Err(Error::input(format!(
+                "`{rule}` needs a weak-coherent [source] with {} intensities (signal and decoys)",
+                rule.intensities_needed()
+            )));
+        }
+        if rule == KeyRule::DecoyVacuumWeak && (!ints[1..].iter().any(|(m, _)| *m == 0.0) || !ints[1..].iter().any(|(m, _)| *m > 0.0)) {
+            return Err(Error::input("decoy-vacuum-weak needs one vacuum decoy (0) and one weak decoy (> 0) in [source].decoys"));
+        }
+        Ok(())
     }
 
     /// Probabilities of Alice's (and Bob's) basis choices, in the order of

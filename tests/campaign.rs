@@ -273,8 +273,8 @@ fn leak_verdict_exits_one_and_says_so() {
     let summary = std::fs::read_to_string(dir.path().join("results/small/summary.md")).unwrap();
     assert!(summary.contains("Verdict: LEAK"), "{summary}");
     let csv = std::fs::read_to_string(dir.path().join("results/small/attack_vs_bound.csv")).unwrap();
-    assert!(csv.lines().next().unwrap().ends_with(",verdict"));
-    assert!(csv.contains(",leak\n"));
+    assert!(csv.lines().next().unwrap().ends_with(",verdict,note"));
+    assert!(csv.contains(",leak,"));
 }
 
 #[test]

@@ -101,6 +101,32 @@ impl AttackFile {
             }
         }
     }
+    /// True for a catalogue entry of a link-level family (photon-number splitting, beam
+    /// splitting), which acts on weak-coherent pulses rather than qubits.
+    pub fn is_link(&self) -> bool {
+        matches!(self, AttackFile::Catalogue(e) if super::link_attack::LINK_FAMILIES.iter().any(|(n, _)| *n == e.family))
+    }
+
+    /// The link-level attack of a link catalogue entry, with `overrides` applied.
+    pub fn link_attack(&self, overrides: &BTreeMap<String, Value>) -> Result<super::link_attack::LinkAttack> {
+        let AttackFile::Catalogue(e) = self else {
+            return Err(Error::input_key("family", "a kraus attack is not a link attack"));
+        };
+        let mut params = e.params.clone();
+        params.extend(overrides.iter().map(|(k, v)| (k.clone(), v.clone())));
+        for key in params.keys() {
+            if key != "fraction" {
+                return Err(Error::input_key(format!("params.{key}"), format!("`{}` has no parameter `{key}`; its parameter is fraction", e.family)));
+            }
+        }
+        let fraction = match params.get("fraction") {
+            None => 1.0,
+            Some(Value::Num(x)) => *x,
+            Some(Value::Text(t)) => return Err(Error::input_key("params.fraction", format!("`{t}` is not a number in [0, 1]"))),
+        };
+        super::link_attack::LinkAttack::new(&e.family, fraction).map_err(|err| err.with_key("params"))
+    }
+
     /// The entry's sweep, if any.
     pub fn sweep(&self) -> Option<&Sweep> {
         match self {
@@ -134,14 +160,15 @@ pub fn validate(path: &Path) -> Vec<Error> {
         Err(errs) => errs.into_iter().map(|e| e.with_file(path)).collect(),
         Ok(file) => {
             let mut errs = Vec::new();
-            if let Err(e) = file.attack(&BTreeMap::new()) {
+            let build = |o: &BTreeMap<String, Value>| if file.is_link() { file.link_attack(o).map(|_| ()) } else { file.attack(o).map(|_| ()) };
+            if let Err(e) = build(&BTreeMap::new()) {
                 errs.push(e.with_file(path));
             }
             if let (AttackFile::Catalogue(entry), Some(sweep)) = (&file, file.sweep()) {
                 for v in sweep.values() {
                     let mut o = BTreeMap::new();
                     o.insert(sweep.param.clone(), Value::Num(v));
-                    if let Err(e) = file.attack(&o) {
+                    if let Err(e) = build(&o) {
                         errs.push(e.with_key("sweep").with_file(path));
                         break;
                     }
@@ -174,7 +201,10 @@ fn parse_catalogue(t: &toml::Table) -> Result<AttackFile> {
         Some(_) => return Err(Error::input_key("family", "must be a string")),
         None => return Err(Error::input_key("family", "missing; an attack file needs `family` (catalogue entry) or `operators` (kraus file)")),
     };
-    super::family(&family)?;
+    let is_link = super::link_attack::LINK_FAMILIES.iter().any(|(n, _)| *n == family);
+    if !is_link {
+        super::family(&family)?;
+    }
     let description = match t.get("description") {
         Some(toml::Value::String(s)) => s.clone(),
         None => String::new(),
@@ -201,7 +231,12 @@ fn parse_catalogue(t: &toml::Table) -> Result<AttackFile> {
         Some(toml::Value::Table(s)) => Some(parse_sweep(s).map_err(|e| e.with_key("sweep"))?),
         Some(_) => return Err(Error::input_key("sweep", "must be a table")),
     };
-    if let Some(s) = &sweep {
+    if let (Some(s), true) = (&sweep, is_link) {
+        if s.param != "fraction" {
+            return Err(Error::input_key("sweep.param", format!("`{family}` has no parameter `{}`; its parameter is fraction", s.param)));
+        }
+    }
+    if let (Some(s), false) = (&sweep, is_link) {
         let fam = super::family(&family)?;
         match fam.params().iter().find(|p| p.name == s.param) {
             Some(p) if matches!(p.kind, super::ParamKind::Number { .. }) => {}
@@ -348,6 +383,8 @@ pub fn builtin_catalogue() -> &'static [(&'static str, &'static str)] {
         ("phase-covariant-cloner.toml", include_str!("../../attacks/phase-covariant-cloner.toml")),
         ("entangling-probe.toml", include_str!("../../attacks/entangling-probe.toml")),
         ("pauli.toml", include_str!("../../attacks/pauli.toml")),
+        ("photon-number-splitting.toml", include_str!("../../attacks/photon-number-splitting.toml")),
+        ("beam-splitting.toml", include_str!("../../attacks/beam-splitting.toml")),
     ]
 }
 

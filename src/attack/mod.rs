@@ -12,6 +12,7 @@ pub mod cloner;
 pub mod entangling_probe;
 pub mod file;
 pub mod intercept_resend;
+pub mod link_attack;
 pub mod pauli;
 
 use crate::channel::KrausChannel;

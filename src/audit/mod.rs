@@ -9,6 +9,7 @@
 //! trials = 200                 # Monte Carlo trials per attack point, 1..=1e6
 //! sampler = "count"            # count (default) | round
 //! setup = "setup.toml"         # a setup file (relative to this file), or an inline [setup] table
+//! rules = ["decoy-vacuum-weak", "naive-single-photon"]  # optional: rules judged on the same blocks
 //! [[attacks]]
 //! builtin = "intercept-resend" # an entry of the built-in catalogue, or
 //! # file = "attacks/x.toml"    # a catalogue entry or kraus file (relative to this file)
@@ -29,6 +30,8 @@ use crate::attack::Value;
 use crate::error::{Error, Result};
 use crate::eval::{evaluate, EvalOptions, Evaluation};
 use crate::setup::Setup;
+use crate::rules::KeyRule;
+use crate::sim::link::LinkModel;
 use crate::sim::{sample_block, trial_rng, Sampler, SignalModel};
 use rayon::prelude::*;
 use std::collections::BTreeMap;
@@ -64,6 +67,8 @@ pub struct Campaign {
     pub sampler: Sampler,
     /// System under test.
     pub setup: Setup,
+    /// Key-length rules judged on the same blocks (default: the setup's `key_rule`).
+    pub rules: Vec<KeyRule>,
     /// Attacks.
     pub attacks: Vec<AttackEntry>,
     /// Inputs and their texts, for the manifest: (origin, text).
@@ -89,7 +94,7 @@ impl Campaign {
     /// Parses campaign text; relative paths resolve against `base` (None: no files allowed).
     pub fn parse(text: &str, origin: &str, base: Option<&Path>) -> Result<Campaign> {
         let t: toml::Table = text.parse().map_err(|e: toml::de::Error| Error::input(format!("not valid TOML: {}", e.message().trim())))?;
-        const KEYS: &[&str] = &["name", "seed", "trials", "sampler", "setup", "attacks"];
+        const KEYS: &[&str] = &["name", "seed", "trials", "sampler", "setup", "rules", "attacks"];
         for key in t.keys() {
             if !KEYS.contains(&key.as_str()) {
                 return Err(Error::input_key(key.clone(), format!("unknown key; a campaign has {}", KEYS.join(", "))));
@@ -127,6 +132,23 @@ impl Campaign {
             None => Setup::default(),
             Some(_) => return Err(Error::input_key("setup", "must be a file path or a table")),
         };
+        let rules = match t.get("rules") {
+            None => vec![setup.key_rule],
+            Some(toml::Value::Array(a)) if !a.is_empty() => {
+                let mut out = Vec::new();
+                for (i, v) in a.iter().enumerate() {
+                    let key = format!("rules[{i}]");
+                    let name = v.as_str().ok_or_else(|| Error::input_key(key.clone(), "must be a key-rule name"))?;
+                    let rule: KeyRule = name.parse().map_err(|e: String| Error::input_key(key.clone(), e))?;
+                    setup.check_rule(rule).map_err(|e| e.with_key(key.clone()))?;
+                    if !out.contains(&rule) {
+                        out.push(rule);
+                    }
+                }
+                out
+            }
+            Some(_) => return Err(Error::input_key("rules", "must be a non-empty list of key-rule names")),
+        };
         let list = match t.get("attacks") {
             Some(toml::Value::Array(a)) if !a.is_empty() => a,
             _ => return Err(Error::input_key("attacks", "must be a non-empty list of [[attacks]] tables")),
@@ -135,11 +157,14 @@ impl Campaign {
         for (i, entry) in list.iter().enumerate() {
             let key = format!("attacks[{i}]");
             let table = entry.as_table().ok_or_else(|| Error::input_key(key.clone(), "must be a table"))?;
-            let e = parse_entry(table, base).map_err(|e| e.with_key(key.clone()))?;
+            let e = parse_entry(table, base, &setup).map_err(|e| e.with_key(key.clone()))?;
             inputs.push((e.origin.clone(), e.text.clone()));
             attacks.push(e);
         }
-        Ok(Campaign { name, seed, trials, sampler, setup, attacks, inputs })
+        if sampler == Sampler::Round && !setup.link.is_ideal_single_photon() {
+            return Err(Error::input_key("sampler", "the per-round sampler supports the ideal single-photon link only; use \"count\""));
+        }
+        Ok(Campaign { name, seed, trials, sampler, setup, rules, attacks, inputs })
     }
 }
 
@@ -154,7 +179,7 @@ fn resolve(base: Option<&Path>, p: &str) -> Result<PathBuf> {
     }
 }
 
-fn parse_entry(t: &toml::Table, base: Option<&Path>) -> Result<AttackEntry> {
+fn parse_entry(t: &toml::Table, base: Option<&Path>, setup: &Setup) -> Result<AttackEntry> {
     const KEYS: &[&str] = &["builtin", "file", "steps", "from", "to", "params"];
     for key in t.keys() {
         if !KEYS.contains(&key.as_str()) {
@@ -212,8 +237,22 @@ fn parse_entry(t: &toml::Table, base: Option<&Path>) -> Result<AttackEntry> {
     };
     let entry = AttackEntry { label, origin, text, file, sweep, params };
     // Build every point once now, so bad values are reported before any work.
+    let weak_coherent = !setup.link.source.intensities().is_empty();
+    if entry.file.is_link() && !weak_coherent {
+        return Err(Error::input_key("builtin", format!("`{}` is a link-level attack and needs a weak-coherent [source] in the setup", entry.label)));
+    }
+    if !entry.file.is_link() && !setup.link.is_ideal_single_photon() {
+        return Err(Error::input_key(
+            "builtin",
+            format!("`{}` is a single-photon attack; on a lossy or weak-coherent link use the link-level attacks (photon-number-splitting, beam-splitting)", entry.label),
+        ));
+    }
     for (_, overrides) in entry.points() {
-        entry.file.attack(&overrides)?;
+        if entry.file.is_link() {
+            entry.file.link_attack(&overrides)?;
+        } else {
+            entry.file.attack(&overrides)?;
+        }
     }
     Ok(entry)
 }
@@ -236,7 +275,7 @@ impl AttackEntry {
     }
 }
 
-/// The result for one attack point.
+/// The result for one attack point under one key-length rule.
 #[derive(Clone, Debug)]
 pub struct PointResult {
     /// Index of the attack entry in the campaign.
@@ -251,12 +290,59 @@ pub struct PointResult {
     pub params: Vec<(String, Value)>,
     /// The swept parameter and its value, if any.
     pub swept: Option<(String, f64)>,
-    /// The evaluator's exact quantities.
+    /// The key-length rule judged.
+    pub rule: KeyRule,
+    /// The evaluator's exact quantities. For link-level attacks Eve's knowledge is
+    /// classical (she knows a fraction of the key bits exactly), and the fields are filled
+    /// accordingly (see [`link_evaluation`]).
     pub exact: Evaluation,
     /// Exact probability that Eve guesses a sifted key bit.
     pub exact_eve_guess: f64,
+    /// Remarks about the point (e.g. an attack that cannot match the honest gain).
+    pub note: String,
     /// Monte Carlo summary.
     pub stats: stats::PointStats,
+}
+
+/// A point ready to sample.
+enum PointModel {
+    Qubit(SignalModel),
+    Link(LinkModel),
+}
+
+/// The exact quantities of a link-level point, in the evaluator's shape: error rates from
+/// the signal intensity, Eve's information = the fraction of key bits she knows,
+/// `h_x_given_e` = the fraction she does not, p_guess = known + ½·unknown; quantities that
+/// have no meaning here (Y basis, guessing game, qubit bounds) are NaN.
+pub fn link_evaluation(model: &LinkModel, protocol: crate::protocol::Protocol) -> Evaluation {
+    let e = model.error_rate(0);
+    let known = model.known_fraction();
+    let he = crate::measures::binary_entropy(e.min(0.5));
+    Evaluation {
+        qber_z: e,
+        qber_x: e,
+        qber_y: f64::NAN,
+        p_guess_z: known + 0.5 * (1.0 - known),
+        p_guess_x: known + 0.5 * (1.0 - known),
+        p_guess_y: f64::NAN,
+        holevo_z: known,
+        holevo_x: known,
+        holevo_y: f64::NAN,
+        h_x_given_e: 1.0 - known,
+        accessible_z: Some(known),
+        accessible_x: Some(known),
+        accessible_converged: Some(true),
+        i_ab: 1.0 - he,
+        game_win: f64::NAN,
+        bound_rate: f64::NAN,
+        attack_rate: 1.0 - known - he,
+        individual_rate: Some(1.0 - known - he),
+        margin: f64::NAN,
+        h_min_x_given_e: -(known + 0.5 * (1.0 - known)).log2(),
+        pauli_weights: [f64::NAN; 4],
+        eve_dim: 0,
+        protocol,
+    }
 }
 
 /// Runs the campaign; `progress` is called once per finished point.
@@ -269,36 +355,73 @@ pub fn run(c: &Campaign, progress: &(dyn Fn() + Sync)) -> Result<Vec<PointResult
     }
     let eval_opts = EvalOptions::full(c.setup.protocol);
     let basis_prob = c.setup.basis_probabilities();
-    jobs.par_iter()
+    let setups: Vec<Setup> = c.rules.iter().map(|r| Setup { key_rule: *r, ..c.setup.clone() }).collect();
+    let per_point: Vec<Vec<PointResult>> = jobs
+        .par_iter()
         .enumerate()
         .map(|(index, (ei, entry, swept, overrides))| {
-            let attack = entry.file.attack(overrides).map_err(|e| e.with_file(&entry.origin))?;
-            let exact = evaluate(&attack, &eval_opts)?;
-            let model = SignalModel::new(&attack, c.setup.protocol, &basis_prob);
+            let (family, params, exact, model, note) = if entry.file.is_link() {
+                let attack = entry.file.link_attack(overrides).map_err(|e| e.with_file(&entry.origin))?;
+                let model = LinkModel::new(&c.setup.link, Some(&attack), &basis_prob);
+                let mut note = String::new();
+                if let crate::attack::link_attack::LinkAttack::PhotonNumberSplitting { fraction } = attack {
+                    let s = crate::attack::link_attack::pns_strategy(&c.setup.link, c.setup.link.source.intensities()[0].0);
+                    if !s.matched && fraction > 0.0 {
+                        note = "photon-number splitting cannot reach the honest signal gain on this link (Eve forwards every pulse)".into();
+                    }
+                }
+                let exact = link_evaluation(&model, c.setup.protocol);
+                (attack.name().to_string(), vec![("fraction".to_string(), Value::Num(attack.fraction()))], exact, PointModel::Link(model), note)
+            } else {
+                let attack = entry.file.attack(overrides).map_err(|e| e.with_file(&entry.origin))?;
+                let exact = evaluate(&attack, &eval_opts)?;
+                let model = SignalModel::new(&attack, c.setup.protocol, &basis_prob);
+                (attack.family.clone(), attack.params.0.clone(), exact, PointModel::Qubit(model), String::new())
+            };
             let setup = &c.setup;
             let test_size = |z: u64| setup.test_sample.size(z);
-            let trials: Vec<trial::TrialOutcome> = (0..c.trials)
+            let trials: Vec<Vec<trial::TrialOutcome>> = (0..c.trials)
                 .into_par_iter()
                 .map(|t| {
                     let mut rng = trial_rng(c.seed, index as u64, t);
-                    let counts = sample_block(c.sampler, &model, setup.signals, &test_size, &mut rng);
-                    trial::judge(&counts, setup, exact.h_x_given_e)
+                    let counts = match &model {
+                        PointModel::Qubit(m) => sample_block(c.sampler, m, setup.signals, &test_size, &mut rng),
+                        PointModel::Link(m) => crate::sim::link::sample(m, setup.signals, &test_size, &mut rng),
+                    };
+                    setups.iter().map(|s| trial::judge(&counts, s, exact.h_x_given_e)).collect()
                 })
                 .collect();
             progress();
-            Ok(PointResult {
-                entry: *ei,
-                index: index as u64,
-                attack: entry.label.clone(),
-                family: attack.family.clone(),
-                params: attack.params.0.clone(),
-                swept: swept.clone(),
-                exact_eve_guess: model.eve_guess_rate(0),
-                exact,
-                stats: stats::summarize(&trials),
-            })
+            let exact_eve_guess = match &model {
+                PointModel::Qubit(m) => m.eve_guess_rate(0),
+                PointModel::Link(_) => exact.p_guess_z,
+            };
+            Ok(c.rules
+                .iter()
+                .enumerate()
+                .map(|(ri, rule)| {
+                    let outcomes: Vec<trial::TrialOutcome> = trials.iter().map(|v| v[ri].clone()).collect();
+                    PointResult {
+                        entry: *ei,
+                        index: index as u64,
+                        attack: entry.label.clone(),
+                        family: family.clone(),
+                        params: params.clone(),
+                        swept: swept.clone(),
+                        rule: *rule,
+                        exact: exact.clone(),
+                        exact_eve_guess,
+                        note: note.clone(),
+                        stats: stats::summarize(&outcomes),
+                    }
+                })
+                .collect())
         })
-        .collect()
+        .collect::<Result<_>>()?;
+    // Rule-major order within each entry keeps each attack's sweep together per rule.
+    let mut out: Vec<PointResult> = per_point.into_iter().flatten().collect();
+    out.sort_by_key(|r| (r.entry, c.rules.iter().position(|x| *x == r.rule).unwrap_or(0), r.index));
+    Ok(out)
 }
 
 /// Number of points a campaign will run.

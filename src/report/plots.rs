@@ -30,12 +30,16 @@ fn plot_err<E: std::fmt::Debug>(e: E) -> Error {
 /// Renders all plots as (file name, SVG text).
 pub fn render(c: &Campaign, results: &[PointResult]) -> Result<Vec<(String, String)>> {
     let mut out = vec![("eve_information.svg".to_string(), eve_information(c, results)?)];
-    let mut entries: Vec<usize> = results.iter().map(|r| r.entry).collect();
-    entries.dedup();
-    for e in entries {
-        let pts: Vec<&PointResult> = results.iter().filter(|r| r.entry == e && r.swept.is_some()).collect();
+    let mut groups: Vec<(usize, crate::rules::KeyRule)> = results.iter().map(|r| (r.entry, r.rule)).collect();
+    groups.dedup();
+    for (e, rule) in groups {
+        let pts: Vec<&PointResult> = results.iter().filter(|r| r.entry == e && r.rule == rule && r.swept.is_some()).collect();
         if pts.len() >= 2 {
-            let name = format!("abort_leak_{}.svg", sanitize(&pts[0].attack));
+            let name = if c.rules.len() > 1 {
+                format!("abort_leak_{}_{}.svg", sanitize(&pts[0].attack), rule.name())
+            } else {
+                format!("abort_leak_{}.svg", sanitize(&pts[0].attack))
+            };
             out.push((name, abort_leak(&pts)?));
         }
     }
@@ -88,8 +92,11 @@ fn eve_information(c: &Campaign, results: &[PointResult]) -> Result<String> {
         entries.dedup();
         for (i, e) in entries.iter().enumerate() {
             let color = COLORS[i % COLORS.len()];
-            let pts: Vec<(f64, f64)> =
-                results.iter().filter(|r| r.entry == *e).map(|r| (r.exact.qber_z.max(r.exact.qber_x).min(qmax), r.exact.holevo_z)).collect();
+            let pts: Vec<(f64, f64)> = results
+                .iter()
+                .filter(|r| r.entry == *e && r.rule == c.rules[0])
+                .map(|r| (r.exact.qber_z.max(r.exact.qber_x).min(qmax), r.exact.holevo_z))
+                .collect();
             let label = results.iter().find(|r| r.entry == *e).map(|r| r.attack.clone()).unwrap_or_default();
             chart
                 .draw_series(pts.iter().map(|&p| Circle::new(p, 4, color.filled())))
@@ -113,7 +120,7 @@ fn abort_leak(pts: &[&PointResult]) -> Result<String> {
         let root = SVGBackend::with_string(&mut svg, (800, 500)).into_drawing_area();
         root.fill(&WHITE).map_err(plot_err)?;
         let mut chart = ChartBuilder::on(&root)
-            .caption(format!("{}: abort and leak probability", pts[0].attack), ("sans-serif", 20))
+            .caption(format!("{} ({}): abort and leak probability", pts[0].attack, pts[0].rule), ("sans-serif", 20))
             .margin(15)
             .x_label_area_size(45)
             .y_label_area_size(60)

@@ -15,6 +15,21 @@ fn pct(x: f64) -> String {
     }
 }
 
+fn link_text(l: &crate::link::Link) -> String {
+    use crate::link::Source;
+    let src = match &l.source {
+        Source::SinglePhoton => "single photons".to_string(),
+        Source::WeakCoherent { intensity, decoys, .. } => {
+            let d: Vec<String> = decoys.iter().map(|(m, _)| format!("{m}")).collect();
+            format!("weak coherent pulses μ = {intensity}{}", if d.is_empty() { String::new() } else { format!(", decoys {}", d.join(", ")) })
+        }
+    };
+    format!(
+        "{src}, channel loss {:.2} dB, detector efficiency {}, dark counts {:e} per gate, misalignment {}",
+        l.channel_loss_db, l.detector_efficiency, l.dark_count_probability, l.misalignment
+    )
+}
+
 /// Renders the summary.
 pub fn render(c: &Campaign, results: &[PointResult]) -> String {
     let mut s = String::new();
@@ -25,7 +40,7 @@ pub fn render(c: &Campaign, results: &[PointResult]) -> String {
     let _ = writeln!(
         s,
         "System under test `{}`: {} with {} signals per block, P(Z) = {}, test sample {:?}, abort above QBER {}, \
-         error correction f = {}, ε_sec = {:e}, ε_cor = {:e}, key-length rule `{}`. {} trials per attack point, seed {}.\n",
+         error correction f = {}, ε_sec = {:e}, ε_cor = {:e}, key-length rule `{}`. {} trials per attack point, seed {}. Link: {}.\n",
         setup.name,
         setup.protocol,
         setup.signals,
@@ -35,20 +50,26 @@ pub fn render(c: &Campaign, results: &[PointResult]) -> String {
         setup.ec_efficiency,
         setup.epsilon_sec,
         setup.epsilon_cor,
-        setup.key_rule,
+        c.rules.iter().map(|r| r.name()).collect::<Vec<_>>().join("`, `"),
         c.trials,
-        c.seed
+        c.seed,
+        link_text(&setup.link)
     );
     if leaks.is_empty() {
         let _ = writeln!(s, "**Verdict: no leak found.** No trial at any of the {} attack points extracted more key than the attack leaves secret.\n", results.len());
     } else {
         let _ = writeln!(
             s,
-            "**Verdict: LEAK.** At {} of {} attack points the key-length rule `{}` extracted more key than the attack leaves secret \
-             (ℓ > n·H(X|E) − leak_EC + 2 log₂ n in at least one trial): these keys are provably not secret against that attack.\n",
+            "**Verdict: LEAK.** At {} of {} (attack point, rule) pairs the key-length rule extracted more key than the attack leaves secret \
+             (ℓ > n·H(X|E) − leak_EC + 2 log₂ n in at least one trial): these keys are provably not secret against that attack. \
+             Leaking rules: `{}`.\n",
             leaks.len(),
             results.len(),
-            setup.key_rule
+            {
+                let mut names: Vec<&str> = leaks.iter().map(|r| r.rule.name()).collect();
+                names.dedup();
+                names.join("`, `")
+            }
         );
     }
     if inconclusive > 0 {
@@ -60,12 +81,12 @@ pub fn render(c: &Campaign, results: &[PointResult]) -> String {
         );
     }
     let _ = writeln!(s, "Verdicts per trial: `aborted`, `no-key`, `secure` (ℓ ≤ achievable), `inconclusive`, `leak` (ℓ > capacity + 2 log₂ n).\n");
-    let mut entries: Vec<usize> = results.iter().map(|r| r.entry).collect();
-    entries.dedup();
-    for e in entries {
-        let pts: Vec<&PointResult> = results.iter().filter(|r| r.entry == e).collect();
+    let mut groups: Vec<(usize, crate::rules::KeyRule)> = results.iter().map(|r| (r.entry, r.rule)).collect();
+    groups.dedup();
+    for (e, rule) in groups {
+        let pts: Vec<&PointResult> = results.iter().filter(|r| r.entry == e && r.rule == rule).collect();
         let first = pts[0];
-        let label = first.attack.clone();
+        let label = if c.rules.len() > 1 { format!("{} under `{}`", first.attack, rule) } else { first.attack.clone() };
         let param = first.swept.as_ref().map(|(p, _)| p.clone()).unwrap_or_default();
         let attack_leaks = pts.iter().filter(|r| r.stats.verdict == "leak").count();
         let _ = writeln!(s, "## {} ({})\n", label, crate::report::params_string(&first.params));
@@ -77,6 +98,9 @@ pub fn render(c: &Campaign, results: &[PointResult]) -> String {
             "no leak".to_string()
         };
         let _ = writeln!(s, "Verdict: **{verdict}**.\n");
+        if let Some(r) = pts.iter().find(|r| !r.note.is_empty()) {
+            let _ = writeln!(s, "Note: {}.\n", r.note);
+        }
         let not_caught = pts.iter().filter(|r| r.stats.abort_probability <= 0.5).max_by(|a, b| a.exact.holevo_z.total_cmp(&b.exact.holevo_z));
         match not_caught {
             Some(r) => {

@@ -21,6 +21,12 @@
 //! | mean_excess_bits | mean ℓ − capacity over trials with a key |
 //! | mean_capacity_bits, mean_achievable_bits | means over trials that did not abort |
 //! | verdict | leak, inconclusive, caught (all aborted) or secure |
+//! | note | remarks, e.g. an attack that cannot match the honest gain |
+//!
+//! With several rules (campaign key `rules`), each point has one row per rule, all judged
+//! on the same sampled blocks. For link-level attacks the information columns are
+//! classical: Eve knows a fraction of the key bits exactly (`holevo_z_bits` = that
+//! fraction); Y-basis, game and qubit-bound columns are empty.
 
 use super::params_string;
 use crate::audit::{Campaign, PointResult};
@@ -70,6 +76,7 @@ pub const COLUMNS: &[&str] = &[
     "mean_capacity_bits",
     "mean_achievable_bits",
     "verdict",
+    "note",
 ];
 
 /// Renders the table.
@@ -94,7 +101,7 @@ pub fn render(c: &Campaign, results: &[PointResult]) -> Result<String> {
             sp,
             sv,
             c.setup.protocol.to_string(),
-            c.setup.key_rule.to_string(),
+            r.rule.to_string(),
             c.setup.signals.to_string(),
             s.trials.to_string(),
             n(e.qber_z),
@@ -127,6 +134,7 @@ pub fn render(c: &Campaign, results: &[PointResult]) -> Result<String> {
             n(s.mean_capacity),
             n(s.mean_achievable),
             s.verdict.to_string(),
+            r.note.clone(),
         ];
         debug_assert_eq!(row.len(), COLUMNS.len());
         w.write_record(&row).map_err(io)?;

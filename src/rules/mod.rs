@@ -17,6 +17,7 @@ pub mod asymptotic;
 pub mod finite_uncertainty;
 pub mod game_min_entropy;
 pub mod individual;
+pub mod link_rules;
 
 use crate::measures::binary_entropy;
 use crate::setup::Setup;
@@ -36,11 +37,39 @@ pub enum KeyRule {
     Individual,
     /// Min-entropy from the monogamy-of-entanglement guessing game.
     GameMinEntropy,
+    /// Every detection treated as a single photon (finite-uncertainty form).
+    NaiveSinglePhoton,
+    /// GLLP worst case without decoys: every multi-photon pulse known to Eve.
+    GllpNoDecoy,
+    /// Vacuum + weak decoy bounds on the single-photon yield and error, asymptotic.
+    DecoyVacuumWeak,
 }
 
 impl KeyRule {
     /// All rules.
-    pub const ALL: [KeyRule; 4] = [KeyRule::FiniteUncertainty, KeyRule::Asymptotic, KeyRule::Individual, KeyRule::GameMinEntropy];
+    pub const ALL: [KeyRule; 7] = [
+        KeyRule::FiniteUncertainty,
+        KeyRule::Asymptotic,
+        KeyRule::Individual,
+        KeyRule::GameMinEntropy,
+        KeyRule::NaiveSinglePhoton,
+        KeyRule::GllpNoDecoy,
+        KeyRule::DecoyVacuumWeak,
+    ];
+
+    /// Whether the rule reads decoy statistics.
+    pub fn needs_weak_coherent_source(self) -> bool {
+        matches!(self, KeyRule::DecoyVacuumWeak | KeyRule::GllpNoDecoy)
+    }
+
+    /// Number of intensities the rule needs (signal plus decoys).
+    pub fn intensities_needed(self) -> usize {
+        match self {
+            KeyRule::DecoyVacuumWeak => 3,
+            KeyRule::GllpNoDecoy => 1,
+            _ => 0,
+        }
+    }
 
     /// Interface name.
     pub fn name(self) -> &'static str {
@@ -49,6 +78,9 @@ impl KeyRule {
             KeyRule::Asymptotic => "asymptotic",
             KeyRule::Individual => "individual",
             KeyRule::GameMinEntropy => "game-min-entropy",
+            KeyRule::NaiveSinglePhoton => "naive-single-photon",
+            KeyRule::GllpNoDecoy => "gllp-no-decoy",
+            KeyRule::DecoyVacuumWeak => "decoy-vacuum-weak",
         }
     }
 
@@ -59,6 +91,9 @@ impl KeyRule {
             KeyRule::Asymptotic => asymptotic::length(obs, setup),
             KeyRule::Individual => individual::length(obs, setup),
             KeyRule::GameMinEntropy => game_min_entropy::length(obs, setup),
+            KeyRule::NaiveSinglePhoton => link_rules::naive_single_photon(obs, setup),
+            KeyRule::GllpNoDecoy => link_rules::gllp_no_decoy(obs, setup),
+            KeyRule::DecoyVacuumWeak => link_rules::decoy_vacuum_weak(obs, setup),
         }
     }
 }
@@ -92,6 +127,44 @@ pub struct BlockStats {
     pub e_z: f64,
     /// Observed error rate on the sifted X bits (NaN when k = 0).
     pub e_x: f64,
+    /// Per-intensity statistics of a weak-coherent link (None for single photons).
+    pub link: Option<IntensityObs>,
+}
+
+/// What a weak-coherent block showed per intensity (signal first, then decoys).
+#[derive(Clone, Copy, Debug, PartialEq, Serialize, Default)]
+pub struct IntensityObs {
+    /// Number of intensities in use.
+    pub count: usize,
+    /// Intensities, photons per pulse.
+    pub mu: [f64; 3],
+    /// Pulses sent per intensity.
+    pub pulses: [u64; 3],
+    /// Detections per intensity (any bases).
+    pub detections: [u64; 3],
+    /// Sifted X detections per intensity.
+    pub x_detections: [u64; 3],
+    /// Errors among them.
+    pub x_errors: [u64; 3],
+}
+
+impl IntensityObs {
+    /// Observed gain of intensity `i`.
+    pub fn gain(&self, i: usize) -> f64 {
+        if self.pulses[i] == 0 {
+            f64::NAN
+        } else {
+            self.detections[i] as f64 / self.pulses[i] as f64
+        }
+    }
+    /// Observed X error rate of intensity `i`.
+    pub fn x_error_rate(&self, i: usize) -> f64 {
+        if self.x_detections[i] == 0 {
+            f64::NAN
+        } else {
+            self.x_errors[i] as f64 / self.x_detections[i] as f64
+        }
+    }
 }
 
 impl BlockStats {

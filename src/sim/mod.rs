@@ -17,6 +17,7 @@
 //! depend on the number of threads.
 
 pub mod count;
+pub mod link;
 pub mod round;
 
 use crate::attack::Attack;
@@ -152,7 +153,7 @@ pub const CELL_CATEGORY: [u8; 8] = {
 };
 
 /// Counts of one simulated block: what the post-processing and the judge need.
-#[derive(Clone, Debug, Default, PartialEq, Eq, Serialize)]
+#[derive(Clone, Debug, Default, PartialEq, Serialize)]
 pub struct BlockCounts {
     /// Signals sent.
     pub signals: u64,
@@ -166,6 +167,8 @@ pub struct BlockCounts {
     pub test_z_errors: u64,
     /// Key bits (sifted Z not in the test sample) by category `2·error + eve_correct`.
     pub key: [u64; 4],
+    /// Per-intensity statistics of a weak-coherent link (None for single photons).
+    pub link: Option<crate::rules::IntensityObs>,
 }
 
 impl BlockCounts {
