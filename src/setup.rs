@@ -198,6 +198,12 @@ impl Setup {
                 rule.intensities_needed()
             )));
         }
+        if rule == KeyRule::DecoyFinite {
+            let (m1, m2, m3) = (ints[0].0, ints[1].0.max(ints[2].0), ints[1].0.min(ints[2].0));
+            if !(m1 > m2 + m3 && m2 > m3) {
+                return Err(Error::input("decoy-finite needs intensities μ1 > μ2 + μ3 and μ2 > μ3 ≥ 0 (signal μ1, decoys μ2, μ3)"));
+            }
+        }
         if rule == KeyRule::DecoyVacuumWeak && (!ints[1..].iter().any(|(m, _)| *m == 0.0) || !ints[1..].iter().any(|(m, _)| *m > 0.0)) {
             return Err(Error::input("decoy-vacuum-weak needs one vacuum decoy (0) and one weak decoy (> 0) in [source].decoys"));
         }

@@ -149,3 +149,42 @@ fn abort_leak(pts: &[&PointResult]) -> Result<String> {
     }
     Ok(svg)
 }
+
+/// Key rate per pulse (log scale, positive rates only) against distance, one line per rule.
+pub fn keyrate_svg(rows: &[crate::keyrate::RateRow], rules: &[crate::keyrate::LinkRule]) -> Result<String> {
+    let pos: Vec<&crate::keyrate::RateRow> = rows.iter().filter(|r| r.rate_bits_per_pulse > 0.0).collect();
+    let xmax = rows.iter().map(|r| r.distance_km).fold(1.0_f64, f64::max);
+    let ymin = pos.iter().map(|r| r.rate_bits_per_pulse).fold(1.0_f64, f64::min).max(1e-12);
+    let ymax = pos.iter().map(|r| r.rate_bits_per_pulse).fold(ymin * 10.0, f64::max);
+    let mut svg = String::new();
+    {
+        let root = SVGBackend::with_string(&mut svg, (900, 600)).into_drawing_area();
+        root.fill(&WHITE).map_err(plot_err)?;
+        let mut chart = ChartBuilder::on(&root)
+            .caption("Key rate per pulse against distance", ("sans-serif", 20))
+            .margin(15)
+            .x_label_area_size(45)
+            .y_label_area_size(70)
+            .build_cartesian_2d(0.0..xmax, (ymin..ymax).log_scale())
+            .map_err(plot_err)?;
+        chart
+            .configure_mesh()
+            .x_desc("fibre length, km")
+            .y_desc("key rate, bits per pulse")
+            .y_label_formatter(&|y| format!("{y:.0e}"))
+            .draw()
+            .map_err(plot_err)?;
+        for (i, rule) in rules.iter().enumerate() {
+            let color = COLORS[i % COLORS.len()];
+            let pts: Vec<(f64, f64)> = pos.iter().filter(|r| r.rule == *rule).map(|r| (r.distance_km, r.rate_bits_per_pulse)).collect();
+            chart
+                .draw_series(LineSeries::new(pts, color.stroke_width(2)))
+                .map_err(plot_err)?
+                .label(rule.name())
+                .legend(move |(x, y)| PathElement::new(vec![(x, y), (x + 20, y)], color.stroke_width(2)));
+        }
+        chart.configure_series_labels().position(SeriesLabelPosition::UpperRight).background_style(WHITE.mix(0.9)).border_style(BLACK).draw().map_err(plot_err)?;
+        root.present().map_err(plot_err)?;
+    }
+    Ok(svg)
+}

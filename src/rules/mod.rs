@@ -14,6 +14,7 @@
 //! Commun. 3, 634, 2012).
 
 pub mod asymptotic;
+pub mod decoy_finite;
 pub mod finite_uncertainty;
 pub mod game_min_entropy;
 pub mod individual;
@@ -43,11 +44,13 @@ pub enum KeyRule {
     GllpNoDecoy,
     /// Vacuum + weak decoy bounds on the single-photon yield and error, asymptotic.
     DecoyVacuumWeak,
+    /// Finite-key decoy-state rule with Hoeffding bounds (three intensities).
+    DecoyFinite,
 }
 
 impl KeyRule {
     /// All rules.
-    pub const ALL: [KeyRule; 7] = [
+    pub const ALL: [KeyRule; 8] = [
         KeyRule::FiniteUncertainty,
         KeyRule::Asymptotic,
         KeyRule::Individual,
@@ -55,17 +58,18 @@ impl KeyRule {
         KeyRule::NaiveSinglePhoton,
         KeyRule::GllpNoDecoy,
         KeyRule::DecoyVacuumWeak,
+        KeyRule::DecoyFinite,
     ];
 
     /// Whether the rule reads decoy statistics.
     pub fn needs_weak_coherent_source(self) -> bool {
-        matches!(self, KeyRule::DecoyVacuumWeak | KeyRule::GllpNoDecoy)
+        matches!(self, KeyRule::DecoyVacuumWeak | KeyRule::GllpNoDecoy | KeyRule::DecoyFinite)
     }
 
     /// Number of intensities the rule needs (signal plus decoys).
     pub fn intensities_needed(self) -> usize {
         match self {
-            KeyRule::DecoyVacuumWeak => 3,
+            KeyRule::DecoyVacuumWeak | KeyRule::DecoyFinite => 3,
             KeyRule::GllpNoDecoy => 1,
             _ => 0,
         }
@@ -81,6 +85,7 @@ impl KeyRule {
             KeyRule::NaiveSinglePhoton => "naive-single-photon",
             KeyRule::GllpNoDecoy => "gllp-no-decoy",
             KeyRule::DecoyVacuumWeak => "decoy-vacuum-weak",
+            KeyRule::DecoyFinite => "decoy-finite",
         }
     }
 
@@ -94,6 +99,7 @@ impl KeyRule {
             KeyRule::NaiveSinglePhoton => link_rules::naive_single_photon(obs, setup),
             KeyRule::GllpNoDecoy => link_rules::gllp_no_decoy(obs, setup),
             KeyRule::DecoyVacuumWeak => link_rules::decoy_vacuum_weak(obs, setup),
+            KeyRule::DecoyFinite => decoy_finite::length(obs, setup),
         }
     }
 }
@@ -142,6 +148,8 @@ pub struct IntensityObs {
     pub pulses: [u64; 3],
     /// Detections per intensity (any bases).
     pub detections: [u64; 3],
+    /// Sifted Z detections per intensity (for the signal: test sample and key together).
+    pub z_detections: [u64; 3],
     /// Sifted X detections per intensity.
     pub x_detections: [u64; 3],
     /// Errors among them.

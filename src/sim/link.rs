@@ -87,6 +87,9 @@ pub fn sample(model: &LinkModel, signals: u64, test_size: &dyn Fn(u64) -> u64, r
         let err_rate = (split[2] + split[3]) / gain;
         for b in 0..nb {
             let det = c[2 + b];
+            if b == 0 {
+                obs.z_detections[k] = det;
+            }
             if k == 0 {
                 out.sifted[b] = det;
             }
