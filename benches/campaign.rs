@@ -64,16 +64,52 @@ fn per_round(c: &mut Criterion) {
 }
 
 fn demo_campaign(c: &mut Criterion) {
-    let campaign = Campaign::demo();
     let mut group = c.benchmark_group("campaign");
     group.sample_size(10);
-    group.bench_function("built-in demo", |b| b.iter(|| run(&campaign, &|| {}).unwrap().len()));
+    for name in ["decoy", "single-photon"] {
+        let campaign = Campaign::demo_named(name).unwrap();
+        group.bench_function(format!("built-in demo {name}"), |b| b.iter(|| run(&campaign, &|| {}).unwrap().len()));
+    }
+    group.finish();
+}
+
+fn link_vs_single_photon(c: &mut Criterion) {
+    // Trials per second of the weak-coherent sampler against the single-photon one (target:
+    // within 2x), both judged once.
+    use qkd_audit::attack::link_attack::LinkAttack;
+    use qkd_audit::sim::link::LinkModel;
+    let campaign = Campaign::demo_named("decoy").unwrap();
+    let setup = campaign.setup.clone();
+    let lm = LinkModel::new(&setup.link, Some(&LinkAttack::PhotonNumberSplitting { fraction: 0.5 }), &setup.basis_probabilities());
+    let sp = SignalModel::new(&cloner(), Protocol::Bb84, &setup.basis_probabilities());
+    let sp_setup = Setup { key_rule: qkd_audit::rules::KeyRule::FiniteUncertainty, link: Default::default(), ..setup.clone() };
+    let trials = 20_000u64;
+    let mut group = c.benchmark_group("trials per second, link vs single photon (2 threads)");
+    group.throughput(Throughput::Elements(trials));
+    let ts = |z: u64| z / 20;
+    group.bench_function("weak-coherent + decoy-finite", |b| {
+        b.iter(|| (0..trials).into_par_iter().map(|t| judge(&qkd_audit::sim::link::sample(&lm, setup.signals, &ts, &mut trial_rng(3, 0, t)), &setup, 0.5).length).sum::<u64>())
+    });
+    group.bench_function("single-photon + finite-uncertainty", |b| {
+        b.iter(|| (0..trials).into_par_iter().map(|t| judge(&sample_block(Sampler::Count, &sp, setup.signals, &ts, &mut trial_rng(3, 0, t)), &sp_setup, 0.8).length).sum::<u64>())
+    });
+    group.finish();
+}
+
+fn keyrate(c: &mut Criterion) {
+    use qkd_audit::keyrate::{rate_table, LinkRule, RateParams};
+    let campaign = Campaign::demo_named("decoy").unwrap();
+    let link = campaign.setup.link.clone();
+    let distances: Vec<f64> = (0..1000).map(|i| 0.2 * i as f64).collect();
+    let p = RateParams { sifting: 0.5, f_ec: 1.22, nu: 0.1 };
+    let mut group = c.benchmark_group("keyrate");
+    group.bench_function("1000 distances, 4 rules, mu optimised (2 threads)", |b| b.iter(|| rate_table(&link, &distances, &LinkRule::ALL, None, &p).len()));
     group.finish();
 }
 
 criterion_group! {
     name = benches;
     config = Criterion::default().sample_size(10).measurement_time(std::time::Duration::from_secs(3)).warm_up_time(std::time::Duration::from_millis(500));
-    targets = count_level, per_round, demo_campaign
+    targets = count_level, per_round, demo_campaign, link_vs_single_photon, keyrate
 }
 criterion_main!(benches);

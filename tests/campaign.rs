@@ -296,7 +296,7 @@ fn bad_setup_gives_status_two_with_file_key_and_range() {
 #[test]
 fn demo_campaign_runs_from_any_directory() {
     let dir = tempfile::tempdir().unwrap();
-    let out = qkd(&["run", "--quiet"], dir.path(), "2");
+    let out = qkd(&["run", "--quiet", "--demo", "single-photon"], dir.path(), "2");
     assert_eq!(out.status.code(), Some(0), "{}", String::from_utf8_lossy(&out.stderr));
     let folder = String::from_utf8_lossy(&out.stdout).trim().to_string();
     for f in ["attack_vs_bound.csv", "summary.md", "eve_information.svg", "manifest.json"] {

@@ -14,9 +14,14 @@ use std::path::PathBuf;
 /// Options of `run`.
 #[derive(clap::Args, Debug)]
 pub struct RunArgs {
-    /// Campaign file (TOML). Without it, the built-in demo campaign runs.
-    #[arg(value_name = "CAMPAIGN")]
+    /// Campaign file (TOML). Without it, a built-in demo campaign runs.
+    #[arg(value_name = "CAMPAIGN", conflicts_with = "demo")]
     pub campaign: Option<PathBuf>,
+    /// Which built-in demo to run without a campaign file: decoy (weak pulses with decoys,
+    /// photon-number splitting and beam splitting against four rules; the default) or
+    /// single-photon (the single-photon attack catalogue against the finite-key rule).
+    #[arg(long, value_name = "NAME")]
+    pub demo: Option<String>,
     /// Folder that receives `<campaign name>/`.
     #[arg(long, default_value = "results", value_name = "DIR")]
     pub results_dir: PathBuf,
@@ -33,9 +38,10 @@ pub struct RunArgs {
 
 /// Runs `qkd-audit run`.
 pub fn cmd_run(a: RunArgs) -> Result<Outcome> {
-    let campaign = match &a.campaign {
-        Some(p) => Campaign::load(p)?,
-        None => Campaign::demo(),
+    let campaign = match (&a.campaign, &a.demo) {
+        (Some(p), _) => Campaign::load(p)?,
+        (None, Some(d)) => Campaign::demo_named(d)?,
+        (None, None) => Campaign::demo(),
     };
     let dir = a.results_dir.join(&campaign.name);
     if dir.exists() && !a.force {

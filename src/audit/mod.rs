@@ -75,8 +75,11 @@ pub struct Campaign {
     pub inputs: Vec<(String, String)>,
 }
 
-/// The built-in demo campaign (an invented scenario).
-pub const DEMO_CAMPAIGN: &str = include_str!("../../campaigns/demo.toml");
+/// The built-in demo campaigns (invented scenarios): (name, text). The first is the default.
+pub const DEMO_CAMPAIGNS: &[(&str, &str)] = &[
+    ("decoy", include_str!("../../campaigns/demo-decoy.toml")),
+    ("single-photon", include_str!("../../campaigns/demo-single-photon.toml")),
+];
 
 impl Campaign {
     /// Reads a campaign file.
@@ -86,9 +89,18 @@ impl Campaign {
         Campaign::parse(&text, &path.display().to_string(), Some(&base)).map_err(|e| e.with_file(path))
     }
 
-    /// The built-in demo campaign.
+    /// The default built-in demo campaign.
     pub fn demo() -> Campaign {
-        Campaign::parse(DEMO_CAMPAIGN, "builtin:demo", None).expect("the built-in demo campaign is valid")
+        Campaign::demo_named(DEMO_CAMPAIGNS[0].0).expect("the built-in demo campaigns are valid")
+    }
+
+    /// A built-in demo campaign by name (`decoy`, `single-photon`).
+    pub fn demo_named(name: &str) -> Result<Campaign> {
+        let (n, text) = DEMO_CAMPAIGNS.iter().find(|(n, _)| *n == name).ok_or_else(|| {
+            let names: Vec<&str> = DEMO_CAMPAIGNS.iter().map(|(n, _)| *n).collect();
+            Error::input_key("--demo", format!("no built-in demo `{name}`; demos are {}", names.join(", ")))
+        })?;
+        Campaign::parse(text, &format!("builtin:demo-{n}"), None)
     }
 
     /// Parses campaign text; relative paths resolve against `base` (None: no files allowed).

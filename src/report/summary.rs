@@ -40,7 +40,7 @@ pub fn render(c: &Campaign, results: &[PointResult]) -> String {
     let _ = writeln!(
         s,
         "System under test `{}`: {} with {} signals per block, P(Z) = {}, test sample {:?}, abort above QBER {}, \
-         error correction f = {}, ε_sec = {:e}, ε_cor = {:e}, key-length rule `{}`. {} trials per attack point, seed {}. Link: {}.\n",
+         error correction f = {}, ε_sec = {:e}, ε_cor = {:e}, key-length rule(s) `{}`. {} trials per attack point, seed {}. Link: {}.\n",
         setup.name,
         setup.protocol,
         setup.signals,
@@ -77,7 +77,7 @@ pub fn render(c: &Campaign, results: &[PointResult]) -> String {
             s,
             "{inconclusive} point(s) have inconclusive trials: the key lies between the rigorous achievable bound (AEP) and the attack's \
              capacity. The AEP band is loose at these block sizes; such keys are still covered by the key-length rule's own security \
-             proof when that rule is a proven one (`finite-uncertainty`, `game-min-entropy`).\n"
+             proof when that rule is a proven one (`finite-uncertainty`, `game-min-entropy`, `gllp-no-decoy`, `decoy-finite`).\n"
         );
     }
     let _ = writeln!(s, "Verdicts per trial: `aborted`, `no-key`, `secure` (ℓ ≤ achievable), `inconclusive`, `leak` (ℓ > capacity + 2 log₂ n).\n");
@@ -89,7 +89,12 @@ pub fn render(c: &Campaign, results: &[PointResult]) -> String {
         let label = if c.rules.len() > 1 { format!("{} under `{}`", first.attack, rule) } else { first.attack.clone() };
         let param = first.swept.as_ref().map(|(p, _)| p.clone()).unwrap_or_default();
         let attack_leaks = pts.iter().filter(|r| r.stats.verdict == "leak").count();
-        let _ = writeln!(s, "## {} ({})\n", label, crate::report::params_string(&first.params));
+        let fixed: Vec<(String, crate::attack::Value)> = first.params.iter().filter(|(k, _)| *k != param).cloned().collect();
+        if fixed.is_empty() {
+            let _ = writeln!(s, "## {label}\n");
+        } else {
+            let _ = writeln!(s, "## {label} ({})\n", crate::report::params_string(&fixed));
+        }
         let verdict = if attack_leaks > 0 {
             format!("LEAK at {attack_leaks} of {} points", pts.len())
         } else if pts.iter().all(|r| r.stats.verdict == "caught") {

@@ -1,0 +1,196 @@
+//! Weak coherent pulses, decoys, link-level attacks, link key-length rules and `keyrate`.
+
+use proptest::prelude::*;
+use proptest::test_runner::{Config, FileFailurePersistence, RngAlgorithm, TestRng, TestRunner};
+use qkd_audit::attack::link_attack::{honest_split, LinkAttack};
+use qkd_audit::audit::trial::{judge, Verdict};
+use qkd_audit::keyrate::vacuum_weak_bounds;
+use qkd_audit::link::{Link, Source};
+use qkd_audit::rules::KeyRule;
+use qkd_audit::setup::{Setup, TestSample};
+use qkd_audit::sim::link::{sample, LinkModel};
+use qkd_audit::sim::trial_rng;
+use std::path::Path;
+use std::process::Command;
+
+fn runner(cases: u32, seed: u8) -> TestRunner {
+    let config = Config { cases, failure_persistence: Some(Box::new(FileFailurePersistence::Off)), ..Config::default() };
+    TestRunner::new_with_rng(config, TestRng::from_seed(RngAlgorithm::ChaCha, &[seed; 32]))
+}
+
+fn link(loss_db: f64, mu: f64) -> Link {
+    Link {
+        source: Source::WeakCoherent { intensity: mu, probability: 0.8, decoys: vec![(0.1, 0.1), (0.0, 0.1)] },
+        channel_loss_db: loss_db,
+        length_km: None,
+        attenuation_db_per_km: None,
+        detector_efficiency: 0.1,
+        dark_count_probability: 1e-6,
+        misalignment: 0.015,
+    }
+}
+
+#[test]
+fn decoy_bounds_contain_the_true_single_photon_yield_and_error() {
+    // Ma, Qi, Zhao, Lo (2005): Y₁ᴸ ≤ Y₁ and e₁ᵁ ≥ e₁ for an honest link. Gains here are the
+    // exact photon-number sums, so the inequalities must hold exactly.
+    let strategy = (0.2f64..0.9, 0.01f64..0.15, 1e-4f64..0.5, 0.0f64..1e-4, 0.0f64..0.05);
+    runner(500, 21)
+        .run(&strategy, |(mu, nu, eta, y0, ed)| {
+            prop_assume!(nu < mu / 2.0);
+            let l = Link { detector_efficiency: 1.0, channel_loss_db: -10.0 * eta.log10(), dark_count_probability: y0, misalignment: ed, ..Link::default() };
+            let s_mu = honest_split(&l, mu);
+            let s_nu = honest_split(&l, nu);
+            let q = |s: &[f64; 4]| s.iter().sum::<f64>();
+            let e = |s: &[f64; 4]| (s[2] + s[3]) / q(s);
+            let (y1l, e1u) = vacuum_weak_bounds(mu, nu, q(&s_mu), q(&s_nu), e(&s_nu), y0);
+            let y1 = y0 + eta - y0 * eta;
+            // In this model a single photon is detected with probability η (error e_d), and
+            // failing that a dark count fires with probability Y₀ (error ½).
+            let e1 = (ed * eta + 0.5 * y0 * (1.0 - eta)) / y1;
+            prop_assert!(y1l <= y1 * (1.0 + 1e-9), "Y1L {y1l} > Y1 {y1}");
+            prop_assert!(e1u >= e1 * (1.0 - 1e-9) - 1e-15, "e1U {e1u} < e1 {e1}");
+            Ok(())
+        })
+        .unwrap();
+}
+
+fn setup(rule: KeyRule, loss_db: f64, signals: u64) -> Setup {
+    Setup {
+        signals,
+        basis_z_probability: 0.7,
+        test_sample: TestSample::Fraction(0.05),
+        abort_qber: 0.05,
+        key_rule: rule,
+        link: link(loss_db, 0.5),
+        ..Setup::default()
+    }
+}
+
+fn verdicts(attack: LinkAttack, setup: &Setup, trials: u64, seed: u64) -> Vec<Verdict> {
+    let model = LinkModel::new(&setup.link, Some(&attack), &setup.basis_probabilities());
+    let h = 1.0 - model.known_fraction();
+    let ts = |z: u64| setup.test_sample.size(z);
+    (0..trials).map(|t| judge(&sample(&model, setup.signals, &ts, &mut trial_rng(seed, 0, t)), setup, h).verdict).collect()
+}
+
+#[test]
+fn pns_breaks_the_naive_rule_at_ten_db() {
+    let s = setup(KeyRule::NaiveSinglePhoton, 10.0, 10_000_000_000);
+    let v = verdicts(LinkAttack::PhotonNumberSplitting { fraction: 1.0 }, &s, 50, 1);
+    assert!(v.iter().all(|x| *x == Verdict::Leak), "{v:?}");
+}
+
+#[test]
+fn pns_never_breaks_gllp_or_the_decoy_rules() {
+    // Property over seeds and losses (3..20 dB channel loss, η_Bob = 0.1).
+    let strategy = (any::<u64>(), 3.0f64..20.0, 0.0f64..=1.0);
+    let mut keyed = [0usize; 3];
+    let rules = [KeyRule::GllpNoDecoy, KeyRule::DecoyVacuumWeak, KeyRule::DecoyFinite];
+    let counter = std::cell::RefCell::new(&mut keyed);
+    runner(60, 5)
+        .run(&strategy, |(seed, loss, fraction)| {
+            for (i, rule) in rules.iter().enumerate() {
+                let s = setup(*rule, loss, 10_000_000_000);
+                let v = verdicts(LinkAttack::PhotonNumberSplitting { fraction }, &s, 10, seed);
+                prop_assert!(!v.contains(&Verdict::Leak), "{rule} leaked at {loss} dB, fraction {fraction}");
+                counter.borrow_mut()[i] += v.iter().filter(|x| matches!(x, Verdict::Secure | Verdict::Inconclusive)).count();
+            }
+            Ok(())
+        })
+        .unwrap();
+    // Not vacuous: the decoy rules produced keys in many trials.
+    assert!(keyed[1] > 50 && keyed[2] > 50, "too few keys: {keyed:?}");
+}
+
+#[test]
+fn beam_splitting_never_breaks_the_decoy_rules() {
+    for rule in [KeyRule::DecoyVacuumWeak, KeyRule::DecoyFinite] {
+        for loss in [3.0, 10.0] {
+            let v = verdicts(LinkAttack::BeamSplitting { fraction: 1.0 }, &setup(rule, loss, 10_000_000_000), 20, 9);
+            assert!(!v.contains(&Verdict::Leak), "{rule} at {loss} dB");
+        }
+    }
+}
+
+#[test]
+fn link_sampler_matches_the_exact_gains_and_error_rates() {
+    let s = setup(KeyRule::DecoyFinite, 10.0, 100_000_000);
+    let model = LinkModel::new(&s.link, Some(&LinkAttack::PhotonNumberSplitting { fraction: 0.5 }), &s.basis_probabilities());
+    let ts = |z: u64| z / 20;
+    let (mut pulses, mut det, mut xdet, mut xerr) = ([0u64; 3], [0u64; 3], [0u64; 3], [0u64; 3]);
+    for t in 0..200 {
+        let c = sample(&model, s.signals, &ts, &mut trial_rng(4, 0, t));
+        let l = c.link.unwrap();
+        for k in 0..3 {
+            pulses[k] += l.pulses[k];
+            det[k] += l.detections[k];
+            xdet[k] += l.x_detections[k];
+            xerr[k] += l.x_errors[k];
+        }
+    }
+    for k in 0..3 {
+        let g = model.gain(k);
+        let se = (g * (1.0 - g) / pulses[k] as f64).sqrt();
+        assert!((det[k] as f64 / pulses[k] as f64 - g).abs() < 5.0 * se, "gain {k}");
+        let e = model.error_rate(k);
+        let se = (e * (1.0 - e) / xdet[k] as f64).sqrt();
+        assert!((xerr[k] as f64 / xdet[k] as f64 - e).abs() < 5.0 * se, "error rate {k}");
+    }
+}
+
+fn qkd(args: &[&str], dir: &Path) -> std::process::Output {
+    Command::new(env!("CARGO_BIN_EXE_qkd-audit")).args(args).current_dir(dir).output().unwrap()
+}
+
+#[test]
+fn keyrate_command_reports_the_maximum_distances() {
+    let dir = tempfile::tempdir().unwrap();
+    let out = qkd(&["keyrate", "--optimize-mu", "--steps", "41", "-o", "k.csv", "--svg", "k.svg"], dir.path());
+    assert_eq!(out.status.code(), Some(0), "{}", String::from_utf8_lossy(&out.stderr));
+    let table = String::from_utf8_lossy(&out.stdout);
+    // REFERENCES.md §9 [N]: 142.2 km, 141.0 km, 40.2 km with the default parameter set.
+    for (rule, km) in [("decoy-ideal", 142.2), ("decoy-vacuum-weak", 141.0), ("gllp-no-decoy", 40.2)] {
+        let line = table.lines().find(|l| l.trim_start().starts_with(rule)).unwrap_or_else(|| panic!("{table}"));
+        let value: f64 = line.split_whitespace().nth(1).unwrap().parse().unwrap();
+        assert!((value - km).abs() < 0.2, "{rule}: {value}");
+    }
+    let csv = std::fs::read_to_string(dir.path().join("k.csv")).unwrap();
+    assert!(csv.starts_with("distance_km,transmittance,rule,mu_photons_per_pulse,gain_per_pulse,error_rate,rate_bits_per_pulse"));
+    assert_eq!(csv.lines().count(), 1 + 41 * 4);
+    assert!(dir.path().join("k.svg").exists());
+}
+
+#[test]
+fn link_setup_errors_name_the_key() {
+    let dir = tempfile::tempdir().unwrap();
+    for (text, key) in [
+        ("[source]\nkind = \"weak-coherent\"\nintensity = 0.5\ndecoys = [0.6]\ndecoy_probabilities = [0.1]\n", "source.decoys[0]"),
+        ("[channel]\nlength_km = 10\n", "channel.attenuation_db_per_km"),
+        ("[detector]\nefficiency = 1.5\n", "detector.efficiency"),
+        ("key_rule = \"decoy-finite\"\n", "key_rule"),
+    ] {
+        std::fs::write(dir.path().join("s.toml"), text).unwrap();
+        std::fs::write(dir.path().join("c.toml"), "name = \"x\"\nsetup = \"s.toml\"\n[[attacks]]\nbuiltin = \"pauli\"\n").unwrap();
+        let out = qkd(&["run", "c.toml"], dir.path());
+        assert_eq!(out.status.code(), Some(2));
+        let err = String::from_utf8_lossy(&out.stderr);
+        assert!(err.contains("s.toml") && err.contains(key), "{key}: {err}");
+    }
+}
+
+#[test]
+fn decoy_demo_shows_a_safe_rule_and_a_broken_one() {
+    let dir = tempfile::tempdir().unwrap();
+    let out = qkd(&["run", "-q"], dir.path());
+    assert_eq!(out.status.code(), Some(1), "{}", String::from_utf8_lossy(&out.stderr));
+    let csv = std::fs::read_to_string(dir.path().join("results/saltmarsh-quarryhill-decoy/attack_vs_bound.csv")).unwrap();
+    let mut rdr = csv::Reader::from_reader(csv.as_bytes());
+    let h = rdr.headers().unwrap().clone();
+    let (ri, vi) = (h.iter().position(|x| x == "key_rule").unwrap(), h.iter().position(|x| x == "verdict").unwrap());
+    let rows: Vec<csv::StringRecord> = rdr.records().map(|r| r.unwrap()).collect();
+    assert!(rows.iter().any(|r| &r[ri] == "naive-single-photon" && &r[vi] == "leak"));
+    assert!(rows.iter().filter(|r| &r[ri] == "decoy-finite").all(|r| &r[vi] != "leak"));
+    let single = qkd(&["run", "-q", "--demo", "single-photon"], dir.path());
+    assert_eq!(single.status.code(), Some(0), "{}", String::from_utf8_lossy(&single.stderr));
+}
