@@ -92,8 +92,7 @@ fn raw_length(obs: &BlockStats, l: &IntensityObs, setup: &Setup) -> Option<f64> 
     }
     // Order the decoys so that μ₂ > μ₃.
     let (i2, i3) = if l.mu[1] > l.mu[2] { (1, 2) } else { (2, 1) };
-    let ints = setup.link.source.intensities();
-    let prob = |i: usize| ints.get(i).map(|x| x.1).unwrap_or(f64::NAN);
+    let prob = |i: usize| l.probability[i];
     let d = {
         let mu = [l.mu[0], l.mu[i2], l.mu[i3]];
         let p = [prob(0), prob(i2), prob(i3)];

@@ -144,6 +144,8 @@ pub struct IntensityObs {
     pub count: usize,
     /// Intensities, photons per pulse.
     pub mu: [f64; 3],
+    /// Probability with which each intensity is sent.
+    pub probability: [f64; 3],
     /// Pulses sent per intensity.
     pub pulses: [u64; 3],
     /// Detections per intensity (any bases).

@@ -66,23 +66,34 @@ fn binomial(n: u64, p: f64, rng: &mut impl Rng) -> u64 {
 pub fn sample(model: &LinkModel, signals: u64, test_size: &dyn Fn(u64) -> u64, rng: &mut ChaCha8Rng) -> BlockCounts {
     let ni = model.intensities.len();
     let nb = model.basis_prob.len();
-    let probs: Vec<f64> = model.intensities.iter().map(|(_, p)| *p).collect();
+    let mut probs = [0.0; 3];
+    for (p, (_, q)) in probs.iter_mut().zip(&model.intensities) {
+        *p = *q;
+    }
     let mut pulses = [0u64; 3];
-    multinomial(signals, &probs, rng, &mut pulses[..ni]);
+    multinomial(signals, &probs[..ni], rng, &mut pulses[..ni]);
     let mut out = BlockCounts { signals, ..BlockCounts::default() };
     let mut obs = IntensityObs { count: ni, ..IntensityObs::default() };
-    let sift: Vec<f64> = model.basis_prob.iter().map(|p| p * p).collect();
+    let mut sift = [0.0; 3];
+    for (s, p) in sift.iter_mut().zip(&model.basis_prob) {
+        *s = p * p;
+    }
     let sifted_total: f64 = sift.iter().sum();
     for k in 0..ni {
         obs.mu[k] = model.intensities[k].0;
+        obs.probability[k] = model.intensities[k].1;
         obs.pulses[k] = pulses[k];
         let split = model.splits[k];
         let gain: f64 = split.iter().sum();
         // Categories: no click, unsifted click, then per basis a sifted click.
-        let mut p = vec![1.0 - gain, gain * (1.0 - sifted_total)];
-        p.extend(sift.iter().map(|s| gain * s));
-        let mut c = vec![0u64; p.len()];
-        multinomial(pulses[k], &p, rng, &mut c);
+        let mut p = [0.0; 5];
+        p[0] = 1.0 - gain;
+        p[1] = gain * (1.0 - sifted_total);
+        for b in 0..nb {
+            p[2 + b] = gain * sift[b];
+        }
+        let mut c = [0u64; 5];
+        multinomial(pulses[k], &p[..2 + nb], rng, &mut c[..2 + nb]);
         obs.detections[k] = pulses[k] - c[0];
         let err_rate = (split[2] + split[3]) / gain;
         for b in 0..nb {
@@ -106,7 +117,7 @@ pub fn sample(model: &LinkModel, signals: u64, test_size: &dyn Fn(u64) -> u64, r
                 out.test_z = m;
                 out.test_z_errors = binomial(m, err_rate, rng);
                 // Key bits by (error, known).
-                let cond: Vec<f64> = split.iter().map(|x| x / gain).collect();
+                let cond = [split[0] / gain, split[1] / gain, split[2] / gain, split[3] / gain];
                 let mut key = [0u64; 4];
                 multinomial(det - m, &cond, rng, &mut key);
                 // key = [ok & unknown, ok & known, err & unknown, err & known]; Eve's guess
