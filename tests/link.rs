@@ -2,7 +2,7 @@
 
 use proptest::prelude::*;
 use proptest::test_runner::{Config, FileFailurePersistence, RngAlgorithm, TestRng, TestRunner};
-use qkd_audit::attack::link_attack::{honest_split, LinkAttack};
+use qkd_audit::attack::link_attack::{honest, LinkAttack};
 use qkd_audit::audit::trial::{judge, Verdict};
 use qkd_audit::keyrate::vacuum_weak_bounds;
 use qkd_audit::link::{Link, Source};
@@ -39,11 +39,9 @@ fn decoy_bounds_contain_the_true_single_photon_yield_and_error() {
         .run(&strategy, |(mu, nu, eta, y0, ed)| {
             prop_assume!(nu < mu / 2.0);
             let l = Link { detector_efficiency: 1.0, channel_loss_db: -10.0 * eta.log10(), dark_count_probability: y0, misalignment: ed, ..Link::default() };
-            let s_mu = honest_split(&l, mu);
-            let s_nu = honest_split(&l, nu);
-            let q = |s: &[f64; 4]| s.iter().sum::<f64>();
-            let e = |s: &[f64; 4]| (s[2] + s[3]) / q(s);
-            let (y1l, e1u) = vacuum_weak_bounds(mu, nu, q(&s_mu), q(&s_nu), e(&s_nu), y0);
+            let s_mu = honest(&l, mu);
+            let s_nu = honest(&l, nu);
+            let (y1l, e1u) = vacuum_weak_bounds(mu, nu, s_mu.gain, s_nu.gain, s_nu.error_rate(1), y0);
             let y1 = y0 + eta - y0 * eta;
             // In this model a single photon is detected with probability η (error e_d), and
             // failing that a dark count fires with probability Y₀ (error ½).
@@ -69,7 +67,7 @@ fn setup(rule: KeyRule, loss_db: f64, signals: u64) -> Setup {
 
 fn verdicts(attack: LinkAttack, setup: &Setup, trials: u64, seed: u64) -> Vec<Verdict> {
     let model = LinkModel::new(&setup.link, Some(&attack), &setup.basis_probabilities());
-    let h = 1.0 - model.known_fraction();
+    let h = model.h_x_given_e();
     let ts = |z: u64| setup.test_sample.size(z);
     (0..trials).map(|t| judge(&sample(&model, setup.signals, &ts, &mut trial_rng(seed, 0, t)), setup, h).verdict).collect()
 }
@@ -193,4 +191,36 @@ fn decoy_demo_shows_a_safe_rule_and_a_broken_one() {
     assert!(rows.iter().filter(|r| &r[ri] == "decoy-finite").all(|r| &r[vi] != "leak"));
     let single = qkd(&["run", "-q", "--demo", "single-photon"], dir.path());
     assert_eq!(single.status.code(), Some(0), "{}", String::from_utf8_lossy(&single.stderr));
+}
+
+#[test]
+fn single_photon_attacks_on_weak_pulses_match_the_gain_and_never_break_decoy_rules() {
+    use qkd_audit::attack::{Attack, Value};
+    use qkd_audit::eval::{evaluate, EvalOptions};
+    use qkd_audit::protocol::Protocol;
+    use std::collections::BTreeMap;
+    let mut prev_err = 0.0;
+    for i in 0..=4 {
+        let p = 0.25 * i as f64;
+        let mut g = BTreeMap::new();
+        g.insert("fraction".to_string(), Value::Num(p));
+        let a = Attack::builtin("intercept-resend", &g).unwrap();
+        for rule in [KeyRule::DecoyVacuumWeak, KeyRule::DecoyFinite] {
+            let s = setup(rule, 10.0, 10_000_000_000);
+            let h = evaluate(&a, &EvalOptions::fast(Protocol::Bb84)).unwrap().h_x_given_e;
+            let model = LinkModel::qubit(&s.link, &a, Protocol::Bb84, &s.basis_probabilities(), h);
+            // Intercept-resend with loss compensation: Bob's signal gain is the honest one.
+            let honest_gain = honest(&s.link, 0.5).gain;
+            assert!((model.gain(0) - honest_gain).abs() < 1e-12 * honest_gain.max(1e-300) + 1e-15, "gain");
+            assert!(model.note.is_empty());
+            let err = model.error_rate_in(0, 0);
+            assert!(err >= prev_err - 1e-15, "error rate must grow with the fraction");
+            prev_err = err;
+            let ts = |z: u64| s.test_sample.size(z);
+            for t in 0..10 {
+                let c = sample(&model, s.signals, &ts, &mut trial_rng(8, i, t));
+                assert_ne!(judge(&c, &s, model.h_x_given_e()).verdict, Verdict::Leak, "{rule} leaked at fraction {p}");
+            }
+        }
+    }
 }

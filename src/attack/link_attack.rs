@@ -51,10 +51,6 @@ pub enum LinkAttack {
     },
 }
 
-/// Per-intensity detection statistics: probabilities per pulse of a detection that is
-/// `[correct & unknown, correct & known, error & unknown, error & known]` to Eve.
-pub type DetectionSplit = [f64; 4];
-
 impl LinkAttack {
     /// Builds from a family name and its `fraction`.
     pub fn new(family: &str, fraction: f64) -> Result<LinkAttack> {
@@ -82,28 +78,94 @@ impl LinkAttack {
 
 const MAX_PHOTONS: u32 = 40;
 
-/// Detection statistics of an honest link at intensity `mu`, photon number by photon
-/// number: each pulse is detected by a photon (error e_d) or, failing that, by a dark count
-/// (error ½). Returned as a split with nothing known to Eve.
-pub fn honest_split(link: &Link, mu: f64) -> DetectionSplit {
-    let eta = link.transmittance();
-    let y0 = link.dark_count_probability;
-    let mut out = [0.0; 4];
-    for n in 0..=MAX_PHOTONS {
-        let p = poisson(mu, n);
-        let photon = 1.0 - (1.0 - eta).powi(n as i32);
-        add_click(&mut out, p, photon, y0, link.misalignment, false);
-    }
-    out
+/// What one intensity's pulses produce at Bob, per pulse: for each sifted basis (Z, X, Y)
+/// the probability of a detection by category `2·error + eve_right` (Bob's bit differs
+/// from Alice's; Eve's guess of Alice's bit after the basis announcement is right), and the
+/// detection-weighted conditional entropy Σ P(detection)·H(X|E) of Alice's bit.
+#[derive(Clone, Copy, Debug, PartialEq, Serialize)]
+pub struct DetectionModel {
+    /// Gain: probability that a pulse gives a detection.
+    pub gain: f64,
+    /// `cats[basis][2·error + eve_right]`, per pulse; each row sums to `gain`.
+    pub cats: [[f64; 4]; 3],
+    /// Σ over detections of P(detection)·H(X|E), per pulse.
+    pub h_weighted: f64,
 }
 
-fn add_click(out: &mut DetectionSplit, weight: f64, photon: f64, y0: f64, e_d: f64, known: bool) {
-    let dark = (1.0 - photon) * y0;
-    let k = usize::from(known);
-    out[k] += weight * photon * (1.0 - e_d);
-    out[2 + k] += weight * photon * e_d;
-    out[0] += weight * dark * (1.0 - E0);
-    out[2] += weight * dark * E0;
+impl DetectionModel {
+    fn zero() -> Self {
+        DetectionModel { gain: 0.0, cats: [[0.0; 4]; 3], h_weighted: 0.0 }
+    }
+    /// Error rate of sifted detections in basis `b`.
+    pub fn error_rate(&self, b: usize) -> f64 {
+        (self.cats[b][2] + self.cats[b][3]) / self.gain
+    }
+    /// Probability that Eve's guess of Alice's bit is right, for sifted detections in basis `b`.
+    pub fn eve_right(&self, b: usize) -> f64 {
+        (self.cats[b][1] + self.cats[b][3]) / self.gain
+    }
+    /// Mean H(X|E) per detection.
+    pub fn h_x_given_e(&self) -> f64 {
+        self.h_weighted / self.gain
+    }
+    /// Adds a class of detections with probability `p` per pulse, error rate `err[b]` per
+    /// basis, Eve right with probability `right` independently of the error, and H(X|E) = `h`.
+    fn add(&mut self, p: f64, err: [f64; 3], right: f64, h: f64) {
+        if p <= 0.0 {
+            return;
+        }
+        self.gain += p;
+        self.h_weighted += p * h;
+        for b in 0..3 {
+            self.cats[b][0] += p * (1.0 - err[b]) * (1.0 - right);
+            self.cats[b][1] += p * (1.0 - err[b]) * right;
+            self.cats[b][2] += p * err[b] * (1.0 - right);
+            self.cats[b][3] += p * err[b] * right;
+        }
+    }
+    /// Adds a class whose joint (error, eve_right) distribution per basis is given.
+    fn add_joint(&mut self, p: f64, joint: [[f64; 4]; 3], h: f64) {
+        if p <= 0.0 {
+            return;
+        }
+        self.gain += p;
+        self.h_weighted += p * h;
+        for b in 0..3 {
+            for c in 0..4 {
+                self.cats[b][c] += p * joint[b][c];
+            }
+        }
+    }
+    /// `(1 − f)·self + f·other`.
+    fn mix(&self, other: &DetectionModel, f: f64) -> DetectionModel {
+        let mut out = DetectionModel::zero();
+        out.gain = (1.0 - f) * self.gain + f * other.gain;
+        out.h_weighted = (1.0 - f) * self.h_weighted + f * other.h_weighted;
+        for b in 0..3 {
+            for c in 0..4 {
+                out.cats[b][c] = (1.0 - f) * self.cats[b][c] + f * other.cats[b][c];
+            }
+        }
+        out
+    }
+}
+
+/// Detection by photons (probability `photon`, error e_d) or, failing that, by a dark count
+/// (error ½); Eve right with probability `right`, H(X|E) = `h`.
+fn add_clicks(m: &mut DetectionModel, weight: f64, photon: f64, link: &Link, right: f64, h: f64) {
+    let e_d = link.misalignment;
+    m.add(weight * photon, [e_d; 3], right, h);
+    m.add(weight * (1.0 - photon) * link.dark_count_probability, [E0; 3], right, h);
+}
+
+/// The honest link at intensity `mu`, photon number by photon number (Eve knows nothing).
+pub fn honest(link: &Link, mu: f64) -> DetectionModel {
+    let eta = link.transmittance();
+    let mut m = DetectionModel::zero();
+    for n in 0..=MAX_PHOTONS {
+        add_clicks(&mut m, poisson(mu, n), 1.0 - (1.0 - eta).powi(n as i32), link, 0.5, 1.0);
+    }
+    m
 }
 
 /// What the photon-number-splitting strategy chose.
@@ -122,22 +184,16 @@ pub struct PnsStrategy {
 /// reaches him over a lossless line.
 pub fn pns_strategy(link: &Link, mu: f64) -> PnsStrategy {
     let eta_b = link.detector_efficiency;
-    let target: f64 = honest_split(link, mu).iter().sum();
+    let target = honest(link, mu).gain;
     let y0 = link.dark_count_probability;
-    // Gain as a function of (t1, tm): dark-only baseline plus photon terms.
     let (mut base, mut single, mut multi) = (0.0, 0.0, 0.0);
     for n in 0..=MAX_PHOTONS {
         let p = poisson(mu, n);
+        base += p * y0;
         match n {
-            0 => base += p * y0,
-            1 => {
-                base += p * y0;
-                single += p * eta_b * (1.0 - y0);
-            }
-            _ => {
-                base += p * y0;
-                multi += p * (1.0 - (1.0 - eta_b).powi(n as i32 - 1)) * (1.0 - y0);
-            }
+            0 => {}
+            1 => single += p * eta_b * (1.0 - y0),
+            _ => multi += p * (1.0 - (1.0 - eta_b).powi(n as i32 - 1)) * (1.0 - y0),
         }
     }
     if base + multi >= target {
@@ -149,38 +205,94 @@ pub fn pns_strategy(link: &Link, mu: f64) -> PnsStrategy {
     }
 }
 
-/// Detection split at intensity `mu` under `attack`, given the strategy chosen for the
-/// signal intensity.
-pub fn attacked_split(link: &Link, attack: &LinkAttack, mu: f64, signal_mu: f64) -> DetectionSplit {
-    let honest = honest_split(link, mu);
-    let f = attack.fraction();
-    let mut attacked = [0.0; 4];
-    match attack {
+/// Intensity `mu` under a link-level attack whose strategy was chosen for `signal_mu`.
+/// Under photon-number splitting Eve knows Alice's bit for every detection of a pulse with
+/// two or more photons (she holds one of them), whether Bob's click came from a photon or
+/// a dark count; under beam splitting she knows it with probability 1 − e^{−μ(1−t)}.
+pub fn attacked(link: &Link, attack: &LinkAttack, mu: f64, signal_mu: f64) -> DetectionModel {
+    let h = honest(link, mu);
+    let a = match attack {
         LinkAttack::PhotonNumberSplitting { .. } => {
             let s = pns_strategy(link, signal_mu);
             let eta_b = link.detector_efficiency;
-            let y0 = link.dark_count_probability;
+            let mut m = DetectionModel::zero();
             for n in 0..=MAX_PHOTONS {
                 let p = poisson(mu, n);
-                let (photon, known) = match n {
-                    0 => (0.0, false),
-                    1 => (s.t1 * eta_b, false),
-                    _ => (s.tm * (1.0 - (1.0 - eta_b).powi(n as i32 - 1)), true),
-                };
-                add_click(&mut attacked, p, photon, y0, link.misalignment, known);
+                match n {
+                    0 => add_clicks(&mut m, p, 0.0, link, 0.5, 1.0),
+                    1 => add_clicks(&mut m, p, s.t1 * eta_b, link, 0.5, 1.0),
+                    _ => add_clicks(&mut m, p, s.tm * (1.0 - (1.0 - eta_b).powi(n as i32 - 1)), link, 1.0, 0.0),
+                }
             }
+            m
         }
         LinkAttack::BeamSplitting { .. } => {
             let p_e = 1.0 - (-mu * (1.0 - link.channel_transmittance())).exp();
-            attacked = [honest[0] * (1.0 - p_e), honest[0] * p_e, honest[2] * (1.0 - p_e), honest[2] * p_e];
-            // The honest split has nothing in the known columns.
+            let eta = link.transmittance();
+            let mut m = DetectionModel::zero();
+            for n in 0..=MAX_PHOTONS {
+                let photon = 1.0 - (1.0 - eta).powi(n as i32);
+                add_clicks(&mut m, poisson(mu, n) * p_e, photon, link, 1.0, 0.0);
+                add_clicks(&mut m, poisson(mu, n) * (1.0 - p_e), photon, link, 0.5, 1.0);
+            }
+            m
+        }
+    };
+    h.mix(&a, attack.fraction())
+}
+
+/// A single-photon attack applied to the single-photon pulses of a weak-coherent link.
+///
+/// Eve replaces the lossy line by a lossless one, applies the qubit attack (given by its
+/// joint per-basis distribution `joint[b][2·error + eve_right]` and its H(X|E)) to every
+/// single-photon pulse, passes vacuum and multi-photon pulses untouched, and forwards every
+/// pulse with the probability t that makes Bob's signal gain equal the honest link's. Bob's
+/// misalignment then flips his bit with probability e_d; a dark-count click gives a random
+/// bit. Returns the model and t (t > 1 would be needed when the attack cannot hide: t is
+/// then capped at 1 and `matched` is false).
+pub fn qubit_on_single_photons(link: &Link, joint: [[f64; 4]; 3], h_att: f64, p_guess: [f64; 3], mu: f64, signal_mu: f64) -> (DetectionModel, f64, bool) {
+    let eta_b = link.detector_efficiency;
+    let y0 = link.dark_count_probability;
+    // Signal gain as a function of t: base + t·slope.
+    let (mut base, mut slope) = (0.0, 0.0);
+    for n in 0..=MAX_PHOTONS {
+        let p = poisson(signal_mu, n);
+        let d = 1.0 - (1.0 - eta_b).powi(n as i32);
+        base += p * y0;
+        slope += p * d * (1.0 - y0);
+    }
+    let target = honest(link, signal_mu).gain;
+    let t_needed = if slope > 0.0 { (target - base) / slope } else { 1.0 };
+    let t = t_needed.clamp(0.0, 1.0);
+    let e_d = link.misalignment;
+    let mut m = DetectionModel::zero();
+    for n in 0..=MAX_PHOTONS {
+        let p = poisson(mu, n);
+        let photon = t * (1.0 - (1.0 - eta_b).powi(n as i32));
+        if n == 1 {
+            // Misalignment flips Bob's bit: (e, g) → (1 − e, g) with probability e_d.
+            let mut mis = [[0.0; 4]; 3];
+            for b in 0..3 {
+                for g in 0..2 {
+                    mis[b][g] = (1.0 - e_d) * joint[b][g] + e_d * joint[b][2 + g];
+                    mis[b][2 + g] = (1.0 - e_d) * joint[b][2 + g] + e_d * joint[b][g];
+                }
+            }
+            m.add_joint(p * photon, mis, h_att);
+            // A dark count on an attacked single photon: random bit, Eve still holds her probe.
+            let dark = p * (1.0 - photon) * y0;
+            if dark > 0.0 {
+                let mut dj = [[0.0; 4]; 3];
+                for b in 0..3 {
+                    dj[b] = [0.5 * (1.0 - p_guess[b]), 0.5 * p_guess[b], 0.5 * (1.0 - p_guess[b]), 0.5 * p_guess[b]];
+                }
+                m.add_joint(dark, dj, h_att);
+            }
+        } else {
+            add_clicks(&mut m, p, photon, link, 0.5, 1.0);
         }
     }
-    let mut out = [0.0; 4];
-    for i in 0..4 {
-        out[i] = (1.0 - f) * honest[i] + f * attacked[i];
-    }
-    out
+    (m, t, t_needed <= 1.0)
 }
 
 #[cfg(test)]
@@ -217,22 +329,21 @@ mod tests {
     #[test]
     fn pns_matches_gain_and_adds_no_errors() {
         let l = Link { dark_count_probability: 1e-6, misalignment: 0.02, detector_efficiency: 0.1, ..link(10.0) };
-        let honest = honest_split(&l, 0.5);
-        let pns = attacked_split(&l, &LinkAttack::PhotonNumberSplitting { fraction: 1.0 }, 0.5, 0.5);
-        let (gh, gp): (f64, f64) = (honest.iter().sum(), pns.iter().sum());
-        assert_relative_eq!(gh, gp, max_relative = 1e-9);
+        let h = honest(&l, 0.5);
+        let pns = attacked(&l, &LinkAttack::PhotonNumberSplitting { fraction: 1.0 }, 0.5, 0.5);
+        assert_relative_eq!(h.gain, pns.gain, max_relative = 1e-9);
         // Error rate unchanged up to the share of dark counts.
-        assert!(((honest[2] + honest[3]) / gh - (pns[2] + pns[3]) / gp).abs() < 1e-3);
-        assert!(pns[1] + pns[3] > 0.5 * gp, "Eve should know most detections at 10 dB with η_B = 0.1");
+        assert!((h.error_rate(0) - pns.error_rate(0)).abs() < 1e-3);
+        assert!(pns.h_x_given_e() < 0.5, "Eve should know most detections at 10 dB with η_B = 0.1");
+        assert!((h.h_x_given_e() - 1.0).abs() < 1e-12);
     }
 
     #[test]
     fn beam_splitting_information() {
         // REFERENCES.md §10 [N]: μ = 0.1, channel transmittance 0.1: p_E = 0.086069.
         let l = Link { channel_loss_db: 10.0, detector_efficiency: 1.0, ..Link::default() };
-        let s = attacked_split(&l, &LinkAttack::BeamSplitting { fraction: 1.0 }, 0.1, 0.1);
-        let g: f64 = s.iter().sum();
-        assert_relative_eq!((s[1] + s[3]) / g, 0.086069, max_relative = 1e-5);
-        assert_relative_eq!(g, honest_split(&l, 0.1).iter().sum::<f64>(), max_relative = 1e-12);
+        let s = attacked(&l, &LinkAttack::BeamSplitting { fraction: 1.0 }, 0.1, 0.1);
+        assert_relative_eq!(1.0 - s.h_x_given_e(), 0.086069, max_relative = 1e-5);
+        assert_relative_eq!(s.gain, honest(&l, 0.1).gain, max_relative = 1e-12);
     }
 }

@@ -253,10 +253,10 @@ fn parse_entry(t: &toml::Table, base: Option<&Path>, setup: &Setup) -> Result<At
     if entry.file.is_link() && !weak_coherent {
         return Err(Error::input_key("builtin", format!("`{}` is a link-level attack and needs a weak-coherent [source] in the setup", entry.label)));
     }
-    if !entry.file.is_link() && !setup.link.is_ideal_single_photon() {
+    if !entry.file.is_link() && !weak_coherent && !setup.link.is_ideal_single_photon() {
         return Err(Error::input_key(
             "builtin",
-            format!("`{}` is a single-photon attack; on a lossy or weak-coherent link use the link-level attacks (photon-number-splitting, beam-splitting)", entry.label),
+            format!("`{}`: a single-photon source on a lossy or imperfect link is not modelled; use a weak-coherent [source] or the ideal link", entry.label),
         ));
     }
     for (_, overrides) in entry.points() {
@@ -322,35 +322,36 @@ enum PointModel {
     Link(LinkModel),
 }
 
-/// The exact quantities of a link-level point, in the evaluator's shape: error rates from
-/// the signal intensity, Eve's information = the fraction of key bits she knows,
-/// `h_x_given_e` = the fraction she does not, p_guess = known + ½·unknown; quantities that
-/// have no meaning here (Y basis, guessing game, qubit bounds) are NaN.
+/// The exact quantities of a weak-coherent point, in the evaluator's shape: error rates and
+/// Eve's guessing probability from the signal intensity's sifted detections,
+/// `h_x_given_e` = mean H(X|E) per key bit, `holevo_z` = 1 − that; quantities that have no
+/// meaning here (guessing game, qubit bounds, accessible information) are NaN or absent.
 pub fn link_evaluation(model: &LinkModel, protocol: crate::protocol::Protocol) -> Evaluation {
-    let e = model.error_rate(0);
-    let known = model.known_fraction();
-    let he = crate::measures::binary_entropy(e.min(0.5));
+    let d = &model.models[0];
+    let (ez, ex) = (d.error_rate(0), d.error_rate(1));
+    let h = d.h_x_given_e();
+    let hz = crate::measures::binary_entropy(ez.min(0.5));
     Evaluation {
-        qber_z: e,
-        qber_x: e,
-        qber_y: f64::NAN,
-        p_guess_z: known + 0.5 * (1.0 - known),
-        p_guess_x: known + 0.5 * (1.0 - known),
+        qber_z: ez,
+        qber_x: ex,
+        qber_y: if protocol == crate::protocol::Protocol::SixState { d.error_rate(2) } else { f64::NAN },
+        p_guess_z: d.eve_right(0),
+        p_guess_x: d.eve_right(1),
         p_guess_y: f64::NAN,
-        holevo_z: known,
-        holevo_x: known,
+        holevo_z: 1.0 - h,
+        holevo_x: f64::NAN,
         holevo_y: f64::NAN,
-        h_x_given_e: 1.0 - known,
-        accessible_z: Some(known),
-        accessible_x: Some(known),
-        accessible_converged: Some(true),
-        i_ab: 1.0 - he,
+        h_x_given_e: h,
+        accessible_z: None,
+        accessible_x: None,
+        accessible_converged: None,
+        i_ab: 1.0 - hz,
         game_win: f64::NAN,
         bound_rate: f64::NAN,
-        attack_rate: 1.0 - known - he,
-        individual_rate: Some(1.0 - known - he),
+        attack_rate: h - hz,
+        individual_rate: None,
         margin: f64::NAN,
-        h_min_x_given_e: -(known + 0.5 * (1.0 - known)).log2(),
+        h_min_x_given_e: -d.eve_right(0).log2(),
         pauli_weights: [f64::NAN; 4],
         eve_dim: 0,
         protocol,
@@ -372,18 +373,20 @@ pub fn run(c: &Campaign, progress: &(dyn Fn() + Sync)) -> Result<Vec<PointResult
         .par_iter()
         .enumerate()
         .map(|(index, (ei, entry, swept, overrides))| {
+            let weak_coherent = !c.setup.link.source.intensities().is_empty();
             let (family, params, exact, model, note) = if entry.file.is_link() {
                 let attack = entry.file.link_attack(overrides).map_err(|e| e.with_file(&entry.origin))?;
                 let model = LinkModel::new(&c.setup.link, Some(&attack), &basis_prob);
-                let mut note = String::new();
-                if let crate::attack::link_attack::LinkAttack::PhotonNumberSplitting { fraction } = attack {
-                    let s = crate::attack::link_attack::pns_strategy(&c.setup.link, c.setup.link.source.intensities()[0].0);
-                    if !s.matched && fraction > 0.0 {
-                        note = "photon-number splitting cannot reach the honest signal gain on this link (Eve forwards every pulse)".into();
-                    }
-                }
                 let exact = link_evaluation(&model, c.setup.protocol);
+                let note = model.note.clone();
                 (attack.name().to_string(), vec![("fraction".to_string(), Value::Num(attack.fraction()))], exact, PointModel::Link(model), note)
+            } else if weak_coherent {
+                let attack = entry.file.attack(overrides).map_err(|e| e.with_file(&entry.origin))?;
+                let qubit = evaluate(&attack, &EvalOptions::fast(c.setup.protocol))?;
+                let model = LinkModel::qubit(&c.setup.link, &attack, c.setup.protocol, &basis_prob, qubit.h_x_given_e);
+                let exact = link_evaluation(&model, c.setup.protocol);
+                let note = model.note.clone();
+                (attack.family.clone(), attack.params.0.clone(), exact, PointModel::Link(model), note)
             } else {
                 let attack = entry.file.attack(overrides).map_err(|e| e.with_file(&entry.origin))?;
                 let exact = evaluate(&attack, &eval_opts)?;

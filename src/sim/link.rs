@@ -2,12 +2,14 @@
 //! intensity into no click, unsifted click, and sifted clicks per basis by (error, known to
 //! Eve); the Z test sample and the key are drawn from the signal intensity's sifted Z
 //! detections (independent multinomials of sizes m and n_Z − m given n_Z, by
-//! exchangeability). Eve's guess of a key bit she does not know is a fair coin.
+//! exchangeability), by category (error, Eve's guess right).
 
 use super::count::multinomial;
-use super::BlockCounts;
-use crate::attack::link_attack::{attacked_split, honest_split, DetectionSplit, LinkAttack};
+use super::{BlockCounts, SignalModel, CELL_CATEGORY};
+use crate::attack::link_attack::{attacked, honest, qubit_on_single_photons, DetectionModel, LinkAttack};
+use crate::attack::Attack;
 use crate::link::Link;
+use crate::protocol::Protocol;
 use crate::rules::IntensityObs;
 use rand::Rng;
 use rand_chacha::ChaCha8Rng;
@@ -18,37 +20,79 @@ use rand_distr::{Binomial, Distribution};
 pub struct LinkModel {
     /// Intensities (signal first) and their probabilities.
     pub intensities: Vec<(f64, f64)>,
-    /// Detection split per intensity.
-    pub splits: Vec<DetectionSplit>,
+    /// Detection model per intensity.
+    pub models: Vec<DetectionModel>,
     /// Basis probabilities (Z first).
     pub basis_prob: Vec<f64>,
+    /// Empty, or why the attack cannot hide (it cannot reach the honest signal gain).
+    pub note: String,
 }
 
 impl LinkModel {
-    /// Builds the model; `attack = None` is the honest link.
+    /// A link-level attack, or the honest link when `attack` is None.
     pub fn new(link: &Link, attack: Option<&LinkAttack>, basis_prob: &[f64]) -> LinkModel {
         let intensities = link.source.intensities();
         let signal = intensities[0].0;
-        let splits = intensities
+        let models = intensities
             .iter()
             .map(|&(mu, _)| match attack {
-                Some(a) => attacked_split(link, a, mu, signal),
-                None => honest_split(link, mu),
+                Some(a) => attacked(link, a, mu, signal),
+                None => honest(link, mu),
             })
             .collect();
-        LinkModel { intensities, splits, basis_prob: basis_prob.to_vec() }
+        let mut note = String::new();
+        if let Some(LinkAttack::PhotonNumberSplitting { fraction }) = attack {
+            if *fraction > 0.0 && !crate::attack::link_attack::pns_strategy(link, signal).matched {
+                note = "photon-number splitting cannot reach the honest signal gain on this link (Eve forwards every pulse)".into();
+            }
+        }
+        LinkModel { intensities, models, basis_prob: basis_prob.to_vec(), note }
     }
+
+    /// A single-photon attack applied to the single-photon pulses (see
+    /// [`qubit_on_single_photons`]), with Eve's H(X|E) per attacked photon `h_att`.
+    pub fn qubit(link: &Link, attack: &Attack, protocol: Protocol, basis_prob: &[f64], h_att: f64) -> LinkModel {
+        let sm = SignalModel::new(attack, protocol, basis_prob);
+        let nb = sm.bases.len();
+        let mut joint = [[0.0; 4]; 3];
+        let mut guess = [0.5; 3];
+        for b in 0..3 {
+            let src = b.min(nb - 1);
+            for (c, p) in sm.cells[src][src].iter().enumerate() {
+                joint[b][CELL_CATEGORY[c] as usize] += p;
+            }
+            guess[b] = sm.eve_guess_rate(src);
+        }
+        let intensities = link.source.intensities();
+        let signal = intensities[0].0;
+        let mut matched = true;
+        let models = intensities
+            .iter()
+            .map(|&(mu, _)| {
+                let (m, _, ok) = qubit_on_single_photons(link, joint, h_att, guess, mu, signal);
+                matched &= ok;
+                m
+            })
+            .collect();
+        let note = if matched { String::new() } else { "the attack cannot reach the honest signal gain over a lossless line (Eve forwards every pulse)".into() };
+        LinkModel { intensities, models, basis_prob: basis_prob.to_vec(), note }
+    }
+
     /// Gain of intensity `i`.
     pub fn gain(&self, i: usize) -> f64 {
-        self.splits[i].iter().sum()
+        self.models[i].gain
     }
-    /// Error rate of intensity `i`.
+    /// Error rate of intensity `i` in basis `b`.
+    pub fn error_rate_in(&self, i: usize, b: usize) -> f64 {
+        self.models[i].error_rate(b)
+    }
+    /// Error rate of intensity `i` (X basis).
     pub fn error_rate(&self, i: usize) -> f64 {
-        (self.splits[i][2] + self.splits[i][3]) / self.gain(i)
+        self.models[i].error_rate(1)
     }
-    /// Fraction of the signal's detections whose bit Eve knows.
-    pub fn known_fraction(&self) -> f64 {
-        (self.splits[0][1] + self.splits[0][3]) / self.gain(0)
+    /// H(X|E) per key bit (signal intensity, Z basis).
+    pub fn h_x_given_e(&self) -> f64 {
+        self.models[0].h_x_given_e()
     }
 }
 
@@ -83,8 +127,8 @@ pub fn sample(model: &LinkModel, signals: u64, test_size: &dyn Fn(u64) -> u64, r
         obs.mu[k] = model.intensities[k].0;
         obs.probability[k] = model.intensities[k].1;
         obs.pulses[k] = pulses[k];
-        let split = model.splits[k];
-        let gain: f64 = split.iter().sum();
+        let dm = &model.models[k];
+        let gain = dm.gain;
         // Categories: no click, unsifted click, then per basis a sifted click.
         let mut p = [0.0; 5];
         p[0] = 1.0 - gain;
@@ -95,7 +139,6 @@ pub fn sample(model: &LinkModel, signals: u64, test_size: &dyn Fn(u64) -> u64, r
         let mut c = [0u64; 5];
         multinomial(pulses[k], &p[..2 + nb], rng, &mut c[..2 + nb]);
         obs.detections[k] = pulses[k] - c[0];
-        let err_rate = (split[2] + split[3]) / gain;
         for b in 0..nb {
             let det = c[2 + b];
             if b == 0 {
@@ -106,25 +149,21 @@ pub fn sample(model: &LinkModel, signals: u64, test_size: &dyn Fn(u64) -> u64, r
             }
             if b == 1 {
                 obs.x_detections[k] = det;
-                obs.x_errors[k] = binomial(det, err_rate, rng);
+                obs.x_errors[k] = binomial(det, dm.error_rate(1), rng);
                 if k == 0 {
                     out.errors[1] = obs.x_errors[k];
                 }
             } else if b == 2 && k == 0 {
-                out.errors[2] = binomial(det, err_rate, rng);
+                out.errors[2] = binomial(det, dm.error_rate(2), rng);
             } else if b == 0 && k == 0 {
                 let m = test_size(det).min(det);
                 out.test_z = m;
-                out.test_z_errors = binomial(m, err_rate, rng);
-                // Key bits by (error, known).
-                let cond = [split[0] / gain, split[1] / gain, split[2] / gain, split[3] / gain];
+                out.test_z_errors = binomial(m, dm.error_rate(0), rng);
+                // Key bits by category 2·error + eve_right.
+                let cond = [dm.cats[0][0] / gain, dm.cats[0][1] / gain, dm.cats[0][2] / gain, dm.cats[0][3] / gain];
                 let mut key = [0u64; 4];
                 multinomial(det - m, &cond, rng, &mut key);
-                // key = [ok & unknown, ok & known, err & unknown, err & known]; Eve's guess
-                // is right on known bits and on half the unknown ones at random.
-                let ok_right = key[1] + binomial(key[0], 0.5, rng);
-                let err_right = key[3] + binomial(key[2], 0.5, rng);
-                out.key = [key[0] + key[1] - ok_right, ok_right, key[2] + key[3] - err_right, err_right];
+                out.key = key;
                 out.errors[0] = out.test_z_errors + key[2] + key[3];
             }
         }
