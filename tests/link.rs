@@ -191,6 +191,11 @@ fn decoy_demo_shows_a_safe_rule_and_a_broken_one() {
     assert!(rows.iter().filter(|r| &r[ri] == "decoy-finite").all(|r| &r[vi] != "leak"));
     let single = qkd(&["run", "-q", "--demo", "single-photon"], dir.path());
     assert_eq!(single.status.code(), Some(0), "{}", String::from_utf8_lossy(&single.stderr));
+    // Same seed, same bytes with one worker thread.
+    let again = qkd(&["run", "-q", "--threads", "1", "--results-dir", "one"], dir.path());
+    assert_eq!(again.status.code(), Some(1));
+    let csv1 = std::fs::read_to_string(dir.path().join("one/saltmarsh-quarryhill-decoy/attack_vs_bound.csv")).unwrap();
+    assert_eq!(csv, csv1, "decoy demo differs between thread counts");
 }
 
 #[test]
