@@ -18,6 +18,8 @@ pub mod channel;
 pub mod cli;
 pub mod error;
 pub mod eval;
+pub mod game;
+pub mod hunt;
 pub mod keyrate;
 pub mod linalg;
 pub mod link;

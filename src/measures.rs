@@ -297,8 +297,21 @@ struct Ascent {
 
 fn ascend(priors: &[f64], states: &[CMat], start: &[CVec], opts: &AccessibleOptions) -> Ascent {
     let d = start[0].len();
-    let mut a = retract(&CMat::from_fn(d, start.len(), |r, k| start[k][r]));
-    let (mut value, eg) = info_and_grad(priors, states, &a, true);
+    let a0 = CMat::from_fn(d, start.len(), |r, k| start[k][r]);
+    let (value, a, iterations, converged) = povm_ascent(a0, &|a, g| info_and_grad(priors, states, a, g), opts);
+    Ascent { value, povm: columns(&a), iterations, converged }
+}
+
+/// Maximises a smooth function `f` of a rank-one POVM `{|a_k><a_k|}`, written as the
+/// columns of a d × K matrix `A` with `A A† = 1`, by Riemannian conjugate-gradient ascent
+/// (Polak–Ribière+, projection transport, QR-type retraction, Armijo steps; Absil, Mahony,
+/// Sepulchre 2008). `f(A, want_grad)` returns the value and, if asked, the Euclidean
+/// gradient `2 ∂f/∂Ā`. The start is retracted onto the manifold first. Stops as described
+/// in [`AccessibleOptions`] (gradient norm, windowed gain, iteration cap). Returns (value,
+/// A, iterations, converged).
+pub fn povm_ascent(start: CMat, f: &dyn Fn(&CMat, bool) -> (f64, Option<CMat>), opts: &AccessibleOptions) -> (f64, CMat, usize, bool) {
+    let mut a = retract(&start);
+    let (mut value, eg) = f(&a, true);
     let mut g = tangent(&a, &eg.expect("gradient requested"));
     let mut eta = g.clone();
     let mut step = 1.0;
@@ -307,7 +320,7 @@ fn ascend(priors: &[f64], states: &[CMat], start: &[CVec], opts: &AccessibleOpti
     for iter in 0..opts.max_iter {
         let g2 = inner(&g, &g);
         if g2.sqrt() < opts.grad_tol {
-            return Ascent { value, povm: columns(&a), iterations: iter, converged: true };
+            return (value, a, iter, true);
         }
         let mut slope = inner(&g, &eta);
         if slope <= 0.0 {
@@ -318,21 +331,21 @@ fn ascend(priors: &[f64], states: &[CMat], start: &[CVec], opts: &AccessibleOpti
         let mut t = step * 2.0;
         let (cand, cand_value) = loop {
             let cand = retract(&(&a + &eta * c(t, 0.0)));
-            let (v, _) = info_and_grad(priors, states, &cand, false);
+            let (v, _) = f(&cand, false);
             if v >= value + 1e-4 * t * slope {
                 break (cand, v);
             }
             t *= 0.5;
             if t * slope.sqrt() < 1e-17 {
                 // No ascent at machine precision along the direction: stationary.
-                return Ascent { value, povm: columns(&a), iterations: iter, converged: true };
+                return (value, a, iter, true);
             }
         };
         step = t;
         let gain = cand_value - value;
         a = cand;
         value = cand_value;
-        let (_, eg) = info_and_grad(priors, states, &a, true);
+        let (_, eg) = f(&a, true);
         let g_new = tangent(&a, &eg.expect("gradient requested"));
         let g_old = tangent(&a, &g);
         let beta = (inner(&g_new, &(&g_new - &g_old)) / g2).max(0.0);
@@ -344,10 +357,10 @@ fn ascend(priors: &[f64], states: &[CMat], start: &[CVec], opts: &AccessibleOpti
             window_gain -= gains.pop_front().unwrap_or(0.0);
         }
         if gains.len() >= opts.window && window_gain < opts.gain_tol {
-            return Ascent { value, povm: columns(&a), iterations: iter + 1, converged: true };
+            return (value, a, iter + 1, true);
         }
     }
-    Ascent { value, povm: columns(&a), iterations: opts.max_iter, converged: false }
+    (value, a, opts.max_iter, false)
 }
 
 fn columns(a: &CMat) -> Vec<CVec> {

@@ -40,6 +40,38 @@ pub fn write_atomic(path: &Path, bytes: &[u8], force: bool) -> Result<()> {
     Ok(())
 }
 
+/// Writes `files` (name, text) into the folder `dir` atomically: a temporary sibling
+/// folder is filled and renamed into place; an existing folder is replaced only with
+/// `force`.
+pub fn write_folder_files(dir: &Path, files: &[(String, String)], force: bool) -> Result<()> {
+    if dir.exists() && !force {
+        return Err(Error::new(ErrorKind::Input, "output folder already exists; refusing to overwrite results (pass --force to replace it)").with_file(dir));
+    }
+    let parent = dir.parent().filter(|p| !p.as_os_str().is_empty()).unwrap_or(Path::new("."));
+    std::fs::create_dir_all(parent).map_err(|e| Error::from(e).with_file(parent))?;
+    let tmp = temp_sibling(dir);
+    let result = (|| -> Result<()> {
+        std::fs::create_dir_all(&tmp).map_err(|e| Error::from(e).with_file(&tmp))?;
+        for (name, text) in files {
+            let p = tmp.join(name);
+            std::fs::write(&p, text).map_err(|e| Error::from(e).with_file(&p))?;
+        }
+        if dir.exists() {
+            let old = temp_sibling(&dir.with_extension("old"));
+            std::fs::rename(dir, &old).map_err(|e| Error::from(e).with_file(dir))?;
+            std::fs::rename(&tmp, dir).map_err(|e| Error::from(e).with_file(dir))?;
+            std::fs::remove_dir_all(&old).map_err(|e| Error::from(e).with_file(&old))?;
+        } else {
+            std::fs::rename(&tmp, dir).map_err(|e| Error::from(e).with_file(dir))?;
+        }
+        Ok(())
+    })();
+    if result.is_err() {
+        let _ = std::fs::remove_dir_all(&tmp);
+    }
+    result
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;

@@ -1,0 +1,21 @@
+//! Attack hunting speed. Target (issue: attack hunting): one `holevo` hunt at one Q with
+//! d_E = 4 and 32 starts in under 5 s on 2 cores. Results are recorded in DEVELOPERS.md.
+
+use criterion::{criterion_group, criterion_main, Criterion};
+use qkd_audit::hunt::{hunt, HuntOptions, Objective};
+use qkd_audit::protocol::Protocol;
+
+fn holevo_hunt(c: &mut Criterion) {
+    let opts = HuntOptions { protocol: Protocol::Bb84, objective: Objective::Holevo, eve_dim: 4, starts: 32, seed: 1, max_iters: 100 };
+    let mut group = c.benchmark_group("hunt");
+    group.sample_size(10);
+    group.bench_function("holevo, Q = 0.05, d_E = 4, 32 starts (2 threads)", |b| b.iter(|| hunt(&opts, &[0.05]).unwrap()[0].value));
+    group.finish();
+}
+
+criterion_group! {
+    name = benches;
+    config = Criterion::default().sample_size(10).measurement_time(std::time::Duration::from_secs(20)).warm_up_time(std::time::Duration::from_millis(100));
+    targets = holevo_hunt
+}
+criterion_main!(benches);
