@@ -69,6 +69,15 @@ fn saved_attacks_reproduce_their_objective_under_eval() {
     assert_eq!(eval.status.code(), Some(0), "{}", String::from_utf8_lossy(&eval.stderr));
     let v: serde_json::Value = serde_json::from_slice(&eval.stdout).unwrap();
     assert!((v["p_guess_z"].as_f64().unwrap() - value).abs() < 1e-9);
+    // A campaign accepts the saved attack file unchanged.
+    std::fs::write(
+        dir.path().join("c.toml"),
+        format!("name = \"uses-hunted\"\ntrials = 5\n[setup]\nsignals = 100000\n[[attacks]]\nfile = \"h/{file}\"\n"),
+    )
+    .unwrap();
+    let run = Command::new(bin).args(["run", "c.toml", "-q"]).current_dir(dir.path()).output().unwrap();
+    assert!(matches!(run.status.code(), Some(0) | Some(1)), "{}", String::from_utf8_lossy(&run.stderr));
+    assert!(dir.path().join("results/uses-hunted/attack_vs_bound.csv").exists());
     // The folder is not replaced without --force.
     let again = Command::new(bin).args(["hunt", "--objective", "guess", "--q", "0.05", "--starts", "1", "--out-dir", "h"]).current_dir(dir.path()).output().unwrap();
     assert_eq!(again.status.code(), Some(2));
