@@ -54,10 +54,7 @@ fn per_round(c: &mut Criterion) {
     group.throughput(Throughput::Elements(blocks * signals));
     group.bench_function("8 blocks of 2e6", |b| {
         b.iter(|| {
-            (0..blocks)
-                .into_par_iter()
-                .map(|t| sampler.sample(signals, &|z| z / 10, &mut trial_rng(2, 0, t), None).sifted[0])
-                .sum::<u64>()
+            (0..blocks).into_par_iter().map(|t| sampler.sample(signals, &|z| z / 10, &mut trial_rng(2, 0, t), None).sifted[0]).sum::<u64>()
         })
     });
     group.finish();
@@ -88,10 +85,20 @@ fn link_vs_single_photon(c: &mut Criterion) {
     group.throughput(Throughput::Elements(trials));
     let ts = |z: u64| z / 20;
     group.bench_function("weak-coherent + decoy-finite", |b| {
-        b.iter(|| (0..trials).into_par_iter().map(|t| judge(&qkd_audit::sim::link::sample(&lm, setup.signals, &ts, &mut trial_rng(3, 0, t)), &setup, 0.5).length).sum::<u64>())
+        b.iter(|| {
+            (0..trials)
+                .into_par_iter()
+                .map(|t| judge(&qkd_audit::sim::link::sample(&lm, setup.signals, &ts, &mut trial_rng(3, 0, t)), &setup, 0.5).length)
+                .sum::<u64>()
+        })
     });
     group.bench_function("single-photon + finite-uncertainty", |b| {
-        b.iter(|| (0..trials).into_par_iter().map(|t| judge(&sample_block(Sampler::Count, &sp, setup.signals, &ts, &mut trial_rng(3, 0, t)), &sp_setup, 0.8).length).sum::<u64>())
+        b.iter(|| {
+            (0..trials)
+                .into_par_iter()
+                .map(|t| judge(&sample_block(Sampler::Count, &sp, setup.signals, &ts, &mut trial_rng(3, 0, t)), &sp_setup, 0.8).length)
+                .sum::<u64>()
+        })
     });
     group.finish();
 }
@@ -103,7 +110,9 @@ fn keyrate(c: &mut Criterion) {
     let distances: Vec<f64> = (0..1000).map(|i| 0.2 * i as f64).collect();
     let p = RateParams { sifting: 0.5, f_ec: 1.22, nu: 0.1 };
     let mut group = c.benchmark_group("keyrate");
-    group.bench_function("1000 distances, 4 rules, mu optimised (2 threads)", |b| b.iter(|| rate_table(&link, &distances, &LinkRule::ALL, None, &p).len()));
+    group.bench_function("1000 distances, 4 rules, mu optimised (2 threads)", |b| {
+        b.iter(|| rate_table(&link, &distances, &LinkRule::ALL, None, &p).len())
+    });
     group.finish();
 }
 

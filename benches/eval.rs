@@ -18,7 +18,9 @@ fn bench_eval(c: &mut Criterion) {
         }
         let attack = file.attack(&BTreeMap::new()).expect("built-in entry builds");
         let label = name.trim_end_matches(".toml");
-        group.bench_function(format!("{label}/fast"), |b| b.iter(|| evaluate(black_box(&attack), &EvalOptions::fast(Protocol::Bb84)).unwrap()));
+        group.bench_function(format!("{label}/fast"), |b| {
+            b.iter(|| evaluate(black_box(&attack), &EvalOptions::fast(Protocol::Bb84)).unwrap())
+        });
         group.bench_function(format!("{label}/with-accessible"), |b| {
             b.iter(|| evaluate(black_box(&attack), &EvalOptions::full(Protocol::Bb84)).unwrap())
         });

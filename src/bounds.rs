@@ -30,7 +30,10 @@ pub fn six_state_weights(q_x: f64, q_y: f64, q_z: f64) -> [f64; 4] {
 /// cannot come from a physical channel); weights in (−tol, 0) are rounding and count as 0.
 pub fn six_state_entropy(weights: &[f64; 4], tol: f64) -> Result<f64> {
     if let Some(w) = weights.iter().find(|w| **w < -tol) {
-        return Err(Error::new(ErrorKind::BoundViolation, format!("six-state Pauli weight {w} is negative: the QBERs are not those of a qubit channel")));
+        return Err(Error::new(
+            ErrorKind::BoundViolation,
+            format!("six-state Pauli weight {w} is negative: the QBERs are not those of a qubit channel"),
+        ));
     }
     Ok(shannon_entropy(weights))
 }

@@ -51,7 +51,10 @@ impl KrausChannel {
         if defect > tol.abs {
             return Err(Error::new(
                 ErrorKind::NotPhysical,
-                format!("Kraus operators are not complete: sum of K†K differs from the identity by {defect:.3e} (tolerance {:.1e})", tol.abs),
+                format!(
+                    "Kraus operators are not complete: sum of K†K differs from the identity by {defect:.3e} (tolerance {:.1e})",
+                    tol.abs
+                ),
             )
             .with_key("operators"));
         }

@@ -176,7 +176,10 @@ fn cmd_keyrate(a: KeyrateArgs) -> Result<Outcome> {
         ),
     };
     if link.attenuation_db_per_km.is_none() {
-        return Err(Error::input_key("channel.attenuation_db_per_km", "keyrate sweeps distance: give the channel as length_km and attenuation_db_per_km"));
+        return Err(Error::input_key(
+            "channel.attenuation_db_per_km",
+            "keyrate sweeps distance: give the channel as length_km and attenuation_db_per_km",
+        ));
     }
     let f_ec = a.f_ec.unwrap_or(f_default);
     crate::error::check_range("--f-ec", f_ec, 1.0, 3.0)?;
@@ -196,7 +199,8 @@ fn cmd_keyrate(a: KeyrateArgs) -> Result<Outcome> {
     let rows = rate_table(&link, &distances, &rules, mu, &params);
     let mut w = csv::Writer::from_writer(Vec::new());
     let io = |e: csv::Error| Error::new(crate::error::ErrorKind::Io, e.to_string());
-    w.write_record(["distance_km", "transmittance", "rule", "mu_photons_per_pulse", "gain_per_pulse", "error_rate", "rate_bits_per_pulse"]).map_err(io)?;
+    w.write_record(["distance_km", "transmittance", "rule", "mu_photons_per_pulse", "gain_per_pulse", "error_rate", "rate_bits_per_pulse"])
+        .map_err(io)?;
     for r in &rows {
         w.write_record([
             crate::sweep::fmt_num(r.distance_km),
@@ -302,7 +306,9 @@ fn cmd_hunt(a: HuntArgs) -> Result<Outcome> {
     }
     let dir = a.out_dir.clone().unwrap_or_else(|| PathBuf::from(format!("results/hunt-{}-{}", objective.name(), protocol)));
     if dir.exists() && !a.force {
-        return Err(Error::input("output folder already exists; refusing to overwrite results (pass --force to replace it)").with_file(&dir));
+        return Err(
+            Error::input("output folder already exists; refusing to overwrite results (pass --force to replace it)").with_file(&dir)
+        );
     }
     let opts = HuntOptions { protocol, objective, eve_dim: a.eve_dim, starts: a.starts, seed: a.seed, max_iters: a.iters };
     let points = hunt(&opts, &a.q)?;
@@ -313,7 +319,21 @@ fn cmd_hunt(a: HuntArgs) -> Result<Outcome> {
     let mut w = csv::Writer::from_writer(Vec::new());
     let io = |e: csv::Error| Error::new(crate::error::ErrorKind::Io, e.to_string());
     w.write_record([
-        "q", "objective", "unit", "protocol", "eve_dim", "value", "bound", "gap", "bound_at_attack_qber", "qber_z", "qber_x", "qber_y", "feasible_starts", "starts", "attack_file",
+        "q",
+        "objective",
+        "unit",
+        "protocol",
+        "eve_dim",
+        "value",
+        "bound",
+        "gap",
+        "bound_at_attack_qber",
+        "qber_z",
+        "qber_x",
+        "qber_y",
+        "feasible_starts",
+        "starts",
+        "attack_file",
     ])
     .map_err(io)?;
     let mut files = Vec::new();
@@ -389,9 +409,7 @@ fn parse_protocol(s: &str) -> Result<Protocol> {
 pub fn parse_sets(sets: &[String]) -> Result<BTreeMap<String, Value>> {
     let mut out = BTreeMap::new();
     for s in sets {
-        let (k, v) = s
-            .split_once('=')
-            .ok_or_else(|| Error::input_key("--set", format!("`{s}` is not KEY=VALUE")))?;
+        let (k, v) = s.split_once('=').ok_or_else(|| Error::input_key("--set", format!("`{s}` is not KEY=VALUE")))?;
         if k.trim().is_empty() {
             return Err(Error::input_key("--set", format!("`{s}` has an empty key")));
         }
@@ -408,7 +426,13 @@ fn cmd_eval(a: EvalArgs) -> Result<Outcome> {
     let protocol = parse_protocol(&a.protocol)?;
     let sets = parse_sets(&a.set)?;
     let attack = match (&a.attack, &a.attack_file) {
-        (Some(f), None) => Attack::builtin(f, &sets).map_err(|e| if e.key().is_some() && !e.message().contains("unknown attack family") { e.with_key("--set") } else { e })?,
+        (Some(f), None) => Attack::builtin(f, &sets).map_err(|e| {
+            if e.key().is_some() && !e.message().contains("unknown attack family") {
+                e.with_key("--set")
+            } else {
+                e
+            }
+        })?,
         (None, Some(p)) => load_attack_file(p)?.attack(&sets).map_err(|e| e.with_file(p))?,
         _ => return Err(Error::input("give exactly one of --attack and --attack-file")),
     };
@@ -434,7 +458,8 @@ pub fn eval_json(attack: &Attack, eval: &Evaluation) -> Result<String> {
 
 fn eval_table(attack: &Attack, e: &Evaluation) -> String {
     let params: Vec<String> = attack.params.0.iter().map(|(k, v)| format!("{k}={v}")).collect();
-    let mut s = format!("attack {} ({}) {}  eve_dim {}  protocol {}\n", attack.label, attack.family, params.join(" "), e.eve_dim, e.protocol);
+    let mut s =
+        format!("attack {} ({}) {}  eve_dim {}  protocol {}\n", attack.label, attack.family, params.join(" "), e.eve_dim, e.protocol);
     let opt = |x: Option<f64>| x.map_or("-".to_string(), |v| format!("{v:.10}"));
     let rows: Vec<(&str, String, &str)> = vec![
         ("qber_z", format!("{:.10}", e.qber_z), "error rate, Z (key) basis"),

@@ -24,10 +24,8 @@
 use crate::attack::Attack;
 use crate::bounds::{game_bound, six_state_entropy, six_state_weights};
 use crate::error::{Error, ErrorKind, Result};
-use crate::linalg::{c, CMat, CVec};
-use crate::measures::{
-    accessible_information, binary_entropy, mutual_information, trace_norm, von_neumann_entropy, AccessibleOptions,
-};
+use crate::linalg::{c, CMat, CVec, C64};
+use crate::measures::{accessible_information, binary_entropy, mutual_information, trace_norm, von_neumann_entropy, AccessibleOptions};
 use crate::protocol::{Basis, Protocol};
 use serde::Serialize;
 
@@ -108,8 +106,8 @@ pub struct Evaluation {
 
 /// Bob's and Eve's states conditioned on Alice sending one signal.
 struct Conditional {
-    /// Bob's reduced state (2×2).
-    rho_b: CMat,
+    /// Bob's reduced state: (<0|ρ_B|0>, <1|ρ_B|1>, <0|ρ_B|1>).
+    rho_b: ([f64; 2], C64),
     /// Eve's reduced state (d_E × d_E).
     rho_e: CMat,
     /// Eve's unnormalised state given that Bob found Alice's state: `<ψ|_B ρ_BE |ψ>_B`.
@@ -120,44 +118,66 @@ struct Conditional {
 
 fn conditional(attack: &Attack, psi: &CVec) -> Conditional {
     let d = attack.eve_dim;
-    let one = c(1.0, 0.0);
-    let mut rho_b = CMat::zeros(2, 2);
-    let mut rho_e = CMat::zeros(d, d);
-    let mut sigma_right = CMat::zeros(d, d);
+    let zero = c(0.0, 0.0);
     let ops = attack.channel.operators();
     // ρ_E = Σ u u† over the 2K vectors u = (<b|_B ⊗ 1) K|ψ>; when 2K < d_E its non-zero
     // spectrum is that of the smaller Gram matrix <u_i|u_j> (for an isometry: ρ_B's).
-    let small = 2 * ops.len() < d;
+    let isometry = ops.len() == 1;
+    let small = !isometry && 2 * ops.len() < d;
     let mut parts: Vec<CVec> = Vec::new();
-    let mut v = CVec::zeros(2 * d);
-    let mut w = CVec::zeros(d);
+    let (p0, p1) = (psi[0], psi[1]);
+    let (q0, q1) = (p0.conj(), p1.conj());
+    let mut b = [zero; 3]; // <0|ρ_B|0>, <1|ρ_B|1>, <0|ρ_B|1>
+    let mut rho_e = CMat::zeros(d, d);
+    let mut sigma_right = CMat::zeros(d, d);
+    let mut v = vec![zero; 2 * d];
+    let mut w = vec![zero; d];
     for k in ops {
-        v.gemv(one, k, psi, c(0.0, 0.0));
-        let v0 = v.rows(0, d);
-        let v1 = v.rows(d, d);
-        rho_b[(0, 0)] += c(v0.norm_squared(), 0.0);
-        rho_b[(1, 1)] += c(v1.norm_squared(), 0.0);
-        let off = v1.dotc(&v0); // <0|ρ_B|1> = Σ_e v0[e]·conj(v1[e])
-        rho_b[(0, 1)] += off;
-        rho_b[(1, 0)] += off.conj();
-        rho_e.gerc(one, &v0, &v0, one);
-        rho_e.gerc(one, &v1, &v1, one);
-        w.copy_from(&v0);
-        w *= psi[0].conj();
-        w.axpy(psi[1].conj(), &v1, one);
-        sigma_right.gerc(one, &w, &w, one);
+        // v = K ψ (K is stored column-major, 2d × 2).
+        let ks = k.as_slice();
+        for (r, vr) in v.iter_mut().enumerate() {
+            *vr = ks[r] * p0 + ks[2 * d + r] * p1;
+        }
+        let (v0, v1) = v.split_at(d);
+        for e in 0..d {
+            b[0] += c(v0[e].norm_sqr(), 0.0);
+            b[1] += c(v1[e].norm_sqr(), 0.0);
+            b[2] += v0[e] * v1[e].conj();
+            w[e] = v0[e] * q0 + v1[e] * q1;
+        }
+        let re = rho_e.as_mut_slice();
+        let sg = sigma_right.as_mut_slice();
+        for j in 0..d {
+            let (c0, c1, cw) = (v0[j].conj(), v1[j].conj(), w[j].conj());
+            for i in 0..d {
+                re[j * d + i] += v0[i] * c0 + v1[i] * c1;
+                sg[j * d + i] += w[i] * cw;
+            }
+        }
         if small {
-            parts.push(v0.into_owned());
-            parts.push(v1.into_owned());
+            parts.push(CVec::from_column_slice(v0));
+            parts.push(CVec::from_column_slice(v1));
         }
     }
-    let s_e = if small {
+    let rho_b = ([b[0].re, b[1].re], b[2]);
+    let s_e = if isometry {
+        // A pure state on B ⊗ E: Eve's spectrum is Bob's.
+        binary_spectrum_entropy(b[0].re, b[1].re, b[2])
+    } else if small {
         let gram = CMat::from_fn(parts.len(), parts.len(), |i, j| parts[i].dotc(&parts[j]));
         von_neumann_entropy(&gram)
     } else {
         von_neumann_entropy(&rho_e)
     };
     Conditional { rho_b, rho_e, sigma_right, s_e }
+}
+
+/// Entropy in bits of the 2×2 Hermitian matrix [[a, z], [z*, d]].
+fn binary_spectrum_entropy(a: f64, d: f64, z: C64) -> f64 {
+    let mean = 0.5 * (a + d);
+    let r = (0.25 * (a - d) * (a - d) + z.norm_sqr()).sqrt();
+    let xlog = |x: f64| if x <= 0.0 { 0.0 } else { -x * x.log2() };
+    xlog(mean - r) + xlog(mean + r)
 }
 
 /// Per-basis quantities.
@@ -179,8 +199,11 @@ fn basis_stats_from(basis: Basis, cond: [Conditional; 2], s_avg: f64) -> BasisSt
     let mut qber = 0.0;
     let mut joint_ab = vec![vec![0.0; 2]; 2];
     for x in 0..2 {
+        let ([r00, r11], r01) = cond[x].rho_b;
         for (b, ket) in kets.iter().enumerate() {
-            joint_ab[x][b] = 0.5 * ket.dotc(&(&cond[x].rho_b * ket)).re;
+            // <k|ρ_B|k> = r00|k0|² + r11|k1|² + 2 Re(conj(k0) r01 k1).
+            let (k0, k1) = (ket[0], ket[1]);
+            joint_ab[x][b] = 0.5 * (r00 * k0.norm_sqr() + r11 * k1.norm_sqr() + 2.0 * (k0.conj() * r01 * k1).re);
         }
         qber += joint_ab[x][1 - x];
     }

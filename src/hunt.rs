@@ -181,7 +181,8 @@ pub fn isometry(x: &[f64], eve_dim: usize) -> CMat {
 }
 
 fn attack_of(x: &[f64], eve_dim: usize) -> Attack {
-    Attack::from_kraus("hunted", eve_dim, vec![isometry(x, eve_dim)], Tolerance::new(1e-8)).expect("an orthonormalised isometry is complete")
+    Attack::from_kraus("hunted", eve_dim, vec![isometry(x, eve_dim)], Tolerance::new(1e-8))
+        .expect("an orthonormalised isometry is complete")
 }
 
 fn objective_value(objective: Objective, e: &Evaluation) -> f64 {
@@ -258,8 +259,13 @@ impl Gradient for Penalized {
 
 fn optimise_start(opts: &HuntOptions, q: f64, mut x: Vec<f64>) -> Vec<f64> {
     for lambda in [1e3, 1e5, 1e7, 1e9] {
-        let problem = Penalized { objective: opts.objective, protocol: opts.protocol, eve_dim: opts.eve_dim, q_inner: (q - 1e-7).max(0.0), lambda };
-        let solver = LBFGS::new(MoreThuenteLineSearch::new(), 8).with_tolerance_grad(1e-10).expect("valid tolerance").with_tolerance_cost(1e-14).expect("valid tolerance");
+        let problem =
+            Penalized { objective: opts.objective, protocol: opts.protocol, eve_dim: opts.eve_dim, q_inner: (q - 1e-7).max(0.0), lambda };
+        let solver = LBFGS::new(MoreThuenteLineSearch::new(), 8)
+            .with_tolerance_grad(1e-10)
+            .expect("valid tolerance")
+            .with_tolerance_cost(1e-14)
+            .expect("valid tolerance");
         let start = x.clone();
         let run = Executor::new(problem, solver).configure(|s| s.param(start).max_iters(opts.max_iters)).run();
         if let Ok(res) = run {
@@ -314,10 +320,7 @@ pub fn hunt(opts: &HuntOptions, qs: &[f64]) -> Result<Vec<HuntPoint>> {
                 })
                 .collect::<Result<_>>()?;
             let feasible_starts = scored.iter().filter(|s| s.1).count();
-            let best = scored
-                .into_iter()
-                .filter(|s| s.1)
-                .max_by(|a, b| a.0.total_cmp(&b.0));
+            let best = scored.into_iter().filter(|s| s.1).max_by(|a, b| a.0.total_cmp(&b.0));
             let bq = bound(opts.objective, opts.protocol, q)?;
             match best {
                 Some((value, feasible, attack, eval)) => Ok(HuntPoint {
@@ -330,7 +333,10 @@ pub fn hunt(opts: &HuntOptions, qs: &[f64]) -> Result<Vec<HuntPoint>> {
                     eval,
                     feasible_starts,
                 }),
-                None => Err(Error::new(crate::error::ErrorKind::NoConvergence, format!("no start reached a feasible attack at Q = {q}; try more starts"))),
+                None => Err(Error::new(
+                    crate::error::ErrorKind::NoConvergence,
+                    format!("no start reached a feasible attack at Q = {q}; try more starts"),
+                )),
             }
         })
         .collect()

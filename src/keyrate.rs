@@ -185,14 +185,25 @@ pub fn rate_table(link: &Link, distances: &[f64], rules: &[LinkRule], mu: Option
         .par_iter()
         .flat_map_iter(|&km| {
             let l = link.at_distance(km);
-            rules.iter().map(move |&rule| {
-                let (m, r) = match mu {
-                    Some(m) => (m, rate(rule, &l, m, p)),
-                    None => optimal_mu(rule, &l, p),
-                };
-                let s = l.stats(m);
-                RateRow { distance_km: km, transmittance: l.transmittance(), rule, mu: m, gain: s.gain, error_rate: s.error_rate, rate_bits_per_pulse: r }
-            }).collect::<Vec<_>>()
+            rules
+                .iter()
+                .map(move |&rule| {
+                    let (m, r) = match mu {
+                        Some(m) => (m, rate(rule, &l, m, p)),
+                        None => optimal_mu(rule, &l, p),
+                    };
+                    let s = l.stats(m);
+                    RateRow {
+                        distance_km: km,
+                        transmittance: l.transmittance(),
+                        rule,
+                        mu: m,
+                        gain: s.gain,
+                        error_rate: s.error_rate,
+                        rate_bits_per_pulse: r,
+                    }
+                })
+                .collect::<Vec<_>>()
         })
         .collect()
 }

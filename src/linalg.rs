@@ -124,6 +124,29 @@ fn is_diagonal(m: &CMat) -> bool {
     (0..n).all(|i| (0..n).all(|j| i == j || m[(i, j)] == C64::new(0.0, 0.0)))
 }
 
+/// `Σᵢ f(λᵢ)` over the eigenvalues of a Hermitian matrix, without allocating for
+/// dimensions up to 4 (the hot path of the evaluator: entropies and trace norms).
+#[track_caller]
+pub fn hermitian_spectral_sum(m: &CMat, f: impl Fn(f64) -> f64) -> f64 {
+    assert_square(m);
+    match m.nrows() {
+        0 => 0.0,
+        1 => f(m[(0, 0)].re),
+        2 => {
+            let a = m[(0, 0)].re;
+            let d = m[(1, 1)].re;
+            let b = (m[(1, 0)] + m[(0, 1)].conj()) * 0.5;
+            let mean = 0.5 * (a + d);
+            let r = (0.25 * (a - d) * (a - d) + b.norm_sqr()).sqrt();
+            f(mean - r) + f(mean + r)
+        }
+        n if is_diagonal(m) => (0..n).map(|i| f(m[(i, i)].re)).sum(),
+        3 => nalgebra::Matrix3::<C64>::from_fn(|i, j| m[(i, j)]).symmetric_eigenvalues().iter().map(|&x| f(x)).sum(),
+        4 => nalgebra::Matrix4::<C64>::from_fn(|i, j| m[(i, j)]).symmetric_eigenvalues().iter().map(|&x| f(x)).sum(),
+        _ => hermitian_eigenvalues(m).into_iter().map(f).sum(),
+    }
+}
+
 /// Eigen-decomposition of a Hermitian matrix: eigenvalues (ascending) and the matching
 /// orthonormal eigenvectors as columns.
 #[track_caller]

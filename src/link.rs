@@ -129,7 +129,9 @@ impl Link {
             let t = c.as_table().ok_or_else(|| Error::input_key("channel", "must be a table"))?;
             allowed(t, &["length_km", "attenuation_db_per_km", "loss_db"]).map_err(|e| e.with_key("channel"))?;
             match (t.get("loss_db"), t.get("length_km")) {
-                (Some(_), Some(_)) => return Err(Error::input_key("channel.loss_db", "give loss_db or length_km (with attenuation_db_per_km), not both")),
+                (Some(_), Some(_)) => {
+                    return Err(Error::input_key("channel.loss_db", "give loss_db or length_km (with attenuation_db_per_km), not both"))
+                }
                 (Some(l), None) => link.channel_loss_db = check_range("channel.loss_db", num(l, "channel.loss_db")?, 0.0, 100.0)?,
                 (None, Some(l)) => {
                     let km = check_range("channel.length_km", num(l, "channel.length_km")?, 0.0, 1000.0)?;
@@ -155,7 +157,8 @@ impl Link {
                 link.detector_efficiency = e;
             }
             if let Some(v) = t.get("dark_count_probability") {
-                link.dark_count_probability = check_range("detector.dark_count_probability", num(v, "detector.dark_count_probability")?, 0.0, 0.1)?;
+                link.dark_count_probability =
+                    check_range("detector.dark_count_probability", num(v, "detector.dark_count_probability")?, 0.0, 0.1)?;
             }
             if let Some(v) = t.get("misalignment") {
                 link.misalignment = check_range("detector.misalignment", num(v, "detector.misalignment")?, 0.0, 0.5)?;
@@ -218,7 +221,9 @@ fn parse_source(t: &toml::Table) -> Result<Source> {
             let probs: Vec<f64> = match t.get("decoy_probabilities") {
                 None if decoys.is_empty() => Vec::new(),
                 None => return Err(Error::input_key("decoy_probabilities", "missing: one probability per decoy")),
-                Some(toml::Value::Array(a)) => a.iter().enumerate().map(|(i, v)| num(v, &format!("decoy_probabilities[{i}]"))).collect::<Result<_>>()?,
+                Some(toml::Value::Array(a)) => {
+                    a.iter().enumerate().map(|(i, v)| num(v, &format!("decoy_probabilities[{i}]"))).collect::<Result<_>>()?
+                }
                 Some(_) => return Err(Error::input_key("decoy_probabilities", "must be a list")),
             };
             if probs.len() != decoys.len() {
@@ -233,7 +238,10 @@ fn parse_source(t: &toml::Table) -> Result<Source> {
             if let Some(p) = t.get("probability") {
                 let p = num(p, "probability")?;
                 if (p - probability).abs() > 1e-9 {
-                    return Err(Error::input_key("probability", format!("{p} does not equal 1 minus the decoy probabilities ({probability})")));
+                    return Err(Error::input_key(
+                        "probability",
+                        format!("{p} does not equal 1 minus the decoy probabilities ({probability})"),
+                    ));
                 }
             }
             if probability <= 0.0 {
@@ -320,7 +328,8 @@ mod tests {
         // Q_μ = Σ Y_n P_n with the exact yields equals 1 − (1 − Y₀)e^{−ημ}; the first-order
         // form differs only by the Y₀(1 − e^{−ημ}) cross term.
         let (mu, eta, y0): (f64, f64, f64) = (0.6, 0.02, 1e-5);
-        let exact: f64 = (0..60).map(|n| poisson(mu, n) * (y0 + (1.0 - (1.0 - eta).powi(n as i32)) - y0 * (1.0 - (1.0 - eta).powi(n as i32)))).sum();
+        let exact: f64 =
+            (0..60).map(|n| poisson(mu, n) * (y0 + (1.0 - (1.0 - eta).powi(n as i32)) - y0 * (1.0 - (1.0 - eta).powi(n as i32)))).sum();
         assert_relative_eq!(exact, 1.0 - (1.0 - y0) * (-eta * mu).exp(), max_relative = 1e-12);
         let s = gains(mu, eta, y0, 0.01);
         assert!((s.gain - exact).abs() <= y0 * (1.0 - (-eta * mu).exp()) * 1.000001);

@@ -8,7 +8,7 @@
 //! operators; this module does not re-validate them on the hot path.
 
 use crate::error::Result;
-use crate::linalg::{c, hermitian_eigen, hermitian_eigenvalues, CMat, CVec};
+use crate::linalg::{c, hermitian_eigen, CMat, CVec};
 use rand::{Rng, SeedableRng};
 use rand_distr::StandardNormal;
 
@@ -49,12 +49,12 @@ pub fn mutual_information(joint: &[Vec<f64>]) -> f64 {
 /// Von Neumann entropy `S(ρ) = −Tr ρ log₂ ρ` of a density matrix, in bits. Eigenvalues at
 /// or below zero (rounding on a validated state) contribute nothing.
 pub fn von_neumann_entropy(rho: &CMat) -> f64 {
-    hermitian_eigenvalues(rho).into_iter().map(xlog).sum()
+    crate::linalg::hermitian_spectral_sum(rho, xlog)
 }
 
 /// Trace norm `‖A‖₁ = Σ |λ_i|` of a Hermitian matrix.
 pub fn trace_norm(a: &CMat) -> f64 {
-    hermitian_eigenvalues(a).into_iter().map(f64::abs).sum()
+    crate::linalg::hermitian_spectral_sum(a, f64::abs)
 }
 
 /// Helstrom's optimal probability of telling `ρ₀` (prior `p0`) from `ρ₁` (prior `p1`):
@@ -80,11 +80,8 @@ pub fn holevo_quantity(priors: &[f64], states: &[CMat]) -> f64 {
 /// Classical mutual information `I(X:M)` in bits when the ensemble `{pᵢ, ρᵢ}` is measured
 /// with the rank-one POVM `{|a_k><a_k|}`.
 pub fn measured_information(priors: &[f64], states: &[CMat], povm: &[CVec]) -> f64 {
-    let joint: Vec<Vec<f64>> = priors
-        .iter()
-        .zip(states)
-        .map(|(p, rho)| povm.iter().map(|a| p * (a.adjoint() * rho * a)[(0, 0)].re.max(0.0)).collect())
-        .collect();
+    let joint: Vec<Vec<f64>> =
+        priors.iter().zip(states).map(|(p, rho)| povm.iter().map(|a| p * (a.adjoint() * rho * a)[(0, 0)].re.max(0.0)).collect()).collect();
     mutual_information(&joint)
 }
 
@@ -112,7 +109,15 @@ pub struct AccessibleOptions {
 
 impl Default for AccessibleOptions {
     fn default() -> Self {
-        AccessibleOptions { random_starts: 3, seed: 0x5eed, gain_tol: 1e-11, window: 10, max_iter: 3000, grad_tol: 1e-10, screen_gain_tol: 1e-9 }
+        AccessibleOptions {
+            random_starts: 3,
+            seed: 0x5eed,
+            gain_tol: 1e-11,
+            window: 10,
+            max_iter: 3000,
+            grad_tol: 1e-10,
+            screen_gain_tol: 1e-9,
+        }
     }
 }
 
@@ -171,9 +176,8 @@ pub fn accessible_information(priors: &[f64], states: &[CMat], opts: &Accessible
     starts.push(eigen_columns(&generic));
     let mut rng = rand_chacha::ChaCha8Rng::seed_from_u64(opts.seed);
     for _ in 0..opts.random_starts {
-        let raw: Vec<CVec> = (0..d * d)
-            .map(|_| CVec::from_fn(d, |_, _| c(rng.sample(StandardNormal), rng.sample(StandardNormal))))
-            .collect();
+        let raw: Vec<CVec> =
+            (0..d * d).map(|_| CVec::from_fn(d, |_, _| c(rng.sample(StandardNormal), rng.sample(StandardNormal)))).collect();
         starts.push(complete_povm(&raw));
     }
     let mut best = Accessible { bits: f64::NEG_INFINITY, povm: Vec::new(), iterations: 0, converged: false };
@@ -434,8 +438,12 @@ mod tests {
             let b = Ket::normalized(CVec::from_vec(vec![c(theta.cos(), 0.0), c(theta.sin(), 0.0)]));
             let s = theta.cos();
             let p_err = (1.0 - (1.0 - s * s).sqrt()) / 2.0;
-            let acc = accessible_information(&[0.5, 0.5], &[a.density().matrix().clone(), b.density().matrix().clone()], &AccessibleOptions::default())
-                .unwrap();
+            let acc = accessible_information(
+                &[0.5, 0.5],
+                &[a.density().matrix().clone(), b.density().matrix().clone()],
+                &AccessibleOptions::default(),
+            )
+            .unwrap();
             assert_abs_diff_eq!(acc.bits, 1.0 - binary_entropy(p_err), epsilon = 1e-9);
         }
         let s = (std::f64::consts::PI / 8.0).cos();
@@ -465,10 +473,8 @@ mod tests {
                     }
                 }
                 let p_minus = CMat::identity(d, d) - &p_plus;
-                let joint: Vec<Vec<f64>> = [&r0, &r1]
-                    .iter()
-                    .map(|r| vec![0.5 * (&p_plus * *r).trace().re, 0.5 * (&p_minus * *r).trace().re])
-                    .collect();
+                let joint: Vec<Vec<f64>> =
+                    [&r0, &r1].iter().map(|r| vec![0.5 * (&p_plus * *r).trace().re, 0.5 * (&p_minus * *r).trace().re]).collect();
                 let helstrom_info = mutual_information(&joint);
                 assert!(acc.bits <= chi + 1e-12, "accessible {} above Holevo {}", acc.bits, chi);
                 assert!(acc.bits >= helstrom_info - 1e-12, "accessible {} below Helstrom {}", acc.bits, helstrom_info);

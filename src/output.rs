@@ -8,7 +8,9 @@ use std::path::{Path, PathBuf};
 /// Refuses to proceed when `path` exists and `force` is false.
 pub fn check_overwrite(path: &Path, force: bool) -> Result<()> {
     if path.exists() && !force {
-        return Err(Error::new(ErrorKind::Input, "already exists; refusing to overwrite results (pass --force to replace it)").with_file(path));
+        return Err(
+            Error::new(ErrorKind::Input, "already exists; refusing to overwrite results (pass --force to replace it)").with_file(path)
+        );
     }
     Ok(())
 }
@@ -45,7 +47,11 @@ pub fn write_atomic(path: &Path, bytes: &[u8], force: bool) -> Result<()> {
 /// `force`.
 pub fn write_folder_files(dir: &Path, files: &[(String, String)], force: bool) -> Result<()> {
     if dir.exists() && !force {
-        return Err(Error::new(ErrorKind::Input, "output folder already exists; refusing to overwrite results (pass --force to replace it)").with_file(dir));
+        return Err(Error::new(
+            ErrorKind::Input,
+            "output folder already exists; refusing to overwrite results (pass --force to replace it)",
+        )
+        .with_file(dir));
     }
     let parent = dir.parent().filter(|p| !p.as_os_str().is_empty()).unwrap_or(Path::new("."));
     std::fs::create_dir_all(parent).map_err(|e| Error::from(e).with_file(parent))?;

@@ -13,8 +13,8 @@
 //! [`crate::link`].
 
 use crate::error::{check_range, Error, Result};
-use crate::protocol::Protocol;
 use crate::link::Link;
+use crate::protocol::Protocol;
 use crate::rules::KeyRule;
 use serde::Serialize;
 use std::path::Path;
@@ -106,9 +106,8 @@ impl Setup {
     /// Reads and validates a setup file.
     pub fn load(path: &Path) -> Result<Setup> {
         let text = std::fs::read_to_string(path).map_err(|e| Error::from(e).with_file(path))?;
-        let table: toml::Table = text
-            .parse()
-            .map_err(|e: toml::de::Error| Error::input(format!("not valid TOML: {}", e.message().trim())).with_file(path))?;
+        let table: toml::Table =
+            text.parse().map_err(|e: toml::de::Error| Error::input(format!("not valid TOML: {}", e.message().trim())).with_file(path))?;
         Setup::from_table(&table).map_err(|e| e.with_file(path))
     }
 
@@ -122,7 +121,11 @@ impl Setup {
         }
         let mut s = Setup::default();
         if let Some(v) = t.get("name") {
-            s.name = v.as_str().filter(|n| !n.trim().is_empty()).ok_or_else(|| Error::input_key("name", "must be a non-empty string"))?.to_string();
+            s.name = v
+                .as_str()
+                .filter(|n| !n.trim().is_empty())
+                .ok_or_else(|| Error::input_key("name", "must be a non-empty string"))?
+                .to_string();
         }
         if let Some(v) = t.get("protocol") {
             let p = v.as_str().ok_or_else(|| Error::input_key("protocol", "must be a string: bb84 or six-state"))?;

@@ -56,14 +56,20 @@ impl DensityMatrix {
     /// Validates Hermiticity, unit trace and positivity, each within `tol`.
     pub fn new(m: CMat, tol: Tolerance) -> Result<Self> {
         if m.nrows() != m.ncols() || m.nrows() == 0 {
-            return Err(Error::new(ErrorKind::NotPhysical, format!("density matrix must be square and non-empty, got {}×{}", m.nrows(), m.ncols())));
+            return Err(Error::new(
+                ErrorKind::NotPhysical,
+                format!("density matrix must be square and non-empty, got {}×{}", m.nrows(), m.ncols()),
+            ));
         }
         if m.iter().any(|z| !z.re.is_finite() || !z.im.is_finite()) {
             return Err(Error::new(ErrorKind::NotPhysical, "density matrix has a non-finite entry"));
         }
         let h = hermiticity_defect(&m);
         if h > tol.abs {
-            return Err(Error::new(ErrorKind::NotPhysical, format!("matrix is not Hermitian: |m - m†| reaches {h:.3e} (tolerance {})", tol.abs)));
+            return Err(Error::new(
+                ErrorKind::NotPhysical,
+                format!("matrix is not Hermitian: |m - m†| reaches {h:.3e} (tolerance {})", tol.abs),
+            ));
         }
         let t = trace_re(&m);
         if (t - 1.0).abs() > tol.abs {

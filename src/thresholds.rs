@@ -5,7 +5,7 @@
 use crate::attack::{Attack, Value};
 use crate::bounds::{bb84_threshold, bisect, individual_threshold, six_state_threshold};
 use crate::error::Result;
-use crate::eval::{bob_fidelity, eve_clone_fidelity, evaluate, EvalOptions};
+use crate::eval::{bob_fidelity, evaluate, eve_clone_fidelity, EvalOptions};
 use crate::protocol::{Basis, Protocol};
 use serde::Serialize;
 use std::collections::BTreeMap;

@@ -84,7 +84,11 @@ fn count_and_round_samplers_agree_in_distribution() {
     // statistic (the test fails if the samplers differ in distribution; with fixed seeds it
     // is deterministic).
     for (a, protocol, probs) in [
-        (attack("cloner", &[("kind", Value::Text("universal".into())), ("qber", Value::Num(0.1))]), Protocol::SixState, vec![0.5, 0.25, 0.25]),
+        (
+            attack("cloner", &[("kind", Value::Text("universal".into())), ("qber", Value::Num(0.1))]),
+            Protocol::SixState,
+            vec![0.5, 0.25, 0.25],
+        ),
         (attack("intercept-resend", &[("fraction", Value::Num(0.4))]), Protocol::Bb84, vec![0.7, 0.3]),
     ] {
         let model = SignalModel::new(&a, protocol, &probs);

@@ -79,6 +79,10 @@ fn saved_attacks_reproduce_their_objective_under_eval() {
     assert!(matches!(run.status.code(), Some(0) | Some(1)), "{}", String::from_utf8_lossy(&run.stderr));
     assert!(dir.path().join("results/uses-hunted/attack_vs_bound.csv").exists());
     // The folder is not replaced without --force.
-    let again = Command::new(bin).args(["hunt", "--objective", "guess", "--q", "0.05", "--starts", "1", "--out-dir", "h"]).current_dir(dir.path()).output().unwrap();
+    let again = Command::new(bin)
+        .args(["hunt", "--objective", "guess", "--q", "0.05", "--starts", "1", "--out-dir", "h"])
+        .current_dir(dir.path())
+        .output()
+        .unwrap();
     assert_eq!(again.status.code(), Some(2));
 }

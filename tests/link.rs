@@ -38,7 +38,13 @@ fn decoy_bounds_contain_the_true_single_photon_yield_and_error() {
     runner(500, 21)
         .run(&strategy, |(mu, nu, eta, y0, ed)| {
             prop_assume!(nu < mu / 2.0);
-            let l = Link { detector_efficiency: 1.0, channel_loss_db: -10.0 * eta.log10(), dark_count_probability: y0, misalignment: ed, ..Link::default() };
+            let l = Link {
+                detector_efficiency: 1.0,
+                channel_loss_db: -10.0 * eta.log10(),
+                dark_count_probability: y0,
+                misalignment: ed,
+                ..Link::default()
+            };
             let s_mu = honest(&l, mu);
             let s_nu = honest(&l, nu);
             let (y1l, e1u) = vacuum_weak_bounds(mu, nu, s_mu.gain, s_nu.gain, s_nu.error_rate(1), y0);

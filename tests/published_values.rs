@@ -5,7 +5,7 @@
 use approx::assert_abs_diff_eq;
 use qkd_audit::attack::{Attack, Value};
 use qkd_audit::bounds::{bb84_threshold, fggnp_information, individual_threshold, six_state_rate, six_state_threshold};
-use qkd_audit::eval::{bob_fidelity, eve_clone_fidelity, evaluate, EvalOptions};
+use qkd_audit::eval::{bob_fidelity, evaluate, eve_clone_fidelity, EvalOptions};
 use qkd_audit::measures::binary_entropy;
 use qkd_audit::protocol::{Basis, Protocol};
 use qkd_audit::state::Ket;
@@ -126,7 +126,8 @@ fn optimal_collective_attack_conditional_entropy() {
     // REFERENCES.md §5 table [N]: H(X|E)(0.05) = 0.7136030429, χ(0.10) = 0.4689955936;
     // Shor & Preskill, PRL 85, 441 (2000) for the saturated rate.
     for &d in &[0.0, 0.01, 0.05, 0.1, 0.1100279, 0.2, 0.5] {
-        let e = evaluate(&attack("cloner", &[("kind", text("phase-covariant")), ("qber", num(d))]), &EvalOptions::fast(Protocol::Bb84)).unwrap();
+        let e = evaluate(&attack("cloner", &[("kind", text("phase-covariant")), ("qber", num(d))]), &EvalOptions::fast(Protocol::Bb84))
+            .unwrap();
         assert_abs_diff_eq!(e.h_x_given_e, 1.0 - binary_entropy(d), epsilon = 1e-10);
         assert_abs_diff_eq!(e.margin, 0.0, epsilon = 1e-10);
         assert_abs_diff_eq!(e.attack_rate, e.bound_rate, epsilon = 1e-10);
@@ -168,14 +169,19 @@ fn individual_attack_limit() {
 #[test]
 fn pauli_channel_qbers() {
     // Q_Z = p_X + p_Y, Q_X = p_Z + p_Y, Q_Y = p_X + p_Z: common practice.
-    let e = evaluate(&attack("pauli", &[("px", num(0.1)), ("py", num(0.05)), ("pz", num(0.15))]), &EvalOptions::fast(Protocol::SixState)).unwrap();
+    let e = evaluate(&attack("pauli", &[("px", num(0.1)), ("py", num(0.05)), ("pz", num(0.15))]), &EvalOptions::fast(Protocol::SixState))
+        .unwrap();
     assert_abs_diff_eq!(e.qber_z, 0.15, epsilon = 1e-12);
     assert_abs_diff_eq!(e.qber_x, 0.20, epsilon = 1e-12);
     assert_abs_diff_eq!(e.qber_y, 0.25, epsilon = 1e-12);
     assert_abs_diff_eq!(e.pauli_weights[0], 0.7, epsilon = 1e-12);
     // Six-state symmetric attack: H(X|E) at Q = 5 % is 0.783213, REFERENCES.md §2 [N].
     let q = 0.05;
-    let e = evaluate(&attack("pauli", &[("px", num(q / 2.0)), ("py", num(q / 2.0)), ("pz", num(q / 2.0))]), &EvalOptions::fast(Protocol::SixState)).unwrap();
+    let e = evaluate(
+        &attack("pauli", &[("px", num(q / 2.0)), ("py", num(q / 2.0)), ("pz", num(q / 2.0))]),
+        &EvalOptions::fast(Protocol::SixState),
+    )
+    .unwrap();
     assert_abs_diff_eq!(e.h_x_given_e, 0.783213, epsilon = 1e-6);
     assert_abs_diff_eq!(e.margin, 0.0, epsilon = 1e-10);
     assert_abs_diff_eq!(e.bound_rate, 0.4968162683, epsilon = 1e-9);

@@ -116,7 +116,10 @@ impl AttackFile {
         params.extend(overrides.iter().map(|(k, v)| (k.clone(), v.clone())));
         for key in params.keys() {
             if key != "fraction" {
-                return Err(Error::input_key(format!("params.{key}"), format!("`{}` has no parameter `{key}`; its parameter is fraction", e.family)));
+                return Err(Error::input_key(
+                    format!("params.{key}"),
+                    format!("`{}` has no parameter `{key}`; its parameter is fraction", e.family),
+                ));
             }
         }
         let fraction = match params.get("fraction") {
@@ -160,7 +163,8 @@ pub fn validate(path: &Path) -> Vec<Error> {
         Err(errs) => errs.into_iter().map(|e| e.with_file(path)).collect(),
         Ok(file) => {
             let mut errs = Vec::new();
-            let build = |o: &BTreeMap<String, Value>| if file.is_link() { file.link_attack(o).map(|_| ()) } else { file.attack(o).map(|_| ()) };
+            let build =
+                |o: &BTreeMap<String, Value>| if file.is_link() { file.link_attack(o).map(|_| ()) } else { file.attack(o).map(|_| ()) };
             if let Err(e) = build(&BTreeMap::new()) {
                 errs.push(e.with_file(path));
             }
@@ -182,7 +186,8 @@ pub fn validate(path: &Path) -> Vec<Error> {
 
 /// Parses the text of an attack file. Returns every problem found.
 pub fn parse(text: &str) -> std::result::Result<AttackFile, Vec<Error>> {
-    let table: toml::Table = text.parse().map_err(|e: toml::de::Error| vec![Error::input(format!("not valid TOML: {}", e.message().trim()))])?;
+    let table: toml::Table =
+        text.parse().map_err(|e: toml::de::Error| vec![Error::input(format!("not valid TOML: {}", e.message().trim()))])?;
     if table.contains_key("operators") {
         parse_kraus(&table)
     } else {
@@ -193,13 +198,18 @@ pub fn parse(text: &str) -> std::result::Result<AttackFile, Vec<Error>> {
 fn parse_catalogue(t: &toml::Table) -> Result<AttackFile> {
     for key in t.keys() {
         if !["family", "description", "params", "sweep"].contains(&key.as_str()) {
-            return Err(Error::input_key(key.clone(), "unknown key; a catalogue entry has family, description, params, sweep (a kraus file has operators)"));
+            return Err(Error::input_key(
+                key.clone(),
+                "unknown key; a catalogue entry has family, description, params, sweep (a kraus file has operators)",
+            ));
         }
     }
     let family = match t.get("family") {
         Some(toml::Value::String(s)) => s.clone(),
         Some(_) => return Err(Error::input_key("family", "must be a string")),
-        None => return Err(Error::input_key("family", "missing; an attack file needs `family` (catalogue entry) or `operators` (kraus file)")),
+        None => {
+            return Err(Error::input_key("family", "missing; an attack file needs `family` (catalogue entry) or `operators` (kraus file)"))
+        }
     };
     let is_link = super::link_attack::LINK_FAMILIES.iter().any(|(n, _)| *n == family);
     if !is_link {
@@ -394,13 +404,7 @@ pub fn kraus_toml(name: &str, description: &str, eve_dim: usize, ops: &[CMat]) -
     for op in ops {
         s.push_str("  [\n");
         for i in 0..op.nrows() {
-            s.push_str(&format!(
-                "    [[{:e}, {:e}], [{:e}, {:e}]],\n",
-                op[(i, 0)].re,
-                op[(i, 0)].im,
-                op[(i, 1)].re,
-                op[(i, 1)].im
-            ));
+            s.push_str(&format!("    [[{:e}, {:e}], [{:e}, {:e}]],\n", op[(i, 0)].re, op[(i, 0)].im, op[(i, 1)].re, op[(i, 1)].im));
         }
         s.push_str("  ],\n");
     }

@@ -30,11 +30,8 @@ pub const LINK_FAMILIES: &[(&str, &str)] = &[
 ];
 
 /// Their one parameter.
-pub const LINK_PARAMS: &[ParamSpec] = &[ParamSpec {
-    name: "fraction",
-    kind: ParamKind::Number { lo: 0.0, hi: 1.0 },
-    help: "fraction of the pulses Eve attacks (default 1)",
-}];
+pub const LINK_PARAMS: &[ParamSpec] =
+    &[ParamSpec { name: "fraction", kind: ParamKind::Number { lo: 0.0, hi: 1.0 }, help: "fraction of the pulses Eve attacks (default 1)" }];
 
 /// A link-level attack.
 #[derive(Clone, Copy, Debug, PartialEq, Serialize)]
@@ -250,7 +247,14 @@ pub fn attacked(link: &Link, attack: &LinkAttack, mu: f64, signal_mu: f64) -> De
 /// misalignment then flips his bit with probability e_d; a dark-count click gives a random
 /// bit. Returns the model and t (t > 1 would be needed when the attack cannot hide: t is
 /// then capped at 1 and `matched` is false).
-pub fn qubit_on_single_photons(link: &Link, joint: [[f64; 4]; 3], h_att: f64, p_guess: [f64; 3], mu: f64, signal_mu: f64) -> (DetectionModel, f64, bool) {
+pub fn qubit_on_single_photons(
+    link: &Link,
+    joint: [[f64; 4]; 3],
+    h_att: f64,
+    p_guess: [f64; 3],
+    mu: f64,
+    signal_mu: f64,
+) -> (DetectionModel, f64, bool) {
     let eta_b = link.detector_efficiency;
     let y0 = link.dark_count_probability;
     // Signal gain as a function of t: base + t·slope.

@@ -45,7 +45,9 @@ pub fn cmd_run(a: RunArgs) -> Result<Outcome> {
     };
     let dir = a.results_dir.join(&campaign.name);
     if dir.exists() && !a.force {
-        return Err(Error::input("output folder already exists; refusing to overwrite results (pass --force to replace it)").with_file(&dir));
+        return Err(
+            Error::input("output folder already exists; refusing to overwrite results (pass --force to replace it)").with_file(&dir)
+        );
     }
     let pool = {
         let mut b = rayon::ThreadPoolBuilder::new();

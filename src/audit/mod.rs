@@ -29,8 +29,8 @@ use crate::attack::file::{builtin_catalogue, parse as parse_attack, AttackFile, 
 use crate::attack::Value;
 use crate::error::{Error, Result};
 use crate::eval::{evaluate, EvalOptions, Evaluation};
-use crate::setup::Setup;
 use crate::rules::KeyRule;
+use crate::setup::Setup;
 use crate::sim::link::LinkModel;
 use crate::sim::{sample_block, trial_rng, Sampler, SignalModel};
 use rayon::prelude::*;
@@ -245,18 +245,26 @@ fn parse_entry(t: &toml::Table, base: Option<&Path>, setup: &Setup) -> Result<At
     let label = match (&file, t.get("builtin").and_then(|v| v.as_str())) {
         (_, Some(name)) => name.to_string(),
         (AttackFile::Kraus(k), None) => k.name.clone(),
-        (AttackFile::Catalogue(_), None) => Path::new(&origin).file_stem().map(|s| s.to_string_lossy().into_owned()).unwrap_or_else(|| origin.clone()),
+        (AttackFile::Catalogue(_), None) => {
+            Path::new(&origin).file_stem().map(|s| s.to_string_lossy().into_owned()).unwrap_or_else(|| origin.clone())
+        }
     };
     let entry = AttackEntry { label, origin, text, file, sweep, params };
     // Build every point once now, so bad values are reported before any work.
     let weak_coherent = !setup.link.source.intensities().is_empty();
     if entry.file.is_link() && !weak_coherent {
-        return Err(Error::input_key("builtin", format!("`{}` is a link-level attack and needs a weak-coherent [source] in the setup", entry.label)));
+        return Err(Error::input_key(
+            "builtin",
+            format!("`{}` is a link-level attack and needs a weak-coherent [source] in the setup", entry.label),
+        ));
     }
     if !entry.file.is_link() && !weak_coherent && !setup.link.is_ideal_single_photon() {
         return Err(Error::input_key(
             "builtin",
-            format!("`{}`: a single-photon source on a lossy or imperfect link is not modelled; use a weak-coherent [source] or the ideal link", entry.label),
+            format!(
+                "`{}`: a single-photon source on a lossy or imperfect link is not modelled; use a weak-coherent [source] or the ideal link",
+                entry.label
+            ),
         ));
     }
     for (_, overrides) in entry.points() {
@@ -379,7 +387,13 @@ pub fn run(c: &Campaign, progress: &(dyn Fn() + Sync)) -> Result<Vec<PointResult
                 let model = LinkModel::new(&c.setup.link, Some(&attack), &basis_prob);
                 let exact = link_evaluation(&model, c.setup.protocol);
                 let note = model.note.clone();
-                (attack.name().to_string(), vec![("fraction".to_string(), Value::Num(attack.fraction()))], exact, PointModel::Link(model), note)
+                (
+                    attack.name().to_string(),
+                    vec![("fraction".to_string(), Value::Num(attack.fraction()))],
+                    exact,
+                    PointModel::Link(model),
+                    note,
+                )
             } else if weak_coherent {
                 let attack = entry.file.attack(overrides).map_err(|e| e.with_file(&entry.origin))?;
                 let qubit = evaluate(&attack, &EvalOptions::fast(c.setup.protocol))?;

@@ -104,7 +104,13 @@ fn eve_information(c: &Campaign, results: &[PointResult]) -> Result<String> {
                 .label(label)
                 .legend(move |(x, y)| Circle::new((x + 10, y), 4, color.filled()));
         }
-        chart.configure_series_labels().position(SeriesLabelPosition::UpperLeft).background_style(WHITE.mix(0.9)).border_style(BLACK).draw().map_err(plot_err)?;
+        chart
+            .configure_series_labels()
+            .position(SeriesLabelPosition::UpperLeft)
+            .background_style(WHITE.mix(0.9))
+            .border_style(BLACK)
+            .draw()
+            .map_err(plot_err)?;
         root.present().map_err(plot_err)?;
     }
     Ok(svg)
@@ -128,13 +134,21 @@ fn abort_leak(pts: &[&PointResult]) -> Result<String> {
             .map_err(plot_err)?;
         chart.configure_mesh().x_desc(param.as_str()).y_desc("probability").draw().map_err(plot_err)?;
         for (name, color, get) in [
-            ("abort probability", COLORS[0], (|r: &PointResult| (r.stats.abort_probability, r.stats.abort_ci)) as fn(&PointResult) -> (f64, (f64, f64))),
+            (
+                "abort probability",
+                COLORS[0],
+                (|r: &PointResult| (r.stats.abort_probability, r.stats.abort_ci)) as fn(&PointResult) -> (f64, (f64, f64)),
+            ),
             ("leak probability", COLORS[3], |r: &PointResult| (r.stats.leak_probability, r.stats.leak_ci)),
         ] {
-            let series: Vec<(f64, f64, (f64, f64))> = pts.iter().zip(&xs).map(|(r, &x)| {
-                let (p, ci) = get(r);
-                (x, p, ci)
-            }).collect();
+            let series: Vec<(f64, f64, (f64, f64))> = pts
+                .iter()
+                .zip(&xs)
+                .map(|(r, &x)| {
+                    let (p, ci) = get(r);
+                    (x, p, ci)
+                })
+                .collect();
             chart
                 .draw_series(LineSeries::new(series.iter().map(|&(x, p, _)| (x, p)), color.stroke_width(2)))
                 .map_err(plot_err)?
@@ -144,7 +158,13 @@ fn abort_leak(pts: &[&PointResult]) -> Result<String> {
                 .draw_series(series.iter().map(|&(x, _, (a, b))| PathElement::new(vec![(x, a), (x, b)], color.mix(0.6))))
                 .map_err(plot_err)?;
         }
-        chart.configure_series_labels().position(SeriesLabelPosition::MiddleRight).background_style(WHITE.mix(0.9)).border_style(BLACK).draw().map_err(plot_err)?;
+        chart
+            .configure_series_labels()
+            .position(SeriesLabelPosition::MiddleRight)
+            .background_style(WHITE.mix(0.9))
+            .border_style(BLACK)
+            .draw()
+            .map_err(plot_err)?;
         root.present().map_err(plot_err)?;
     }
     Ok(svg)
@@ -183,7 +203,13 @@ pub fn keyrate_svg(rows: &[crate::keyrate::RateRow], rules: &[crate::keyrate::Li
                 .label(rule.name())
                 .legend(move |(x, y)| PathElement::new(vec![(x, y), (x + 20, y)], color.stroke_width(2)));
         }
-        chart.configure_series_labels().position(SeriesLabelPosition::UpperRight).background_style(WHITE.mix(0.9)).border_style(BLACK).draw().map_err(plot_err)?;
+        chart
+            .configure_series_labels()
+            .position(SeriesLabelPosition::UpperRight)
+            .background_style(WHITE.mix(0.9))
+            .border_style(BLACK)
+            .draw()
+            .map_err(plot_err)?;
         root.present().map_err(plot_err)?;
     }
     Ok(svg)

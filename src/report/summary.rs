@@ -21,7 +21,10 @@ fn link_text(l: &crate::link::Link) -> String {
         Source::SinglePhoton => "single photons".to_string(),
         Source::WeakCoherent { intensity, decoys, .. } => {
             let d: Vec<String> = decoys.iter().map(|(m, _)| format!("{m}")).collect();
-            format!("weak coherent pulses μ = {intensity}{}", if d.is_empty() { String::new() } else { format!(", decoys {}", d.join(", ")) })
+            format!(
+                "weak coherent pulses μ = {intensity}{}",
+                if d.is_empty() { String::new() } else { format!(", decoys {}", d.join(", ")) }
+            )
         }
     };
     format!(
@@ -56,7 +59,11 @@ pub fn render(c: &Campaign, results: &[PointResult]) -> String {
         link_text(&setup.link)
     );
     if leaks.is_empty() {
-        let _ = writeln!(s, "**Verdict: no leak found.** No trial at any of the {} attack points extracted more key than the attack leaves secret.\n", results.len());
+        let _ = writeln!(
+            s,
+            "**Verdict: no leak found.** No trial at any of the {} attack points extracted more key than the attack leaves secret.\n",
+            results.len()
+        );
     } else {
         let _ = writeln!(
             s,
@@ -80,7 +87,10 @@ pub fn render(c: &Campaign, results: &[PointResult]) -> String {
              proof when that rule is a proven one (`finite-uncertainty`, `game-min-entropy`, `gllp-no-decoy`, `decoy-finite`).\n"
         );
     }
-    let _ = writeln!(s, "Verdicts per trial: `aborted`, `no-key`, `secure` (ℓ ≤ achievable), `inconclusive`, `leak` (ℓ > capacity + 2 log₂ n).\n");
+    let _ = writeln!(
+        s,
+        "Verdicts per trial: `aborted`, `no-key`, `secure` (ℓ ≤ achievable), `inconclusive`, `leak` (ℓ > capacity + 2 log₂ n).\n"
+    );
     let mut groups: Vec<(usize, crate::rules::KeyRule)> = results.iter().map(|r| (r.entry, r.rule)).collect();
     groups.dedup();
     for (e, rule) in groups {
@@ -106,7 +116,8 @@ pub fn render(c: &Campaign, results: &[PointResult]) -> String {
         if let Some(r) = pts.iter().find(|r| !r.note.is_empty()) {
             let _ = writeln!(s, "Note: {}.\n", r.note);
         }
-        let not_caught = pts.iter().filter(|r| r.stats.abort_probability <= 0.5).max_by(|a, b| a.exact.holevo_z.total_cmp(&b.exact.holevo_z));
+        let not_caught =
+            pts.iter().filter(|r| r.stats.abort_probability <= 0.5).max_by(|a, b| a.exact.holevo_z.total_cmp(&b.exact.holevo_z));
         match not_caught {
             Some(r) => {
                 let _ = writeln!(

@@ -67,8 +67,10 @@ impl Decoy {
     fn vacuum_single(&self, det: [f64; 3], eps: f64) -> (f64, f64) {
         let total: f64 = det.iter().sum();
         let [m1, m2, m3] = self.mu;
-        let s0 = (self.tau0 * (m2 * self.bound(2, det[2], total, eps, -1.0) - m3 * self.bound(1, det[1], total, eps, 1.0)) / (m2 - m3)).max(0.0);
-        let s1 = self.tau1 * m1
+        let s0 =
+            (self.tau0 * (m2 * self.bound(2, det[2], total, eps, -1.0) - m3 * self.bound(1, det[1], total, eps, 1.0)) / (m2 - m3)).max(0.0);
+        let s1 = self.tau1
+            * m1
             * (self.bound(1, det[1], total, eps, -1.0)
                 - self.bound(2, det[2], total, eps, 1.0)
                 - (m2 * m2 - m3 * m3) / (m1 * m1) * (self.bound(0, det[0], total, eps, 1.0) - s0 / self.tau0))

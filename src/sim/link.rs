@@ -74,7 +74,11 @@ impl LinkModel {
                 m
             })
             .collect();
-        let note = if matched { String::new() } else { "the attack cannot reach the honest signal gain over a lossless line (Eve forwards every pulse)".into() };
+        let note = if matched {
+            String::new()
+        } else {
+            "the attack cannot reach the honest signal gain over a lossless line (Eve forwards every pulse)".into()
+        };
         LinkModel { intensities, models, basis_prob: basis_prob.to_vec(), note }
     }
 
