@@ -235,3 +235,33 @@ fn single_photon_attacks_on_weak_pulses_match_the_gain_and_never_break_decoy_rul
         }
     }
 }
+
+#[test]
+fn finite_decoy_rule_approaches_the_asymptotic_decoy_bound_for_huge_blocks() {
+    // With expected counts and a block of 10¹⁶ pulses, the finite-size terms vanish, so the
+    // finite rule's key per key bit must come within a few per cent of the asymptotic
+    // vacuum + weak rule's (both bound the same single-photon yield and error; Ma et al.
+    // 2005 and Lim et al. 2014 use slightly different decoy inequalities).
+    use qkd_audit::rules::{BlockStats, IntensityObs};
+    let s = Setup { test_sample: TestSample::Fraction(0.0), ..setup(KeyRule::DecoyFinite, 10.0, 10_000_000_000_000_000) };
+    let model = LinkModel::new(&s.link, None, &s.basis_probabilities());
+    let n_pulses = s.signals as f64;
+    let mut obs = IntensityObs { count: 3, ..IntensityObs::default() };
+    let (pz, px) = (0.7f64 * 0.7, 0.3f64 * 0.3);
+    for (k, (mu, p)) in s.link.source.intensities().into_iter().enumerate() {
+        obs.mu[k] = mu;
+        obs.probability[k] = p;
+        obs.pulses[k] = (n_pulses * p) as u64;
+        obs.detections[k] = (n_pulses * p * model.gain(k)) as u64;
+        obs.z_detections[k] = (n_pulses * p * model.gain(k) * pz) as u64;
+        obs.x_detections[k] = (n_pulses * p * model.gain(k) * px) as u64;
+        obs.x_errors[k] = (obs.x_detections[k] as f64 * model.error_rate(k)) as u64;
+    }
+    let stats =
+        BlockStats { n: obs.z_detections[0], k: obs.x_detections[0], m: 0, e_z: f64::NAN, e_x: model.error_rate(0), link: Some(obs) };
+    let finite = KeyRule::DecoyFinite.length(&stats, &s).raw_bits / stats.n as f64;
+    let asymptotic =
+        KeyRule::DecoyVacuumWeak.length(&stats, &Setup { key_rule: KeyRule::DecoyVacuumWeak, ..s.clone() }).raw_bits / stats.n as f64;
+    assert!(finite > 0.0 && asymptotic > 0.0, "{finite} {asymptotic}");
+    assert!(finite <= asymptotic * 1.05 && finite >= asymptotic * 0.9, "finite {finite} vs asymptotic {asymptotic}");
+}
