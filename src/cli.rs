@@ -37,8 +37,8 @@ pub enum Command {
     /// Run a finite-key audit campaign and write the attack-versus-bound table
     /// (without a file: the built-in demo campaign).
     Run(crate::audit::cli::RunArgs),
-    /// Write the round-by-round transcript of one small block as CSV.
-    Transcript(crate::audit::cli::TranscriptArgs),
+    /// Write the round-by-round log of one small block as CSV.
+    Rounds(crate::audit::cli::RoundsArgs),
     /// Asymptotic key rate per pulse against distance for the weak-pulse rules, and each
     /// rule's maximum distance.
     Keyrate(KeyrateArgs),
@@ -395,7 +395,7 @@ pub fn run(cli: Cli) -> Result<Outcome> {
         Command::Thresholds(a) => cmd_thresholds(a),
         Command::Validate(a) => cmd_validate(a),
         Command::Run(a) => crate::audit::cli::cmd_run(a),
-        Command::Transcript(a) => crate::audit::cli::cmd_transcript(a),
+        Command::Rounds(a) => crate::audit::cli::cmd_rounds(a),
         Command::Keyrate(a) => cmd_keyrate(a),
         Command::Hunt(a) => cmd_hunt(a),
     }

@@ -309,9 +309,9 @@ fn demo_campaign_runs_from_any_directory() {
 }
 
 #[test]
-fn transcript_lists_every_round() {
+fn round_log_lists_every_round() {
     let dir = tempfile::tempdir().unwrap();
-    let out = qkd(&["transcript", "--attack", "intercept-resend", "--signals", "500", "-o", "t.csv"], dir.path(), "1");
+    let out = qkd(&["rounds", "--attack", "intercept-resend", "--signals", "500", "-o", "t.csv"], dir.path(), "1");
     assert_eq!(out.status.code(), Some(0), "{}", String::from_utf8_lossy(&out.stderr));
     let text = std::fs::read_to_string(dir.path().join("t.csv")).unwrap();
     let mut lines = text.lines();

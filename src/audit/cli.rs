@@ -1,4 +1,4 @@
-//! The `run` and `transcript` subcommands.
+//! The `run` and `rounds` subcommands.
 
 use super::{point_count, run, Campaign};
 use crate::attack::Attack;
@@ -106,9 +106,9 @@ pub fn cmd_run(a: RunArgs) -> Result<Outcome> {
     Ok(if leaks > 0 { Outcome::Findings } else { Outcome::Clean })
 }
 
-/// Options of `transcript`.
+/// Options of `rounds`.
 #[derive(clap::Args, Debug)]
-pub struct TranscriptArgs {
+pub struct RoundsArgs {
     /// Built-in attack family.
     #[arg(long, conflicts_with = "attack_file", required_unless_present = "attack_file")]
     pub attack: Option<String>,
@@ -135,8 +135,8 @@ pub struct TranscriptArgs {
     pub force: bool,
 }
 
-/// Runs `qkd-audit transcript`: the round-by-round transcript of one block (per-round sampler).
-pub fn cmd_transcript(a: TranscriptArgs) -> Result<Outcome> {
+/// Runs `qkd-audit rounds`: the round-by-round log of one block (per-round sampler).
+pub fn cmd_rounds(a: RoundsArgs) -> Result<Outcome> {
     if a.signals == 0 || a.signals > 1_000_000 {
         return Err(Error::input_key("--signals", format!("{} is outside [1, 1000000]", a.signals)));
     }

@@ -6,7 +6,7 @@
 //! samplers draw whole blocks from it and must agree in distribution:
 //! [`count`] (multinomial, binomial and hypergeometric draws; cost independent of the block
 //! size; the default) and [`round`] (an alias table, one draw per signal; can also write
-//! the transcript of a small block). Both return [`BlockCounts`].
+//! the round log of a small block). Both return [`BlockCounts`].
 //!
 //! Test sample: a uniformly random subset of the sifted Z rounds of the configured size m is
 //! disclosed. Rounds are i.i.d. and hence exchangeable, so the per-round sampler may take

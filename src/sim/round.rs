@@ -1,6 +1,6 @@
 //! Per-round block sampler: one draw per signal from an alias table (Walker 1977, Vose
 //! 1991) over the full joint distribution (Alice's basis, Bob's basis, Alice's bit, Bob's
-//! outcome, Eve's guess). Optionally reports every round, for transcripts of small blocks.
+//! outcome, Eve's guess). Optionally reports every round, for round logs of small blocks.
 //!
 //! A draw uses one 64-bit random number u: the high word of the 128-bit product u·K picks
 //! a column uniformly and the low word (the fractional part, uniform on 64 bits) is
@@ -12,7 +12,7 @@ use rand::RngCore;
 use rand_chacha::ChaCha8Rng;
 use serde::Serialize;
 
-/// One round of a transcript.
+/// One round of a round log.
 #[derive(Clone, Debug, PartialEq, Eq, Serialize)]
 pub struct RoundRecord {
     /// Round number, from 0.
@@ -90,13 +90,13 @@ impl RoundSampler {
     /// Draws a block of `signals` rounds. The first `test_size(sifted_z)` sifted Z rounds
     /// form the test sample; since `sifted_z` is known only at the end, the rounds are
     /// first tallied and the test sample is then taken as the first `m` sifted Z rounds
-    /// of the stored sequence of Z cells. With `transcript`, every round is reported.
+    /// of the stored sequence of Z cells. With `log`, every round is reported.
     pub fn sample(
         &self,
         signals: u64,
         test_size: &dyn Fn(u64) -> u64,
         rng: &mut ChaCha8Rng,
-        mut transcript: Option<&mut dyn FnMut(RoundRecord)>,
+        mut log: Option<&mut dyn FnMut(RoundRecord)>,
     ) -> BlockCounts {
         let mut out = BlockCounts { signals, ..BlockCounts::default() };
         let mut tally = [[0u64; 4]; 3];
@@ -111,7 +111,7 @@ impl RoundSampler {
                     z_categories.push(cat);
                 }
             }
-            if transcript.is_some() {
+            if log.is_some() {
                 let c = c as usize;
                 records.push(RoundRecord {
                     round,
@@ -140,7 +140,7 @@ impl RoundSampler {
         for &c in &z_categories[..m] {
             out.key[c as usize] -= 1;
         }
-        if let Some(f) = transcript.as_mut() {
+        if let Some(f) = log.as_mut() {
             let mut seen = 0usize;
             for mut r in records {
                 if r.role == "key" {
