@@ -130,8 +130,17 @@ fn conditional(attack: &Attack, psi: &CVec) -> Conditional {
     let mut b = [zero; 3]; // <0|ρ_B|0>, <1|ρ_B|1>, <0|ρ_B|1>
     let mut rho_e = CMat::zeros(d, d);
     let mut sigma_right = CMat::zeros(d, d);
-    let mut v = vec![zero; 2 * d];
-    let mut w = vec![zero; d];
+    // Scratch on the stack for eve_dim ≤ 8, on the heap beyond.
+    let mut v_buf = [zero; 16];
+    let mut w_buf = [zero; 8];
+    let (mut v_heap, mut w_heap);
+    let (v, w): (&mut [C64], &mut [C64]) = if d <= 8 {
+        (&mut v_buf[..2 * d], &mut w_buf[..d])
+    } else {
+        v_heap = vec![zero; 2 * d];
+        w_heap = vec![zero; d];
+        (&mut v_heap[..], &mut w_heap[..])
+    };
     for k in ops {
         // v = K ψ (K is stored column-major, 2d × 2).
         let ks = k.as_slice();
@@ -187,7 +196,7 @@ struct BasisStats {
     holevo: f64,
     game: f64,
     eve: [CMat; 2],
-    joint_ab: Vec<Vec<f64>>,
+    joint_ab: [[f64; 2]; 2],
 }
 
 fn basis_stats(attack: &Attack, basis: Basis, s_avg: f64) -> BasisStats {
@@ -197,7 +206,7 @@ fn basis_stats(attack: &Attack, basis: Basis, s_avg: f64) -> BasisStats {
 fn basis_stats_from(basis: Basis, cond: [Conditional; 2], s_avg: f64) -> BasisStats {
     let kets = [basis.ket(0), basis.ket(1)];
     let mut qber = 0.0;
-    let mut joint_ab = vec![vec![0.0; 2]; 2];
+    let mut joint_ab = [[0.0; 2]; 2];
     for x in 0..2 {
         let ([r00, r11], r01) = cond[x].rho_b;
         for (b, ket) in kets.iter().enumerate() {

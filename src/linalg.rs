@@ -107,8 +107,10 @@ pub fn hermitian_eigenvalues(m: &CMat) -> Vec<f64> {
             v.sort_by(|x, y| x.total_cmp(y));
             v
         }
-        3 => sorted(nalgebra::Matrix3::<C64>::from_fn(|i, j| m[(i, j)]).symmetric_eigenvalues().iter().copied().collect()),
-        4 => sorted(nalgebra::Matrix4::<C64>::from_fn(|i, j| m[(i, j)]).symmetric_eigenvalues().iter().copied().collect()),
+        n if n <= SMALL_MAX => {
+            let (vals, n) = small_hermitian_eigenvalues(m);
+            sorted(vals[..n].to_vec())
+        }
         _ => sorted(m.clone().symmetric_eigenvalues().iter().copied().collect()),
     }
 }
@@ -141,9 +143,153 @@ pub fn hermitian_spectral_sum(m: &CMat, f: impl Fn(f64) -> f64) -> f64 {
             f(mean - r) + f(mean + r)
         }
         n if is_diagonal(m) => (0..n).map(|i| f(m[(i, i)].re)).sum(),
-        3 => nalgebra::Matrix3::<C64>::from_fn(|i, j| m[(i, j)]).symmetric_eigenvalues().iter().map(|&x| f(x)).sum(),
-        4 => nalgebra::Matrix4::<C64>::from_fn(|i, j| m[(i, j)]).symmetric_eigenvalues().iter().map(|&x| f(x)).sum(),
+        n if n <= SMALL_MAX => {
+            let (vals, n) = small_hermitian_eigenvalues(m);
+            vals[..n].iter().map(|&x| f(x)).sum()
+        }
         _ => hermitian_eigenvalues(m).into_iter().map(f).sum(),
+    }
+}
+
+/// Largest dimension handled by the stack-allocated solver.
+const SMALL_MAX: usize = 8;
+
+/// Eigenvalues (unsorted) of a Hermitian matrix of dimension ≤ 8, on the stack:
+/// Householder reduction to a Hermitian tridiagonal matrix, whose spectrum equals that of
+/// the real symmetric tridiagonal matrix with the moduli of its off-diagonal, then the
+/// implicit QL iteration with Wilkinson-type shifts (Golub & Van Loan, Matrix Computations,
+/// §8.3; the QL form as in Bowdler, Martin, Reinsch, Wilkinson, Numer. Math. 11, 293, 1968).
+/// Reads the lower triangle.
+fn small_hermitian_eigenvalues(m: &CMat) -> ([f64; SMALL_MAX], usize) {
+    let n = m.nrows();
+    let zero = C64::new(0.0, 0.0);
+    let mut a = [[zero; SMALL_MAX]; SMALL_MAX];
+    for i in 0..n {
+        for j in 0..=i {
+            a[i][j] = m[(i, j)];
+            a[j][i] = m[(i, j)].conj();
+        }
+        a[i][i].im = 0.0;
+    }
+    // Householder: zero column k below the subdiagonal, for k = 0..n-3.
+    for k in 0..n.saturating_sub(2) {
+        let norm2: f64 = (k + 1..n).map(|i| a[i][k].norm_sqr()).sum();
+        let tail: f64 = (k + 2..n).map(|i| a[i][k].norm_sqr()).sum();
+        if tail == 0.0 {
+            continue;
+        }
+        let norm = norm2.sqrt();
+        let x0 = a[k + 1][k];
+        let phase = if x0.norm() > 0.0 { x0 / x0.norm() } else { C64::new(1.0, 0.0) };
+        let alpha = -phase * norm;
+        let mut v = [zero; SMALL_MAX];
+        for i in k + 1..n {
+            v[i] = a[i][k];
+        }
+        v[k + 1] -= alpha;
+        let vnorm2: f64 = (k + 1..n).map(|i| v[i].norm_sqr()).sum();
+        if vnorm2 == 0.0 {
+            continue;
+        }
+        let beta = 2.0 / vnorm2;
+        // A ← H A H with H = 1 − β v v†, using w = β A v, K = ½β v†w, q = w − K v:
+        // A ← A − v q† − q v†.
+        // Only rows and columns k.. change: earlier ones are already reduced.
+        let mut w = [zero; SMALL_MAX];
+        for i in k..n {
+            let mut sum = zero;
+            for j in k + 1..n {
+                sum += a[i][j] * v[j];
+            }
+            w[i] = sum * beta;
+        }
+        let mut kk = zero;
+        for i in k + 1..n {
+            kk += v[i].conj() * w[i];
+        }
+        kk *= 0.5 * beta;
+        let mut q = [zero; SMALL_MAX];
+        for i in k..n {
+            q[i] = w[i] - kk * v[i];
+        }
+        for i in k..n {
+            for j in k..n {
+                a[i][j] -= v[i] * q[j].conj() + q[i] * v[j].conj();
+            }
+        }
+    }
+    // Real symmetric tridiagonal: diagonal d, off-diagonal |e|.
+    let mut d = [0.0; SMALL_MAX];
+    let mut e = [0.0; SMALL_MAX];
+    for i in 0..n {
+        d[i] = a[i][i].re;
+        if i + 1 < n {
+            e[i] = a[i + 1][i].norm();
+        }
+    }
+    tridiagonal_ql(&mut d[..n], &mut e[..n]);
+    (d, n)
+}
+
+/// Eigenvalues of the real symmetric tridiagonal matrix with diagonal `d` and
+/// off-diagonal `e[0..n-1]` (`e[n-1]` is scratch), in place in `d`: implicit QL.
+fn tridiagonal_ql(d: &mut [f64], e: &mut [f64]) {
+    let n = d.len();
+    if n < 2 {
+        return;
+    }
+    e[n - 1] = 0.0;
+    for l in 0..n {
+        let mut iter = 0;
+        loop {
+            let mut m = l;
+            while m + 1 < n {
+                let dd = d[m].abs() + d[m + 1].abs();
+                if e[m].abs() <= f64::EPSILON * dd {
+                    break;
+                }
+                m += 1;
+            }
+            if m == l {
+                break;
+            }
+            iter += 1;
+            if iter > 60 {
+                break;
+            }
+            let mut g = (d[l + 1] - d[l]) / (2.0 * e[l]);
+            let mut r = (g * g + 1.0).sqrt();
+            g = d[m] - d[l] + e[l] / (g + if g >= 0.0 { r.abs() } else { -r.abs() });
+            let (mut s, mut c, mut p) = (1.0, 1.0, 0.0);
+            let mut i = m;
+            let mut early = false;
+            while i > l {
+                i -= 1;
+                let f = s * e[i];
+                let b = c * e[i];
+                r = (f * f + g * g).sqrt();
+                e[i + 1] = r;
+                if r == 0.0 {
+                    d[i + 1] -= p;
+                    e[m] = 0.0;
+                    early = true;
+                    break;
+                }
+                s = f / r;
+                c = g / r;
+                g = d[i + 1] - p;
+                r = (d[i] - g) * s + 2.0 * c * b;
+                p = s * r;
+                d[i + 1] = g + p;
+                g = c * r - b;
+            }
+            if early {
+                continue;
+            }
+            d[l] -= p;
+            e[l] = g;
+            e[m] = 0.0;
+        }
     }
 }
 
@@ -294,6 +440,51 @@ mod tests {
                 r += (col * col.adjoint()) * c(*lam, 0.0);
             }
             assert!(max_abs_diff(&r, &m) < 1e-10);
+        }
+    }
+
+    #[test]
+    fn small_solver_agrees_with_the_general_one_including_degenerate_spectra() {
+        let general = |m: &CMat| sorted(m.clone().symmetric_eigenvalues().iter().copied().collect());
+        let small = |m: &CMat| {
+            let (v, n) = small_hermitian_eigenvalues(m);
+            sorted(v[..n].to_vec())
+        };
+        let mut rng = <rand_chacha::ChaCha8Rng as rand::SeedableRng>::seed_from_u64(99);
+        for n in 3..=8 {
+            for seed in 0..30 {
+                let m = rand_herm(n, 1000 + seed + 37 * n as u64);
+                let (a, b) = (general(&m), small(&m));
+                for (x, y) in a.iter().zip(&b) {
+                    assert!((x - y).abs() < 1e-12, "n = {n}: {a:?} vs {b:?}");
+                }
+            }
+            // Degenerate: rotated projector of rank 2 and a rotated multiple of the identity.
+            let u = crate::channel::KrausChannel::random_isometry(n, n, &mut rng);
+            let mut diag = vec![c(0.0, 0.0); n];
+            diag[0] = c(0.5, 0.0);
+            diag[1] = c(0.5, 0.0);
+            let p = &u * CMat::from_diagonal(&CVec::from_vec(diag)) * u.adjoint();
+            for (x, y) in general(&p).iter().zip(&small(&p)) {
+                assert!((x - y).abs() < 1e-13, "degenerate n = {n}");
+            }
+            let id = &u * CMat::identity(n, n) * c(0.25, 0.0) * u.adjoint();
+            for y in small(&id) {
+                assert!((y - 0.25).abs() < 1e-14);
+            }
+            // Tridiagonal already (no Householder step needed) and zero.
+            let mut t = CMat::zeros(n, n);
+            for i in 0..n {
+                t[(i, i)] = c(i as f64, 0.0);
+                if i + 1 < n {
+                    t[(i + 1, i)] = c(0.3, 0.1);
+                    t[(i, i + 1)] = c(0.3, -0.1);
+                }
+            }
+            for (x, y) in general(&t).iter().zip(&small(&t)) {
+                assert!((x - y).abs() < 1e-12);
+            }
+            assert!(small(&CMat::zeros(n, n)).iter().all(|x| *x == 0.0));
         }
     }
 

@@ -38,12 +38,12 @@ pub fn shannon_entropy(p: &[f64]) -> f64 {
 
 /// Mutual information `I(A:B) = H(A) + H(B) − H(AB)` of a joint distribution given as
 /// rows (A) by columns (B), in bits.
-pub fn mutual_information(joint: &[Vec<f64>]) -> f64 {
-    let cols = joint.first().map_or(0, |r| r.len());
-    let pa: Vec<f64> = joint.iter().map(|r| r.iter().sum()).collect();
-    let pb: Vec<f64> = (0..cols).map(|j| joint.iter().map(|r| r[j]).sum()).collect();
-    let pab: Vec<f64> = joint.iter().flatten().copied().collect();
-    shannon_entropy(&pa) + shannon_entropy(&pb) - shannon_entropy(&pab)
+pub fn mutual_information<R: AsRef<[f64]>>(joint: &[R]) -> f64 {
+    let cols = joint.first().map_or(0, |r| r.as_ref().len());
+    let h_a: f64 = joint.iter().map(|r| xlog(r.as_ref().iter().sum())).sum();
+    let h_b: f64 = (0..cols).map(|j| xlog(joint.iter().map(|r| r.as_ref()[j]).sum())).sum();
+    let h_ab: f64 = joint.iter().flat_map(|r| r.as_ref().iter()).map(|&p| xlog(p)).sum();
+    h_a + h_b - h_ab
 }
 
 /// Von Neumann entropy `S(ρ) = −Tr ρ log₂ ρ` of a density matrix, in bits. Eigenvalues at
