@@ -148,10 +148,12 @@ pub struct Accessible {
 /// 054303, 2005). A start stops when its Riemannian gradient norm falls below `grad_tol`
 /// or `window` steps gain less than `gain_tol` in total.
 ///
-/// Starts: the eigenbasis of `p₀ρ₀ − p₁ρ₁` (a refinement of the Helstrom measurement, so the
-/// result is never below the Helstrom measurement's information), the eigenbasis of a
-/// generic combination `Σ (i+π)ρᵢ` (the common eigenbasis when the states commute, where
-/// the answer is the Holevo quantity), and `random_starts` random `d²`-outcome POVMs.
+/// Commuting states are measured directly in their common eigenbasis (the eigenbasis of a
+/// generic combination `Σ (i+π)ρᵢ`), which attains the Holevo quantity and is therefore
+/// optimal. Otherwise the starts are: the eigenbasis of `p₀ρ₀ − p₁ρ₁` (a refinement of the
+/// Helstrom measurement, so the result is never below the Helstrom measurement's
+/// information), the eigenbasis of the generic combination, and `random_starts` random
+/// `d²`-outcome POVMs.
 /// Ascent is monotone, and every value returned is achieved by the returned POVM, so it
 /// is a lower bound on the true maximum that is exact up to local maxima missed by all
 /// starts; the search stops early once it reaches the Holevo quantity, which no POVM
@@ -161,6 +163,21 @@ pub fn accessible_information(priors: &[f64], states: &[CMat], opts: &Accessible
     assert!(!states.is_empty(), "accessible_information: empty ensemble");
     let d = states[0].nrows();
     let chi = holevo_quantity(priors, states);
+    // Commuting states: measuring in a common eigenbasis attains the Holevo quantity, which
+    // no POVM exceeds, so that measurement is optimal (Holevo 1973). The eigenbasis of a
+    // generic combination of the states is a common one.
+    let mut generic = CMat::zeros(d, d);
+    for (i, rho) in states.iter().enumerate() {
+        generic += rho * c(i as f64 + std::f64::consts::PI, 0.0);
+    }
+    let commuting = states.iter().all(|a| states.iter().all(|b| crate::linalg::max_abs_diff(&(a * b), &(b * a)) < 1e-13));
+    if commuting {
+        let povm = eigen_columns(&generic);
+        let bits = measured_information(priors, states, &povm);
+        if bits >= chi - opts.gain_tol {
+            return Ok(Accessible { bits, povm, iterations: 0, converged: true });
+        }
+    }
     let mut starts: Vec<Vec<CVec>> = Vec::new();
     // Start 1: eigenbasis of the Helstrom operator (or of ρ₀ for one state).
     let mut helstrom_op = states[0].clone() * c(priors[0], 0.0);
@@ -168,11 +185,7 @@ pub fn accessible_information(priors: &[f64], states: &[CMat], opts: &Accessible
         helstrom_op -= &states[1] * c(priors[1], 0.0);
     }
     starts.push(eigen_columns(&helstrom_op));
-    // Start 2: a generic combination, whose eigenbasis is common when the states commute.
-    let mut generic = CMat::zeros(d, d);
-    for (i, rho) in states.iter().enumerate() {
-        generic += rho * c(i as f64 + std::f64::consts::PI, 0.0);
-    }
+    // Start 2: the eigenbasis of a generic combination of the states.
     starts.push(eigen_columns(&generic));
     let mut rng = rand_chacha::ChaCha8Rng::seed_from_u64(opts.seed);
     for _ in 0..opts.random_starts {
