@@ -5,11 +5,16 @@
 //! 1. [`linalg`]: matrices, tolerances, tensor products, partial traces, eigen-solves;
 //! 2. [`state`], [`channel`]: validated density matrices, Kraus channels;
 //! 3. [`measures`]: entropies, trace norm, Helstrom, Holevo, accessible information;
-//! 4. [`protocol`]: BB84 and six-state signal states;
-//! 5. [`attack`]: the attack catalogue and user Kraus attacks;
+//! 4. [`protocol`]: BB84 and six-state signal states; [`link`]: sources, loss, detectors;
+//! 5. [`attack`]: the attack catalogue (single-photon families, link-level attacks) and user
+//!    Kraus attacks;
 //! 6. [`bounds`]: security bounds and thresholds; [`eval`]: the exact per-attack evaluator;
 //!    [`thresholds`]: threshold table; [`sweep`]: parameter sweeps and their CSV;
-//! 7. [`output`]: safe file writing.
+//!    [`keyrate`]: asymptotic weak-pulse key rates; [`hunt`], [`game`]: searches for the
+//!    strongest attack;
+//! 7. [`setup`]: the system under test; [`rules`]: key-length rules; [`sim`]: Monte Carlo
+//!    samplers; [`audit`]: campaigns, trials and verdicts; [`report`]: output files;
+//! 8. [`output`]: safe file writing; [`cli`]: the command line.
 
 pub mod attack;
 pub mod audit;
