@@ -229,6 +229,15 @@ fn basis_stats_from(basis: Basis, cond: [Conditional; 2], s_avg: f64) -> BasisSt
 /// Evaluates `attack` exactly. Returns a [`ErrorKind::BoundViolation`] error when a proven
 /// inequality fails by more than [`BOUND_SLACK`].
 pub fn evaluate(attack: &Attack, opts: &EvalOptions) -> Result<Evaluation> {
+    let eval = evaluate_unchecked(attack, opts)?;
+    check_bounds(&attack.label, &eval)?;
+    Ok(eval)
+}
+
+/// Evaluates `attack` without checking the proven inequalities, for searches that must
+/// see and report a violation rather than stop at it (attack hunting). Use [`evaluate`]
+/// everywhere else.
+pub fn evaluate_unchecked(attack: &Attack, opts: &EvalOptions) -> Result<Evaluation> {
     let d = attack.eve_dim;
     // Eve's state averaged over Alice's bit is the same in every basis (the average input
     // is 1/2 in each), so its entropy is computed once, from the Z-basis conditionals.
@@ -282,7 +291,6 @@ pub fn evaluate(attack: &Attack, opts: &EvalOptions) -> Result<Evaluation> {
         eve_dim: d,
         protocol: opts.protocol,
     };
-    check_bounds(&attack.label, &eval)?;
     Ok(eval)
 }
 

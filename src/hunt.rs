@@ -29,7 +29,7 @@
 use crate::attack::Attack;
 use crate::bounds::{fggnp_information, game_bound, six_state_weights};
 use crate::error::{Error, Result};
-use crate::eval::{evaluate, EvalOptions, Evaluation};
+use crate::eval::{evaluate_unchecked, EvalOptions, Evaluation};
 use crate::linalg::{c, orthonormal_columns, CMat, Tolerance};
 use crate::measures::{binary_entropy, shannon_entropy, AccessibleOptions};
 use crate::protocol::Protocol;
@@ -213,10 +213,11 @@ struct Penalized {
 impl Penalized {
     fn value(&self, x: &[f64]) -> f64 {
         let a = attack_of(x, self.eve_dim);
-        // Bound checks are the hunt's business here: evaluate without failing on them.
-        let e = match evaluate(&a, &EvalOptions::fast(self.protocol)) {
+        // Bound checks are the hunt's business here: evaluate without failing on them, so a
+        // violation is found, saved and reported rather than stopping the search.
+        let e = match evaluate_unchecked(&a, &EvalOptions::fast(self.protocol)) {
             Ok(e) => e,
-            Err(err) => panic!("hunted attack failed to evaluate: {err}"),
+            Err(_) => return f64::INFINITY,
         };
         let mut pen = 0.0;
         let mut qs = vec![e.qber_z, e.qber_x];
@@ -310,7 +311,7 @@ pub fn hunt(opts: &HuntOptions, qs: &[f64]) -> Result<Vec<HuntPoint>> {
                     } else {
                         EvalOptions::fast(opts.protocol)
                     };
-                    let e = evaluate(&a, &eval_opts)?;
+                    let e = evaluate_unchecked(&a, &eval_opts)?;
                     let value = match opts.objective {
                         Objective::Accessible => e.accessible_z.unwrap_or(f64::NAN),
                         o => objective_value(o, &e),

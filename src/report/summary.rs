@@ -2,7 +2,7 @@
 //! points, the strongest point that is not caught, and the abort and leak figures.
 //!
 //! "Not caught" means the protocol aborted in at most half of the trials; "strongest"
-//! means the largest Holevo information of Eve about a key bit among those points.
+//! means the largest information of Eve about a key bit, 1 − H(X|E), among those points.
 
 use crate::audit::{Campaign, PointResult};
 use std::fmt::Write;
@@ -122,7 +122,7 @@ pub fn render(c: &Campaign, results: &[PointResult]) -> String {
             Some(r) => {
                 let _ = writeln!(
                     s,
-                    "Strongest point not caught: {} (QBER_Z {:.4}, QBER_X {:.4}, Eve's Holevo information {:.4} bits per key bit); \
+                    "Strongest point not caught: {} (QBER_Z {:.4}, QBER_X {:.4}, Eve's information 1 − H(X|E) = {:.4} bits per key bit); \
                      abort probability {} [{}, {}], leak probability {}, mean key {:.0} bits.\n",
                     r.swept.as_ref().map(|(p, v)| format!("{p} = {v}")).unwrap_or_else(|| "the only point".into()),
                     r.exact.qber_z,

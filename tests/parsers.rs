@@ -1,0 +1,100 @@
+//! Robustness of every input format: arbitrary text and mutated valid files never panic;
+//! they parse or give an error.
+
+use proptest::prelude::*;
+use proptest::test_runner::{Config, FileFailurePersistence, RngAlgorithm, TestRng, TestRunner};
+use qkd_audit::attack::file::{builtin_catalogue, parse};
+use qkd_audit::audit::{Campaign, DEMO_CAMPAIGNS};
+use qkd_audit::eval::{evaluate, EvalOptions};
+use qkd_audit::protocol::Protocol;
+use qkd_audit::setup::Setup;
+use std::collections::BTreeMap;
+
+fn runner(cases: u32, seed: u8) -> TestRunner {
+    let config = Config { cases, failure_persistence: Some(Box::new(FileFailurePersistence::Off)), ..Config::default() };
+    TestRunner::new_with_rng(config, TestRng::from_seed(RngAlgorithm::ChaCha, &[seed; 32]))
+}
+
+fn exercise(text: &str) {
+    if let Ok(file) = parse(text) {
+        let built = if file.is_link() { file.link_attack(&BTreeMap::new()).map(|_| ()) } else { file.attack(&BTreeMap::new()).map(|_| ()) };
+        if built.is_ok() && !file.is_link() {
+            let a = file.attack(&BTreeMap::new()).unwrap();
+            let _ = evaluate(&a, &EvalOptions::fast(Protocol::Bb84));
+        }
+    }
+    if let Ok(t) = text.parse::<toml::Table>() {
+        let _ = Setup::from_table(&t);
+    }
+    let _ = Campaign::parse(text, "fuzz", None);
+}
+
+/// Replaces the `index`-th number-like token of `text` with `replacement`.
+fn mutate(text: &str, index: usize, replacement: &str) -> String {
+    let mut out = String::new();
+    let mut count = 0;
+    let mut chars = text.char_indices().peekable();
+    let bytes = text.as_bytes();
+    while let Some((i, ch)) = chars.next() {
+        let starts_number = ch.is_ascii_digit() && (i == 0 || !(bytes[i - 1] as char).is_ascii_alphanumeric());
+        if starts_number {
+            let mut end = i + 1;
+            while let Some(&(j, c)) = chars.peek() {
+                if c.is_ascii_digit() || c == '.' || c == 'e' || c == '-' {
+                    end = j + c.len_utf8();
+                    chars.next();
+                } else {
+                    break;
+                }
+            }
+            if count == index {
+                out.push_str(replacement);
+            } else {
+                out.push_str(&text[i..end]);
+            }
+            count += 1;
+        } else {
+            out.push(ch);
+        }
+    }
+    out
+}
+
+#[test]
+fn arbitrary_text_never_panics() {
+    runner(2000, 1)
+        .run(&"\\PC{0,300}", |s| {
+            exercise(&s);
+            Ok(())
+        })
+        .unwrap();
+}
+
+#[test]
+fn mutated_valid_files_never_panic() {
+    let mut texts: Vec<String> = builtin_catalogue().iter().map(|(_, t)| t.to_string()).collect();
+    texts.push(include_str!("../attacks/custom-example.toml").to_string());
+    texts.extend(DEMO_CAMPAIGNS.iter().map(|(_, t)| t.to_string()));
+    let replacements = prop::sample::select(vec![
+        "-1",
+        "0",
+        "1e308",
+        "-1e308",
+        "nan",
+        "inf",
+        "1e-320",
+        "0.5",
+        "2",
+        "100000000000000000000",
+        "\"x\"",
+        "[]",
+        "3.7",
+    ]);
+    let strategy = (0..texts.len(), 0usize..40, replacements);
+    runner(1500, 2)
+        .run(&strategy, |(t, index, rep)| {
+            exercise(&mutate(&texts[t], index, rep));
+            Ok(())
+        })
+        .unwrap();
+}
