@@ -93,13 +93,8 @@ pub fn hermitian_eigenvalues(m: &CMat) -> Vec<f64> {
         0 => Vec::new(),
         1 => vec![m[(0, 0)].re],
         2 => {
-            // Closed form for 2×2 Hermitian matrices.
-            let a = m[(0, 0)].re;
-            let d = m[(1, 1)].re;
-            let b = (m[(1, 0)] + m[(0, 1)].conj()) * 0.5;
-            let mean = 0.5 * (a + d);
-            let r = (0.25 * (a - d) * (a - d) + b.norm_sqr()).sqrt();
-            vec![mean - r, mean + r]
+            let (lo, hi) = eigenvalues_2x2(m);
+            vec![lo, hi]
         }
         _ if is_diagonal(m) => {
             // Exactly diagonal (e.g. classical records): the diagonal is the spectrum.
@@ -135,12 +130,8 @@ pub fn hermitian_spectral_sum(m: &CMat, f: impl Fn(f64) -> f64) -> f64 {
         0 => 0.0,
         1 => f(m[(0, 0)].re),
         2 => {
-            let a = m[(0, 0)].re;
-            let d = m[(1, 1)].re;
-            let b = (m[(1, 0)] + m[(0, 1)].conj()) * 0.5;
-            let mean = 0.5 * (a + d);
-            let r = (0.25 * (a - d) * (a - d) + b.norm_sqr()).sqrt();
-            f(mean - r) + f(mean + r)
+            let (lo, hi) = eigenvalues_2x2(m);
+            f(lo) + f(hi)
         }
         n if is_diagonal(m) => (0..n).map(|i| f(m[(i, i)].re)).sum(),
         n if n <= SMALL_MAX => {
@@ -149,6 +140,16 @@ pub fn hermitian_spectral_sum(m: &CMat, f: impl Fn(f64) -> f64) -> f64 {
         }
         _ => hermitian_eigenvalues(m).into_iter().map(f).sum(),
     }
+}
+
+/// Closed-form eigenvalues (ascending) of a 2×2 Hermitian matrix.
+fn eigenvalues_2x2(m: &CMat) -> (f64, f64) {
+    let a = m[(0, 0)].re;
+    let d = m[(1, 1)].re;
+    let b = (m[(1, 0)] + m[(0, 1)].conj()) * 0.5;
+    let mean = 0.5 * (a + d);
+    let r = (0.25 * (a - d) * (a - d) + b.norm_sqr()).sqrt();
+    (mean - r, mean + r)
 }
 
 /// Largest dimension handled by the stack-allocated solver.

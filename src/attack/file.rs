@@ -220,22 +220,10 @@ fn parse_catalogue(t: &toml::Table) -> Result<AttackFile> {
         None => String::new(),
         Some(_) => return Err(Error::input_key("description", "must be a string")),
     };
-    let mut params = BTreeMap::new();
-    match t.get("params") {
-        None => {}
-        Some(toml::Value::Table(p)) => {
-            for (k, v) in p {
-                let value = match v {
-                    toml::Value::Float(x) => Value::Num(*x),
-                    toml::Value::Integer(i) => Value::Num(*i as f64),
-                    toml::Value::String(s) => Value::Text(s.clone()),
-                    _ => return Err(Error::input_key(format!("params.{k}"), "must be a number or a string")),
-                };
-                params.insert(k.clone(), value);
-            }
-        }
-        Some(_) => return Err(Error::input_key("params", "must be a table")),
-    }
+    let params = match t.get("params") {
+        None => BTreeMap::new(),
+        Some(v) => params_table(v)?,
+    };
     let sweep = match t.get("sweep") {
         None => None,
         Some(toml::Value::Table(s)) => Some(parse_sweep(s).map_err(|e| e.with_key("sweep"))?),
@@ -255,6 +243,22 @@ fn parse_catalogue(t: &toml::Table) -> Result<AttackFile> {
         }
     }
     Ok(AttackFile::Catalogue(CatalogueEntry { family, description, params, sweep }))
+}
+
+/// Parses a `params` table: each value a number or a keyword; errors name `params.<key>`.
+pub fn params_table(v: &toml::Value) -> Result<BTreeMap<String, Value>> {
+    let table = v.as_table().ok_or_else(|| Error::input_key("params", "must be a table"))?;
+    let mut params = BTreeMap::new();
+    for (k, v) in table {
+        let value = match v {
+            toml::Value::Float(x) => Value::Num(*x),
+            toml::Value::Integer(i) => Value::Num(*i as f64),
+            toml::Value::String(s) => Value::Text(s.clone()),
+            _ => return Err(Error::input_key(format!("params.{k}"), "must be a number or a string")),
+        };
+        params.insert(k.clone(), value);
+    }
+    Ok(params)
 }
 
 fn parse_sweep(s: &toml::Table) -> Result<Sweep> {

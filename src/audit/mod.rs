@@ -215,19 +215,10 @@ fn parse_entry(t: &toml::Table, base: Option<&Path>, setup: &Setup) -> Result<At
         _ => return Err(Error::input_key("builtin", "give exactly one of `builtin` (a catalogue name) and `file` (a path)")),
     };
     let file = parse_attack(&text).map_err(|mut errs| errs.remove(0).with_file(&origin))?;
-    let mut params = BTreeMap::new();
-    if let Some(p) = t.get("params") {
-        let p = p.as_table().ok_or_else(|| Error::input_key("params", "must be a table"))?;
-        for (k, v) in p {
-            let value = match v {
-                toml::Value::Float(x) => Value::Num(*x),
-                toml::Value::Integer(i) => Value::Num(*i as f64),
-                toml::Value::String(s) => Value::Text(s.clone()),
-                _ => return Err(Error::input_key(format!("params.{k}"), "must be a number or a string")),
-            };
-            params.insert(k.clone(), value);
-        }
-    }
+    let params = match t.get("params") {
+        None => BTreeMap::new(),
+        Some(v) => crate::attack::file::params_table(v)?,
+    };
     let mut sweep = file.sweep().cloned();
     for key in ["steps", "from", "to"] {
         if let Some(v) = t.get(key) {

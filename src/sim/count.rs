@@ -30,8 +30,8 @@ pub fn multinomial(n: u64, p: &[f64], rng: &mut impl Rng, out: &mut [u64]) {
     }
 }
 
-/// One binomial draw (0 when `n` = 0 or `p` = 0).
-fn binomial(n: u64, p: f64, rng: &mut impl Rng) -> u64 {
+/// One binomial draw (0 when `n` = 0 or `p` = 0, `n` when `p` = 1).
+pub fn binomial(n: u64, p: f64, rng: &mut impl Rng) -> u64 {
     if n == 0 || p <= 0.0 {
         return 0;
     }

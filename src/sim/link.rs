@@ -4,16 +4,14 @@
 //! detections (independent multinomials of sizes m and n_Z − m given n_Z, by
 //! exchangeability), by category (error, Eve's guess right).
 
-use super::count::multinomial;
+use super::count::{binomial, multinomial};
 use super::{BlockCounts, SignalModel, CELL_CATEGORY};
 use crate::attack::link_attack::{attacked, honest, qubit_on_single_photons, DetectionModel, LinkAttack};
 use crate::attack::Attack;
 use crate::link::Link;
 use crate::protocol::Protocol;
 use crate::rules::IntensityObs;
-use rand::Rng;
 use rand_chacha::ChaCha8Rng;
-use rand_distr::{Binomial, Distribution};
 
 /// The exact per-pulse statistics of a link under an attack (or none).
 #[derive(Clone, Debug, PartialEq)]
@@ -98,16 +96,6 @@ impl LinkModel {
     pub fn h_x_given_e(&self) -> f64 {
         self.models[0].h_x_given_e()
     }
-}
-
-fn binomial(n: u64, p: f64, rng: &mut impl Rng) -> u64 {
-    if n == 0 || p <= 0.0 {
-        return 0;
-    }
-    if p >= 1.0 {
-        return n;
-    }
-    Binomial::new(n, p).expect("probability in [0, 1]").sample(rng)
 }
 
 /// Draws one block of `signals` pulses.
