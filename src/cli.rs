@@ -144,7 +144,7 @@ pub struct KeyrateArgs {
 
 fn cmd_keyrate(a: KeyrateArgs) -> Result<Outcome> {
     use crate::keyrate::{max_distance, rate_table, LinkRule, RateParams};
-    use crate::link::{Link, Source};
+    use crate::link::Link;
     crate::error::check_range("--sifting", a.sifting, 1e-6, 1.0)?;
     crate::error::check_range("--from-km", a.from_km, 0.0, 1000.0)?;
     crate::error::check_range("--to-km", a.to_km, a.from_km, 1000.0)?;
@@ -162,18 +162,7 @@ fn cmd_keyrate(a: KeyrateArgs) -> Result<Outcome> {
             }
             (s.link, s.ec_efficiency)
         }
-        None => (
-            Link {
-                source: Source::WeakCoherent { intensity: 0.48, probability: 0.9, decoys: vec![(0.05, 0.05), (0.0, 0.05)] },
-                channel_loss_db: 0.0,
-                length_km: Some(0.0),
-                attenuation_db_per_km: Some(0.21),
-                detector_efficiency: 0.045,
-                dark_count_probability: 1.7e-6,
-                misalignment: 0.033,
-            },
-            1.22,
-        ),
+        None => (Link::reference_parameter_set(), 1.22),
     };
     if link.attenuation_db_per_km.is_none() {
         return Err(Error::input_key(

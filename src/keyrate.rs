@@ -211,19 +211,10 @@ pub fn rate_table(link: &Link, distances: &[f64], rules: &[LinkRule], mu: Option
 #[cfg(test)]
 mod tests {
     use super::*;
-    use crate::link::Source;
     use approx::assert_relative_eq;
 
     fn gys() -> Link {
-        Link {
-            source: Source::WeakCoherent { intensity: 0.48, probability: 1.0, decoys: vec![] },
-            channel_loss_db: 0.0,
-            length_km: Some(0.0),
-            attenuation_db_per_km: Some(0.21),
-            detector_efficiency: 0.045,
-            dark_count_probability: 1.7e-6,
-            misalignment: 0.033,
-        }
+        Link::reference_parameter_set()
     }
 
     const P: RateParams = RateParams { sifting: 0.5, f_ec: 1.22, nu: 0.05 };

@@ -81,6 +81,22 @@ impl Default for Link {
 }
 
 impl Link {
+    /// The standard parameter set used by Ma, Qi, Zhao, Lo (PRA 72, 012326, 2005), taken from
+    /// the experiment of Gobby, Yuan, Shields (APL 84, 3762, 2004) [from memory, REFERENCES.md
+    /// §9]: 0.21 dB/km, η_Bob = 4.5 %, Y₀ = 1.7 × 10⁻⁶, e_d = 3.3 %, with μ = 0.48 and a weak
+    /// decoy ν = 0.05 and a vacuum decoy (5 % each), at 0 km.
+    pub fn reference_parameter_set() -> Link {
+        Link {
+            source: Source::WeakCoherent { intensity: 0.48, probability: 0.9, decoys: vec![(0.05, 0.05), (0.0, 0.05)] },
+            channel_loss_db: 0.0,
+            length_km: Some(0.0),
+            attenuation_db_per_km: Some(0.21),
+            detector_efficiency: 0.045,
+            dark_count_probability: 1.7e-6,
+            misalignment: 0.033,
+        }
+    }
+
     /// True for the ideal single-photon link (no loss, perfect detectors), where the
     /// qubit-level campaign applies unchanged.
     pub fn is_ideal_single_photon(&self) -> bool {
@@ -299,15 +315,7 @@ mod tests {
     /// (Gobby, Yuan, Shields, APL 84, 3762, 2004) [M]: 0.21 dB/km, e_d = 3.3 %,
     /// Y₀ = 1.7e-6, η_Bob = 4.5 %.
     pub(crate) fn gys(km: f64) -> Link {
-        Link {
-            source: Source::WeakCoherent { intensity: 0.48, probability: 1.0, decoys: vec![] },
-            channel_loss_db: 0.21 * km,
-            length_km: Some(km),
-            attenuation_db_per_km: Some(0.21),
-            detector_efficiency: 0.045,
-            dark_count_probability: 1.7e-6,
-            misalignment: 0.033,
-        }
+        Link::reference_parameter_set().at_distance(km)
     }
 
     #[test]
