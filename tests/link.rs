@@ -123,8 +123,14 @@ fn link_sampler_matches_the_exact_gains_and_error_rates() {
     let model = LinkModel::new(&s.link, Some(&LinkAttack::PhotonNumberSplitting { fraction: 0.5 }), &s.basis_probabilities());
     let ts = |z: u64| z / 20;
     let (mut pulses, mut det, mut xdet, mut xerr) = ([0u64; 3], [0u64; 3], [0u64; 3], [0u64; 3]);
+    let (mut key, mut multi, mut entropy) = (0u64, 0u64, 0.0);
     for t in 0..200 {
         let c = sample(&model, s.signals, &ts, &mut trial_rng(4, 0, t));
+        let classes = c.key_classes.unwrap();
+        assert_eq!(classes.iter().sum::<u64>(), c.key_bits());
+        key += c.key_bits();
+        multi += classes[2];
+        entropy += c.key_entropy_bits.unwrap();
         let l = c.link.unwrap();
         for k in 0..3 {
             pulses[k] += l.pulses[k];
@@ -141,6 +147,13 @@ fn link_sampler_matches_the_exact_gains_and_error_rates() {
         let se = (e * (1.0 - e) / xdet[k] as f64).sqrt();
         assert!((xerr[k] as f64 / xdet[k] as f64 - e).abs() < 5.0 * se, "error rate {k}");
     }
+    // Key bits by photon-number class: the multi-photon share and Eve's uncertainty per key
+    // bit match the exact model.
+    let dm = &model.models[0];
+    let p_multi = dm.class_z[2].iter().sum::<f64>() / dm.class_z.iter().flatten().sum::<f64>();
+    let se = (p_multi * (1.0 - p_multi) / key as f64).sqrt();
+    assert!((multi as f64 / key as f64 - p_multi).abs() < 5.0 * se, "multi-photon share");
+    assert!((entropy / key as f64 - model.h_x_given_e()).abs() < 5.0 * se, "H(X|E) per key bit");
 }
 
 fn qkd(args: &[&str], dir: &Path) -> std::process::Output {

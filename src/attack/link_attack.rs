@@ -87,11 +87,16 @@ pub struct DetectionModel {
     pub cats: [[f64; 4]; 3],
     /// Σ over detections of P(detection)·H(X|E), per pulse.
     pub h_weighted: f64,
+    /// Z-basis detections split by photon-number class (0, 1, ≥ 2 photons sent):
+    /// `class_z[class][2·error + eve_right]`, per pulse; sums to `cats[0]`.
+    pub class_z: [[f64; 4]; 3],
+    /// Per class, Σ P(detection)·H(X|E), per pulse.
+    pub class_h: [f64; 3],
 }
 
 impl DetectionModel {
     fn zero() -> Self {
-        DetectionModel { gain: 0.0, cats: [[0.0; 4]; 3], h_weighted: 0.0 }
+        DetectionModel { gain: 0.0, cats: [[0.0; 4]; 3], h_weighted: 0.0, class_z: [[0.0; 4]; 3], class_h: [0.0; 3] }
     }
     /// Error rate of sifted detections in basis `b`.
     pub fn error_rate(&self, b: usize) -> f64 {
@@ -105,32 +110,31 @@ impl DetectionModel {
     pub fn h_x_given_e(&self) -> f64 {
         self.h_weighted / self.gain
     }
-    /// Adds a class of detections with probability `p` per pulse, error rate `err[b]` per
-    /// basis, Eve right with probability `right` independently of the error, and H(X|E) = `h`.
-    fn add(&mut self, p: f64, err: [f64; 3], right: f64, h: f64) {
-        if p <= 0.0 {
-            return;
-        }
-        self.gain += p;
-        self.h_weighted += p * h;
+    /// Adds detections of pulses in photon-number class `class` with probability `p` per
+    /// pulse, error rate `err[b]` per basis, Eve right with probability `right`
+    /// independently of the error, and H(X|E) = `h`.
+    fn add(&mut self, class: usize, p: f64, err: [f64; 3], right: f64, h: f64) {
+        let mut joint = [[0.0; 4]; 3];
         for b in 0..3 {
-            self.cats[b][0] += p * (1.0 - err[b]) * (1.0 - right);
-            self.cats[b][1] += p * (1.0 - err[b]) * right;
-            self.cats[b][2] += p * err[b] * (1.0 - right);
-            self.cats[b][3] += p * err[b] * right;
+            joint[b] = [(1.0 - err[b]) * (1.0 - right), (1.0 - err[b]) * right, err[b] * (1.0 - right), err[b] * right];
         }
+        self.add_joint(class, p, joint, h);
     }
-    /// Adds a class whose joint (error, eve_right) distribution per basis is given.
-    fn add_joint(&mut self, p: f64, joint: [[f64; 4]; 3], h: f64) {
+    /// Adds detections whose joint (error, eve_right) distribution per basis is given.
+    fn add_joint(&mut self, class: usize, p: f64, joint: [[f64; 4]; 3], h: f64) {
         if p <= 0.0 {
             return;
         }
         self.gain += p;
         self.h_weighted += p * h;
+        self.class_h[class] += p * h;
         for b in 0..3 {
             for c in 0..4 {
                 self.cats[b][c] += p * joint[b][c];
             }
+        }
+        for c in 0..4 {
+            self.class_z[class][c] += p * joint[0][c];
         }
     }
     /// `(1 − f)·self + f·other`.
@@ -141,7 +145,9 @@ impl DetectionModel {
         for b in 0..3 {
             for c in 0..4 {
                 out.cats[b][c] = (1.0 - f) * self.cats[b][c] + f * other.cats[b][c];
+                out.class_z[b][c] = (1.0 - f) * self.class_z[b][c] + f * other.class_z[b][c];
             }
+            out.class_h[b] = (1.0 - f) * self.class_h[b] + f * other.class_h[b];
         }
         out
     }
@@ -149,10 +155,11 @@ impl DetectionModel {
 
 /// Detection by photons (probability `photon`, error e_d) or, failing that, by a dark count
 /// (error ½); Eve right with probability `right`, H(X|E) = `h`.
-fn add_clicks(m: &mut DetectionModel, weight: f64, photon: f64, link: &Link, right: f64, h: f64) {
+fn add_clicks(m: &mut DetectionModel, n: u32, weight: f64, photon: f64, link: &Link, right: f64, h: f64) {
     let e_d = link.misalignment;
-    m.add(weight * photon, [e_d; 3], right, h);
-    m.add(weight * (1.0 - photon) * link.dark_count_probability, [E0; 3], right, h);
+    let class = (n as usize).min(2);
+    m.add(class, weight * photon, [e_d; 3], right, h);
+    m.add(class, weight * (1.0 - photon) * link.dark_count_probability, [E0; 3], right, h);
 }
 
 /// The honest link at intensity `mu`, photon number by photon number (Eve knows nothing).
@@ -160,7 +167,7 @@ pub fn honest(link: &Link, mu: f64) -> DetectionModel {
     let eta = link.transmittance();
     let mut m = DetectionModel::zero();
     for n in 0..=MAX_PHOTONS {
-        add_clicks(&mut m, poisson(mu, n), 1.0 - (1.0 - eta).powi(n as i32), link, 0.5, 1.0);
+        add_clicks(&mut m, n, poisson(mu, n), 1.0 - (1.0 - eta).powi(n as i32), link, 0.5, 1.0);
     }
     m
 }
@@ -216,9 +223,9 @@ pub fn attacked(link: &Link, attack: &LinkAttack, mu: f64, signal_mu: f64) -> De
             for n in 0..=MAX_PHOTONS {
                 let p = poisson(mu, n);
                 match n {
-                    0 => add_clicks(&mut m, p, 0.0, link, 0.5, 1.0),
-                    1 => add_clicks(&mut m, p, s.t1 * eta_b, link, 0.5, 1.0),
-                    _ => add_clicks(&mut m, p, s.tm * (1.0 - (1.0 - eta_b).powi(n as i32 - 1)), link, 1.0, 0.0),
+                    0 => add_clicks(&mut m, n, p, 0.0, link, 0.5, 1.0),
+                    1 => add_clicks(&mut m, n, p, s.t1 * eta_b, link, 0.5, 1.0),
+                    _ => add_clicks(&mut m, n, p, s.tm * (1.0 - (1.0 - eta_b).powi(n as i32 - 1)), link, 1.0, 0.0),
                 }
             }
             m
@@ -229,8 +236,8 @@ pub fn attacked(link: &Link, attack: &LinkAttack, mu: f64, signal_mu: f64) -> De
             let mut m = DetectionModel::zero();
             for n in 0..=MAX_PHOTONS {
                 let photon = 1.0 - (1.0 - eta).powi(n as i32);
-                add_clicks(&mut m, poisson(mu, n) * p_e, photon, link, 1.0, 0.0);
-                add_clicks(&mut m, poisson(mu, n) * (1.0 - p_e), photon, link, 0.5, 1.0);
+                add_clicks(&mut m, n, poisson(mu, n) * p_e, photon, link, 1.0, 0.0);
+                add_clicks(&mut m, n, poisson(mu, n) * (1.0 - p_e), photon, link, 0.5, 1.0);
             }
             m
         }
@@ -282,7 +289,7 @@ pub fn qubit_on_single_photons(
                     mis[b][2 + g] = (1.0 - e_d) * joint[b][2 + g] + e_d * joint[b][g];
                 }
             }
-            m.add_joint(p * photon, mis, h_att);
+            m.add_joint(1, p * photon, mis, h_att);
             // A dark count on an attacked single photon: random bit, Eve still holds her probe.
             let dark = p * (1.0 - photon) * y0;
             if dark > 0.0 {
@@ -290,10 +297,10 @@ pub fn qubit_on_single_photons(
                 for b in 0..3 {
                     dj[b] = [0.5 * (1.0 - p_guess[b]), 0.5 * p_guess[b], 0.5 * (1.0 - p_guess[b]), 0.5 * p_guess[b]];
                 }
-                m.add_joint(dark, dj, h_att);
+                m.add_joint(1, dark, dj, h_att);
             }
         } else {
-            add_clicks(&mut m, p, photon, link, 0.5, 1.0);
+            add_clicks(&mut m, n, p, photon, link, 0.5, 1.0);
         }
     }
     (m, t, t_needed <= 1.0)

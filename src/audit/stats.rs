@@ -83,6 +83,11 @@ pub struct PointStats {
     pub mean_e_x: f64,
     /// Eve's correct guesses over all key bits of all trials.
     pub eve_guess_rate: f64,
+    /// Weak-coherent links: fraction of all key bits from single-photon pulses (NaN
+    /// otherwise).
+    pub key_fraction_single: f64,
+    /// Weak-coherent links: fraction of all key bits from multi-photon pulses.
+    pub key_fraction_multi: f64,
     /// Worst verdict: `leak` if any trial leaked, else `inconclusive` if any was, else
     /// `caught` if every trial aborted, else `secure`.
     pub verdict: &'static str,
@@ -98,6 +103,23 @@ fn mean(xs: impl Iterator<Item = f64>) -> f64 {
         f64::NAN
     } else {
         s / n as f64
+    }
+}
+
+/// Share of photon-number class `c` among all key bits (NaN without class counts).
+fn class_fraction(trials: &[TrialOutcome], c: usize) -> f64 {
+    let mut total = 0u64;
+    let mut in_class = 0u64;
+    for t in trials {
+        if let Some(k) = t.key_classes {
+            total += k.iter().sum::<u64>();
+            in_class += k[c];
+        }
+    }
+    if total == 0 {
+        f64::NAN
+    } else {
+        in_class as f64 / total as f64
     }
 }
 
@@ -141,6 +163,8 @@ pub fn summarize(trials: &[TrialOutcome]) -> PointStats {
         mean_e_z: mean(trials.iter().map(|o| o.stats.e_z)),
         mean_e_x: mean(trials.iter().map(|o| o.stats.e_x)),
         eve_guess_rate: if key_bits == 0 { f64::NAN } else { eve as f64 / key_bits as f64 },
+        key_fraction_single: class_fraction(trials, 1),
+        key_fraction_multi: class_fraction(trials, 2),
         verdict,
     }
 }

@@ -2,7 +2,9 @@
 //! verdict against what the attack actually leaves secret.
 //!
 //! For the n key bits of an i.i.d. attack with per-round conditional entropy H(X|E):
-//! - `capacity = n·H(X|E) − leak_EC`: no privacy amplification extracts more secret key
+//! - `capacity = n·H(X|E) − leak_EC` (on a weak-coherent link n·H(X|E) is replaced by the
+//!   sum over the sampled key bits of their photon-number class's H(X|E)): no privacy
+//!   amplification extracts more secret key
 //!   against this attack, up to O(log n) terms (the smooth min-entropy of n i.i.d. rounds
 //!   lies below n·H(X|E) for small ε; Tomamichel & Hayashi, IEEE TIT 59, 7693, 2013);
 //! - `achievable = AEP(n, H(X|E), ε_smooth) − leak_EC − 2 log₂(1/(2ε_PA))`: a rigorous lower
@@ -70,6 +72,8 @@ pub struct TrialOutcome {
     pub excess: f64,
     /// Key bits Eve guessed correctly (her Helstrom guess after the basis announcement).
     pub eve_correct_key: u64,
+    /// Weak-coherent links: key bits by photon-number class (0, 1, ≥ 2 photons).
+    pub key_classes: Option<[u64; 3]>,
     /// The verdict.
     pub verdict: Verdict,
 }
@@ -97,7 +101,9 @@ pub fn judge(counts: &BlockCounts, setup: &Setup, h_x_given_e: f64) -> TrialOutc
     let exceeds = |e: f64| !e.is_nan() && e > setup.abort_qber;
     let aborted = n == 0 || k == 0 || exceeds(stats.e_x) || exceeds(stats.e_z) || exceeds(e_y);
     let leak_ec = ec_leak_bits(&stats, setup);
-    let capacity = n as f64 * h_x_given_e - leak_ec;
+    // Weak-coherent links: Eve's actual knowledge, summed over the photon-number classes of
+    // the sampled key bits; otherwise n·H(X|E).
+    let capacity = counts.key_entropy_bits.unwrap_or(n as f64 * h_x_given_e) - leak_ec;
     let budget = EpsilonBudget::split(setup.epsilon_sec);
     let achievable = aep_min_entropy(n, h_x_given_e, budget.smooth).map_or(f64::NEG_INFINITY, |h| h - leak_ec - pa_cost_bits(budget.pa));
     let length = if aborted { 0 } else { setup.key_rule.length(&stats, setup).length };
@@ -122,6 +128,7 @@ pub fn judge(counts: &BlockCounts, setup: &Setup, h_x_given_e: f64) -> TrialOutc
         achievable,
         excess: length as f64 - capacity,
         eve_correct_key: counts.eve_correct_key(),
+        key_classes: counts.key_classes,
         verdict,
     }
 }

@@ -13,6 +13,7 @@
 //! | bound_rate_bits, attack_rate_bits, margin_bits | exact rates per sifted bit (see `eval`) |
 //! | mc_qber_z, mc_qber_x | mean observed error rates over trials |
 //! | mc_eve_guess_rate | fraction of all key bits Eve guessed (Monte Carlo) |
+//! | mc_key_fraction_single_photon, mc_key_fraction_multi_photon | weak-coherent links: share of the key bits from single- and multi-photon pulses (empty otherwise) |
 //! | mean_key_bits_n | mean number of key bits n (sifted Z minus the test sample) |
 //! | abort_probability, abort_ci_low, abort_ci_high | with the Clopper–Pearson 95 % interval |
 //! | key_length_mean_bits, key_length_q05_bits, key_length_q95_bits | extracted key ℓ (aborts count as 0; nearest-rank quantiles) |
@@ -59,6 +60,8 @@ pub const COLUMNS: &[&str] = &[
     "mc_qber_z",
     "mc_qber_x",
     "mc_eve_guess_rate",
+    "mc_key_fraction_single_photon",
+    "mc_key_fraction_multi_photon",
     "mean_key_bits_n",
     "abort_probability",
     "abort_ci_low",
@@ -117,6 +120,8 @@ pub fn render(c: &Campaign, results: &[PointResult]) -> Result<String> {
             n(s.mean_e_z),
             n(s.mean_e_x),
             n(s.eve_guess_rate),
+            n(s.key_fraction_single),
+            n(s.key_fraction_multi),
             n(s.mean_key_bits),
             n(s.abort_probability),
             n(s.abort_ci.0),

@@ -2,7 +2,8 @@
 //! intensity into no click, unsifted click, and sifted clicks per basis by (error, known to
 //! Eve); the Z test sample and the key are drawn from the signal intensity's sifted Z
 //! detections (independent multinomials of sizes m and n_Z − m given n_Z, by
-//! exchangeability), by category (error, Eve's guess right).
+//! exchangeability), by photon-number class of the pulse (0, 1, ≥ 2 photons) and category
+//! (error, Eve's guess right); what Eve knows about the key is then summed class by class.
 
 use super::count::{binomial, multinomial};
 use super::{BlockCounts, SignalModel, CELL_CATEGORY};
@@ -151,11 +152,33 @@ pub fn sample(model: &LinkModel, signals: u64, test_size: &dyn Fn(u64) -> u64, r
                 let m = test_size(det).min(det);
                 out.test_z = m;
                 out.test_z_errors = binomial(m, dm.error_rate(0), rng);
-                // Key bits by category 2·error + eve_right.
-                let cond = [dm.cats[0][0] / gain, dm.cats[0][1] / gain, dm.cats[0][2] / gain, dm.cats[0][3] / gain];
+                // Key bits by photon-number class and category 2·error + eve_right.
+                let z_gain: f64 = dm.class_z.iter().flatten().sum();
+                let mut cond = [0.0; 12];
+                for c in 0..3 {
+                    for cat in 0..4 {
+                        cond[c * 4 + cat] = dm.class_z[c][cat] / z_gain;
+                    }
+                }
+                let mut cells = [0u64; 12];
+                multinomial(det - m, &cond, rng, &mut cells);
                 let mut key = [0u64; 4];
-                multinomial(det - m, &cond, rng, &mut key);
+                let mut classes = [0u64; 3];
+                let mut entropy = 0.0;
+                for c in 0..3 {
+                    let n_c: u64 = cells[c * 4..c * 4 + 4].iter().sum();
+                    classes[c] = n_c;
+                    let p_c: f64 = dm.class_z[c].iter().sum();
+                    if n_c > 0 && p_c > 0.0 {
+                        entropy += n_c as f64 * dm.class_h[c] / p_c;
+                    }
+                    for cat in 0..4 {
+                        key[cat] += cells[c * 4 + cat];
+                    }
+                }
                 out.key = key;
+                out.key_classes = Some(classes);
+                out.key_entropy_bits = Some(entropy);
                 out.errors[0] = out.test_z_errors + key[2] + key[3];
             }
         }

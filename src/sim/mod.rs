@@ -169,6 +169,10 @@ pub struct BlockCounts {
     pub key: [u64; 4],
     /// Per-intensity statistics of a weak-coherent link (None for single photons).
     pub link: Option<crate::rules::IntensityObs>,
+    /// Weak-coherent links: key bits by photon-number class of the pulse (0, 1, ≥ 2).
+    pub key_classes: Option<[u64; 3]>,
+    /// Weak-coherent links: Σ over the sampled key bits of H(X|E) of their class, bits.
+    pub key_entropy_bits: Option<f64>,
 }
 
 impl BlockCounts {
