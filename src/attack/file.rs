@@ -88,10 +88,23 @@ impl AttackFile {
     /// file has no parameters, so overrides are an error).
     pub fn attack(&self, overrides: &BTreeMap<String, Value>) -> Result<Attack> {
         match self {
+            AttackFile::Catalogue(e) if self.is_link() => Err(Error::input_key(
+                "family",
+                format!(
+                    "`{}` is a link-level attack on weak coherent pulses: use it in a campaign whose setup has a weak-coherent [source]",
+                    e.family
+                ),
+            )),
             AttackFile::Catalogue(e) => {
                 let mut params = e.params.clone();
                 params.extend(overrides.iter().map(|(k, v)| (k.clone(), v.clone())));
-                Attack::builtin(&e.family, &params).map_err(|err| if err.key().is_some() { err.with_key("params") } else { err })
+                Attack::builtin(&e.family, &params).map_err(|err| {
+                    if err.key().is_some() && err.key() != Some("family") {
+                        err.with_key("params")
+                    } else {
+                        err
+                    }
+                })
             }
             AttackFile::Kraus(k) => {
                 if let Some(key) = overrides.keys().next() {

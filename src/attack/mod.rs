@@ -131,7 +131,13 @@ pub static FAMILIES: &[&dyn Family] =
 pub fn family(name: &str) -> Result<&'static dyn Family> {
     FAMILIES.iter().copied().find(|f| f.name() == name).ok_or_else(|| {
         let names: Vec<&str> = FAMILIES.iter().map(|f| f.name()).collect();
-        let hint = if name == "kraus" { "; a kraus attack is read from a file (--attack-file)" } else { "" };
+        let hint = if name == "kraus" {
+            "; a kraus attack is read from a file (--attack-file)"
+        } else if link_attack::LINK_FAMILIES.iter().any(|(n, _)| *n == name) {
+            "; this is a link-level attack on weak coherent pulses: use it in a campaign whose setup has a weak-coherent [source]"
+        } else {
+            ""
+        };
         Error::input_key("family", format!("unknown attack family `{name}`; built-in families are {}{hint}", names.join(", ")))
     })
 }
