@@ -34,6 +34,10 @@ pub struct RunArgs {
     /// Worker threads (default: all cores, or RAYON_NUM_THREADS). Results do not depend on it.
     #[arg(long, value_name = "N")]
     pub threads: Option<usize>,
+    /// Exit with status 1 when a row under any of the campaign's rules leaks (by default only
+    /// the setup's own key_rule gates the exit status; other rules are comparisons).
+    #[arg(long)]
+    pub fail_on_any_rule: bool,
 }
 
 /// Runs `qkd-audit run`.
@@ -92,18 +96,26 @@ pub fn cmd_run(a: RunArgs) -> Result<Outcome> {
         threads: pool.current_num_threads(),
     };
     crate::report::write_folder(&dir, &campaign, &results, &manifest, a.force)?;
+    let system_rule = campaign.setup.key_rule;
     let leaks = results.iter().filter(|r| r.stats.verdict == "leak").count();
+    let gating = results.iter().filter(|r| r.stats.verdict == "leak" && (a.fail_on_any_rule || r.rule == system_rule)).count();
     if !a.quiet {
+        let comparison = leaks - results.iter().filter(|r| r.stats.verdict == "leak" && r.rule == system_rule).count();
         eprintln!(
-            "{} attack points, {} trials each, {:.1} s; {}",
+            "{} rows ({} trials each), {:.1} s; {}{}",
             results.len(),
             campaign.trials,
             manifest.elapsed_s,
-            if leaks > 0 { format!("LEAK at {leaks} point(s)") } else { "no leak found".to_string() }
+            if leaks == comparison {
+                format!("no leak under the system's rule `{system_rule}`")
+            } else {
+                format!("LEAK under the system's rule `{system_rule}`")
+            },
+            if comparison > 0 { format!("; {comparison} leaking row(s) under comparison rules") } else { String::new() }
         );
     }
     println!("{}", dir.display());
-    Ok(if leaks > 0 { Outcome::Findings } else { Outcome::Clean })
+    Ok(if gating > 0 { Outcome::Findings } else { Outcome::Clean })
 }
 
 /// Options of `rounds`.

@@ -37,6 +37,7 @@ fn link_text(l: &crate::link::Link) -> String {
 pub fn render(c: &Campaign, results: &[PointResult]) -> String {
     let mut s = String::new();
     let leaks: Vec<&PointResult> = results.iter().filter(|r| r.stats.verdict == "leak").collect();
+    let system_leaks = leaks.iter().filter(|r| r.rule == c.setup.key_rule).count();
     let inconclusive = results.iter().filter(|r| r.stats.verdict == "inconclusive").count();
     let setup = &c.setup;
     let _ = writeln!(s, "# Audit summary: {}\n", c.name);
@@ -58,18 +59,37 @@ pub fn render(c: &Campaign, results: &[PointResult]) -> String {
         c.seed,
         link_text(&setup.link)
     );
+    if c.rules.len() > 1 {
+        let _ = writeln!(
+            s,
+            "The system's own key-length rule is `{}`; the other rules judge the same blocks for comparison and do not set \
+             the exit status (unless `--fail-on-any-rule`).\n",
+            c.setup.key_rule
+        );
+        let _ = writeln!(
+            s,
+            "**System verdict: {}.**\n",
+            if system_leaks == 0 {
+                format!("no leak under `{}`", c.setup.key_rule)
+            } else {
+                format!("LEAK under `{}` at {system_leaks} point(s)", c.setup.key_rule)
+            }
+        );
+    }
     if leaks.is_empty() {
         let _ = writeln!(
             s,
-            "**Verdict: no leak found.** No trial at any of the {} attack points extracted more key than the attack leaves secret.\n",
+            "**{}: no leak found.** No trial at any of the {} attack points extracted more key than the attack leaves secret.\n",
+            if c.rules.len() > 1 { "Across all rules" } else { "Verdict" },
             results.len()
         );
     } else {
         let _ = writeln!(
             s,
-            "**Verdict: LEAK.** At {} of {} (attack point, rule) pairs the key-length rule extracted more key than the attack leaves secret \
+            "**{}: LEAK.** At {} of {} (attack point, rule) pairs the key-length rule extracted more key than the attack leaves secret \
              (ℓ > n·H(X|E) − leak_EC + 2 log₂ n in at least one trial): these keys are provably not secret against that attack. \
              Leaking rules: `{}`.\n",
+            if c.rules.len() > 1 { "Across all rules" } else { "Verdict" },
             leaks.len(),
             results.len(),
             {
