@@ -46,9 +46,9 @@ pub enum Command {
     Hunt(HuntArgs),
 }
 
-/// Options of `eval`.
+/// Which single-photon attack a command works on (shared by `eval` and `rounds`).
 #[derive(clap::Args, Debug)]
-pub struct EvalArgs {
+pub struct AttackArgs {
     /// Built-in attack family: intercept-resend, cloner, entangling-probe, pauli.
     #[arg(long, conflicts_with = "attack_file", required_unless_present = "attack_file")]
     pub attack: Option<String>,
@@ -58,6 +58,32 @@ pub struct EvalArgs {
     /// Set an attack parameter, e.g. --set fraction=0.5 (repeatable).
     #[arg(long = "set", value_name = "KEY=VALUE")]
     pub set: Vec<String>,
+}
+
+impl AttackArgs {
+    /// Builds the chosen attack; errors name the file or the `--set` key at fault.
+    pub fn build(&self) -> Result<Attack> {
+        let sets = parse_sets(&self.set)?;
+        match (&self.attack, &self.attack_file) {
+            (Some(f), None) => Attack::builtin(f, &sets).map_err(|e| {
+                if e.key().is_some() && !e.message().contains("unknown attack family") {
+                    e.with_key("--set")
+                } else {
+                    e
+                }
+            }),
+            (None, Some(p)) => load_attack_file(p)?.attack(&sets).map_err(|e| e.with_file(p)),
+            _ => Err(Error::input("give exactly one of --attack and --attack-file")),
+        }
+    }
+}
+
+/// Options of `eval`.
+#[derive(clap::Args, Debug)]
+pub struct EvalArgs {
+    /// The attack.
+    #[command(flatten)]
+    pub attack: AttackArgs,
     /// Protocol whose bound the attack is judged against.
     #[arg(long, default_value = "bb84", value_parser = ["bb84", "six-state"])]
     pub protocol: String,
@@ -413,18 +439,7 @@ fn load_attack_file(path: &Path) -> Result<AttackFile> {
 
 fn cmd_eval(a: EvalArgs) -> Result<Outcome> {
     let protocol = parse_protocol(&a.protocol)?;
-    let sets = parse_sets(&a.set)?;
-    let attack = match (&a.attack, &a.attack_file) {
-        (Some(f), None) => Attack::builtin(f, &sets).map_err(|e| {
-            if e.key().is_some() && !e.message().contains("unknown attack family") {
-                e.with_key("--set")
-            } else {
-                e
-            }
-        })?,
-        (None, Some(p)) => load_attack_file(p)?.attack(&sets).map_err(|e| e.with_file(p))?,
-        _ => return Err(Error::input("give exactly one of --attack and --attack-file")),
-    };
+    let attack = a.attack.build()?;
     let eval = evaluate(&attack, &EvalOptions::full(protocol))?;
     let mut out = std::io::stdout().lock();
     let text = if a.json { eval_json(&attack, &eval)? + "\n" } else { eval_table(&attack, &eval) };

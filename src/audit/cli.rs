@@ -1,8 +1,7 @@
 //! The `run` and `rounds` subcommands.
 
 use super::{point_count, run, Campaign};
-use crate::attack::Attack;
-use crate::cli::{parse_sets, Outcome};
+use crate::cli::Outcome;
 use crate::error::{Error, Result};
 use crate::report::manifest::{sha256_hex, InputHash, Manifest};
 use crate::setup::Setup;
@@ -121,15 +120,9 @@ pub fn cmd_run(a: RunArgs) -> Result<Outcome> {
 /// Options of `rounds`.
 #[derive(clap::Args, Debug)]
 pub struct RoundsArgs {
-    /// Built-in attack family.
-    #[arg(long, conflicts_with = "attack_file", required_unless_present = "attack_file")]
-    pub attack: Option<String>,
-    /// Attack file (catalogue entry or kraus file).
-    #[arg(long, value_name = "PATH")]
-    pub attack_file: Option<PathBuf>,
-    /// Set an attack parameter (repeatable).
-    #[arg(long = "set", value_name = "KEY=VALUE")]
-    pub set: Vec<String>,
+    /// The attack.
+    #[command(flatten)]
+    pub attack: crate::cli::AttackArgs,
     /// Setup file for protocol, basis probabilities and test sample (default: built-in defaults).
     #[arg(long, value_name = "FILE")]
     pub setup: Option<PathBuf>,
@@ -159,12 +152,7 @@ pub fn cmd_rounds(a: RoundsArgs) -> Result<Outcome> {
         Some(p) => Setup::load(p)?,
         None => Setup::default(),
     };
-    let sets = parse_sets(&a.set)?;
-    let attack = match (&a.attack, &a.attack_file) {
-        (Some(f), None) => Attack::builtin(f, &sets)?,
-        (None, Some(p)) => crate::attack::file::load(p)?.attack(&sets).map_err(|e| e.with_file(p))?,
-        _ => return Err(Error::input("give exactly one of --attack and --attack-file")),
-    };
+    let attack = a.attack.build()?;
     let model = SignalModel::new(&attack, setup.protocol, &setup.basis_probabilities());
     let mut rng = trial_rng(a.seed, 0, 0);
     let mut w = csv::Writer::from_writer(Vec::new());
