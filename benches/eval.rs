@@ -35,9 +35,30 @@ fn bench_eval(c: &mut Criterion) {
     group.finish();
 }
 
+/// The qubit-pair kernel of the accessible information on its own: a pure pair (the
+/// blocks of the Pauli cloners) and a mixed pair (the entangling probe's kind).
+fn bench_qubit_pair(c: &mut Criterion) {
+    use qkd_audit::linalg::{c as cx, CMat};
+    use qkd_audit::measures::qubit_pair::solve;
+    let state = |r: [f64; 3]| {
+        CMat::from_vec(
+            2,
+            2,
+            vec![cx(0.5 * (1.0 + r[2]), 0.0), cx(0.5 * r[0], 0.5 * r[1]), cx(0.5 * r[0], -0.5 * r[1]), cx(0.5 * (1.0 - r[2]), 0.0)],
+        )
+    };
+    let (pure0, pure1) = (state([0.6, 0.0, 0.8]), state([-0.6, 0.0, 0.8]));
+    let (mixed0, mixed1) = (state([0.3, 0.1, 0.5]), state([-0.2, 0.4, 0.1]));
+    let mut group = c.benchmark_group("qubit-pair");
+    group.throughput(Throughput::Elements(1));
+    group.bench_function("pure", |b| b.iter(|| solve(black_box([0.5, 0.5]), [&pure0, &pure1])));
+    group.bench_function("mixed", |b| b.iter(|| solve(black_box([0.5, 0.5]), [&mixed0, &mixed1])));
+    group.finish();
+}
+
 criterion_group! {
     name = benches;
     config = Criterion::default().sample_size(20).measurement_time(std::time::Duration::from_secs(2)).warm_up_time(std::time::Duration::from_millis(500));
-    targets = bench_eval
+    targets = bench_eval, bench_qubit_pair
 }
 criterion_main!(benches);

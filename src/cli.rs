@@ -478,6 +478,11 @@ fn eval_table(attack: &Attack, e: &Evaluation) -> String {
         ("h_x_given_e", format!("{:.10}", e.h_x_given_e), "H(X|E) of the key bit (bits)"),
         ("accessible_z", opt(e.accessible_z), "accessible information, Z (bits)"),
         ("accessible_x", opt(e.accessible_x), "accessible information, X (bits)"),
+        (
+            "accessible_gap",
+            e.accessible_gap.map_or("-".to_string(), |v| format!("{v:.1e}")),
+            "upper bound minus accessible value, worse of Z, X (bits)",
+        ),
         ("i_ab", format!("{:.10}", e.i_ab), "I(A:B), Z basis (bits)"),
         ("game_win", format!("{:.10}", e.game_win), "guessing game with honest Bob (bound 0.8535533906)"),
         ("bound_rate", format!("{:.10}", e.bound_rate), "proven rate at these QBERs (bits/sifted bit)"),

@@ -82,6 +82,9 @@ pub struct Evaluation {
     pub accessible_x: Option<f64>,
     /// Whether the accessible-information searches met their convergence test (extra).
     pub accessible_converged: Option<bool>,
+    /// How far `accessible_z` and `accessible_x` may lie below the true maxima: the larger
+    /// of the two (upper bound − value), when both upper bounds were established (extra).
+    pub accessible_gap: Option<f64>,
     /// Mutual information of Alice's and Bob's Z-basis bits.
     pub i_ab: f64,
     /// Tripartite guessing-game winning probability with honest Bob.
@@ -258,13 +261,14 @@ pub fn evaluate_unchecked(attack: &Attack, opts: &EvalOptions) -> Result<Evaluat
             (1.0 - h, h_x_given_e - (1.0 - h + hz))
         }
     };
-    let (accessible_z, accessible_x, accessible_converged) = match &opts.accessible {
+    let (accessible_z, accessible_x, accessible_converged, accessible_gap) = match &opts.accessible {
         Some(acc) => {
             let az = accessible_information(&[0.5, 0.5], &z.eve, acc)?;
             let ax = accessible_information(&[0.5, 0.5], &x.eve, acc)?;
-            (Some(az.bits), Some(ax.bits), Some(az.converged && ax.converged))
+            let gap = az.upper_bound.zip(ax.upper_bound).map(|(uz, ux)| (uz - az.bits).max(ux - ax.bits));
+            (Some(az.bits), Some(ax.bits), Some(az.converged && ax.converged), gap)
         }
-        None => (None, None, None),
+        None => (None, None, None, None),
     };
     let eval = Evaluation {
         qber_z: z.qber,
@@ -280,6 +284,7 @@ pub fn evaluate_unchecked(attack: &Attack, opts: &EvalOptions) -> Result<Evaluat
         accessible_z,
         accessible_x,
         accessible_converged,
+        accessible_gap,
         i_ab: mutual_information(&z.joint_ab),
         game_win: 0.5 * (z.game + x.game),
         bound_rate,

@@ -6,7 +6,9 @@
 //! `holevo_z_bits`, `holevo_x_bits`, `holevo_y_bits`, `h_x_given_e_bits`,
 //! `accessible_z_bits`, `accessible_x_bits`, `i_ab_bits`, `game_win` (probability),
 //! `bound_rate_bits`, `attack_rate_bits`, `individual_rate_bits`, `margin_bits` (bits per
-//! sifted bit), `h_min_x_given_e_bits`. Numbers are printed with 12 significant digits.
+//! sifted bit), `h_min_x_given_e_bits`, `accessible_gap_bits` (how far the accessible
+//! values may be below the true maximum: upper bound minus value, the larger of Z and X;
+//! empty when no upper bound was established). Numbers are printed with 12 significant digits.
 
 use crate::attack::file::AttackFile;
 use crate::attack::Value;
@@ -35,6 +37,7 @@ pub const QUANTITY_COLUMNS: &[&str] = &[
     "individual_rate_bits",
     "margin_bits",
     "h_min_x_given_e_bits",
+    "accessible_gap_bits",
 ];
 
 /// The quantity values of an evaluation in [`QUANTITY_COLUMNS`] order (missing accessible
@@ -61,6 +64,7 @@ pub fn quantity_values(e: &Evaluation) -> Vec<f64> {
         o(e.individual_rate),
         e.margin,
         e.h_min_x_given_e,
+        o(e.accessible_gap),
     ]
 }
 

@@ -120,3 +120,54 @@ fn built_in_families_respect_every_bound_over_their_ranges() {
         })
         .unwrap();
 }
+
+#[test]
+fn block_route_matches_the_search_on_built_in_families() {
+    // The fast route (block reduction, qubit pairs with a dual bound) must never fall below
+    // what the general multi-start search finds, must certify itself within 1e-9 bits, and
+    // its bound must sit above every value the search achieves.
+    use qkd_audit::attack::Value;
+    use std::collections::BTreeMap;
+    let search_only = AccessibleOptions { block_reduction: false, random_starts: 2, ..AccessibleOptions::default() };
+    let strategy = (0.0f64..=0.5, 0.0f64..=1.0, 0usize..4);
+    runner(60, 13)
+        .run(&strategy, |(d, p, which)| {
+            let mut given = BTreeMap::new();
+            let family = match which {
+                0 => {
+                    given.insert("qber".into(), Value::Num(d));
+                    given.insert("kind".into(), Value::Text("universal".into()));
+                    "cloner"
+                }
+                1 => {
+                    given.insert("qber".into(), Value::Num(d));
+                    given.insert("kind".into(), Value::Text("phase-covariant".into()));
+                    "cloner"
+                }
+                2 => {
+                    given.insert("qber".into(), Value::Num(d));
+                    "entangling-probe"
+                }
+                _ => {
+                    given.insert("px".into(), Value::Num(d / 2.0));
+                    given.insert("py".into(), Value::Num(p / 4.0));
+                    given.insert("pz".into(), Value::Num(p / 3.0));
+                    "pauli"
+                }
+            };
+            let attack = Attack::builtin(family, &given).unwrap();
+            let fast = evaluate(&attack, &EvalOptions::full(Protocol::Bb84)).map_err(|e| TestCaseError::fail(e.to_string()))?;
+            let slow = evaluate(&attack, &EvalOptions { protocol: Protocol::Bb84, accessible: Some(search_only.clone()) })
+                .map_err(|e| TestCaseError::fail(e.to_string()))?;
+            let gap = fast.accessible_gap.ok_or_else(|| TestCaseError::fail(format!("{family}: no upper bound")))?;
+            prop_assert!(gap <= 1e-9, "{family} d={d} p={p}: gap {gap}");
+            for (f, s) in
+                [(fast.accessible_z.unwrap(), slow.accessible_z.unwrap()), (fast.accessible_x.unwrap(), slow.accessible_x.unwrap())]
+            {
+                prop_assert!(f >= s - 1e-9, "{family} d={d} p={p}: fast {f} below search {s}");
+                prop_assert!(f + gap >= s - 1e-10, "{family} d={d} p={p}: bound {} below search {s}", f + gap);
+            }
+            Ok(())
+        })
+        .unwrap();
+}

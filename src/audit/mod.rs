@@ -344,6 +344,7 @@ pub fn link_evaluation(model: &LinkModel, protocol: crate::protocol::Protocol) -
         accessible_z: None,
         accessible_x: None,
         accessible_converged: None,
+        accessible_gap: None,
         i_ab: 1.0 - hz,
         game_win: f64::NAN,
         bound_rate: f64::NAN,

@@ -1,0 +1,543 @@
+//! Accessible information of an ensemble: the largest `I(X:M)` over all POVMs.
+//!
+//! The maximisation runs in stages, each exact or checked, and the cheapest that applies
+//! decides:
+//!
+//! 1. **Commuting states** are measured in a common eigenbasis, which attains the Holevo
+//!    quantity and is therefore optimal (Holevo 1973).
+//! 2. **Block reduction.** States that are block diagonal in a common basis are measured
+//!    block by block: a POVM can first learn the block (the states do not couple blocks, so
+//!    this refinement loses nothing), and then `I(X:M) = I(X:J) + Σⱼ P(j) I(X:M | J = j)`
+//!    with the blocks optimised independently. The blocks are the connected components of
+//!    the graph whose edges are the states' non-zero entries in the eigenbasis of a generic
+//!    positive combination of them (any coordinate subspace of that basis is invariant
+//!    under the combination; a component is then invariant under every state). Entries
+//!    below `block_tol` relative to the combination's norm count as zero. Eve's states
+//!    under the Pauli cloners and Pauli channels split this way into two-dimensional
+//!    blocks (error and no error in the measured basis).
+//! 3. **Per block:** a one-dimensional block or one holding a single state carries no
+//!    further information; commuting block states go to stage 1; a pair of qubit states is
+//!    solved by [`qubit_pair`](super::qubit_pair): the best projective measurement with a
+//!    dual upper bound; anything else, or a qubit pair whose bound is not within
+//!    `certificate_tol` of the projective value, goes to the multi-start search below.
+//!
+//! The search: rank-one POVMs with at most `d²` outcomes suffice (Davies, IEEE TIT 24, 596,
+//! 1978); a rank-one POVM `{|a_k><a_k|}` is the set of columns of a d × K matrix `A` with
+//! `A A† = 1`, and `I(X:M)` is maximised on that manifold by Riemannian conjugate gradients
+//! from several seeded starts.
+//!
+//! Whatever the route, the value returned is the information of the returned POVM on the
+//! original states, so it is always achievable; [`Accessible::upper_bound`] says when it is
+//! also known to be the maximum.
+
+use super::qubit_pair;
+use super::{holevo_quantity, measured_information, mutual_information};
+use crate::error::Result;
+use crate::linalg::{c, hermitian_eigen, CMat, CVec};
+use rand::{Rng, SeedableRng};
+use rand_distr::StandardNormal;
+
+/// Settings of [`accessible_information`].
+#[derive(Clone, Debug)]
+pub struct AccessibleOptions {
+    /// Random starting POVMs in addition to the structured ones (default 3).
+    pub random_starts: usize,
+    /// Seed of the starting POVMs (default 0x5eed): the result is deterministic.
+    pub seed: u64,
+    /// Convergence: stop a start when `window` consecutive steps together gain less than
+    /// this many bits (default 1e-11).
+    pub gain_tol: f64,
+    /// See `gain_tol` (default 10).
+    pub window: usize,
+    /// Iteration cap per start (default 3000); hitting it is reported in
+    /// [`Accessible::converged`], not hidden.
+    pub max_iter: usize,
+    /// Convergence: stop when the Riemannian gradient norm falls below this (default 1e-10).
+    pub grad_tol: f64,
+    /// Random starts stop when `window` steps gain less than this (default 1e-9); one that
+    /// ends more than this above the best value so far is polished with `gain_tol`.
+    pub screen_gain_tol: f64,
+    /// Measure commuting states directly in their common eigenbasis (default true); false
+    /// runs the iterative search for them too (tests use it).
+    pub commuting_shortcut: bool,
+    /// Split the states into common invariant blocks and solve qubit pairs with their dual
+    /// bound (default true); false sends everything that does not commute to the search.
+    pub block_reduction: bool,
+    /// Off-diagonal entries below this, relative to the largest eigenvalue of the states'
+    /// generic combination, do not couple blocks (default 1e-12).
+    pub block_tol: f64,
+    /// A qubit pair's projective value is accepted when its dual bound is within this many
+    /// bits (default 1e-10); otherwise the block goes to the search as well.
+    pub certificate_tol: f64,
+}
+
+impl Default for AccessibleOptions {
+    fn default() -> Self {
+        AccessibleOptions {
+            random_starts: 3,
+            seed: 0x5eed,
+            gain_tol: 1e-11,
+            window: 10,
+            max_iter: 3000,
+            grad_tol: 1e-10,
+            screen_gain_tol: 1e-9,
+            commuting_shortcut: true,
+            block_reduction: true,
+            block_tol: 1e-12,
+            certificate_tol: 1e-10,
+        }
+    }
+}
+
+/// Result of [`accessible_information`].
+#[derive(Clone, Debug, PartialEq)]
+pub struct Accessible {
+    /// The largest mutual information found, in bits.
+    pub bits: f64,
+    /// The optimal rank-one POVM vectors found (zero vectors are unused outcomes).
+    pub povm: Vec<CVec>,
+    /// Iterations summed over all starts.
+    pub iterations: usize,
+    /// Whether the start that gave `bits` met the convergence test (rather than the
+    /// iteration cap). Either way `bits` is achieved by the returned POVM, so it is a valid
+    /// lower bound on the accessible information.
+    pub converged: bool,
+    /// An upper bound on the accessible information, in bits, when one was established:
+    /// the Holevo quantity when it was reached, or the block-wise sum of exact values and
+    /// qubit-pair dual bounds. `None` when some block needed the search and stopped below
+    /// the Holevo quantity (then `bits` is the best value found by all starts).
+    pub upper_bound: Option<f64>,
+}
+
+/// Accessible information of the ensemble `{pᵢ, ρᵢ}`: the maximum of `I(X:M)` over all
+/// POVMs, in bits, by the stages in the module documentation.
+pub fn accessible_information(priors: &[f64], states: &[CMat], opts: &AccessibleOptions) -> Result<Accessible> {
+    assert_eq!(priors.len(), states.len(), "accessible_information: one prior per state");
+    assert!(!states.is_empty(), "accessible_information: empty ensemble");
+    if opts.commuting_shortcut {
+        if let Some(found) = commuting(priors, states, opts) {
+            return Ok(found);
+        }
+    }
+    if opts.block_reduction {
+        return by_blocks(priors, states, opts);
+    }
+    search(priors, states, opts)
+}
+
+/// Stage 1: a common eigenbasis, accepted when it reaches the Holevo quantity.
+fn commuting(priors: &[f64], states: &[CMat], opts: &AccessibleOptions) -> Option<Accessible> {
+    let commute = states.iter().all(|a| states.iter().all(|b| crate::linalg::max_abs_diff(&(a * b), &(b * a)) < 1e-13));
+    if !commute {
+        return None;
+    }
+    // The eigenbasis of a generic combination of commuting states is a common one.
+    let povm = eigen_columns(&generic_combination(states));
+    let bits = measured_information(priors, states, &povm);
+    let chi = holevo_quantity(priors, states);
+    (bits >= chi - opts.gain_tol).then_some(Accessible { bits, povm, iterations: 0, converged: true, upper_bound: Some(chi) })
+}
+
+/// `Σᵢ (i + π) ρᵢ`: a positive combination with no accidental symmetry between the states.
+fn generic_combination(states: &[CMat]) -> CMat {
+    let d = states[0].nrows();
+    let mut generic = CMat::zeros(d, d);
+    for (i, rho) in states.iter().enumerate() {
+        generic += rho * c(i as f64 + std::f64::consts::PI, 0.0);
+    }
+    generic
+}
+
+/// A unitary whose columns, grouped as returned, span subspaces that every state leaves
+/// invariant (up to `tol` relative to the generic combination's largest eigenvalue).
+pub fn invariant_blocks(states: &[CMat], tol: f64) -> (CMat, Vec<Vec<usize>>) {
+    let (vals, basis) = hermitian_eigen(&generic_combination(states));
+    let d = vals.len();
+    let scale = vals.iter().fold(0.0_f64, |m, v| m.max(v.abs())).max(f64::MIN_POSITIVE);
+    let rotated: Vec<CMat> = states.iter().map(|rho| basis.adjoint() * rho * &basis).collect();
+    let mut root: Vec<usize> = (0..d).collect();
+    fn find(root: &mut [usize], mut i: usize) -> usize {
+        while root[i] != i {
+            root[i] = root[root[i]];
+            i = root[i];
+        }
+        i
+    }
+    for i in 0..d {
+        for j in i + 1..d {
+            if rotated.iter().any(|s| s[(i, j)].norm() > tol * scale) {
+                let (a, b) = (find(&mut root, i), find(&mut root, j));
+                root[a.max(b)] = a.min(b);
+            }
+        }
+    }
+    let mut groups: Vec<Vec<usize>> = Vec::new();
+    let mut group_of = vec![usize::MAX; d];
+    for i in 0..d {
+        let r = find(&mut root, i);
+        if group_of[r] == usize::MAX {
+            group_of[r] = groups.len();
+            groups.push(Vec::new());
+        }
+        groups[group_of[r]].push(i);
+    }
+    (basis, groups)
+}
+
+/// Stages 2 and 3: block by block.
+fn by_blocks(priors: &[f64], states: &[CMat], opts: &AccessibleOptions) -> Result<Accessible> {
+    let (basis, groups) = invariant_blocks(states, opts.block_tol);
+    let mut povm: Vec<CVec> = Vec::new();
+    let mut iterations = 0;
+    let mut converged = true;
+    // Joint distribution of the state label and the block, and Σⱼ P(j) · bound_j.
+    let mut label_block: Vec<Vec<f64>> = vec![Vec::with_capacity(groups.len()); states.len()];
+    let mut bound_within: Option<f64> = Some(0.0);
+    for group in &groups {
+        let v = basis.select_columns(group);
+        let sub: Vec<CMat> = states.iter().map(|rho| v.adjoint() * rho * &v).collect();
+        let weights: Vec<f64> = priors.iter().zip(&sub).map(|(p, s)| p * s.trace().re.max(0.0)).collect();
+        for (row, w) in label_block.iter_mut().zip(&weights) {
+            row.push(*w);
+        }
+        let mass: f64 = weights.iter().sum();
+        let present: Vec<usize> = (0..states.len()).filter(|&i| weights[i] > 0.0).collect();
+        if group.len() == 1 || present.len() < 2 {
+            // The block label already says all this block can: one outcome per basis vector.
+            povm.extend((0..group.len()).map(|k| v.column(k).into_owned()));
+            continue;
+        }
+        let cond_priors: Vec<f64> = present.iter().map(|&i| weights[i] / mass).collect();
+        let cond_states: Vec<CMat> = present.iter().map(|&i| &sub[i] * c(1.0 / sub[i].trace().re, 0.0)).collect();
+        let block = solve_block(&cond_priors, &cond_states, opts)?;
+        iterations += block.iterations;
+        converged &= block.converged;
+        bound_within = bound_within.zip(block.upper_bound).map(|(s, u)| s + mass * u);
+        povm.extend(block.povm.iter().map(|u| &v * u));
+    }
+    let bits = measured_information(priors, states, &povm);
+    let upper_bound = bound_within.map(|s| mutual_information(&label_block) + s);
+    Ok(Accessible { bits, povm, iterations, converged, upper_bound })
+}
+
+/// One block's ensemble (priors summing to one, states of trace one).
+fn solve_block(priors: &[f64], states: &[CMat], opts: &AccessibleOptions) -> Result<Accessible> {
+    if let Some(found) = commuting(priors, states, opts) {
+        return Ok(found);
+    }
+    if states.len() == 2 && states[0].nrows() == 2 {
+        let pair = qubit_pair::solve([priors[0], priors[1]], [&states[0], &states[1]]);
+        let bits = measured_information(priors, states, &pair.povm);
+        let found = Accessible { bits, povm: pair.povm.to_vec(), iterations: 0, converged: true, upper_bound: Some(pair.upper) };
+        if pair.upper - bits <= opts.certificate_tol {
+            return Ok(found);
+        }
+        // Not shown optimal: keep the better of the two, and the dual bound (valid for any
+        // measurement) unless the search reached the Holevo quantity.
+        let searched = search(priors, states, opts)?;
+        let upper = searched.upper_bound.map_or(pair.upper, |u| u.min(pair.upper));
+        let best = if searched.bits > found.bits { searched } else { found };
+        return Ok(Accessible { upper_bound: Some(upper), ..best });
+    }
+    search(priors, states, opts)
+}
+
+/// The multi-start search of the module documentation. Starts: the eigenbasis of
+/// `p₀ρ₀ − p₁ρ₁` (a refinement of the Helstrom measurement, so the result is never below
+/// that measurement's information), the eigenbasis of a generic combination of the
+/// states, and `random_starts` random `d²`-outcome POVMs. Each start is ascended by
+/// [`povm_ascent`], with the gradient column `2 Σᵢ pᵢ log₂(P(k|i)/P(k)) ρᵢ a_k` (the same
+/// stationarity structure as the iteration of Řeháček, Englert, Kaszlikowski, PRA 71,
+/// 054303, 2005). Ascent is monotone and stops early once the Holevo quantity, which no
+/// POVM exceeds, is reached.
+fn search(priors: &[f64], states: &[CMat], opts: &AccessibleOptions) -> Result<Accessible> {
+    assert_eq!(priors.len(), states.len(), "accessible_information: one prior per state");
+    assert!(!states.is_empty(), "accessible_information: empty ensemble");
+    let d = states[0].nrows();
+    let chi = holevo_quantity(priors, states);
+    let generic = generic_combination(states);
+    let mut starts: Vec<Vec<CVec>> = Vec::new();
+    // Start 1: eigenbasis of the Helstrom operator (or of ρ₀ for one state).
+    let mut helstrom_op = states[0].clone() * c(priors[0], 0.0);
+    if states.len() > 1 {
+        helstrom_op -= &states[1] * c(priors[1], 0.0);
+    }
+    starts.push(eigen_columns(&helstrom_op));
+    // Start 2: the eigenbasis of a generic combination of the states.
+    starts.push(eigen_columns(&generic));
+    let mut rng = rand_chacha::ChaCha8Rng::seed_from_u64(opts.seed);
+    for _ in 0..opts.random_starts {
+        let raw: Vec<CVec> =
+            (0..d * d).map(|_| CVec::from_fn(d, |_, _| c(rng.sample(StandardNormal), rng.sample(StandardNormal)))).collect();
+        starts.push(complete_povm(&raw));
+    }
+    let mut best = Accessible { bits: f64::NEG_INFINITY, povm: Vec::new(), iterations: 0, converged: false, upper_bound: None };
+    let mut total_iter = 0;
+    let structured = 2;
+    for (i, start) in starts.into_iter().enumerate() {
+        // Random starts look for a better basin with a looser stopping rule; one that ends
+        // above the best value so far is then polished with the full rule.
+        let run = if i >= structured && best.bits.is_finite() {
+            let loose = AccessibleOptions { gain_tol: opts.screen_gain_tol.max(opts.gain_tol), ..opts.clone() };
+            let first = ascend(priors, states, &start, &loose);
+            total_iter += first.iterations;
+            if first.value > best.bits + opts.screen_gain_tol {
+                ascend(priors, states, &first.povm, opts)
+            } else {
+                first
+            }
+        } else {
+            ascend(priors, states, &start, opts)
+        };
+        total_iter += run.iterations;
+        if run.value > best.bits {
+            best = Accessible { bits: run.value, povm: run.povm, iterations: 0, converged: run.converged, upper_bound: None };
+        }
+        // No POVM can beat the Holevo quantity; once reached, the maximum is found.
+        if best.bits >= chi - opts.gain_tol {
+            best.converged = true;
+            best.upper_bound = Some(chi);
+            break;
+        }
+    }
+    best.iterations = total_iter;
+    Ok(best)
+}
+
+fn eigen_columns(m: &CMat) -> Vec<CVec> {
+    let (_, vecs) = hermitian_eigen(m);
+    (0..vecs.ncols()).map(|i| vecs.column(i).into_owned()).collect()
+}
+
+/// Rescales vectors `b_k` to a POVM: `a_k = G^{-1/2} b_k`, `G = Σ b_k b_k†`.
+fn complete_povm(b: &[CVec]) -> Vec<CVec> {
+    let d = b[0].len();
+    let mut g = CMat::zeros(d, d);
+    for v in b {
+        g += v * v.adjoint();
+    }
+    let t = crate::linalg::psd_inverse_sqrt(&g, 1e-300);
+    b.iter().map(|v| &t * v).collect()
+}
+
+/// Mutual information `I(X:M)` in bits of the POVM whose outcome vectors are the columns
+/// of `a` (d × K, `A A† = 1`), and, if asked, its Euclidean gradient
+/// `2 ∂I/∂Ā`, column k = `2 Σᵢ pᵢ log₂(P(i,k)/(pᵢP(k))) ρᵢ a_k`.
+fn info_and_grad(priors: &[f64], states: &[CMat], a: &CMat, want_grad: bool) -> (f64, Option<CMat>) {
+    let k_out = a.ncols();
+    let rho_a: Vec<CMat> = states.iter().map(|rho| rho * a).collect();
+    let mut joint = vec![vec![0.0; k_out]; states.len()];
+    for (i, ra) in rho_a.iter().enumerate() {
+        for k in 0..k_out {
+            joint[i][k] = priors[i] * a.column(k).dotc(&ra.column(k)).re.max(0.0);
+        }
+    }
+    let pk: Vec<f64> = (0..k_out).map(|k| joint.iter().map(|r| r[k]).sum()).collect();
+    let mut value = 0.0;
+    let mut grad = want_grad.then(|| CMat::zeros(a.nrows(), k_out));
+    for k in 0..k_out {
+        if pk[k] <= 0.0 {
+            continue;
+        }
+        for i in 0..states.len() {
+            let p = joint[i][k];
+            let log_ratio = if p > 0.0 { (p / (priors[i] * pk[k])).log2() } else { -90.0 };
+            if p > 0.0 {
+                value += p * log_ratio;
+            }
+            if let Some(g) = grad.as_mut() {
+                let mut col = g.column_mut(k);
+                col += rho_a[i].column(k) * c(2.0 * priors[i] * log_ratio.max(-90.0), 0.0);
+            }
+        }
+    }
+    (value, grad)
+}
+
+/// Real inner product `Re tr(X†Y)`.
+fn inner(x: &CMat, y: &CMat) -> f64 {
+    x.iter().zip(y.iter()).map(|(p, q)| (p.conj() * q).re).sum()
+}
+
+/// Projects `xi` onto the tangent space of `{A : A A† = 1}` at `a`: `ξ − sym(ξA†) A`.
+fn tangent(a: &CMat, xi: &CMat) -> CMat {
+    let m = xi * a.adjoint();
+    let sym = (&m + m.adjoint()) * c(0.5, 0.0);
+    xi - sym * a
+}
+
+/// Retraction onto `{A : A A† = 1}`: `L⁻¹ B` with `B B† = L L†` (Cholesky; a QR-type
+/// retraction), falling back to the polar form `(B B†)^{-1/2} B` if `B B†` is not
+/// numerically positive definite.
+fn retract(b: &CMat) -> CMat {
+    let g = b * b.adjoint();
+    if let Some(chol) = g.clone().cholesky() {
+        if let Some(x) = chol.l().solve_lower_triangular(b) {
+            return x;
+        }
+    }
+    crate::linalg::psd_inverse_sqrt(&g, 1e-300) * b
+}
+
+/// Riemannian conjugate-gradient ascent (Polak–Ribière+, vector transport by projection,
+/// Armijo backtracking, QR-type retraction; Absil, Mahony, Sepulchre, "Optimization
+/// Algorithms on Matrix Manifolds", 2008, ch. 4 and 8) of `I(X:M)` over rank-one POVMs
+/// written as the columns of `A` with `A A† = 1`.
+/// One start's outcome.
+struct Ascent {
+    value: f64,
+    povm: Vec<CVec>,
+    iterations: usize,
+    converged: bool,
+}
+
+fn ascend(priors: &[f64], states: &[CMat], start: &[CVec], opts: &AccessibleOptions) -> Ascent {
+    let d = start[0].len();
+    let a0 = CMat::from_fn(d, start.len(), |r, k| start[k][r]);
+    let (value, a, iterations, converged) = povm_ascent(a0, &|a, g| info_and_grad(priors, states, a, g), opts);
+    Ascent { value, povm: columns(&a), iterations, converged }
+}
+
+/// Maximises a smooth function `f` of a rank-one POVM `{|a_k><a_k|}`, written as the
+/// columns of a d × K matrix `A` with `A A† = 1`, by Riemannian conjugate-gradient ascent
+/// (Polak–Ribière+, projection transport, QR-type retraction, Armijo steps; Absil, Mahony,
+/// Sepulchre 2008). `f(A, want_grad)` returns the value and, if asked, the Euclidean
+/// gradient `2 ∂f/∂Ā`. The start is retracted onto the manifold first. Stops as described
+/// in [`AccessibleOptions`] (gradient norm, windowed gain, iteration cap). Returns (value,
+/// A, iterations, converged).
+pub fn povm_ascent(start: CMat, f: &dyn Fn(&CMat, bool) -> (f64, Option<CMat>), opts: &AccessibleOptions) -> (f64, CMat, usize, bool) {
+    let mut a = retract(&start);
+    let (mut value, eg) = f(&a, true);
+    let mut g = tangent(&a, &eg.expect("gradient requested"));
+    let mut eta = g.clone();
+    let mut step = 1.0;
+    let mut gains: std::collections::VecDeque<f64> = std::collections::VecDeque::new();
+    let mut window_gain = 0.0;
+    for iter in 0..opts.max_iter {
+        let g2 = inner(&g, &g);
+        if g2.sqrt() < opts.grad_tol {
+            return (value, a, iter, true);
+        }
+        let mut slope = inner(&g, &eta);
+        if slope <= 0.0 {
+            eta = g.clone();
+            slope = g2;
+        }
+        // Armijo backtracking from a step that grows after successes.
+        let mut t = step * 2.0;
+        let (cand, cand_value) = loop {
+            let cand = retract(&(&a + &eta * c(t, 0.0)));
+            let (v, _) = f(&cand, false);
+            if v >= value + 1e-4 * t * slope {
+                break (cand, v);
+            }
+            t *= 0.5;
+            if t * slope.sqrt() < 1e-17 {
+                // No ascent at machine precision along the direction: stationary.
+                return (value, a, iter, true);
+            }
+        };
+        step = t;
+        let gain = cand_value - value;
+        a = cand;
+        value = cand_value;
+        let (_, eg) = f(&a, true);
+        let g_new = tangent(&a, &eg.expect("gradient requested"));
+        let g_old = tangent(&a, &g);
+        let beta = (inner(&g_new, &(&g_new - &g_old)) / g2).max(0.0);
+        eta = &g_new + tangent(&a, &eta) * c(beta, 0.0);
+        g = g_new;
+        gains.push_back(gain);
+        window_gain += gain;
+        if gains.len() > opts.window {
+            window_gain -= gains.pop_front().unwrap_or(0.0);
+        }
+        if gains.len() >= opts.window && window_gain < opts.gain_tol {
+            return (value, a, iter + 1, true);
+        }
+    }
+    (value, a, opts.max_iter, false)
+}
+
+fn columns(a: &CMat) -> Vec<CVec> {
+    (0..a.ncols()).map(|k| a.column(k).into_owned()).collect()
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::channel::KrausChannel;
+    use crate::state::DensityMatrix;
+    use approx::assert_abs_diff_eq;
+
+    /// `U (w₁A₁ ⊕ w₂A₂ ⊕ w₃A₃) U†` for random density matrices `Aᵢ` of the given sizes.
+    fn hidden_blocks(sizes: &[usize], weights: &[f64], u: &CMat, rng: &mut impl Rng) -> CMat {
+        let d: usize = sizes.iter().sum();
+        let mut m = CMat::zeros(d, d);
+        let mut at = 0;
+        for (&n, &w) in sizes.iter().zip(weights) {
+            let a = if n == 2 && rng.gen_bool(0.3) {
+                crate::state::Ket::haar(2, rng).density().matrix().clone()
+            } else {
+                DensityMatrix::random_hilbert_schmidt(n, rng).matrix().clone()
+            };
+            m.view_mut((at, at), (n, n)).copy_from(&(a * c(w, 0.0)));
+            at += n;
+        }
+        u * m * u.adjoint()
+    }
+
+    #[test]
+    fn blocks_hidden_by_a_random_unitary_are_found() {
+        let mut rng = rand_chacha::ChaCha8Rng::seed_from_u64(5);
+        for _ in 0..20 {
+            let u = KrausChannel::random_isometry(5, 5, &mut rng);
+            let s0 = hidden_blocks(&[2, 2, 1], &[0.5, 0.3, 0.2], &u, &mut rng);
+            let s1 = hidden_blocks(&[2, 2, 1], &[0.2, 0.4, 0.4], &u, &mut rng);
+            let (_, groups) = invariant_blocks(&[s0, s1], 1e-12);
+            let mut sizes: Vec<usize> = groups.iter().map(Vec::len).collect();
+            sizes.sort();
+            assert_eq!(sizes, vec![1, 2, 2]);
+        }
+        // Random states share no invariant subspace.
+        let s0 = DensityMatrix::random_hilbert_schmidt(4, &mut rng).matrix().clone();
+        let s1 = DensityMatrix::random_hilbert_schmidt(4, &mut rng).matrix().clone();
+        assert_eq!(invariant_blocks(&[s0, s1], 1e-12).1.len(), 1);
+    }
+
+    #[test]
+    fn block_route_agrees_with_the_search_and_certifies_itself() {
+        // Random block-diagonal pairs in random bases, with block weights that depend on the
+        // state (so the block label itself carries information) and unequal priors.
+        let mut rng = rand_chacha::ChaCha8Rng::seed_from_u64(8);
+        let search_only = AccessibleOptions { block_reduction: false, random_starts: 4, ..AccessibleOptions::default() };
+        for i in 0..25 {
+            let u = KrausChannel::random_isometry(5, 5, &mut rng);
+            let w0 = [0.1 + 0.015 * i as f64, 0.45, 0.45 - 0.015 * i as f64];
+            let states = [hidden_blocks(&[2, 2, 1], &w0, &u, &mut rng), hidden_blocks(&[2, 2, 1], &[0.3, 0.3, 0.4], &u, &mut rng)];
+            let priors = [0.35, 0.65];
+            let fast = accessible_information(&priors, &states, &AccessibleOptions::default()).unwrap();
+            let slow = accessible_information(&priors, &states, &search_only).unwrap();
+            let upper = fast.upper_bound.expect("every block is a qubit pair or one-dimensional");
+            let chi = holevo_quantity(&priors, &states);
+            assert!(fast.bits >= slow.bits - 1e-9, "case {i}: blocks {} below search {}", fast.bits, slow.bits);
+            assert!(upper >= slow.bits - 1e-10, "case {i}: bound {upper} below an achieved {}", slow.bits);
+            assert!(upper - fast.bits <= 1e-9, "case {i}: gap {}", upper - fast.bits);
+            assert!(fast.bits <= chi + 1e-12);
+            // The value is the returned POVM's information on the original states.
+            assert_abs_diff_eq!(fast.bits, measured_information(&priors, &states, &fast.povm), epsilon = 1e-15);
+            let completeness = fast.povm.iter().fold(CMat::zeros(5, 5), |acc, v| acc + v * v.adjoint());
+            assert!(crate::linalg::max_abs_diff(&completeness, &CMat::identity(5, 5)) < 1e-12);
+        }
+    }
+
+    #[test]
+    fn a_single_state_or_identical_states_carry_no_information() {
+        let mut rng = rand_chacha::ChaCha8Rng::seed_from_u64(9);
+        let s = DensityMatrix::random_hilbert_schmidt(3, &mut rng).matrix().clone();
+        let acc = accessible_information(&[0.4, 0.6], &[s.clone(), s.clone()], &AccessibleOptions::default()).unwrap();
+        assert_abs_diff_eq!(acc.bits, 0.0, epsilon = 1e-12);
+        let acc = accessible_information(&[1.0], &[s], &AccessibleOptions::default()).unwrap();
+        assert_abs_diff_eq!(acc.bits, 0.0, epsilon = 1e-12);
+    }
+}
