@@ -322,6 +322,14 @@ pub fn check_bounds(label: &str, e: &Evaluation) -> Result<()> {
             }
         }
     }
+    if let Some(gap) = e.accessible_gap {
+        if gap < -BOUND_SLACK {
+            return violation(format!(
+                "the accessible information's proven upper bound lies {:.3e} bits below a value an explicit measurement achieves",
+                -gap
+            ));
+        }
+    }
     Ok(())
 }
 
@@ -361,8 +369,11 @@ mod tests {
         bad.game_win = game_bound() + 1e-6;
         let err = check_bounds("x", &bad).unwrap_err();
         assert!(err.is_bound_violation() && err.to_string().starts_with("BOUND VIOLATED"), "{err}");
-        let mut bad = good;
+        let mut bad = good.clone();
         bad.accessible_z = Some(bad.holevo_z + 1e-6);
+        assert!(check_bounds("x", &bad).unwrap_err().is_bound_violation());
+        let mut bad = good;
+        bad.accessible_gap = Some(-1e-6);
         assert!(check_bounds("x", &bad).unwrap_err().is_bound_violation());
     }
 }
