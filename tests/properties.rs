@@ -85,36 +85,44 @@ fn near_identity_interactions_respect_every_bound() {
         .unwrap();
 }
 
-#[test]
-fn built_in_families_respect_every_bound_over_their_ranges() {
+/// A point of a built-in family from two numbers in [0, ½] and [0, 1]: `which` picks
+/// intercept-resend (basis from `p`), the universal cloner, the phase-covariant cloner, the
+/// entangling probe or a Pauli channel.
+fn built_in_point(which: usize, d: f64, p: f64) -> Attack {
     use qkd_audit::attack::Value;
     use std::collections::BTreeMap;
-    let strategy = (0.0f64..=0.5, 0.0f64..=1.0, 0usize..4);
+    let mut given = BTreeMap::new();
+    let family = match which {
+        0 => {
+            given.insert("fraction".into(), Value::Num(p));
+            given.insert("basis".into(), Value::Text(["z", "x", "random", "breidbart"][(p * 3.99) as usize].into()));
+            "intercept-resend"
+        }
+        1 | 2 => {
+            given.insert("qber".into(), Value::Num(d));
+            given.insert("kind".into(), Value::Text(if which == 1 { "universal" } else { "phase-covariant" }.into()));
+            "cloner"
+        }
+        3 => {
+            given.insert("qber".into(), Value::Num(d));
+            "entangling-probe"
+        }
+        _ => {
+            given.insert("px".into(), Value::Num(d / 2.0));
+            given.insert("py".into(), Value::Num(p / 4.0));
+            given.insert("pz".into(), Value::Num(p / 3.0));
+            "pauli"
+        }
+    };
+    Attack::builtin(family, &given).unwrap()
+}
+
+#[test]
+fn built_in_families_respect_every_bound_over_their_ranges() {
+    let strategy = (0.0f64..=0.5, 0.0f64..=1.0, 0usize..5);
     runner(300, 3)
         .run(&strategy, |(d, p, which)| {
-            let mut given = BTreeMap::new();
-            let family = match which {
-                0 => {
-                    given.insert("fraction".into(), Value::Num(p));
-                    given.insert("basis".into(), Value::Text(["z", "x", "random", "breidbart"][(p * 3.99) as usize].into()));
-                    "intercept-resend"
-                }
-                1 => {
-                    given.insert("qber".into(), Value::Num(d));
-                    given.insert("kind".into(), Value::Text(if p < 0.5 { "universal" } else { "phase-covariant" }.into()));
-                    "cloner"
-                }
-                2 => {
-                    given.insert("qber".into(), Value::Num(d));
-                    "entangling-probe"
-                }
-                _ => {
-                    given.insert("px".into(), Value::Num(d / 2.0));
-                    given.insert("pz".into(), Value::Num(p / 3.0));
-                    "pauli"
-                }
-            };
-            let attack = Attack::builtin(family, &given).unwrap();
+            let attack = built_in_point(which, d, p);
             prop_assert!(attack.channel.completeness_defect() < 1e-12);
             evaluate_both(&attack, true)
         })
@@ -126,36 +134,12 @@ fn block_route_matches_the_search_on_built_in_families() {
     // The fast route (block reduction, qubit pairs with a dual bound) must never fall below
     // what the general multi-start search finds, must certify itself within 1e-9 bits, and
     // its bound must sit above every value the search achieves.
-    use qkd_audit::attack::Value;
-    use std::collections::BTreeMap;
     let search_only = AccessibleOptions { block_reduction: false, random_starts: 2, ..AccessibleOptions::default() };
-    let strategy = (0.0f64..=0.5, 0.0f64..=1.0, 0usize..4);
-    runner(60, 13)
+    let strategy = (0.0f64..=0.5, 0.0f64..=1.0, 0usize..5);
+    runner(70, 13)
         .run(&strategy, |(d, p, which)| {
-            let mut given = BTreeMap::new();
-            let family = match which {
-                0 => {
-                    given.insert("qber".into(), Value::Num(d));
-                    given.insert("kind".into(), Value::Text("universal".into()));
-                    "cloner"
-                }
-                1 => {
-                    given.insert("qber".into(), Value::Num(d));
-                    given.insert("kind".into(), Value::Text("phase-covariant".into()));
-                    "cloner"
-                }
-                2 => {
-                    given.insert("qber".into(), Value::Num(d));
-                    "entangling-probe"
-                }
-                _ => {
-                    given.insert("px".into(), Value::Num(d / 2.0));
-                    given.insert("py".into(), Value::Num(p / 4.0));
-                    given.insert("pz".into(), Value::Num(p / 3.0));
-                    "pauli"
-                }
-            };
-            let attack = Attack::builtin(family, &given).unwrap();
+            let attack = built_in_point(which, d, p);
+            let family = &attack.label;
             let fast = evaluate(&attack, &EvalOptions::full(Protocol::Bb84)).map_err(|e| TestCaseError::fail(e.to_string()))?;
             let slow = evaluate(&attack, &EvalOptions { protocol: Protocol::Bb84, accessible: Some(search_only.clone()) })
                 .map_err(|e| TestCaseError::fail(e.to_string()))?;
