@@ -149,12 +149,36 @@ fn generic_combination(states: &[CMat]) -> CMat {
 }
 
 /// A unitary whose columns, grouped as returned, span subspaces that every state leaves
-/// invariant (up to `tol` relative to the generic combination's largest eigenvalue).
+/// invariant (up to `tol` relative to the states' largest eigenvalue).
+///
+/// First the eigenbasis of the generic combination (cheap, and enough unless that
+/// combination has equal eigenvalues in different blocks). If that leaves a block larger
+/// than a qubit, the states' commutant `{X : Xρᵢ = ρᵢX}` is computed as the null space of
+/// the commutator map on Hermitian matrices; a generic Hermitian element of it has the
+/// finest invariant subspaces as its eigenspaces, also when blocks repeat (as when Eve
+/// holds an ancilla in a fixed mixed state), and its eigenbasis is used if it splits more.
 pub fn invariant_blocks(states: &[CMat], tol: f64) -> (CMat, Vec<Vec<usize>>) {
     let (vals, basis) = hermitian_eigen(&generic_combination(states));
-    let d = vals.len();
     let scale = vals.iter().fold(0.0_f64, |m, v| m.max(v.abs())).max(f64::MIN_POSITIVE);
-    let rotated: Vec<CMat> = states.iter().map(|rho| basis.adjoint() * rho * &basis).collect();
+    let groups = coupled_components(states, &basis, tol * scale);
+    if groups.iter().all(|g| g.len() <= 2) {
+        return (basis, groups);
+    }
+    if let Some(x) = commutant_element(states, tol * scale) {
+        let (_, finer_basis) = hermitian_eigen(&x);
+        let finer = coupled_components(states, &finer_basis, tol * scale);
+        if finer.len() > groups.len() {
+            return (finer_basis, finer);
+        }
+    }
+    (basis, groups)
+}
+
+/// Connected components of the graph on the columns of `basis` whose edges are the
+/// states' entries above `threshold` in magnitude in that basis, each in increasing order.
+fn coupled_components(states: &[CMat], basis: &CMat, threshold: f64) -> Vec<Vec<usize>> {
+    let d = basis.ncols();
+    let rotated: Vec<CMat> = states.iter().map(|rho| basis.adjoint() * rho * basis).collect();
     let mut root: Vec<usize> = (0..d).collect();
     fn find(root: &mut [usize], mut i: usize) -> usize {
         while root[i] != i {
@@ -165,7 +189,7 @@ pub fn invariant_blocks(states: &[CMat], tol: f64) -> (CMat, Vec<Vec<usize>>) {
     }
     for i in 0..d {
         for j in i + 1..d {
-            if rotated.iter().any(|s| s[(i, j)].norm() > tol * scale) {
+            if rotated.iter().any(|s| s[(i, j)].norm() > threshold) {
                 let (a, b) = (find(&mut root, i), find(&mut root, j));
                 root[a.max(b)] = a.min(b);
             }
@@ -181,7 +205,62 @@ pub fn invariant_blocks(states: &[CMat], tol: f64) -> (CMat, Vec<Vec<usize>>) {
         }
         groups[group_of[r]].push(i);
     }
-    (basis, groups)
+    groups
+}
+
+/// A generic Hermitian element of the states' commutant, or `None` when the commutant
+/// holds only multiples of the identity. Null directions are those where the commutator
+/// map's singular value is at most `10 · threshold`.
+fn commutant_element(states: &[CMat], threshold: f64) -> Option<CMat> {
+    let d = states[0].nrows();
+    // Real basis of the Hermitian d × d matrices: E_ii, E_ij + E_ji, i(E_ij − E_ji).
+    let mut herm: Vec<CMat> = Vec::with_capacity(d * d);
+    for i in 0..d {
+        for j in i..d {
+            let mut m = CMat::zeros(d, d);
+            if i == j {
+                m[(i, i)] = c(1.0, 0.0);
+                herm.push(m);
+            } else {
+                m[(i, j)] = c(1.0, 0.0);
+                m[(j, i)] = c(1.0, 0.0);
+                herm.push(m.clone());
+                m[(i, j)] = c(0.0, 1.0);
+                m[(j, i)] = c(0.0, -1.0);
+                herm.push(m);
+            }
+        }
+    }
+    let rows = 2 * d * d * states.len();
+    let mut map = nalgebra::DMatrix::<f64>::zeros(rows, herm.len());
+    for (k, h) in herm.iter().enumerate() {
+        let mut r = 0;
+        for rho in states {
+            let comm = h * rho - rho * h;
+            for z in comm.iter() {
+                map[(r, k)] = z.re;
+                map[(r + 1, k)] = z.im;
+                r += 2;
+            }
+        }
+    }
+    // Singular values straight from the map (a Gram matrix would square away precision).
+    let svd = map.svd(false, true);
+    let v_t = svd.v_t.as_ref()?;
+    let null: Vec<usize> = (0..svd.singular_values.len()).filter(|&k| svd.singular_values[k] <= 10.0 * threshold).collect();
+    if null.len() <= 1 {
+        return None;
+    }
+    // Fixed pseudo-random weights: the result is deterministic.
+    let mut rng = rand_chacha::ChaCha8Rng::seed_from_u64(0x5eed);
+    let mut x = CMat::zeros(d, d);
+    for &k in &null {
+        let w: f64 = rng.sample(StandardNormal);
+        for (j, h) in herm.iter().enumerate() {
+            x += h * c(w * v_t[(k, j)], 0.0);
+        }
+    }
+    Some(x)
 }
 
 /// Stages 2 and 3: block by block.
@@ -499,6 +578,21 @@ mod tests {
             sizes.sort();
             assert_eq!(sizes, vec![1, 2, 2]);
         }
+        // Two copies of one qubit pair (Eve's extra qubit maximally mixed): the generic
+        // combination is degenerate across the copies, the commutant splits them.
+        for _ in 0..10 {
+            let u = KrausChannel::random_isometry(4, 4, &mut rng);
+            let a = DensityMatrix::random_hilbert_schmidt(2, &mut rng).matrix().clone();
+            let b = DensityMatrix::random_hilbert_schmidt(2, &mut rng).matrix().clone();
+            let half = DensityMatrix::maximally_mixed(2).matrix().clone();
+            let states = [&u * crate::linalg::kron(&a, &half) * u.adjoint(), &u * crate::linalg::kron(&b, &half) * u.adjoint()];
+            let (_, groups) = invariant_blocks(&states, 1e-12);
+            assert_eq!(groups.iter().map(Vec::len).collect::<Vec<_>>(), vec![2, 2]);
+            let copies = accessible_information(&[0.4, 0.6], &states, &AccessibleOptions::default()).unwrap();
+            let single = qubit_pair::solve([0.4, 0.6], [&a, &b]);
+            assert_abs_diff_eq!(copies.bits, single.bits, epsilon = 1e-12);
+            assert!(copies.upper_bound.unwrap() - copies.bits < 1e-10);
+        }
         // Random states share no invariant subspace.
         let s0 = DensityMatrix::random_hilbert_schmidt(4, &mut rng).matrix().clone();
         let s1 = DensityMatrix::random_hilbert_schmidt(4, &mut rng).matrix().clone();
@@ -524,6 +618,7 @@ mod tests {
             assert!(upper >= slow.bits - 1e-10, "case {i}: bound {upper} below an achieved {}", slow.bits);
             assert!(upper - fast.bits <= 1e-9, "case {i}: gap {}", upper - fast.bits);
             assert!(fast.bits <= chi + 1e-12);
+            assert!(fast.bits >= crate::measures::helstrom_information(priors, [&states[0], &states[1]]) - 1e-12);
             // The value is the returned POVM's information on the original states.
             assert_abs_diff_eq!(fast.bits, measured_information(&priors, &states, &fast.povm), epsilon = 1e-15);
             let completeness = fast.povm.iter().fold(CMat::zeros(5, 5), |acc, v| acc + v * v.adjoint());

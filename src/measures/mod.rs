@@ -66,6 +66,31 @@ pub fn helstrom_guess(p0: f64, rho0: &CMat, p1: f64, rho1: &CMat) -> f64 {
     0.5 * (1.0 + trace_norm(&diff))
 }
 
+/// Mutual information `I(X:M)` in bits of the two-outcome Helstrom measurement
+/// `{P₊, 1 − P₊}`, `P₊` the projector onto the positive part of `p₀ρ₀ − p₁ρ₁`: the
+/// measurement that best guesses the label, and a lower bound on the accessible information.
+pub fn helstrom_information(priors: [f64; 2], states: [&CMat; 2]) -> f64 {
+    let d = states[0].nrows();
+    let diff = states[0] * c(priors[0], 0.0) - states[1] * c(priors[1], 0.0);
+    let (vals, vecs) = crate::linalg::hermitian_eigen(&diff);
+    let mut p_plus = CMat::zeros(d, d);
+    for (i, v) in vals.iter().enumerate() {
+        if *v > 0.0 {
+            let col = vecs.column(i);
+            p_plus += col * col.adjoint();
+        }
+    }
+    let joint: Vec<Vec<f64>> = priors
+        .iter()
+        .zip(states)
+        .map(|(p, rho)| {
+            let plus = (&p_plus * rho).trace().re;
+            vec![p * plus, p * (rho.trace().re - plus)]
+        })
+        .collect();
+    mutual_information(&joint)
+}
+
 /// Holevo quantity `χ = S(Σ pᵢρᵢ) − Σ pᵢ S(ρᵢ)` in bits (Holevo 1973).
 pub fn holevo_quantity(priors: &[f64], states: &[CMat]) -> f64 {
     assert_eq!(priors.len(), states.len(), "holevo_quantity: one prior per state");
@@ -90,7 +115,7 @@ pub fn measured_information(priors: &[f64], states: &[CMat], povm: &[CVec]) -> f
 #[cfg(test)]
 mod tests {
     use super::*;
-    use crate::linalg::{hermitian_eigen, kron, outer};
+    use crate::linalg::kron;
     use crate::state::{DensityMatrix, Ket};
     use approx::assert_abs_diff_eq;
     use rand::SeedableRng;
@@ -186,19 +211,7 @@ mod tests {
                 let r1 = DensityMatrix::random_hilbert_schmidt(d, &mut rng).matrix().clone();
                 let acc = accessible_information(&[0.5, 0.5], &[r0.clone(), r1.clone()], &AccessibleOptions::default()).unwrap();
                 let chi = holevo_quantity(&[0.5, 0.5], &[r0.clone(), r1.clone()]);
-                // Information of the two-outcome Helstrom measurement.
-                let diff = &r0 - &r1;
-                let (vals, vecs) = hermitian_eigen(&diff);
-                let mut p_plus = CMat::zeros(d, d);
-                for (i, v) in vals.iter().enumerate() {
-                    if *v > 0.0 {
-                        p_plus += outer(&vecs.column(i).into_owned(), &vecs.column(i).into_owned());
-                    }
-                }
-                let p_minus = CMat::identity(d, d) - &p_plus;
-                let joint: Vec<Vec<f64>> =
-                    [&r0, &r1].iter().map(|r| vec![0.5 * (&p_plus * *r).trace().re, 0.5 * (&p_minus * *r).trace().re]).collect();
-                let helstrom_info = mutual_information(&joint);
+                let helstrom_info = helstrom_information([0.5, 0.5], [&r0, &r1]);
                 assert!(acc.bits <= chi + 1e-12, "accessible {} above Holevo {}", acc.bits, chi);
                 assert!(acc.bits >= helstrom_info - 1e-12, "accessible {} below Helstrom {}", acc.bits, helstrom_info);
             }
