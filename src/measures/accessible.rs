@@ -12,7 +12,9 @@
 //!    the graph whose edges are the states' non-zero entries in the eigenbasis of a generic
 //!    positive combination of them (any coordinate subspace of that basis is invariant
 //!    under the combination; a component is then invariant under every state). Entries
-//!    below `block_tol` relative to the combination's norm count as zero. Eve's states
+//!    below `block_tol` relative to the combination's norm count as zero. When that leaves
+//!    a block larger than a qubit, the eigenbasis of a generic element of the states'
+//!    commutant is tried as well (see [`invariant_blocks`]). Eve's states
 //!    under the Pauli cloners and Pauli channels split this way into two-dimensional
 //!    blocks (error and no error in the measured basis).
 //! 3. **Per block:** a one-dimensional block or one holding a single state carries no
