@@ -437,6 +437,26 @@ mod tests {
     }
 
     #[test]
+    fn measurement_rounds_never_lose_accessible_information() {
+        // The accessible objective runs the guessing-probability stages first, then its
+        // rounds; the rounds may only add information (up to the penalty's tolerance).
+        let mut rng = crate::sim::trial_rng(4, 0, 0);
+        let x0: Vec<f64> = (0..32).map(|_| rng.sample::<f64, _>(StandardNormal)).collect();
+        let opts = |objective| HuntOptions { protocol: Protocol::Bb84, objective, eve_dim: 4, starts: 1, seed: 0, max_iters: 60 };
+        let q = 0.08;
+        let score = |x: &[f64]| {
+            let states = eve_key_states(&isometry(x, 4), 4);
+            accessible_information(&[0.5, 0.5], &states, &AccessibleOptions::default()).unwrap().bits
+        };
+        let guessed = optimise_start(&opts(Objective::Guess), q, x0.clone()).unwrap();
+        let polished = optimise_start(&opts(Objective::Accessible), q, x0).unwrap();
+        let e = evaluate_unchecked(&attack_of(&polished, 4), &EvalOptions::fast(Protocol::Bb84)).unwrap();
+        assert!(max_qber(&e, Protocol::Bb84) <= q + 1e-9);
+        assert!(score(&polished) >= score(&guessed) - 1e-9, "{} < {}", score(&polished), score(&guessed));
+        assert!(score(&polished) <= fggnp_information(max_qber(&e, Protocol::Bb84)) + 1e-9);
+    }
+
+    #[test]
     fn bounds_match_the_published_values() {
         // h(0.1) = 0.4689955936 (REFERENCES.md §5 [N]); FGGNP I_E(0.1) = 0.2780719051 (§4 [N]).
         assert!((bound(Objective::Holevo, Protocol::Bb84, 0.1).unwrap() - 0.4689955936).abs() < 1e-9);
