@@ -39,8 +39,8 @@ pub enum Command {
     Run(crate::audit::cli::RunArgs),
     /// Write the round-by-round log of one small block as CSV.
     Rounds(crate::audit::cli::RoundsArgs),
-    /// Asymptotic key rate per pulse against distance for the weak-pulse rules, and each
-    /// rule's maximum distance.
+    /// Asymptotic key rate per pulse against distance for the link rules (weak pulses with or
+    /// without decoys, or single photons), and each rule's maximum distance.
     Keyrate(KeyrateArgs),
     /// Search numerically for the strongest attack, to test how tight each bound is.
     Hunt(HuntArgs),
@@ -134,8 +134,8 @@ pub struct ValidateArgs {
 /// Options of `keyrate`.
 #[derive(clap::Args, Debug)]
 pub struct KeyrateArgs {
-    /// Setup file with a weak-coherent [source], [channel] (attenuation, dB/km) and
-    /// [detector]; default: the standard parameter set of Ma, Qi, Zhao, Lo (2005): 0.21 dB/km,
+    /// Setup file with a [source] (weak-coherent: the weak-pulse rules; single-photon: the
+    /// single-photon rate), [channel] (attenuation, dB/km) and [detector]; default: the standard parameter set of Ma, Qi, Zhao, Lo (2005): 0.21 dB/km,
     /// η_Bob = 0.045, Y₀ = 1.7e-6, e_d = 0.033, μ = 0.48, weak decoy ν = 0.05.
     #[arg(long, value_name = "FILE")]
     pub setup: Option<PathBuf>,
@@ -183,9 +183,6 @@ fn cmd_keyrate(a: KeyrateArgs) -> Result<Outcome> {
     let (link, f_default) = match &a.setup {
         Some(p) => {
             let s = crate::setup::Setup::load(p)?;
-            if s.link.source.intensities().is_empty() {
-                return Err(Error::input_key("source", "keyrate needs a weak-coherent [source]").with_file(p));
-            }
             (s.link, s.ec_efficiency)
         }
         None => (Link::reference_parameter_set(), 1.22),
@@ -200,12 +197,17 @@ fn cmd_keyrate(a: KeyrateArgs) -> Result<Outcome> {
     crate::error::check_range("--f-ec", f_ec, 1.0, 3.0)?;
     let ints = link.source.intensities();
     let nu = ints.iter().skip(1).map(|x| x.0).filter(|m| *m > 0.0).fold(f64::NAN, f64::min);
-    let mut rules = vec![LinkRule::NaiveSinglePhoton, LinkRule::GllpNoDecoy, LinkRule::DecoyIdeal];
+    let mut rules = if ints.is_empty() {
+        vec![LinkRule::SinglePhoton]
+    } else {
+        vec![LinkRule::NaiveSinglePhoton, LinkRule::GllpNoDecoy, LinkRule::DecoyIdeal]
+    };
     if nu.is_finite() {
         rules.push(LinkRule::DecoyVacuumWeak);
     }
     let params = RateParams { sifting: a.sifting, f_ec, nu: if nu.is_finite() { nu } else { 0.0 } };
-    let mu = if a.optimize_mu { None } else { Some(ints[0].0) };
+    // A single-photon source has no intensity to set or optimise.
+    let mu = if a.optimize_mu || ints.is_empty() { None } else { Some(ints[0].0) };
     let distances: Vec<f64> = if a.steps == 1 {
         vec![a.from_km]
     } else {
@@ -231,7 +233,13 @@ fn cmd_keyrate(a: KeyrateArgs) -> Result<Outcome> {
     let csv_text = String::from_utf8(w.into_inner().map_err(|e| Error::input(e.to_string()))?).expect("csv is UTF-8");
     let mut table = format!(
         "maximum distance per rule ({}; f = {f_ec}, q = {}):\n",
-        if a.optimize_mu { "μ optimised".to_string() } else { format!("μ = {}", ints[0].0) },
+        if ints.is_empty() {
+            "single photons".to_string()
+        } else if a.optimize_mu {
+            "μ optimised".to_string()
+        } else {
+            format!("μ = {}", ints[0].0)
+        },
         a.sifting
     );
     for &rule in &rules {

@@ -1,5 +1,5 @@
-//! Asymptotic key rate per pulse of weak-coherent-pulse BB84 for the link-level key-length
-//! rules, its optimisation over the signal intensity, and the maximum distance per rule.
+//! Asymptotic key rate per pulse of BB84 over an optical link (weak coherent pulses or single
+//! photons) for the link-level key-length rules, its optimisation over the signal intensity, and the maximum distance per rule.
 //!
 //! With q the sifting factor (½ for symmetric BB84), f the error-correction efficiency and
 //! the link statistics of [`crate::link`]:
@@ -11,7 +11,11 @@
 //! - `decoy-ideal`: `q·{−Q_μ f h(E_μ) + Q₁[1 − h(e₁)]}` with the true Q₁, e₁ (infinitely
 //!   many decoys; Lo, Ma, Chen, PRL 94, 230504, 2005);
 //! - `decoy-vacuum-weak`: the same with the vacuum + weak decoy bounds Y₁ᴸ, e₁ᵁ (Ma, Qi, Zhao,
-//!   Lo, PRA 72, 012326, 2005).
+//!   Lo, PRA 72, 012326, 2005);
+//! - `single-photon` (a single-photon source): `q·Y₁·(1 − h(e₁) − f·h(e₁))`, every pulse one
+//!   photon, with the single-photon yield and error of [`crate::link`] (the
+//!   Shor–Preskill rate per detection, Shor and Preskill, PRL 85, 441, 2000); the
+//!   intensity plays no part.
 //! Rates are not clipped; a rule's maximum distance is where its (optimised) rate reaches 0.
 
 use crate::bounds::bisect;
@@ -32,10 +36,12 @@ pub enum LinkRule {
     DecoyIdeal,
     /// Vacuum + one weak decoy.
     DecoyVacuumWeak,
+    /// A single-photon source.
+    SinglePhoton,
 }
 
 impl LinkRule {
-    /// All, in report order.
+    /// The weak-coherent rules, in report order.
     pub const ALL: [LinkRule; 4] = [LinkRule::NaiveSinglePhoton, LinkRule::GllpNoDecoy, LinkRule::DecoyIdeal, LinkRule::DecoyVacuumWeak];
     /// Interface name.
     pub fn name(self) -> &'static str {
@@ -44,6 +50,7 @@ impl LinkRule {
             LinkRule::GllpNoDecoy => "gllp-no-decoy",
             LinkRule::DecoyIdeal => "decoy-ideal",
             LinkRule::DecoyVacuumWeak => "decoy-vacuum-weak",
+            LinkRule::SinglePhoton => "single-photon",
         }
     }
 }
@@ -78,16 +85,17 @@ pub fn vacuum_weak_bounds(mu: f64, nu: f64, q_mu: f64, q_nu: f64, e_nu: f64, y0:
 
 /// Multi-photon emission probability `1 − (1 + μ)e^{−μ}`.
 pub fn multi_photon_probability(mu: f64) -> f64 {
-    1.0 - (1.0 + mu) * (-mu).exp()
+    crate::link::Photons::Poisson { mean: mu }.multi_photon_probability()
 }
 
-/// Rate per pulse of `rule` on `link` at intensity `mu`.
+/// Rate per pulse of `rule` on `link` at intensity `mu` (ignored by `single-photon`).
 pub fn rate(rule: LinkRule, link: &Link, mu: f64, p: &RateParams) -> f64 {
     let eta = link.transmittance();
     let (y0, ed) = (link.dark_count_probability, link.misalignment);
     let s = gains(mu, eta, y0, ed);
     let ec = p.f_ec * hc(s.error_rate);
     match rule {
+        LinkRule::SinglePhoton => p.sifting * s.y1 * (1.0 - (1.0 + p.f_ec) * hc(s.e1)),
         LinkRule::NaiveSinglePhoton => p.sifting * s.gain * (1.0 - hc(s.error_rate) - ec),
         LinkRule::GllpNoDecoy => {
             let delta = multi_photon_probability(mu) / s.gain;
@@ -114,6 +122,9 @@ pub fn rate(rule: LinkRule, link: &Link, mu: f64, p: &RateParams) -> f64 {
 /// grid matters for `gllp-no-decoy`, whose rate is positive only in a narrow window near
 /// μ ≈ 0.6η. Returns (μ, rate).
 pub fn optimal_mu(rule: LinkRule, link: &Link, p: &RateParams) -> (f64, f64) {
+    if rule == LinkRule::SinglePhoton {
+        return (1.0, rate(rule, link, 1.0, p));
+    }
     let lo = if rule == LinkRule::DecoyVacuumWeak { (p.nu * 1.001).max(1e-6) } else { 1e-6 };
     let hi = 1.0_f64;
     let (llo, lhi) = (lo.ln(), hi.ln());
@@ -168,11 +179,11 @@ pub struct RateRow {
     pub transmittance: f64,
     /// Rule.
     pub rule: LinkRule,
-    /// Signal intensity used, photons per pulse.
+    /// Signal intensity used, photons per pulse (1 for a single-photon source).
     pub mu: f64,
-    /// Gain Q_μ.
+    /// Gain Q_μ (Y₁ for a single-photon source).
     pub gain: f64,
-    /// Error rate E_μ.
+    /// Error rate E_μ (e₁ for a single-photon source).
     pub error_rate: f64,
     /// Key rate, bits per pulse (not clipped).
     pub rate_bits_per_pulse: f64,
@@ -193,15 +204,8 @@ pub fn rate_table(link: &Link, distances: &[f64], rules: &[LinkRule], mu: Option
                         None => optimal_mu(rule, &l, p),
                     };
                     let s = l.stats(m);
-                    RateRow {
-                        distance_km: km,
-                        transmittance: l.transmittance(),
-                        rule,
-                        mu: m,
-                        gain: s.gain,
-                        error_rate: s.error_rate,
-                        rate_bits_per_pulse: r,
-                    }
+                    let (gain, error_rate) = if rule == LinkRule::SinglePhoton { (s.y1, s.e1) } else { (s.gain, s.error_rate) };
+                    RateRow { distance_km: km, transmittance: l.transmittance(), rule, mu: m, gain, error_rate, rate_bits_per_pulse: r }
                 })
                 .collect::<Vec<_>>()
         })
@@ -252,5 +256,21 @@ mod tests {
         assert!((d(LinkRule::GllpNoDecoy) - 40.2).abs() < 0.2, "{}", d(LinkRule::GllpNoDecoy));
         // The naive rule claims more than every proven rule.
         assert!(d(LinkRule::NaiveSinglePhoton) > d(LinkRule::DecoyIdeal));
+    }
+
+    #[test]
+    fn single_photon_source_reaches_its_closed_form_distance() {
+        // Independent derivation: the rate q·Y₁(1 − (1 + f)h(e₁)) vanishes where
+        // h(e*) = 1/(1 + f); e₁ = (½Y₀ + e_d η)/(Y₀ + η) then gives
+        // η* = Y₀(½ − e*)/(e* − e_d) and L* = −10 log₁₀(η*/η_B)/α.
+        let link = Link { source: crate::link::Source::SinglePhoton, ..gys() };
+        let e_star = bisect(|e| binary_entropy(e) - 1.0 / (1.0 + P.f_ec), 1e-9, 0.5, 1e-15).unwrap();
+        let (y0, ed, eta_b, alpha) = (1.7e-6, 0.033, 0.045, 0.21);
+        let eta_star = y0 * (0.5 - e_star) / (e_star - ed);
+        let l_star = -10.0 * (eta_star / eta_b).log10() / alpha;
+        let d = max_distance(LinkRule::SinglePhoton, &link, None, &P).unwrap().unwrap();
+        assert!((d - l_star).abs() < 1e-4, "{d} vs {l_star}");
+        // One photon per pulse beats the decoy rules' reach on the same link.
+        assert!(d > max_distance(LinkRule::DecoyIdeal, &gys(), None, &P).unwrap().unwrap());
     }
 }

@@ -32,7 +32,53 @@ pub enum Source {
     },
 }
 
+/// The photon-number distribution of one kind of pulse.
+#[derive(Clone, Copy, Debug, PartialEq, Serialize)]
+#[serde(tag = "kind", rename_all = "kebab-case")]
+pub enum Photons {
+    /// Exactly one photon.
+    Single,
+    /// Poisson with this mean (a phase-randomised coherent pulse of intensity μ).
+    Poisson {
+        /// Mean photon number μ.
+        mean: f64,
+    },
+}
+
+impl Photons {
+    /// Probability of `n` photons.
+    pub fn probability(self, n: u32) -> f64 {
+        match self {
+            Photons::Single => f64::from(u8::from(n == 1)),
+            Photons::Poisson { mean } => poisson(mean, n),
+        }
+    }
+    /// Mean photon number.
+    pub fn mean(self) -> f64 {
+        match self {
+            Photons::Single => 1.0,
+            Photons::Poisson { mean } => mean,
+        }
+    }
+    /// Probability of two or more photons.
+    pub fn multi_photon_probability(self) -> f64 {
+        match self {
+            Photons::Single => 0.0,
+            Photons::Poisson { mean } => 1.0 - (1.0 + mean) * (-mean).exp(),
+        }
+    }
+}
+
 impl Source {
+    /// The kinds of pulse the source sends (signal first) with their probabilities: one
+    /// single-photon setting, or one Poisson setting per intensity.
+    pub fn settings(&self) -> Vec<(Photons, f64)> {
+        match self {
+            Source::SinglePhoton => vec![(Photons::Single, 1.0)],
+            Source::WeakCoherent { .. } => self.intensities().into_iter().map(|(mean, p)| (Photons::Poisson { mean }, p)).collect(),
+        }
+    }
+
     /// The intensities in order (signal first) with their probabilities; a single-photon
     /// source has none.
     pub fn intensities(&self) -> Vec<(f64, f64)> {
@@ -98,7 +144,8 @@ impl Link {
     }
 
     /// True for the ideal single-photon link (no loss, perfect detectors), where the
-    /// qubit-level campaign applies unchanged.
+    /// qubit-level campaign applies unchanged; every other link is simulated with the
+    /// link model (`sim::link`).
     pub fn is_ideal_single_photon(&self) -> bool {
         matches!(self.source, Source::SinglePhoton)
             && self.channel_loss_db == 0.0

@@ -5,7 +5,7 @@ use proptest::test_runner::{Config, FileFailurePersistence, RngAlgorithm, TestRn
 use qkd_audit::attack::link_attack::{honest, LinkAttack};
 use qkd_audit::audit::trial::{judge, Verdict};
 use qkd_audit::keyrate::vacuum_weak_bounds;
-use qkd_audit::link::{Link, Source};
+use qkd_audit::link::{Link, Photons, Source};
 use qkd_audit::rules::KeyRule;
 use qkd_audit::setup::{Setup, TestSample};
 use qkd_audit::sim::link::{sample, LinkModel};
@@ -45,8 +45,8 @@ fn decoy_bounds_contain_the_true_single_photon_yield_and_error() {
                 misalignment: ed,
                 ..Link::default()
             };
-            let s_mu = honest(&l, mu);
-            let s_nu = honest(&l, nu);
+            let s_mu = honest(&l, Photons::Poisson { mean: mu });
+            let s_nu = honest(&l, Photons::Poisson { mean: nu });
             let (y1l, e1u) = vacuum_weak_bounds(mu, nu, s_mu.gain, s_nu.gain, s_nu.error_rate(1), y0);
             let y1 = y0 + eta - y0 * eta;
             // In this model a single photon is detected with probability η (error e_d), and
@@ -237,7 +237,7 @@ fn single_photon_attacks_on_weak_pulses_match_the_gain_and_never_break_decoy_rul
             let h = evaluate(&a, &EvalOptions::fast(Protocol::Bb84)).unwrap().h_x_given_e;
             let model = LinkModel::qubit(&s.link, &a, Protocol::Bb84, &s.basis_probabilities(), h);
             // Intercept-resend with loss compensation: Bob's signal gain is the honest one.
-            let honest_gain = honest(&s.link, 0.5).gain;
+            let honest_gain = honest(&s.link, Photons::Poisson { mean: 0.5 }).gain;
             assert!((model.gain(0) - honest_gain).abs() < 1e-12 * honest_gain.max(1e-300) + 1e-15, "gain");
             assert!(model.note.is_empty());
             let err = model.error_rate_in(0, 0);
@@ -280,4 +280,98 @@ fn finite_decoy_rule_approaches_the_asymptotic_decoy_bound_for_huge_blocks() {
         KeyRule::DecoyVacuumWeak.length(&stats, &Setup { key_rule: KeyRule::DecoyVacuumWeak, ..s.clone() }).raw_bits / stats.n as f64;
     assert!(finite > 0.0 && asymptotic > 0.0, "{finite} {asymptotic}");
     assert!(finite <= asymptotic * 1.05 && finite >= asymptotic * 0.9, "finite {finite} vs asymptotic {asymptotic}");
+}
+
+fn single_photon_link(loss_db: f64) -> Link {
+    Link { source: Source::SinglePhoton, ..link(loss_db, 0.5) }
+}
+
+/// A single-photon attack or a link-level attack from two numbers in [0, 1].
+fn single_photon_link_model(which: usize, x: f64, setup: &Setup) -> LinkModel {
+    use qkd_audit::attack::{Attack, Value};
+    use qkd_audit::eval::{evaluate, EvalOptions};
+    use qkd_audit::protocol::Protocol;
+    use std::collections::BTreeMap;
+    let bp = setup.basis_probabilities();
+    let qubit = |family: &str, key: &str, v: f64| {
+        let mut g = BTreeMap::new();
+        g.insert(key.to_string(), Value::Num(v));
+        let a = Attack::builtin(family, &g).unwrap();
+        let h = evaluate(&a, &EvalOptions::fast(Protocol::Bb84)).unwrap().h_x_given_e;
+        LinkModel::qubit(&setup.link, &a, Protocol::Bb84, &bp, h)
+    };
+    match which {
+        0 => qubit("intercept-resend", "fraction", 0.4 * x),
+        1 => qubit("cloner", "qber", 0.1 * x),
+        2 => qubit("entangling-probe", "qber", 0.1 * x),
+        3 => LinkModel::new(&setup.link, Some(&LinkAttack::PhotonNumberSplitting { fraction: x }), &bp),
+        _ => LinkModel::new(&setup.link, Some(&LinkAttack::BeamSplitting { fraction: x }), &bp),
+    }
+}
+
+#[test]
+fn proven_rules_never_leak_on_a_lossy_single_photon_link() {
+    // A single-photon source over 0–20 dB with imperfect detectors: Eve replaces the line
+    // and matches Bob's gain (single-photon attacks), or splits photons off. Every
+    // detection is a single photon, so the single-photon rules are proven here (Tomamichel,
+    // Lim, Gisin, Renner, Nat. Commun. 3, 634, 2012) and must never leak.
+    let strategy = (any::<u64>(), 0.0f64..20.0, 0usize..5, 0.0f64..=1.0);
+    let mut keyed = [0usize; 2];
+    let counter = std::cell::RefCell::new(&mut keyed);
+    runner(50, 21)
+        .run(&strategy, |(seed, loss, which, x)| {
+            for (i, rule) in [KeyRule::FiniteUncertainty, KeyRule::NaiveSinglePhoton].into_iter().enumerate() {
+                let s = Setup { link: single_photon_link(loss), ..setup(rule, loss, 1_000_000_000) };
+                let model = single_photon_link_model(which, x, &s);
+                let honest_gain = honest(&s.link, Photons::Single).gain;
+                prop_assert!((model.gain(0) - honest_gain).abs() <= 1e-12 * honest_gain, "gain not matched");
+                prop_assert!(model.note.is_empty(), "{}", model.note);
+                let ts = |z: u64| s.test_sample.size(z);
+                for t in 0..8 {
+                    let c = sample(&model, s.signals, &ts, &mut trial_rng(seed, which as u64, t));
+                    let v = judge(&c, &s, model.h_x_given_e()).verdict;
+                    prop_assert!(v != Verdict::Leak, "{rule} leaked: attack {which}, x = {x}, {loss} dB");
+                    counter.borrow_mut()[i] += usize::from(matches!(v, Verdict::Secure | Verdict::Inconclusive));
+                }
+            }
+            Ok(())
+        })
+        .unwrap();
+    assert!(keyed[0] > 80 && keyed[1] > 80, "too few keys: {keyed:?}");
+}
+
+#[test]
+fn full_intercept_resend_on_a_lossy_single_photon_link_is_caught() {
+    let s = Setup { link: single_photon_link(10.0), ..setup(KeyRule::FiniteUncertainty, 10.0, 100_000_000) };
+    let model = single_photon_link_model(0, 2.5, &s); // fraction 1
+    assert!((model.error_rate_in(0, 1) - 0.25).abs() < 0.02, "{}", model.error_rate_in(0, 1));
+    let ts = |z: u64| s.test_sample.size(z);
+    for t in 0..10 {
+        let c = sample(&model, s.signals, &ts, &mut trial_rng(3, 0, t));
+        assert_eq!(judge(&c, &s, model.h_x_given_e()).verdict, Verdict::Aborted);
+    }
+}
+
+#[test]
+fn campaigns_run_on_a_lossy_single_photon_link() {
+    let dir = tempfile::tempdir().unwrap();
+    std::fs::write(
+        dir.path().join("s.toml"),
+        "signals = 100000000\nkey_rule = \"finite-uncertainty\"\nabort_qber = 0.06\n\
+         [source]\nkind = \"single-photon\"\n[channel]\nloss_db = 8\n\
+         [detector]\nefficiency = 0.2\ndark_count_probability = 1e-6\nmisalignment = 0.01\n",
+    )
+    .unwrap();
+    std::fs::write(
+        dir.path().join("c.toml"),
+        "name = \"sp\"\nsetup = \"s.toml\"\ntrials = 20\nrules = [\"finite-uncertainty\", \"naive-single-photon\"]\n\
+         [[attacks]]\nbuiltin = \"intercept-resend\"\n\
+         [[attacks]]\nbuiltin = \"photon-number-splitting\"\n",
+    )
+    .unwrap();
+    let out = qkd(&["run", "c.toml", "--quiet", "--results-dir", "out"], dir.path());
+    assert_eq!(out.status.code(), Some(0), "{}", String::from_utf8_lossy(&out.stderr));
+    let folder = std::fs::read_dir(dir.path().join("out")).unwrap().next().unwrap().unwrap().path();
+    let summary = std::fs::read_to_string(folder.join("summary.md")).unwrap();
+    assert!(summary.contains("single photons"), "{summary}");
 }

@@ -91,7 +91,7 @@ impl AttackFile {
             AttackFile::Catalogue(e) if self.is_link() => Err(Error::input_key(
                 "family",
                 format!(
-                    "`{}` is a link-level attack on weak coherent pulses: use it in a campaign whose setup has a weak-coherent [source]",
+                    "`{}` is a link-level attack: use it in a campaign, whose setup describes the link (source, channel, detector)",
                     e.family
                 ),
             )),

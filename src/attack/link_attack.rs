@@ -1,5 +1,6 @@
-//! Link-level attacks on weak-coherent-pulse links. Each declares exactly what Eve knows
-//! about each detected signal: per intensity, the probability of a detection that is
+//! Link-level attacks on optical links (weak coherent pulses or single photons, through
+//! their photon-number distribution [`Photons`]). Each declares exactly what Eve knows
+//! about each detected signal: per kind of pulse, the probability of a detection that is
 //! correct or wrong and whose bit Eve does or does not know.
 //!
 //! - `photon-number-splitting` (Huttner, Imoto, Gisin, Mor, PRA 51, 1863, 1995; Brassard,
@@ -14,13 +15,14 @@
 //!   reports that it cannot hide (`matched = false`).
 //! - `beam-splitting` (Bennett et al., J. Cryptology 5, 3, 1992): on a `fraction` of the
 //!   pulses Eve replaces the fibre by a lossless one and a beam splitter that takes the
-//!   fibre's loss, storing what she taps. Bob's statistics do not change; she holds ≥ 1
-//!   photon with probability 1 − e^{−μ(1−t)} (t the fibre transmittance), independent of
-//!   Bob's click, and with her memory learns those bits.
+//!   fibre's loss, storing what she taps. Bob's statistics do not change; with her memory
+//!   she learns the bit of every pulse of which she holds a photon (for Poisson pulses
+//!   with probability 1 − e^{−μ(1−t)}, t the fibre transmittance, independent of Bob's
+//!   click; a single photon she holds never reaches Bob).
 
 use super::{ParamKind, ParamSpec};
 use crate::error::{check_range, Error, Result};
-use crate::link::{poisson, Link, E0};
+use crate::link::{Link, Photons, E0};
 use serde::Serialize;
 
 /// Link-level attack families, by name.
@@ -162,12 +164,13 @@ fn add_clicks(m: &mut DetectionModel, n: u32, weight: f64, photon: f64, link: &L
     m.add(class, weight * (1.0 - photon) * link.dark_count_probability, [E0; 3], right, h);
 }
 
-/// The honest link at intensity `mu`, photon number by photon number (Eve knows nothing).
-pub fn honest(link: &Link, mu: f64) -> DetectionModel {
+/// The honest link for pulses with photon numbers `photons`, photon number by photon
+/// number (Eve knows nothing).
+pub fn honest(link: &Link, photons: Photons) -> DetectionModel {
     let eta = link.transmittance();
     let mut m = DetectionModel::zero();
     for n in 0..=MAX_PHOTONS {
-        add_clicks(&mut m, n, poisson(mu, n), 1.0 - (1.0 - eta).powi(n as i32), link, 0.5, 1.0);
+        add_clicks(&mut m, n, photons.probability(n), 1.0 - (1.0 - eta).powi(n as i32), link, 0.5, 1.0);
     }
     m
 }
@@ -183,16 +186,16 @@ pub struct PnsStrategy {
     pub matched: bool,
 }
 
-/// Eve's choice of (t₁, t_m) for signal intensity `mu`: Bob's detection probability for a
-/// forwarded pulse of n photons (n − 1 after splitting) is his efficiency applied to what
-/// reaches him over a lossless line.
-pub fn pns_strategy(link: &Link, mu: f64) -> PnsStrategy {
+/// Eve's choice of (t₁, t_m) for the signal pulses `signal`: Bob's detection probability
+/// for a forwarded pulse of n photons (n − 1 after splitting) is his efficiency applied to
+/// what reaches him over a lossless line.
+pub fn pns_strategy(link: &Link, signal: Photons) -> PnsStrategy {
     let eta_b = link.detector_efficiency;
-    let target = honest(link, mu).gain;
+    let target = honest(link, signal).gain;
     let y0 = link.dark_count_probability;
     let (mut base, mut single, mut multi) = (0.0, 0.0, 0.0);
     for n in 0..=MAX_PHOTONS {
-        let p = poisson(mu, n);
+        let p = signal.probability(n);
         base += p * y0;
         match n {
             0 => {}
@@ -209,19 +212,24 @@ pub fn pns_strategy(link: &Link, mu: f64) -> PnsStrategy {
     }
 }
 
-/// Intensity `mu` under a link-level attack whose strategy was chosen for `signal_mu`.
-/// Under photon-number splitting Eve knows Alice's bit for every detection of a pulse with
-/// two or more photons (she holds one of them), whether Bob's click came from a photon or
-/// a dark count; under beam splitting she knows it with probability 1 − e^{−μ(1−t)}.
-pub fn attacked(link: &Link, attack: &LinkAttack, mu: f64, signal_mu: f64) -> DetectionModel {
-    let h = honest(link, mu);
+/// Pulses `photons` under a link-level attack whose strategy was chosen for the signal
+/// pulses `signal`. Under photon-number splitting Eve knows Alice's bit for every
+/// detection of a pulse with two or more photons (she holds one of them), whether Bob's
+/// click came from a photon or a dark count. Under beam splitting an n-photon pulse leaves
+/// her none of its photons with probability tⁿ (t the fibre transmittance); with her
+/// memory she knows the bit whenever she holds at least one, and Bob's photons are what
+/// passed: P(Bob's photons click, Eve holds one) = 1 − (1 − tη_B)ⁿ − tⁿ(1 − (1 − η_B)ⁿ).
+/// For Poisson pulses this gives the familiar 1 − e^{−μ(1−t)} independently of Bob's click;
+/// a single photon that Bob detects is never known to her.
+pub fn attacked(link: &Link, attack: &LinkAttack, photons: Photons, signal: Photons) -> DetectionModel {
+    let h = honest(link, photons);
     let a = match attack {
         LinkAttack::PhotonNumberSplitting { .. } => {
-            let s = pns_strategy(link, signal_mu);
+            let s = pns_strategy(link, signal);
             let eta_b = link.detector_efficiency;
             let mut m = DetectionModel::zero();
             for n in 0..=MAX_PHOTONS {
-                let p = poisson(mu, n);
+                let p = photons.probability(n);
                 match n {
                     0 => add_clicks(&mut m, n, p, 0.0, link, 0.5, 1.0),
                     1 => add_clicks(&mut m, n, p, s.t1 * eta_b, link, 0.5, 1.0),
@@ -231,13 +239,25 @@ pub fn attacked(link: &Link, attack: &LinkAttack, mu: f64, signal_mu: f64) -> De
             m
         }
         LinkAttack::BeamSplitting { .. } => {
-            let p_e = 1.0 - (-mu * (1.0 - link.channel_transmittance())).exp();
-            let eta = link.transmittance();
+            let t = link.channel_transmittance();
+            let eta_b = link.detector_efficiency;
             let mut m = DetectionModel::zero();
             for n in 0..=MAX_PHOTONS {
-                let photon = 1.0 - (1.0 - eta).powi(n as i32);
-                add_clicks(&mut m, n, poisson(mu, n) * p_e, photon, link, 1.0, 0.0);
-                add_clicks(&mut m, n, poisson(mu, n) * (1.0 - p_e), photon, link, 0.5, 1.0);
+                let p = photons.probability(n);
+                if p == 0.0 {
+                    continue;
+                }
+                let k = n as i32;
+                let none_to_eve = t.powi(k);
+                let bob_click_all = 1.0 - (1.0 - eta_b).powi(k);
+                let click_and_eve = (1.0 - (1.0 - t * eta_b).powi(k)) - none_to_eve * bob_click_all;
+                let eve = 1.0 - none_to_eve;
+                // Eve holds nothing: Bob has all n photons.
+                add_clicks(&mut m, n, p * none_to_eve, bob_click_all, link, 0.5, 1.0);
+                // Eve holds at least one: Bob's photons click with the conditional probability.
+                if eve > 0.0 {
+                    add_clicks(&mut m, n, p * eve, (click_and_eve / eve).clamp(0.0, 1.0), link, 1.0, 0.0);
+                }
             }
             m
         }
@@ -245,7 +265,8 @@ pub fn attacked(link: &Link, attack: &LinkAttack, mu: f64, signal_mu: f64) -> De
     h.mix(&a, attack.fraction())
 }
 
-/// A single-photon attack applied to the single-photon pulses of a weak-coherent link.
+/// A single-photon attack applied to the single-photon pulses of a link (every pulse, for
+/// a single-photon source).
 ///
 /// Eve replaces the lossy line by a lossless one, applies the qubit attack (given by its
 /// joint per-basis distribution `joint[b][2·error + eve_right]` and its H(X|E)) to every
@@ -259,26 +280,26 @@ pub fn qubit_on_single_photons(
     joint: [[f64; 4]; 3],
     h_att: f64,
     p_guess: [f64; 3],
-    mu: f64,
-    signal_mu: f64,
+    photons: Photons,
+    signal: Photons,
 ) -> (DetectionModel, f64, bool) {
     let eta_b = link.detector_efficiency;
     let y0 = link.dark_count_probability;
     // Signal gain as a function of t: base + t·slope.
     let (mut base, mut slope) = (0.0, 0.0);
     for n in 0..=MAX_PHOTONS {
-        let p = poisson(signal_mu, n);
+        let p = signal.probability(n);
         let d = 1.0 - (1.0 - eta_b).powi(n as i32);
         base += p * y0;
         slope += p * d * (1.0 - y0);
     }
-    let target = honest(link, signal_mu).gain;
+    let target = honest(link, signal).gain;
     let t_needed = if slope > 0.0 { (target - base) / slope } else { 1.0 };
     let t = t_needed.clamp(0.0, 1.0);
     let e_d = link.misalignment;
     let mut m = DetectionModel::zero();
     for n in 0..=MAX_PHOTONS {
-        let p = poisson(mu, n);
+        let p = photons.probability(n);
         let photon = t * (1.0 - (1.0 - eta_b).powi(n as i32));
         if n == 1 {
             // Misalignment flips Bob's bit: (e, g) → (1 − e, g) with probability e_d.
@@ -329,9 +350,9 @@ mod tests {
         // strategy blocks all single photons exactly at η_c.
         for (mu, eta_c) in [(0.1, 0.046898), (0.5, 0.189070)] {
             let loss_c = -10.0 * f64::log10(eta_c);
-            let below = pns_strategy(&link(loss_c + 0.01).at_mu(mu), mu);
+            let below = pns_strategy(&link(loss_c + 0.01).at_mu(mu), Photons::Poisson { mean: mu });
             assert!(below.matched && below.t1 == 0.0 && below.tm < 1.0, "{below:?}");
-            let above = pns_strategy(&link(loss_c - 0.01).at_mu(mu), mu);
+            let above = pns_strategy(&link(loss_c - 0.01).at_mu(mu), Photons::Poisson { mean: mu });
             assert!(above.matched && above.t1 > 0.0 && above.tm == 1.0, "{above:?}");
         }
         assert_relative_eq!(crate::keyrate::multi_photon_probability(0.1), 0.0046788, max_relative = 1e-4);
@@ -340,8 +361,9 @@ mod tests {
     #[test]
     fn pns_matches_gain_and_adds_no_errors() {
         let l = Link { dark_count_probability: 1e-6, misalignment: 0.02, detector_efficiency: 0.1, ..link(10.0) };
-        let h = honest(&l, 0.5);
-        let pns = attacked(&l, &LinkAttack::PhotonNumberSplitting { fraction: 1.0 }, 0.5, 0.5);
+        let half = Photons::Poisson { mean: 0.5 };
+        let h = honest(&l, half);
+        let pns = attacked(&l, &LinkAttack::PhotonNumberSplitting { fraction: 1.0 }, half, half);
         assert_relative_eq!(h.gain, pns.gain, max_relative = 1e-9);
         // Error rate unchanged up to the share of dark counts.
         assert!((h.error_rate(0) - pns.error_rate(0)).abs() < 1e-3);
@@ -350,11 +372,65 @@ mod tests {
     }
 
     #[test]
+    fn single_photons_give_the_single_photon_yield_and_error() {
+        // The honest link on single photons: gain Y₁ = Y₀ + η − Y₀η of the standard model
+        // (module `link`); error (e_d η + ½Y₀(1 − η))/Y₁, a dark count counting only when
+        // the photon is not detected (the first-order e₁ = (½Y₀ + e_d η)/Y₁ keeps the ½Y₀η
+        // cross term).
+        let l =
+            Link { source: Source::SinglePhoton, dark_count_probability: 1e-5, misalignment: 0.02, detector_efficiency: 0.2, ..link(7.0) };
+        let h = honest(&l, Photons::Single);
+        let s = l.stats(0.5);
+        let (eta, y0, e_d) = (l.transmittance(), l.dark_count_probability, l.misalignment);
+        assert_relative_eq!(h.gain, s.y1, max_relative = 1e-12);
+        assert_relative_eq!(h.error_rate(0), (e_d * eta + E0 * y0 * (1.0 - eta)) / s.y1, max_relative = 1e-12);
+        assert!((h.error_rate(0) - s.e1).abs() <= E0 * y0 * eta / s.y1 * 1.000001);
+        assert_eq!(h.class_z[0], [0.0; 4]);
+        assert_eq!(h.class_z[2], [0.0; 4]);
+    }
+
+    #[test]
+    fn splitting_attacks_learn_nothing_from_detected_single_photons() {
+        // Photon-number splitting has no second photon to keep, so Eve only blocks; beam
+        // splitting takes photons that then never reach Bob, so she knows a detected bit
+        // only when Bob's click is a dark count: a share (1 − t)Y₀ / Y₁ of the detections.
+        let l =
+            Link { source: Source::SinglePhoton, dark_count_probability: 1e-4, misalignment: 0.02, detector_efficiency: 0.2, ..link(7.0) };
+        let h = honest(&l, Photons::Single);
+        let pns = attacked(&l, &LinkAttack::PhotonNumberSplitting { fraction: 1.0 }, Photons::Single, Photons::Single);
+        assert_relative_eq!(pns.gain, h.gain, max_relative = 1e-12);
+        assert_relative_eq!(pns.error_rate(0), h.error_rate(0), max_relative = 1e-9);
+        assert_relative_eq!(pns.h_x_given_e(), 1.0, max_relative = 1e-12);
+        let bs = attacked(&l, &LinkAttack::BeamSplitting { fraction: 1.0 }, Photons::Single, Photons::Single);
+        assert_relative_eq!(bs.gain, h.gain, max_relative = 1e-12);
+        let t = l.channel_transmittance();
+        let known = (1.0 - t) * l.dark_count_probability / h.gain;
+        assert_relative_eq!(1.0 - bs.h_x_given_e(), known, max_relative = 1e-9);
+        // Those dark-count clicks carry a random bit: error rate ½ among them.
+        assert_relative_eq!(bs.error_rate(0), h.error_rate(0), max_relative = 1e-9);
+    }
+
+    #[test]
+    fn beam_splitting_per_photon_number_sums_to_the_poisson_closed_form() {
+        // For Poisson pulses Eve's share is independent of Bob's click: 1 − e^{−μ(1−t)} of
+        // the detections, for any detector efficiency and dark-count rate.
+        for (mu, loss, eta_b, y0) in [(0.5, 3.0, 0.1, 1e-6), (0.1, 10.0, 1.0, 0.0), (0.8, 20.0, 0.3, 1e-4)] {
+            let l = Link { detector_efficiency: eta_b, dark_count_probability: y0, ..link(loss) };
+            let p = Photons::Poisson { mean: mu };
+            let bs = attacked(&l, &LinkAttack::BeamSplitting { fraction: 1.0 }, p, p);
+            let p_e = 1.0 - (-mu * (1.0 - l.channel_transmittance())).exp();
+            assert_relative_eq!(1.0 - bs.h_x_given_e(), p_e, max_relative = 1e-9);
+            assert_relative_eq!(bs.gain, honest(&l, p).gain, max_relative = 1e-12);
+        }
+    }
+
+    #[test]
     fn beam_splitting_information() {
         // REFERENCES.md §10 [N]: μ = 0.1, channel transmittance 0.1: p_E = 0.086069.
         let l = Link { channel_loss_db: 10.0, detector_efficiency: 1.0, ..Link::default() };
-        let s = attacked(&l, &LinkAttack::BeamSplitting { fraction: 1.0 }, 0.1, 0.1);
+        let weak = Photons::Poisson { mean: 0.1 };
+        let s = attacked(&l, &LinkAttack::BeamSplitting { fraction: 1.0 }, weak, weak);
         assert_relative_eq!(1.0 - s.h_x_given_e(), 0.086069, max_relative = 1e-5);
-        assert_relative_eq!(s.gain, honest(&l, 0.1).gain, max_relative = 1e-12);
+        assert_relative_eq!(s.gain, honest(&l, weak).gain, max_relative = 1e-12);
     }
 }

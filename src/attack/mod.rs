@@ -134,7 +134,7 @@ pub fn family(name: &str) -> Result<&'static dyn Family> {
         let hint = if name == "kraus" {
             "; a kraus attack is read from a file (--attack-file)"
         } else if link_attack::LINK_FAMILIES.iter().any(|(n, _)| *n == name) {
-            "; this is a link-level attack on weak coherent pulses: use it in a campaign whose setup has a weak-coherent [source]"
+            "; this is a link-level attack: use it in a campaign, whose setup describes the link (source, channel, detector)"
         } else {
             ""
         };

@@ -169,7 +169,7 @@ impl Campaign {
         for (i, entry) in list.iter().enumerate() {
             let key = format!("attacks[{i}]");
             let table = entry.as_table().ok_or_else(|| Error::input_key(key.clone(), "must be a table"))?;
-            let e = parse_entry(table, base, &setup).map_err(|e| e.with_key(key.clone()))?;
+            let e = parse_entry(table, base).map_err(|e| e.with_key(key.clone()))?;
             inputs.push((e.origin.clone(), e.text.clone()));
             attacks.push(e);
         }
@@ -191,7 +191,7 @@ fn resolve(base: Option<&Path>, p: &str) -> Result<PathBuf> {
     }
 }
 
-fn parse_entry(t: &toml::Table, base: Option<&Path>, setup: &Setup) -> Result<AttackEntry> {
+fn parse_entry(t: &toml::Table, base: Option<&Path>) -> Result<AttackEntry> {
     const KEYS: &[&str] = &["builtin", "file", "steps", "from", "to", "params"];
     for key in t.keys() {
         if !KEYS.contains(&key.as_str()) {
@@ -242,22 +242,6 @@ fn parse_entry(t: &toml::Table, base: Option<&Path>, setup: &Setup) -> Result<At
     };
     let entry = AttackEntry { label, origin, text, file, sweep, params };
     // Build every point once now, so bad values are reported before any work.
-    let weak_coherent = !setup.link.source.intensities().is_empty();
-    if entry.file.is_link() && !weak_coherent {
-        return Err(Error::input_key(
-            "builtin",
-            format!("`{}` is a link-level attack and needs a weak-coherent [source] in the setup", entry.label),
-        ));
-    }
-    if !entry.file.is_link() && !weak_coherent && !setup.link.is_ideal_single_photon() {
-        return Err(Error::input_key(
-            "builtin",
-            format!(
-                "`{}`: a single-photon source on a lossy or imperfect link is not modelled; use a weak-coherent [source] or the ideal link",
-                entry.label
-            ),
-        ));
-    }
     for (_, overrides) in entry.points() {
         if entry.file.is_link() {
             entry.file.link_attack(&overrides)?;
@@ -373,7 +357,8 @@ pub fn run(c: &Campaign, progress: &(dyn Fn() + Sync)) -> Result<Vec<PointResult
         .par_iter()
         .enumerate()
         .map(|(index, (ei, entry, swept, overrides))| {
-            let weak_coherent = !c.setup.link.source.intensities().is_empty();
+            // Every link but the ideal single-photon one goes through the link model.
+            let link_model = !c.setup.link.is_ideal_single_photon();
             let (family, params, exact, model, note) = if entry.file.is_link() {
                 let attack = entry.file.link_attack(overrides).map_err(|e| e.with_file(&entry.origin))?;
                 let model = LinkModel::new(&c.setup.link, Some(&attack), &basis_prob);
@@ -386,7 +371,7 @@ pub fn run(c: &Campaign, progress: &(dyn Fn() + Sync)) -> Result<Vec<PointResult
                     PointModel::Link(model),
                     note,
                 )
-            } else if weak_coherent {
+            } else if link_model {
                 let attack = entry.file.attack(overrides).map_err(|e| e.with_file(&entry.origin))?;
                 let qubit = evaluate(&attack, &EvalOptions::fast(c.setup.protocol))?;
                 let model = LinkModel::qubit(&c.setup.link, &attack, c.setup.protocol, &basis_prob, qubit.h_x_given_e);

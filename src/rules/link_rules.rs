@@ -12,7 +12,7 @@
 //!   `ℓ = n·(Q₁ᴸ/Q_μ)[1 − h(e₁ᵁ)] − leak_EC`, asymptotic (no finite-size terms).
 
 use super::{ec_leak_bits, finite_uncertainty, h_capped, BlockStats, KeyLength};
-use crate::keyrate::{multi_photon_probability, vacuum_weak_bounds};
+use crate::keyrate::vacuum_weak_bounds;
 use crate::setup::Setup;
 
 /// `naive-single-photon`.
@@ -33,7 +33,7 @@ pub fn gllp_no_decoy(obs: &BlockStats, setup: &Setup) -> KeyLength {
         return KeyLength::new(f64::NAN, ASSUMPTIONS, SOURCE);
     };
     let q = l.gain(0);
-    let delta = multi_photon_probability(l.mu[0]) / q;
+    let delta = l.multi_photon[0] / q;
     let raw = if !(delta < 1.0) {
         -ec_leak_bits(obs, setup)
     } else {

@@ -137,13 +137,16 @@ pub struct BlockStats {
     pub link: Option<IntensityObs>,
 }
 
-/// What a weak-coherent block showed per intensity (signal first, then decoys).
+/// What a block on an optical link showed per kind of pulse (signal first, then decoys).
 #[derive(Clone, Copy, Debug, PartialEq, Serialize, Default)]
 pub struct IntensityObs {
     /// Number of intensities in use.
     pub count: usize,
-    /// Intensities, photons per pulse.
+    /// Intensities, photons per pulse (1 for a single-photon source).
     pub mu: [f64; 3],
+    /// Probability that a pulse of each kind holds two or more photons (0 for a
+    /// single-photon source).
+    pub multi_photon: [f64; 3],
     /// Probability with which each intensity is sent.
     pub probability: [f64; 3],
     /// Pulses sent per intensity.

@@ -1,5 +1,5 @@
-//! Count-level block sampler for weak-coherent links: pulses split by intensity, then per
-//! intensity into no click, unsifted click, and sifted clicks per basis by (error, known to
+//! Count-level block sampler for optical links (weak coherent pulses or single photons):
+//! pulses split by kind (intensity), then per kind into no click, unsifted click, and sifted clicks per basis by (error, known to
 //! Eve); the Z test sample and the key are drawn from the signal intensity's sifted Z
 //! detections (independent multinomials of sizes m and n_Z − m given n_Z, by
 //! exchangeability), by photon-number class of the pulse (0, 1, ≥ 2 photons) and category
@@ -9,7 +9,7 @@ use super::count::{binomial, multinomial};
 use super::{BlockCounts, SignalModel, CELL_CATEGORY};
 use crate::attack::link_attack::{attacked, honest, qubit_on_single_photons, DetectionModel, LinkAttack};
 use crate::attack::Attack;
-use crate::link::Link;
+use crate::link::{Link, Photons};
 use crate::protocol::Protocol;
 use crate::rules::IntensityObs;
 use rand_chacha::ChaCha8Rng;
@@ -17,8 +17,8 @@ use rand_chacha::ChaCha8Rng;
 /// The exact per-pulse statistics of a link under an attack (or none).
 #[derive(Clone, Debug, PartialEq)]
 pub struct LinkModel {
-    /// Intensities (signal first) and their probabilities.
-    pub intensities: Vec<(f64, f64)>,
+    /// Kinds of pulse (signal first) and their probabilities: see [`Source::settings`](crate::link::Source::settings).
+    pub settings: Vec<(Photons, f64)>,
     /// Detection model per intensity.
     pub models: Vec<DetectionModel>,
     /// Basis probabilities (Z first).
@@ -30,13 +30,13 @@ pub struct LinkModel {
 impl LinkModel {
     /// A link-level attack, or the honest link when `attack` is None.
     pub fn new(link: &Link, attack: Option<&LinkAttack>, basis_prob: &[f64]) -> LinkModel {
-        let intensities = link.source.intensities();
-        let signal = intensities[0].0;
-        let models = intensities
+        let settings = link.source.settings();
+        let signal = settings[0].0;
+        let models = settings
             .iter()
-            .map(|&(mu, _)| match attack {
-                Some(a) => attacked(link, a, mu, signal),
-                None => honest(link, mu),
+            .map(|&(photons, _)| match attack {
+                Some(a) => attacked(link, a, photons, signal),
+                None => honest(link, photons),
             })
             .collect();
         let mut note = String::new();
@@ -45,7 +45,7 @@ impl LinkModel {
                 note = "photon-number splitting cannot reach the honest signal gain on this link (Eve forwards every pulse)".into();
             }
         }
-        LinkModel { intensities, models, basis_prob: basis_prob.to_vec(), note }
+        LinkModel { settings, models, basis_prob: basis_prob.to_vec(), note }
     }
 
     /// A single-photon attack applied to the single-photon pulses (see
@@ -62,13 +62,13 @@ impl LinkModel {
             }
             guess[b] = sm.eve_guess_rate(src);
         }
-        let intensities = link.source.intensities();
-        let signal = intensities[0].0;
+        let settings = link.source.settings();
+        let signal = settings[0].0;
         let mut matched = true;
-        let models = intensities
+        let models = settings
             .iter()
-            .map(|&(mu, _)| {
-                let (m, _, ok) = qubit_on_single_photons(link, joint, h_att, guess, mu, signal);
+            .map(|&(photons, _)| {
+                let (m, _, ok) = qubit_on_single_photons(link, joint, h_att, guess, photons, signal);
                 matched &= ok;
                 m
             })
@@ -78,7 +78,7 @@ impl LinkModel {
         } else {
             "the attack cannot reach the honest signal gain over a lossless line (Eve forwards every pulse)".into()
         };
-        LinkModel { intensities, models, basis_prob: basis_prob.to_vec(), note }
+        LinkModel { settings, models, basis_prob: basis_prob.to_vec(), note }
     }
 
     /// Gain of intensity `i`.
@@ -101,10 +101,10 @@ impl LinkModel {
 
 /// Draws one block of `signals` pulses.
 pub fn sample(model: &LinkModel, signals: u64, test_size: &dyn Fn(u64) -> u64, rng: &mut ChaCha8Rng) -> BlockCounts {
-    let ni = model.intensities.len();
+    let ni = model.settings.len();
     let nb = model.basis_prob.len();
     let mut probs = [0.0; 3];
-    for (p, (_, q)) in probs.iter_mut().zip(&model.intensities) {
+    for (p, (_, q)) in probs.iter_mut().zip(&model.settings) {
         *p = *q;
     }
     let mut pulses = [0u64; 3];
@@ -117,8 +117,9 @@ pub fn sample(model: &LinkModel, signals: u64, test_size: &dyn Fn(u64) -> u64, r
     }
     let sifted_total: f64 = sift.iter().sum();
     for k in 0..ni {
-        obs.mu[k] = model.intensities[k].0;
-        obs.probability[k] = model.intensities[k].1;
+        obs.mu[k] = model.settings[k].0.mean();
+        obs.multi_photon[k] = model.settings[k].0.multi_photon_probability();
+        obs.probability[k] = model.settings[k].1;
         obs.pulses[k] = pulses[k];
         let dm = &model.models[k];
         let gain = dm.gain;
