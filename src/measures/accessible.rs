@@ -154,27 +154,46 @@ fn generic_combination(states: &[CMat]) -> CMat {
 /// invariant (up to `tol` relative to the states' largest eigenvalue).
 ///
 /// First the eigenbasis of the generic combination (cheap, and enough unless that
-/// combination has equal eigenvalues in different blocks). If that leaves a block larger
-/// than a qubit, the states' commutant `{X : Xρᵢ = ρᵢX}` is computed as the null space of
-/// the commutator map on Hermitian matrices; a generic Hermitian element of it has the
+/// combination has equal eigenvalues in different blocks). A block larger than a qubit
+/// (and at most [`COMMUTANT_MAX_DIM`]-dimensional) is then split further if it can be: the
+/// compressed states' commutant `{X : Xρᵢ = ρᵢX}` is computed as the null space of the
+/// commutator map on Hermitian matrices, and a generic Hermitian element of it has the
 /// finest invariant subspaces as its eigenspaces, also when blocks repeat (as when Eve
-/// holds an ancilla in a fixed mixed state), and its eigenbasis is used if it splits more.
+/// holds an ancilla in a fixed mixed state).
 pub fn invariant_blocks(states: &[CMat], tol: f64) -> (CMat, Vec<Vec<usize>>) {
-    let (vals, basis) = hermitian_eigen(&generic_combination(states));
+    let (vals, mut basis) = hermitian_eigen(&generic_combination(states));
     let scale = vals.iter().fold(0.0_f64, |m, v| m.max(v.abs())).max(f64::MIN_POSITIVE);
-    let groups = coupled_components(states, &basis, tol * scale);
-    if groups.iter().all(|g| g.len() <= 2) {
-        return (basis, groups);
-    }
-    if let Some(x) = commutant_element(states, tol * scale) {
-        let (_, finer_basis) = hermitian_eigen(&x);
-        let finer = coupled_components(states, &finer_basis, tol * scale);
-        if finer.len() > groups.len() {
-            return (finer_basis, finer);
+    let threshold = tol * scale;
+    let mut groups = Vec::new();
+    for group in coupled_components(states, &basis, threshold) {
+        if group.len() <= 2 || group.len() > COMMUTANT_MAX_DIM {
+            groups.push(group);
+            continue;
+        }
+        let v = basis.select_columns(&group);
+        let sub: Vec<CMat> = states.iter().map(|rho| v.adjoint() * rho * &v).collect();
+        let finer = commutant_element(&sub, threshold).and_then(|x| {
+            let (_, w) = hermitian_eigen(&x);
+            let parts = coupled_components(&sub, &w, threshold);
+            (parts.len() > 1).then_some((w, parts))
+        });
+        match finer {
+            Some((w, parts)) => {
+                // Same subspace, new orthonormal columns in the same positions.
+                let cols = &v * w;
+                for (k, &col) in group.iter().enumerate() {
+                    basis.set_column(col, &cols.column(k));
+                }
+                groups.extend(parts.into_iter().map(|p| p.into_iter().map(|k| group[k]).collect::<Vec<_>>()));
+            }
+            None => groups.push(group),
         }
     }
     (basis, groups)
 }
+
+/// Largest block the commutant step is tried on: its map has `d²` columns.
+pub const COMMUTANT_MAX_DIM: usize = 16;
 
 /// Connected components of the graph on the columns of `basis` whose edges are the
 /// states' entries above `threshold` in magnitude in that basis, each in increasing order.
@@ -626,6 +645,22 @@ mod tests {
             let completeness = fast.povm.iter().fold(CMat::zeros(5, 5), |acc, v| acc + v * v.adjoint());
             assert!(crate::linalg::max_abs_diff(&completeness, &CMat::identity(5, 5)) < 1e-12);
         }
+    }
+
+    #[test]
+    fn a_large_register_reduces_to_the_states_support() {
+        // A qubit pair isometrically embedded in C²⁴ (Eve's register larger than what she
+        // uses): the answer is the qubit pair's, found on the two-dimensional support.
+        let mut rng = rand_chacha::ChaCha8Rng::seed_from_u64(12);
+        let w = KrausChannel::random_isometry(2, 24, &mut rng);
+        let a = DensityMatrix::random_hilbert_schmidt(2, &mut rng).matrix().clone();
+        let b = DensityMatrix::random_hilbert_schmidt(2, &mut rng).matrix().clone();
+        let states = [&w * &a * w.adjoint(), &w * &b * w.adjoint()];
+        let big = accessible_information(&[0.5, 0.5], &states, &AccessibleOptions::default()).unwrap();
+        let small = qubit_pair::solve([0.5, 0.5], [&a, &b]);
+        assert_abs_diff_eq!(big.bits, small.bits, epsilon = 1e-12);
+        assert!(big.upper_bound.unwrap() - big.bits < 1e-10);
+        assert_eq!(big.povm.len(), 24);
     }
 
     #[test]
