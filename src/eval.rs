@@ -84,7 +84,7 @@ pub struct Evaluation {
     /// Whether the accessible-information searches met their convergence test (extra).
     pub accessible_converged: Option<bool>,
     /// How far `accessible_z` and `accessible_x` may lie below the true maxima: the larger
-    /// of the two (upper bound − value), when both upper bounds were established (extra).
+    /// of the two (upper bound − value; extra, set with accessible information).
     pub accessible_gap: Option<f64>,
     /// Mutual information of Alice's and Bob's Z-basis bits.
     pub i_ab: f64,

@@ -7,8 +7,8 @@
 //! `accessible_z_bits`, `accessible_x_bits`, `i_ab_bits`, `game_win` (probability),
 //! `bound_rate_bits`, `attack_rate_bits`, `individual_rate_bits`, `margin_bits` (bits per
 //! sifted bit), `h_min_x_given_e_bits`, `accessible_gap_bits` (how far the accessible
-//! values may be below the true maximum: upper bound minus value, the larger of Z and X;
-//! empty when no upper bound was established). Numbers are printed with 12 significant digits.
+//! values may be below the true maximum: upper bound minus value, the larger of Z and X).
+//! Numbers are printed with 12 significant digits.
 
 use crate::attack::file::AttackFile;
 use crate::attack::Value;
