@@ -61,6 +61,13 @@ pub struct AccessibleOptions {
     /// Random starts stop when `window` steps gain less than this (default 1e-9); one that
     /// ends more than this above the best value so far is polished with `gain_tol`.
     pub screen_gain_tol: f64,
+    /// Rounds of polishing when the dual bound is not yet within `certificate_tol` after
+    /// the planned starts (default 3): each continues the best POVM's ascent without the
+    /// windowed-gain stop, up to `max_iter` steps.
+    pub polish_rounds: usize,
+    /// Random starts in all, at most, while the dual bound is not within `certificate_tol`
+    /// (two states; default 24). Fewer than `random_starts` means no extra starts.
+    pub max_random_starts: usize,
     /// Measure commuting states directly in their common eigenbasis (default true); false
     /// runs the iterative search for them too (tests use it).
     pub commuting_shortcut: bool,
@@ -87,6 +94,8 @@ impl Default for AccessibleOptions {
             max_iter: 3000,
             grad_tol: 1e-10,
             screen_gain_tol: 1e-9,
+            polish_rounds: 3,
+            max_random_starts: 24,
             commuting_shortcut: true,
             block_reduction: true,
             block_tol: 1e-12,
@@ -353,77 +362,119 @@ fn solve_block(priors: &[f64], states: &[CMat], opts: &AccessibleOptions) -> Res
 /// states, and `random_starts` random `d²`-outcome POVMs. Each start is ascended by
 /// [`povm_ascent`], with the gradient column `2 Σᵢ pᵢ log₂(P(k|i)/P(k)) ρᵢ a_k` (the same
 /// stationarity structure as the iteration of Řeháček, Englert, Kaszlikowski, PRA 71,
-/// 054303, 2005). Ascent is monotone and stops early once the Holevo quantity, which no
-/// POVM exceeds, is reached.
+/// 054303, 2005). Ascent is monotone and the search stops once the Holevo quantity, which
+/// no POVM exceeds, is reached.
+///
+/// For two states the dual bound steers the effort: the search stops as soon as the bound
+/// is within `certificate_tol` of the best value (after the structured starts); if it is
+/// not after the `random_starts`, the best POVM is polished (`polish_rounds`) and further
+/// random starts run, up to `max_random_starts` in all, until it is.
 fn search(priors: &[f64], states: &[CMat], opts: &AccessibleOptions) -> Result<Accessible> {
     assert_eq!(priors.len(), states.len(), "accessible_information: one prior per state");
     assert!(!states.is_empty(), "accessible_information: empty ensemble");
     let d = states[0].nrows();
     let chi = holevo_quantity(priors, states);
-    let generic = generic_combination(states);
-    let mut starts: Vec<Vec<CVec>> = Vec::new();
-    // Start 1: eigenbasis of the Helstrom operator (or of ρ₀ for one state).
+    // Start 1: eigenbasis of the Helstrom operator (or of ρ₀ for one state); start 2: the
+    // eigenbasis of a generic combination of the states.
     let mut helstrom_op = states[0].clone() * c(priors[0], 0.0);
     if states.len() > 1 {
         helstrom_op -= &states[1] * c(priors[1], 0.0);
     }
-    starts.push(eigen_columns(&helstrom_op));
-    // Start 2: the eigenbasis of a generic combination of the states.
-    starts.push(eigen_columns(&generic));
+    let structured = [eigen_columns(&helstrom_op), eigen_columns(&generic_combination(states))];
     let mut rng = rand_chacha::ChaCha8Rng::seed_from_u64(opts.seed);
-    for _ in 0..opts.random_starts {
+    let mut random_start = || {
         let raw: Vec<CVec> =
             (0..d * d).map(|_| CVec::from_fn(d, |_, _| c(rng.sample(StandardNormal), rng.sample(StandardNormal)))).collect();
-        starts.push(complete_povm(&raw));
+        complete_povm(&raw)
+    };
+    let two_states = states.len() == 2;
+    let dual = |povm: &[CVec]| dual_upper_bound([priors[0], priors[1]], [&states[0], &states[1]], povm);
+    let mut s = Search { best: None, iterations: 0, bound: None };
+    let certified = |s: &Search| s.bound.is_some_and(|u| u - s.value() <= opts.certificate_tol);
+    let holevo_reached = |s: &Search| s.value() >= chi - opts.gain_tol;
+    // Structured starts, then the planned random starts.
+    for (i, start) in structured.into_iter().map(Some).chain((0..opts.random_starts).map(|_| None)).enumerate() {
+        let start = start.unwrap_or_else(&mut random_start);
+        let improved = s.run(priors, states, &start, opts, i >= 2);
+        if holevo_reached(&s) {
+            break;
+        }
+        if two_states && i >= 1 && (improved || s.bound.is_none()) {
+            s.bound = Some(dual(&s.povm()));
+        }
+        if certified(&s) {
+            break;
+        }
     }
-    let mut best = Accessible { bits: f64::NEG_INFINITY, povm: Vec::new(), iterations: 0, converged: false, upper_bound: None };
-    let mut total_iter = 0;
-    let structured = 2;
-    // The dual bound at the best POVM so far (two states only), recomputed when it changes.
-    let dual = |povm: &[CVec]| (states.len() == 2).then(|| dual_upper_bound([priors[0], priors[1]], [&states[0], &states[1]], povm));
-    let mut bound: Option<f64> = None;
-    for (i, start) in starts.into_iter().enumerate() {
-        // Random starts look for a better basin with a looser stopping rule; one that ends
-        // above the best value so far is then polished with the full rule.
-        let run = if i >= structured && best.bits.is_finite() {
+    // Not yet shown optimal (two states): polish, then more random starts.
+    if two_states && !holevo_reached(&s) && !certified(&s) {
+        let strict = AccessibleOptions { gain_tol: 0.0, grad_tol: opts.grad_tol * 1e-4, ..opts.clone() };
+        let mut extra = opts.max_random_starts.saturating_sub(opts.random_starts);
+        loop {
+            for _ in 0..opts.polish_rounds {
+                if certified(&s) || !s.run(priors, states, &s.povm(), &strict, false) {
+                    break;
+                }
+                s.bound = Some(dual(&s.povm()));
+            }
+            if certified(&s) || holevo_reached(&s) || extra == 0 {
+                break;
+            }
+            extra -= 1;
+            let start = random_start();
+            if s.run(priors, states, &start, opts, true) {
+                s.bound = Some(dual(&s.povm()));
+            }
+        }
+    }
+    let (bits, povm, converged) = s.best.take().expect("at least one start ran");
+    let upper_bound = if bits >= chi - opts.gain_tol { chi } else { s.bound.map_or(chi, |u| u.min(chi)) };
+    Ok(Accessible {
+        bits,
+        povm,
+        iterations: s.iterations,
+        converged: converged || bits >= chi - opts.gain_tol,
+        upper_bound: Some(upper_bound),
+    })
+}
+
+/// The search's state: the best (value, POVM, converged) so far, iterations, dual bound.
+struct Search {
+    best: Option<(f64, Vec<CVec>, bool)>,
+    iterations: usize,
+    bound: Option<f64>,
+}
+
+impl Search {
+    fn value(&self) -> f64 {
+        self.best.as_ref().map_or(f64::NEG_INFINITY, |b| b.0)
+    }
+    fn povm(&self) -> Vec<CVec> {
+        self.best.as_ref().map(|b| b.1.clone()).unwrap_or_default()
+    }
+    /// Ascends from `start` and keeps the result if it is better; returns whether it was.
+    /// A `screened` start first runs with the looser `screen_gain_tol` and is only finished
+    /// with the full rule if it ends above the best value so far.
+    fn run(&mut self, priors: &[f64], states: &[CMat], start: &[CVec], opts: &AccessibleOptions, screened: bool) -> bool {
+        let run = if screened && self.best.is_some() {
             let loose = AccessibleOptions { gain_tol: opts.screen_gain_tol.max(opts.gain_tol), ..opts.clone() };
-            let first = ascend(priors, states, &start, &loose);
-            total_iter += first.iterations;
-            if first.value > best.bits + opts.screen_gain_tol {
+            let first = ascend(priors, states, start, &loose);
+            self.iterations += first.iterations;
+            if first.value > self.value() + opts.screen_gain_tol {
                 ascend(priors, states, &first.povm, opts)
             } else {
                 first
             }
         } else {
-            ascend(priors, states, &start, opts)
+            ascend(priors, states, start, opts)
         };
-        total_iter += run.iterations;
-        let improved = run.value > best.bits;
+        self.iterations += run.iterations;
+        let improved = run.value > self.value();
         if improved {
-            best = Accessible { bits: run.value, povm: run.povm, iterations: 0, converged: run.converged, upper_bound: None };
+            self.best = Some((run.value, run.povm, run.converged));
         }
-        // No POVM can beat the Holevo quantity; once reached, the maximum is found.
-        if best.bits >= chi - opts.gain_tol {
-            best.converged = true;
-            best.upper_bound = Some(chi);
-            break;
-        }
-        // Once the structured starts are done, a dual bound within `certificate_tol` shows
-        // that no other start can do better: the random starts are skipped.
-        if i + 1 >= structured && (improved || bound.is_none()) {
-            bound = dual(&best.povm);
-        }
-        if bound.is_some_and(|u| u - best.bits <= opts.certificate_tol) {
-            break;
-        }
+        improved
     }
-    best.upper_bound = match (best.upper_bound, bound.or_else(|| dual(&best.povm))) {
-        (Some(chi_bound), _) => Some(chi_bound),
-        (None, Some(u)) => Some(u.min(chi)),
-        (None, None) => Some(chi),
-    };
-    best.iterations = total_iter;
-    Ok(best)
 }
 
 fn eigen_columns(m: &CMat) -> Vec<CVec> {
@@ -740,32 +791,74 @@ mod tests {
 /// a large multiple of −ρ lowers every eigenvalue), so the ends of the range lose nothing.
 pub fn dual_upper_bound(priors: [f64; 2], states: [&CMat; 2], povm: &[CVec]) -> f64 {
     let d = states[0].nrows();
-    // (α, β) at log-odds s of q, without cancellation: ln q = −softplus(−s),
-    // ln(1 − q) = −softplus(s).
-    let softplus = |x: f64| x.max(0.0) + (-x.abs()).exp().ln_1p();
-    let coef = |s: f64| (priors[0] * (-softplus(-s) - priors[0].ln()), priors[1] * (-softplus(s) - priors[1].ln()));
     let mut lambda = CMat::zeros(d, d);
+    // Unit outcome directions with their G(qₘ), for the correction below.
+    let mut contacts: Vec<(CVec, CMat)> = Vec::new();
     for v in povm {
         let (rv0, rv1) = (states[0] * v, states[1] * v);
         let pa = v.dotc(&rv0).re.max(0.0);
         let pb = v.dotc(&rv1).re.max(0.0);
-        if priors[0] * pa + priors[1] * pb <= 0.0 {
+        let p = priors[0] * pa + priors[1] * pb;
+        if p <= 0.0 {
             continue;
         }
         // E G(q) = |v⟩⟨v|(αρ₀ + βρ₁); a term whose probability is zero has ρ v = 0.
-        let mut gv = CVec::zeros(d);
+        let mut g = CMat::zeros(d, d);
         if pa > 0.0 {
-            gv += rv0 * c(priors[0] * (pa / (priors[0] * pa + priors[1] * pb)).ln(), 0.0);
+            g += states[0] * c(priors[0] * (priors[0] * pa / p / priors[0]).ln(), 0.0);
         }
         if pb > 0.0 {
-            gv += rv1 * c(priors[1] * (pb / (priors[0] * pa + priors[1] * pb)).ln(), 0.0);
+            g += states[1] * c(priors[1] * (priors[1] * pb / p / priors[1]).ln(), 0.0);
         }
-        lambda += v * gv.adjoint();
+        lambda += v * (v.adjoint() * &g);
+        let norm = v.norm();
+        if norm > 1e-7 {
+            contacts.push((v / c(norm, 0.0), g));
+        }
     }
     let lambda = (&lambda + lambda.adjoint()) * c(0.5, 0.0);
+    let plain = dual_value(priors, states, &lambda);
+    // At an approximate optimum the operator is off to first order in the POVM's error,
+    // and so is the bound. Correct it so that ⟨uₘ|Λ − G(qₘ)|uₘ⟩ is the same (zero) at
+    // every outcome direction uₘ, the complementary slackness of the exact optimum, by the
+    // least-norm Hermitian Δ = Σ μₙ|uₙ⟩⟨uₙ| (Gram system |⟨uₘ|uₙ⟩|² μ = −r, solved on its
+    // range); what remains of the error is of second order. Either operator gives a valid
+    // bound, so the smaller is returned.
+    let k = contacts.len();
+    if k == 0 {
+        return plain;
+    }
+    let residual = nalgebra::DVector::<f64>::from_fn(k, |m, _| {
+        let (u, g) = &contacts[m];
+        u.dotc(&((&lambda - g) * u)).re
+    });
+    let gram = nalgebra::DMatrix::<f64>::from_fn(k, k, |m, n| contacts[m].0.dotc(&contacts[n].0).norm_sqr());
+    let eig = gram.symmetric_eigen();
+    let top = eig.eigenvalues.iter().fold(0.0_f64, |m, v| m.max(v.abs()));
+    let mut mu = nalgebra::DVector::<f64>::zeros(k);
+    for (i, &ev) in eig.eigenvalues.iter().enumerate() {
+        if ev > 1e-12 * top {
+            let col = eig.eigenvectors.column(i);
+            mu -= col * (col.dot(&residual) / ev);
+        }
+    }
+    let mut corrected = lambda;
+    for (m, (u, _)) in contacts.iter().enumerate() {
+        corrected += (u * u.adjoint()) * c(mu[m], 0.0);
+    }
+    plain.min(dual_value(priors, states, &corrected))
+}
+
+/// `(Tr Λ + d·max_q λ_max(G(q) − Λ)) / ln 2`: the bound of [`dual_upper_bound`] for one Λ.
+fn dual_value(priors: [f64; 2], states: [&CMat; 2], lambda: &CMat) -> f64 {
+    let d = states[0].nrows();
+    // (α, β) at log-odds s of q, without cancellation: ln q = −softplus(−s),
+    // ln(1 − q) = −softplus(s).
+    let softplus = |x: f64| x.max(0.0) + (-x.abs()).exp().ln_1p();
+    let coef = |s: f64| (priors[0] * (-softplus(-s) - priors[0].ln()), priors[1] * (-softplus(s) - priors[1].ln()));
     let excess = |s: f64| -> f64 {
         let (alpha, beta) = coef(s);
-        let g = states[0] * c(alpha, 0.0) + states[1] * c(beta, 0.0) - &lambda;
+        let g = states[0] * c(alpha, 0.0) + states[1] * c(beta, 0.0) - lambda;
         crate::linalg::hermitian_eigenvalues(&g).into_iter().fold(f64::NEG_INFINITY, f64::max)
     };
     let n = 240;
