@@ -14,9 +14,10 @@
 //!    under the combination; a component is then invariant under every state). Entries
 //!    below `block_tol` relative to the combination's norm count as zero. When that leaves
 //!    a block larger than a qubit, the eigenbasis of a generic element of the states'
-//!    commutant is tried as well (see [`invariant_blocks`]). Eve's states
-//!    under the Pauli cloners and Pauli channels split this way into two-dimensional
-//!    blocks (error and no error in the measured basis).
+//!    commutant is tried as well (see [`invariant_blocks`]). Eve's states under the Pauli
+//!    cloners and Pauli channels split this way into two-dimensional blocks (error and no
+//!    error in the measured basis), and directions outside the states' support become
+//!    one-dimensional blocks, so the later stages work on the support only.
 //! 3. **Per block:** a one-dimensional block or one holding a single state carries no
 //!    further information; commuting block states go to stage 1; a pair of qubit states is
 //!    solved by [`qubit_pair`](super::qubit_pair): the best projective measurement with a
@@ -26,13 +27,14 @@
 //! The search: rank-one POVMs with at most `d²` outcomes suffice (Davies, IEEE TIT 24, 596,
 //! 1978); a rank-one POVM `{|a_k><a_k|}` is the set of columns of a d × K matrix `A` with
 //! `A A† = 1`, and `I(X:M)` is maximised on that manifold by Riemannian conjugate gradients
-//! from several seeded starts. For two states, the dual bound [`dual_upper_bound`] at the
-//! best POVM after the structured starts decides whether the random starts are needed: a
-//! bound within `certificate_tol` proves no start can do better.
+//! from several seeded starts. For two states the dual bound [`dual_upper_bound`] steers
+//! it: a bound within `certificate_tol` of the best value proves that no start can do
+//! better and ends the search; a wider one sends it on (polishing, more random starts).
 //!
 //! Whatever the route, the value returned is the information of the returned POVM on the
-//! original states, so it is always achievable; [`Accessible::upper_bound`] says when it is
-//! also known to be the maximum.
+//! original states, so it is always achievable, and [`Accessible::upper_bound`] bounds the
+//! maximum from above (the dual bounds are numerical: their one-dimensional maximisations
+//! run on grids with refinement).
 
 use super::qubit_pair;
 use super::{holevo_quantity, measured_information, mutual_information};
@@ -169,7 +171,7 @@ fn generic_combination(states: &[CMat]) -> CMat {
 ///
 /// First the eigenbasis of the generic combination (cheap, and enough unless that
 /// combination has equal eigenvalues in different blocks). A block larger than a qubit
-/// (and at most [`COMMUTANT_MAX_DIM`]-dimensional) is then split further if it can be: the
+/// (and at most `COMMUTANT_MAX_DIM` = 16-dimensional) is then split further if it can be: the
 /// compressed states' commutant `{X : Xρᵢ = ρᵢX}` is computed as the null space of the
 /// commutator map on Hermitian matrices, and a generic Hermitian element of it has the
 /// finest invariant subspaces as its eigenspaces, also when blocks repeat (as when Eve
