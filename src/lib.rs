@@ -3,6 +3,7 @@
 //!
 //! Layers, each depending only on those above it:
 //! 1. [`linalg`]: matrices, tolerances, tensor products, partial traces, eigen-solves;
+//!    [`optimize1d`]: golden-section search;
 //! 2. [`state`], [`channel`]: validated density matrices, Kraus channels;
 //! 3. [`measures`]: entropies, trace norm, Helstrom, Holevo, accessible information;
 //! 4. [`protocol`]: BB84 and six-state signal states; [`link`]: sources, loss, detectors;
@@ -29,6 +30,7 @@ pub mod keyrate;
 pub mod linalg;
 pub mod link;
 pub mod measures;
+pub mod optimize1d;
 pub mod output;
 pub mod protocol;
 pub mod report;

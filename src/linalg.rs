@@ -13,6 +13,10 @@ pub use num_complex::Complex64 as C64;
 pub type CMat = DMatrix<C64>;
 /// Dense complex column vector.
 pub type CVec = DVector<C64>;
+/// Dense real matrix.
+pub type RMat = DMatrix<f64>;
+/// Dense real column vector.
+pub type RVec = DVector<f64>;
 
 /// Default absolute tolerance for physical checks (Hermiticity, trace, positivity,
 /// Kraus completeness): 1e-9.
@@ -324,6 +328,41 @@ pub fn hermitian_function(m: &CMat, f: impl Fn(f64) -> f64) -> CMat {
     out
 }
 
+/// Right singular vectors of a real matrix whose singular values are at most `cutoff`
+/// (its numerical null space), from a singular value decomposition (no Gram matrix, so no
+/// squared condition number). A wide matrix's missing singular values count as zero.
+#[track_caller]
+pub fn real_null_space(m: &RMat, cutoff: f64) -> Vec<RVec> {
+    let n = m.ncols();
+    if m.nrows() < n {
+        // Pad with zero rows: the null space is unchanged and the SVD has n values.
+        let mut tall = RMat::zeros(n, n);
+        tall.view_mut((0, 0), (m.nrows(), n)).copy_from(m);
+        return real_null_space(&tall, cutoff);
+    }
+    let svd = m.clone().svd(false, true);
+    let v_t = svd.v_t.expect("right singular vectors requested");
+    (0..n).filter(|&k| svd.singular_values[k] <= cutoff).map(|k| v_t.row(k).transpose()).collect()
+}
+
+/// Least-norm solution of `A x = b` for a real symmetric `A`, on the span of its
+/// eigenvectors whose eigenvalues exceed `rel_cutoff` times the largest in magnitude (a
+/// pseudo-inverse).
+#[track_caller]
+pub fn symmetric_pseudo_solve(a: &RMat, b: &RVec, rel_cutoff: f64) -> RVec {
+    assert_eq!(a.nrows(), b.len(), "symmetric_pseudo_solve: dimension mismatch");
+    let eig = a.clone().symmetric_eigen();
+    let top = eig.eigenvalues.iter().fold(0.0_f64, |m, v| m.max(v.abs()));
+    let mut x = RVec::zeros(b.len());
+    for (i, &ev) in eig.eigenvalues.iter().enumerate() {
+        if ev.abs() > rel_cutoff * top {
+            let col = eig.eigenvectors.column(i);
+            x += col * (col.dot(b) / ev);
+        }
+    }
+    x
+}
+
 /// Inverse square root on the support of a positive semidefinite matrix (eigenvalues at or
 /// below `cutoff` are treated as zero: pseudo-inverse).
 pub fn psd_inverse_sqrt(m: &CMat, cutoff: f64) -> CMat {
@@ -415,6 +454,22 @@ pub fn orthonormal_columns(m: &CMat) -> CMat {
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    #[test]
+    fn null_space_and_pseudo_solve() {
+        // Columns 0 and 1 of a 3 × 3 matrix are equal: null vector (1, −1, 0)/√2.
+        let m = RMat::from_row_slice(3, 3, &[1.0, 1.0, 0.0, 2.0, 2.0, 1.0, 0.5, 0.5, 3.0]);
+        let null = real_null_space(&m, 1e-12);
+        assert_eq!(null.len(), 1);
+        assert!((null[0][0] + null[0][1]).abs() < 1e-14 && null[0][2].abs() < 1e-14);
+        assert!((&m * &null[0]).norm() < 1e-14);
+        // A wide matrix has at least ncols − nrows null vectors.
+        assert_eq!(real_null_space(&RMat::from_row_slice(1, 3, &[1.0, 2.0, 3.0]), 1e-12).len(), 2);
+        // Singular symmetric system: the least-norm solution on the range.
+        let a = RMat::from_row_slice(2, 2, &[1.0, 1.0, 1.0, 1.0]);
+        let x = symmetric_pseudo_solve(&a, &RVec::from_vec(vec![2.0, 2.0]), 1e-12);
+        assert!((x[0] - 1.0).abs() < 1e-14 && (x[1] - 1.0).abs() < 1e-14);
+    }
 
     fn rand_herm(n: usize, seed: u64) -> CMat {
         use rand::{Rng, SeedableRng};

@@ -39,7 +39,7 @@
 use super::qubit_pair;
 use super::{holevo_quantity, measured_information, mutual_information};
 use crate::error::Result;
-use crate::linalg::{c, hermitian_eigen, CMat, CVec};
+use crate::linalg::{c, hermitian_eigen, CMat, CVec, RMat, RVec};
 use rand::{Rng, SeedableRng};
 use rand_distr::StandardNormal;
 
@@ -269,7 +269,7 @@ fn commutant_element(states: &[CMat], threshold: f64) -> Option<CMat> {
         }
     }
     let rows = 2 * d * d * states.len();
-    let mut map = nalgebra::DMatrix::<f64>::zeros(rows, herm.len());
+    let mut map = RMat::zeros(rows, herm.len());
     for (k, h) in herm.iter().enumerate() {
         let mut r = 0;
         for rho in states {
@@ -281,20 +281,17 @@ fn commutant_element(states: &[CMat], threshold: f64) -> Option<CMat> {
             }
         }
     }
-    // Singular values straight from the map (a Gram matrix would square away precision).
-    let svd = map.svd(false, true);
-    let v_t = svd.v_t.as_ref()?;
-    let null: Vec<usize> = (0..svd.singular_values.len()).filter(|&k| svd.singular_values[k] <= 10.0 * threshold).collect();
+    let null = crate::linalg::real_null_space(&map, 10.0 * threshold);
     if null.len() <= 1 {
         return None;
     }
     // Fixed pseudo-random weights: the result is deterministic.
     let mut rng = rand_chacha::ChaCha8Rng::seed_from_u64(0x5eed);
     let mut x = CMat::zeros(d, d);
-    for &k in &null {
+    for v in &null {
         let w: f64 = rng.sample(StandardNormal);
         for (j, h) in herm.iter().enumerate() {
-            x += h * c(w * v_t[(k, j)], 0.0);
+            x += h * c(w * v[j], 0.0);
         }
     }
     Some(x)
@@ -830,20 +827,12 @@ pub fn dual_upper_bound(priors: [f64; 2], states: [&CMat; 2], povm: &[CVec]) -> 
     if k == 0 {
         return plain;
     }
-    let residual = nalgebra::DVector::<f64>::from_fn(k, |m, _| {
+    let residual = RVec::from_fn(k, |m, _| {
         let (u, g) = &contacts[m];
         u.dotc(&((&lambda - g) * u)).re
     });
-    let gram = nalgebra::DMatrix::<f64>::from_fn(k, k, |m, n| contacts[m].0.dotc(&contacts[n].0).norm_sqr());
-    let eig = gram.symmetric_eigen();
-    let top = eig.eigenvalues.iter().fold(0.0_f64, |m, v| m.max(v.abs()));
-    let mut mu = nalgebra::DVector::<f64>::zeros(k);
-    for (i, &ev) in eig.eigenvalues.iter().enumerate() {
-        if ev > 1e-12 * top {
-            let col = eig.eigenvectors.column(i);
-            mu -= col * (col.dot(&residual) / ev);
-        }
-    }
+    let gram = RMat::from_fn(k, k, |m, n| contacts[m].0.dotc(&contacts[n].0).norm_sqr());
+    let mu = -crate::linalg::symmetric_pseudo_solve(&gram, &residual, 1e-12);
     let mut corrected = lambda;
     for (m, (u, _)) in contacts.iter().enumerate() {
         corrected += (u * u.adjoint()) * c(mu[m], 0.0);
@@ -869,33 +858,14 @@ fn dual_value(priors: [f64; 2], states: [&CMat; 2], lambda: &CMat) -> f64 {
     let vals: Vec<f64> = (0..=n).map(|k| excess(s_at(k))).collect();
     let grid_max = vals.iter().cloned().fold(f64::NEG_INFINITY, f64::max);
     let mut best = grid_max;
-    let ratio = 0.5 * (5f64.sqrt() - 1.0);
     for k in 1..n {
         // Strict local maxima of the grid that could still be the global maximum.
         let peak = vals[k] >= vals[k - 1] && vals[k] >= vals[k + 1] && (vals[k] > vals[k - 1] || vals[k] > vals[k + 1]);
         if !peak || !(vals[k] > grid_max - 0.1) {
             continue;
         }
-        let (mut a, mut b) = (s_at(k - 1), s_at(k + 1));
-        let mut x1 = b - ratio * (b - a);
-        let mut x2 = a + ratio * (b - a);
-        let (mut f1, mut f2) = (excess(x1), excess(x2));
-        for _ in 0..45 {
-            if f1 < f2 {
-                a = x1;
-                x1 = x2;
-                f1 = f2;
-                x2 = a + ratio * (b - a);
-                f2 = excess(x2);
-            } else {
-                b = x2;
-                x2 = x1;
-                f2 = f1;
-                x1 = b - ratio * (b - a);
-                f1 = excess(x1);
-            }
-        }
-        best = best.max(f1).max(f2);
+        let (_, v) = crate::optimize1d::golden_section_max(excess, s_at(k - 1), s_at(k + 1), 45);
+        best = best.max(v);
     }
     (lambda.trace().re + d as f64 * best) / std::f64::consts::LN_2
 }

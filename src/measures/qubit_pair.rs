@@ -183,26 +183,8 @@ fn maximise(f: &dyn Fn(f64) -> [f64; 3], lo: f64, hi: f64) -> (f64, f64) {
         return best_of(f, &[(lo, f_lo[0]), (hi, f_hi[0])], t);
     }
     // Not bracketed: golden-section search for the interior maximum.
-    let ratio = 0.5 * (5f64.sqrt() - 1.0);
-    let mut x1 = b - ratio * (b - a);
-    let mut x2 = a + ratio * (b - a);
-    let (mut f1, mut f2) = (f(x1)[0], f(x2)[0]);
-    for _ in 0..80 {
-        if f1 < f2 {
-            a = x1;
-            x1 = x2;
-            f1 = f2;
-            x2 = a + ratio * (b - a);
-            f2 = f(x2)[0];
-        } else {
-            b = x2;
-            x2 = x1;
-            f2 = f1;
-            x1 = b - ratio * (b - a);
-            f1 = f(x1)[0];
-        }
-    }
-    best_of(f, &[(lo, f_lo[0]), (hi, f_hi[0])], 0.5 * (a + b))
+    let (t, _) = crate::optimize1d::golden_section_max(|t| f(t)[0], a, b, 80);
+    best_of(f, &[(lo, f_lo[0]), (hi, f_hi[0])], t)
 }
 
 fn best_of(f: &dyn Fn(f64) -> [f64; 3], ends: &[(f64, f64)], t: f64) -> (f64, f64) {
