@@ -345,24 +345,6 @@ pub fn real_null_space(m: &RMat, cutoff: f64) -> Vec<RVec> {
     (0..n).filter(|&k| svd.singular_values[k] <= cutoff).map(|k| v_t.row(k).transpose()).collect()
 }
 
-/// Least-norm solution of `A x = b` for a real symmetric `A`, on the span of its
-/// eigenvectors whose eigenvalues exceed `rel_cutoff` times the largest in magnitude (a
-/// pseudo-inverse).
-#[track_caller]
-pub fn symmetric_pseudo_solve(a: &RMat, b: &RVec, rel_cutoff: f64) -> RVec {
-    assert_eq!(a.nrows(), b.len(), "symmetric_pseudo_solve: dimension mismatch");
-    let eig = a.clone().symmetric_eigen();
-    let top = eig.eigenvalues.iter().fold(0.0_f64, |m, v| m.max(v.abs()));
-    let mut x = RVec::zeros(b.len());
-    for (i, &ev) in eig.eigenvalues.iter().enumerate() {
-        if ev.abs() > rel_cutoff * top {
-            let col = eig.eigenvectors.column(i);
-            x += col * (col.dot(b) / ev);
-        }
-    }
-    x
-}
-
 /// Inverse square root on the support of a positive semidefinite matrix (eigenvalues at or
 /// below `cutoff` are treated as zero: pseudo-inverse).
 pub fn psd_inverse_sqrt(m: &CMat, cutoff: f64) -> CMat {
@@ -456,7 +438,7 @@ mod tests {
     use super::*;
 
     #[test]
-    fn null_space_and_pseudo_solve() {
+    fn null_space_of_real_matrices() {
         // Columns 0 and 1 of a 3 × 3 matrix are equal: null vector (1, −1, 0)/√2.
         let m = RMat::from_row_slice(3, 3, &[1.0, 1.0, 0.0, 2.0, 2.0, 1.0, 0.5, 0.5, 3.0]);
         let null = real_null_space(&m, 1e-12);
@@ -465,10 +447,6 @@ mod tests {
         assert!((&m * &null[0]).norm() < 1e-14);
         // A wide matrix has at least ncols − nrows null vectors.
         assert_eq!(real_null_space(&RMat::from_row_slice(1, 3, &[1.0, 2.0, 3.0]), 1e-12).len(), 2);
-        // Singular symmetric system: the least-norm solution on the range.
-        let a = RMat::from_row_slice(2, 2, &[1.0, 1.0, 1.0, 1.0]);
-        let x = symmetric_pseudo_solve(&a, &RVec::from_vec(vec![2.0, 2.0]), 1e-12);
-        assert!((x[0] - 1.0).abs() < 1e-14 && (x[1] - 1.0).abs() < 1e-14);
     }
 
     fn rand_herm(n: usize, seed: u64) -> CMat {

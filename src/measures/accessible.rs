@@ -39,7 +39,7 @@
 use super::qubit_pair;
 use super::{holevo_quantity, measured_information, mutual_information};
 use crate::error::Result;
-use crate::linalg::{c, hermitian_eigen, CMat, CVec, RMat, RVec};
+use crate::linalg::{c, hermitian_eigen, CMat, CVec, RMat};
 use rand::{Rng, SeedableRng};
 use rand_distr::StandardNormal;
 
@@ -791,8 +791,6 @@ mod tests {
 pub fn dual_upper_bound(priors: [f64; 2], states: [&CMat; 2], povm: &[CVec]) -> f64 {
     let d = states[0].nrows();
     let mut lambda = CMat::zeros(d, d);
-    // Unit outcome directions with their G(qₘ), for the correction below.
-    let mut contacts: Vec<(CVec, CMat)> = Vec::new();
     for v in povm {
         let (rv0, rv1) = (states[0] * v, states[1] * v);
         let pa = v.dotc(&rv0).re.max(0.0);
@@ -810,34 +808,9 @@ pub fn dual_upper_bound(priors: [f64; 2], states: [&CMat; 2], povm: &[CVec]) -> 
             g += states[1] * c(priors[1] * (priors[1] * pb / p / priors[1]).ln(), 0.0);
         }
         lambda += v * (v.adjoint() * &g);
-        let norm = v.norm();
-        if norm > 1e-7 {
-            contacts.push((v / c(norm, 0.0), g));
-        }
     }
     let lambda = (&lambda + lambda.adjoint()) * c(0.5, 0.0);
-    let plain = dual_value(priors, states, &lambda);
-    // At an approximate optimum the operator is off to first order in the POVM's error,
-    // and so is the bound. Correct it so that ⟨uₘ|Λ − G(qₘ)|uₘ⟩ is the same (zero) at
-    // every outcome direction uₘ, the complementary slackness of the exact optimum, by the
-    // least-norm Hermitian Δ = Σ μₙ|uₙ⟩⟨uₙ| (Gram system |⟨uₘ|uₙ⟩|² μ = −r, solved on its
-    // range); what remains of the error is of second order. Either operator gives a valid
-    // bound, so the smaller is returned.
-    let k = contacts.len();
-    if k == 0 {
-        return plain;
-    }
-    let residual = RVec::from_fn(k, |m, _| {
-        let (u, g) = &contacts[m];
-        u.dotc(&((&lambda - g) * u)).re
-    });
-    let gram = RMat::from_fn(k, k, |m, n| contacts[m].0.dotc(&contacts[n].0).norm_sqr());
-    let mu = -crate::linalg::symmetric_pseudo_solve(&gram, &residual, 1e-12);
-    let mut corrected = lambda;
-    for (m, (u, _)) in contacts.iter().enumerate() {
-        corrected += (u * u.adjoint()) * c(mu[m], 0.0);
-    }
-    plain.min(dual_value(priors, states, &corrected))
+    dual_value(priors, states, &lambda)
 }
 
 /// `(Tr Λ + d·max_q λ_max(G(q) − Λ)) / ln 2`: the bound of [`dual_upper_bound`] for one Λ.
