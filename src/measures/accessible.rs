@@ -358,7 +358,8 @@ fn solve_block(priors: &[f64], states: &[CMat], opts: &AccessibleOptions) -> Res
 /// The multi-start search of the module documentation. Starts: the eigenbasis of
 /// `p₀ρ₀ − p₁ρ₁` (a refinement of the Helstrom measurement, so the result is never below
 /// that measurement's information), the eigenbasis of a generic combination of the
-/// states, and `random_starts` random `d²`-outcome POVMs. Each start is ascended by
+/// states, for two states the eigenbasis of their symmetric logarithmic derivative (see
+/// [`symmetric_log_derivative`]), and `random_starts` random `d²`-outcome POVMs. Each start is ascended by
 /// [`povm_ascent`], with the gradient column `2 Σᵢ pᵢ log₂(P(k|i)/P(k)) ρᵢ a_k` (the same
 /// stationarity structure as the iteration of Řeháček, Englert, Kaszlikowski, PRA 71,
 /// 054303, 2005). Ascent is monotone and the search stops once the Holevo quantity, which
@@ -379,7 +380,11 @@ fn search(priors: &[f64], states: &[CMat], opts: &AccessibleOptions) -> Result<A
     if states.len() > 1 {
         helstrom_op -= &states[1] * c(priors[1], 0.0);
     }
-    let structured = [eigen_columns(&helstrom_op), eigen_columns(&generic_combination(states))];
+    let mut structured = vec![eigen_columns(&helstrom_op), eigen_columns(&generic_combination(states))];
+    if states.len() == 2 {
+        structured.push(eigen_columns(&symmetric_log_derivative(priors, states)));
+    }
+    let n_structured = structured.len();
     let mut rng = rand_chacha::ChaCha8Rng::seed_from_u64(opts.seed);
     let mut random_start = || {
         let raw: Vec<CVec> =
@@ -394,11 +399,11 @@ fn search(priors: &[f64], states: &[CMat], opts: &AccessibleOptions) -> Result<A
     // Structured starts, then the planned random starts.
     for (i, start) in structured.into_iter().map(Some).chain((0..opts.random_starts).map(|_| None)).enumerate() {
         let start = start.unwrap_or_else(&mut random_start);
-        let improved = s.run(priors, states, &start, opts, i >= 2);
+        let improved = s.run(priors, states, &start, opts, i >= n_structured);
         if holevo_reached(&s) {
             break;
         }
-        if two_states && i >= 1 && (improved || s.bound.is_none()) {
+        if two_states && i + 1 >= n_structured && (improved || s.bound.is_none()) {
             s.bound = Some(dual(&s.povm()));
         }
         if certified(&s) {
@@ -435,6 +440,27 @@ fn search(priors: &[f64], states: &[CMat], opts: &AccessibleOptions) -> Result<A
         converged: converged || bits >= chi - opts.gain_tol,
         upper_bound: Some(upper_bound),
     })
+}
+
+/// The symmetric logarithmic derivative `L` of the pair at its mean: `ρ̄L + Lρ̄ = 2(ρ₀ − ρ₁)`
+/// with `ρ̄ = π₀ρ₀ + π₁ρ₁`, solved in ρ̄'s eigenbasis (`L_ij = 2Δ_ij/(λ_i + λ_j)`, zero where
+/// `λ_i + λ_j` vanishes). Measuring in its eigenbasis attains the quantum Fisher
+/// information (Braunstein, Caves, PRL 72, 3439, 1994), the second-order term of the
+/// information when the two states are close; it is the search's start for that regime.
+fn symmetric_log_derivative(priors: &[f64], states: &[CMat]) -> CMat {
+    let mean = &states[0] * c(priors[0], 0.0) + &states[1] * c(priors[1], 0.0);
+    let (vals, basis) = hermitian_eigen(&mean);
+    let delta = basis.adjoint() * (&states[0] - &states[1]) * &basis;
+    let top = vals.iter().fold(0.0_f64, |m, v| m.max(v.abs()));
+    let l = CMat::from_fn(vals.len(), vals.len(), |i, j| {
+        let s = vals[i] + vals[j];
+        if s > 1e-14 * top {
+            delta[(i, j)] * c(2.0 / s, 0.0)
+        } else {
+            c(0.0, 0.0)
+        }
+    });
+    &basis * l * basis.adjoint()
 }
 
 /// The search's state: the best (value, POVM, converged) so far, iterations, dual bound.
