@@ -790,6 +790,27 @@ mod tests {
     }
 
     #[test]
+    fn symmetric_log_derivative_solves_its_equation_and_measures_close_states_well() {
+        let mut rng = rand_chacha::ChaCha8Rng::seed_from_u64(17);
+        let r0 = DensityMatrix::random_hilbert_schmidt(3, &mut rng).matrix().clone();
+        let r1 = DensityMatrix::random_hilbert_schmidt(3, &mut rng).matrix().clone();
+        let priors = [0.4, 0.6];
+        let l = symmetric_log_derivative(&priors, &[r0.clone(), r1.clone()]);
+        let mean = &r0 * c(0.4, 0.0) + &r1 * c(0.6, 0.0);
+        let lhs = &mean * &l + &l * &mean;
+        assert!(crate::linalg::max_abs_diff(&lhs, &((&r0 - &r1) * c(2.0, 0.0))) < 1e-12);
+        // Two close states: the eigenbasis of L is optimal to second order in their distance
+        // (Braunstein, Caves 1994), so it captures almost all of the accessible information.
+        let eps = 1e-3;
+        let near = &r0 * c(1.0 - eps, 0.0) + &r1 * c(eps, 0.0);
+        let pair = [r0.clone(), near];
+        let sld = eigen_columns(&symmetric_log_derivative(&[0.5, 0.5], &pair));
+        let best = accessible_information(&[0.5, 0.5], &pair, &AccessibleOptions::default()).unwrap();
+        let measured = measured_information(&[0.5, 0.5], &pair, &sld);
+        assert!(measured > 0.9 * best.bits && measured <= best.bits + 1e-15, "{measured} vs {}", best.bits);
+    }
+
+    #[test]
     fn a_single_state_or_identical_states_carry_no_information() {
         let mut rng = rand_chacha::ChaCha8Rng::seed_from_u64(9);
         let s = DensityMatrix::random_hilbert_schmidt(3, &mut rng).matrix().clone();
