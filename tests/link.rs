@@ -375,3 +375,38 @@ fn campaigns_run_on_a_lossy_single_photon_link() {
     let summary = std::fs::read_to_string(folder.join("summary.md")).unwrap();
     assert!(summary.contains("single photons"), "{summary}");
 }
+
+#[test]
+fn single_photon_link_sampler_matches_the_exact_model() {
+    // Beam splitting on a single-photon source at 10 dB with dark counts raised so that
+    // Eve's share (her photon, Bob's dark count) is visible: the sampled gain, X error rate
+    // and Eve's uncertainty per key bit match the exact model, and every key bit comes from
+    // a single-photon pulse.
+    let link = Link { dark_count_probability: 1e-3, ..single_photon_link(10.0) };
+    let s = Setup { link, ..setup(KeyRule::FiniteUncertainty, 10.0, 10_000_000) };
+    let model = LinkModel::new(&s.link, Some(&LinkAttack::BeamSplitting { fraction: 1.0 }), &s.basis_probabilities());
+    assert!(model.h_x_given_e() < 1.0 - 1e-3, "Eve should know the dark-count bits");
+    let ts = |z: u64| z / 20;
+    let (mut pulses, mut det, mut xdet, mut xerr, mut key, mut entropy) = (0u64, 0u64, 0u64, 0u64, 0u64, 0.0);
+    for t in 0..100 {
+        let c = sample(&model, s.signals, &ts, &mut trial_rng(6, 0, t));
+        let classes = c.key_classes.unwrap();
+        assert_eq!(classes[1], c.key_bits(), "only single-photon key bits");
+        key += c.key_bits();
+        entropy += c.key_entropy_bits.unwrap();
+        let l = c.link.unwrap();
+        assert_eq!(l.count, 1);
+        assert!(l.mu[0] == 1.0 && l.multi_photon[0] == 0.0);
+        pulses += l.pulses[0];
+        det += l.detections[0];
+        xdet += l.x_detections[0];
+        xerr += l.x_errors[0];
+    }
+    let g = model.gain(0);
+    assert!((det as f64 / pulses as f64 - g).abs() < 5.0 * (g * (1.0 - g) / pulses as f64).sqrt(), "gain");
+    let e = model.error_rate(0);
+    assert!((xerr as f64 / xdet as f64 - e).abs() < 5.0 * (e * (1.0 - e) / xdet as f64).sqrt(), "error rate");
+    let known = 1.0 - model.h_x_given_e();
+    let se = (known * (1.0 - known) / key as f64).sqrt();
+    assert!((entropy / key as f64 - model.h_x_given_e()).abs() < 5.0 * se, "H(X|E) per key bit");
+}
