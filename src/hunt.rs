@@ -30,6 +30,7 @@
 //!   accessible information;
 //! - `game`: the tripartite guessing game with an honest Bob; bound ½ + 1/(2√2) (Tomamichel,
 //!   Fehr, Kaniewski, Wehner 2013).
+//!
 //! Starts run in parallel (rayon), each from its own seeded random stream.
 
 use crate::attack::Attack;

@@ -16,6 +16,7 @@
 //!   photon, with the single-photon yield and error of [`crate::link`] (the
 //!   Shor–Preskill rate per detection, Shor and Preskill, PRL 85, 441, 2000); the
 //!   intensity plays no part.
+//!
 //! Rates are not clipped; a rule's maximum distance is where its (optimised) rate reaches 0.
 
 use crate::bounds::bisect;

@@ -661,6 +661,75 @@ fn columns(a: &CMat) -> Vec<CVec> {
     (0..a.ncols()).map(|k| a.column(k).into_owned()).collect()
 }
 
+/// Upper bound, in bits, on the accessible information of two states `{π₀ρ₀, π₁ρ₁}`, from
+/// the dual of the maximisation over POVMs, built at the POVM `povm` (rank-one vectors).
+///
+/// An outcome with `a = Tr Eρ₀`, `b = Tr Eρ₁` adds `F(a, b) = P·D(q‖π)` to `I(X:M)`
+/// (P = π₀a + π₁b, q = π₀a/P its posterior), a convex function, homogeneous of degree one,
+/// so `F(a, b) = max_q [α(q)a + β(q)b]` with the gradient `α(q) = π₀ ln(q/π₀)`,
+/// `β(q) = π₁ ln((1−q)/π₁)`. Hence for any Hermitian Λ with `Λ ≥ G(q) = α(q)ρ₀ + β(q)ρ₁`
+/// for every q, every POVM has `I ≤ Σ Tr EₘΛ = Tr Λ`. The candidate is Holevo's
+/// optimality operator `Λ = Σₘ Eₘ G(qₘ)` (Hermitian part), shifted by
+/// `c = max_q λ_max(G(q) − Λ)` to make it feasible: bound `Tr Λ + d·c`. The maximum over q
+/// is taken on a grid of the log-odds of q in [−40, 40] (241 points) with each local
+/// maximum near the top refined by golden-section search, so the bound is a numerical one.
+/// Towards q → 0 or 1 the excess decreases to its limit on the kernel of ρ₀ or ρ₁ (adding
+/// a large multiple of −ρ lowers every eigenvalue), so the ends of the range lose nothing.
+pub fn dual_upper_bound(priors: [f64; 2], states: [&CMat; 2], povm: &[CVec]) -> f64 {
+    let d = states[0].nrows();
+    let mut lambda = CMat::zeros(d, d);
+    for v in povm {
+        let (rv0, rv1) = (states[0] * v, states[1] * v);
+        let pa = v.dotc(&rv0).re.max(0.0);
+        let pb = v.dotc(&rv1).re.max(0.0);
+        let p = priors[0] * pa + priors[1] * pb;
+        if p <= 0.0 {
+            continue;
+        }
+        // E G(q) = |v⟩⟨v|(αρ₀ + βρ₁); a term whose probability is zero has ρ v = 0.
+        let mut g = CMat::zeros(d, d);
+        if pa > 0.0 {
+            g += states[0] * c(priors[0] * (priors[0] * pa / p / priors[0]).ln(), 0.0);
+        }
+        if pb > 0.0 {
+            g += states[1] * c(priors[1] * (priors[1] * pb / p / priors[1]).ln(), 0.0);
+        }
+        lambda += v * (v.adjoint() * &g);
+    }
+    let lambda = (&lambda + lambda.adjoint()) * c(0.5, 0.0);
+    dual_value(priors, states, &lambda)
+}
+
+/// `(Tr Λ + d·max_q λ_max(G(q) − Λ)) / ln 2`: the bound of [`dual_upper_bound`] for one Λ.
+fn dual_value(priors: [f64; 2], states: [&CMat; 2], lambda: &CMat) -> f64 {
+    let d = states[0].nrows();
+    // (α, β) at log-odds s of q, without cancellation: ln q = −softplus(−s),
+    // ln(1 − q) = −softplus(s).
+    let softplus = |x: f64| x.max(0.0) + (-x.abs()).exp().ln_1p();
+    let coef = |s: f64| (priors[0] * (-softplus(-s) - priors[0].ln()), priors[1] * (-softplus(s) - priors[1].ln()));
+    let excess = |s: f64| -> f64 {
+        let (alpha, beta) = coef(s);
+        let g = states[0] * c(alpha, 0.0) + states[1] * c(beta, 0.0) - lambda;
+        crate::linalg::hermitian_eigenvalues(&g).into_iter().fold(f64::NEG_INFINITY, f64::max)
+    };
+    let n = 240;
+    let (lo, hi) = (-40.0, 40.0);
+    let s_at = |k: usize| lo + (hi - lo) * k as f64 / n as f64;
+    let vals: Vec<f64> = (0..=n).map(|k| excess(s_at(k))).collect();
+    let grid_max = vals.iter().cloned().fold(f64::NEG_INFINITY, f64::max);
+    let mut best = grid_max;
+    for k in 1..n {
+        // Strict local maxima of the grid that could still be the global maximum.
+        let peak = vals[k] >= vals[k - 1] && vals[k] >= vals[k + 1] && (vals[k] > vals[k - 1] || vals[k] > vals[k + 1]);
+        if !peak || vals[k].is_nan() || vals[k] <= grid_max - 0.1 {
+            continue;
+        }
+        let (_, v) = crate::optimize1d::golden_section_max(excess, s_at(k - 1), s_at(k + 1), 45);
+        best = best.max(v);
+    }
+    (lambda.trace().re + d as f64 * best) / std::f64::consts::LN_2
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;
@@ -819,73 +888,4 @@ mod tests {
         let acc = accessible_information(&[1.0], &[s], &AccessibleOptions::default()).unwrap();
         assert_abs_diff_eq!(acc.bits, 0.0, epsilon = 1e-12);
     }
-}
-
-/// Upper bound, in bits, on the accessible information of two states `{π₀ρ₀, π₁ρ₁}`, from
-/// the dual of the maximisation over POVMs, built at the POVM `povm` (rank-one vectors).
-///
-/// An outcome with `a = Tr Eρ₀`, `b = Tr Eρ₁` adds `F(a, b) = P·D(q‖π)` to `I(X:M)`
-/// (P = π₀a + π₁b, q = π₀a/P its posterior), a convex function, homogeneous of degree one,
-/// so `F(a, b) = max_q [α(q)a + β(q)b]` with the gradient `α(q) = π₀ ln(q/π₀)`,
-/// `β(q) = π₁ ln((1−q)/π₁)`. Hence for any Hermitian Λ with `Λ ≥ G(q) = α(q)ρ₀ + β(q)ρ₁`
-/// for every q, every POVM has `I ≤ Σ Tr EₘΛ = Tr Λ`. The candidate is Holevo's
-/// optimality operator `Λ = Σₘ Eₘ G(qₘ)` (Hermitian part), shifted by
-/// `c = max_q λ_max(G(q) − Λ)` to make it feasible: bound `Tr Λ + d·c`. The maximum over q
-/// is taken on a grid of the log-odds of q in [−40, 40] (241 points) with each local
-/// maximum near the top refined by golden-section search, so the bound is a numerical one.
-/// Towards q → 0 or 1 the excess decreases to its limit on the kernel of ρ₀ or ρ₁ (adding
-/// a large multiple of −ρ lowers every eigenvalue), so the ends of the range lose nothing.
-pub fn dual_upper_bound(priors: [f64; 2], states: [&CMat; 2], povm: &[CVec]) -> f64 {
-    let d = states[0].nrows();
-    let mut lambda = CMat::zeros(d, d);
-    for v in povm {
-        let (rv0, rv1) = (states[0] * v, states[1] * v);
-        let pa = v.dotc(&rv0).re.max(0.0);
-        let pb = v.dotc(&rv1).re.max(0.0);
-        let p = priors[0] * pa + priors[1] * pb;
-        if p <= 0.0 {
-            continue;
-        }
-        // E G(q) = |v⟩⟨v|(αρ₀ + βρ₁); a term whose probability is zero has ρ v = 0.
-        let mut g = CMat::zeros(d, d);
-        if pa > 0.0 {
-            g += states[0] * c(priors[0] * (priors[0] * pa / p / priors[0]).ln(), 0.0);
-        }
-        if pb > 0.0 {
-            g += states[1] * c(priors[1] * (priors[1] * pb / p / priors[1]).ln(), 0.0);
-        }
-        lambda += v * (v.adjoint() * &g);
-    }
-    let lambda = (&lambda + lambda.adjoint()) * c(0.5, 0.0);
-    dual_value(priors, states, &lambda)
-}
-
-/// `(Tr Λ + d·max_q λ_max(G(q) − Λ)) / ln 2`: the bound of [`dual_upper_bound`] for one Λ.
-fn dual_value(priors: [f64; 2], states: [&CMat; 2], lambda: &CMat) -> f64 {
-    let d = states[0].nrows();
-    // (α, β) at log-odds s of q, without cancellation: ln q = −softplus(−s),
-    // ln(1 − q) = −softplus(s).
-    let softplus = |x: f64| x.max(0.0) + (-x.abs()).exp().ln_1p();
-    let coef = |s: f64| (priors[0] * (-softplus(-s) - priors[0].ln()), priors[1] * (-softplus(s) - priors[1].ln()));
-    let excess = |s: f64| -> f64 {
-        let (alpha, beta) = coef(s);
-        let g = states[0] * c(alpha, 0.0) + states[1] * c(beta, 0.0) - lambda;
-        crate::linalg::hermitian_eigenvalues(&g).into_iter().fold(f64::NEG_INFINITY, f64::max)
-    };
-    let n = 240;
-    let (lo, hi) = (-40.0, 40.0);
-    let s_at = |k: usize| lo + (hi - lo) * k as f64 / n as f64;
-    let vals: Vec<f64> = (0..=n).map(|k| excess(s_at(k))).collect();
-    let grid_max = vals.iter().cloned().fold(f64::NEG_INFINITY, f64::max);
-    let mut best = grid_max;
-    for k in 1..n {
-        // Strict local maxima of the grid that could still be the global maximum.
-        let peak = vals[k] >= vals[k - 1] && vals[k] >= vals[k + 1] && (vals[k] > vals[k - 1] || vals[k] > vals[k + 1]);
-        if !peak || !(vals[k] > grid_max - 0.1) {
-            continue;
-        }
-        let (_, v) = crate::optimize1d::golden_section_max(excess, s_at(k - 1), s_at(k + 1), 45);
-        best = best.max(v);
-    }
-    (lambda.trace().re + d as f64 * best) / std::f64::consts::LN_2
 }
