@@ -294,6 +294,26 @@ mod tests {
     }
 
     #[test]
+    fn edge_cases_orthogonal_identical_and_maximally_mixed() {
+        // Orthogonal pure states: one full bit; identical states: nothing; a pure state
+        // against the maximally mixed one commutes with it, so the value is the Holevo
+        // quantity.
+        let up = density([0.0, 0.0, 1.0]);
+        let down = density([0.0, 0.0, -1.0]);
+        let q = solve([0.5, 0.5], [&up, &down]);
+        assert_abs_diff_eq!(q.bits, 1.0, epsilon = 1e-12);
+        assert!(q.upper - q.bits < 1e-12);
+        let tilted = density([0.6, 0.0, 0.8]);
+        let q = solve([0.5, 0.5], [&tilted, &tilted]);
+        assert_abs_diff_eq!(q.bits, 0.0, epsilon = 1e-15);
+        assert!(q.upper.abs() < 1e-12);
+        let mixed = density([0.0, 0.0, 0.0]);
+        let q = solve([0.3, 0.7], [&up, &mixed]);
+        assert_abs_diff_eq!(q.bits, holevo_quantity(&[0.3, 0.7], &[up.clone(), mixed.clone()]), epsilon = 1e-12);
+        assert!(q.upper - q.bits < 1e-12);
+    }
+
+    #[test]
     fn commuting_states_reach_holevo() {
         let a = density([0.0, 0.0, 0.6]);
         let b = density([0.0, 0.0, -0.2]);
