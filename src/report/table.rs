@@ -10,6 +10,7 @@
 //! | qber_z, qber_x, qber_y | exact error rates |
 //! | p_guess_z | exact Helstrom probability that Eve guesses a key bit |
 //! | holevo_z_bits, h_x_given_e_bits, accessible_z_bits | exact information quantities |
+//! | accessible_gap_bits | proven upper bound on the accessible information minus its value (worse of Z, X) |
 //! | bound_rate_bits, attack_rate_bits, margin_bits | exact rates per sifted bit (see `eval`) |
 //! | mc_qber_z, mc_qber_x | mean observed error rates over trials |
 //! | mc_eve_guess_rate | fraction of all key bits Eve guessed (Monte Carlo) |
@@ -54,6 +55,7 @@ pub const COLUMNS: &[&str] = &[
     "holevo_z_bits",
     "h_x_given_e_bits",
     "accessible_z_bits",
+    "accessible_gap_bits",
     "bound_rate_bits",
     "attack_rate_bits",
     "margin_bits",
@@ -114,6 +116,7 @@ pub fn render(c: &Campaign, results: &[PointResult]) -> Result<String> {
             n(e.holevo_z),
             n(e.h_x_given_e),
             n(e.accessible_z.unwrap_or(f64::NAN)),
+            n(e.accessible_gap.unwrap_or(f64::NAN)),
             n(e.bound_rate),
             n(e.attack_rate),
             n(e.margin),
