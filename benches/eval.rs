@@ -56,9 +56,39 @@ fn bench_qubit_pair(c: &mut Criterion) {
     group.finish();
 }
 
+/// Accessible information of unstructured pairs (random full-rank states, no common
+/// blocks): the multi-start search steered by the dual bound. The figures in
+/// DEVELOPERS.md (open work) come from here.
+fn bench_accessible_search(c: &mut Criterion) {
+    use qkd_audit::measures::{accessible_information, AccessibleOptions};
+    use qkd_audit::state::DensityMatrix;
+    use rand::SeedableRng;
+    let mut group = c.benchmark_group("accessible-search");
+    group.throughput(Throughput::Elements(1));
+    for d in [3usize, 4, 6] {
+        let mut rng = rand_chacha::ChaCha8Rng::seed_from_u64(7);
+        let pairs: Vec<_> = (0..8)
+            .map(|_| {
+                [
+                    DensityMatrix::random_hilbert_schmidt(d, &mut rng).matrix().clone(),
+                    DensityMatrix::random_hilbert_schmidt(d, &mut rng).matrix().clone(),
+                ]
+            })
+            .collect();
+        let mut k = 0;
+        group.bench_function(format!("random-pair-d{d}"), |b| {
+            b.iter(|| {
+                k = (k + 1) % pairs.len();
+                accessible_information(&[0.5, 0.5], black_box(&pairs[k]), &AccessibleOptions::default()).unwrap()
+            })
+        });
+    }
+    group.finish();
+}
+
 criterion_group! {
     name = benches;
     config = Criterion::default().sample_size(20).measurement_time(std::time::Duration::from_secs(2)).warm_up_time(std::time::Duration::from_millis(500));
-    targets = bench_eval, bench_qubit_pair
+    targets = bench_eval, bench_qubit_pair, bench_accessible_search
 }
 criterion_main!(benches);
