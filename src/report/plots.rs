@@ -23,6 +23,14 @@ const COLORS: [RGBColor; 8] = [
     RGBColor(127, 127, 127),
 ];
 
+/// The legend box every plot uses, at `position`.
+fn draw_legend<'a, CT: plotters::coord::CoordTranslate>(
+    chart: &mut ChartContext<'a, SVGBackend<'a>, CT>,
+    position: SeriesLabelPosition,
+) -> Result<()> {
+    chart.configure_series_labels().position(position).background_style(WHITE.mix(0.9)).border_style(BLACK).draw().map_err(plot_err)
+}
+
 fn plot_err<E: std::fmt::Debug>(e: E) -> Error {
     Error::new(ErrorKind::Io, format!("plot: {e:?}"))
 }
@@ -104,13 +112,7 @@ fn eve_information(c: &Campaign, results: &[PointResult]) -> Result<String> {
                 .label(label)
                 .legend(move |(x, y)| Circle::new((x + 10, y), 4, color.filled()));
         }
-        chart
-            .configure_series_labels()
-            .position(SeriesLabelPosition::UpperLeft)
-            .background_style(WHITE.mix(0.9))
-            .border_style(BLACK)
-            .draw()
-            .map_err(plot_err)?;
+        draw_legend(&mut chart, SeriesLabelPosition::UpperLeft)?;
         root.present().map_err(plot_err)?;
     }
     Ok(svg)
@@ -158,13 +160,7 @@ fn abort_leak(pts: &[&PointResult]) -> Result<String> {
                 .draw_series(series.iter().map(|&(x, _, (a, b))| PathElement::new(vec![(x, a), (x, b)], color.mix(0.6))))
                 .map_err(plot_err)?;
         }
-        chart
-            .configure_series_labels()
-            .position(SeriesLabelPosition::MiddleRight)
-            .background_style(WHITE.mix(0.9))
-            .border_style(BLACK)
-            .draw()
-            .map_err(plot_err)?;
+        draw_legend(&mut chart, SeriesLabelPosition::MiddleRight)?;
         root.present().map_err(plot_err)?;
     }
     Ok(svg)
@@ -203,13 +199,7 @@ pub fn keyrate_svg(rows: &[crate::keyrate::RateRow], rules: &[crate::keyrate::Li
                 .label(rule.name())
                 .legend(move |(x, y)| PathElement::new(vec![(x, y), (x + 20, y)], color.stroke_width(2)));
         }
-        chart
-            .configure_series_labels()
-            .position(SeriesLabelPosition::UpperRight)
-            .background_style(WHITE.mix(0.9))
-            .border_style(BLACK)
-            .draw()
-            .map_err(plot_err)?;
+        draw_legend(&mut chart, SeriesLabelPosition::UpperRight)?;
         root.present().map_err(plot_err)?;
     }
     Ok(svg)
