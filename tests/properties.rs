@@ -40,6 +40,11 @@ fn check(e: &Evaluation, with_accessible: bool) -> Result<(), TestCaseError> {
         for (a, chi) in [(e.accessible_z.unwrap(), e.holevo_z), (e.accessible_x.unwrap(), e.holevo_x)] {
             prop_assert!(a >= -SLACK && a <= chi + SLACK, "accessible {a} vs holevo {chi}");
         }
+        // Certified: the dual bound meets the value within 1e-9 bits, or within 1e-7 when
+        // Eve learns almost nothing (≤ 1e-3 bits, where the ascent converges slowest).
+        let gap = e.accessible_gap.expect("accessible information comes with its gap");
+        let least = e.accessible_z.unwrap().min(e.accessible_x.unwrap());
+        prop_assert!(gap >= -SLACK && gap <= if least > 1e-3 { 1e-9 } else { 1e-7 }, "gap {gap} at accessible {least}");
     }
     prop_assert!(e.game_win <= game_bound() + SLACK, "game {}", e.game_win);
     prop_assert!(e.game_win >= 0.0);
@@ -163,12 +168,12 @@ fn block_route_matches_the_search_on_built_in_families() {
 
 #[test]
 fn the_dual_bound_sends_the_search_on_until_it_certifies_its_value() {
-    // A near-identity interaction whose X-basis ensemble has a local maximum that the
-    // structured and three random starts land in (found by the property tests above): the
-    // dual bound shows a gap of about 10⁻⁶, and further random starts find the better
-    // measurement and close it.
-    let mut rng = rand_chacha::ChaCha8Rng::seed_from_u64(9153954687789484958);
-    let v: CMat = KrausChannel::random_interaction(4, 0.1680435695926711, &mut rng);
+    // A near-identity interaction whose X-basis ensemble the structured and three random
+    // starts leave short of the maximum (found by a scan of such interactions): the dual
+    // bound shows a gap above 10⁻⁷, and polishing plus further random starts find the
+    // better measurement and close it.
+    let mut rng = rand_chacha::ChaCha8Rng::seed_from_u64(1012);
+    let v: CMat = KrausChannel::random_interaction(4, 0.05 + 0.25 * 12.0 / 100.0, &mut rng);
     let attack = Attack::from_kraus("interaction", 4, vec![v], Tolerance::default()).unwrap();
     let with = |acc: AccessibleOptions| evaluate(&attack, &EvalOptions { protocol: Protocol::Bb84, accessible: Some(acc) }).unwrap();
     let planned_only = with(AccessibleOptions { max_random_starts: 0, polish_rounds: 0, ..AccessibleOptions::default() });
@@ -176,5 +181,5 @@ fn the_dual_bound_sends_the_search_on_until_it_certifies_its_value() {
     assert!(planned_only.accessible_gap.unwrap() > 1e-7, "gap {:?}", planned_only.accessible_gap);
     assert!(adaptive.accessible_gap.unwrap() <= 1e-10, "gap {:?}", adaptive.accessible_gap);
     let gained = adaptive.accessible_x.unwrap() - planned_only.accessible_x.unwrap();
-    assert!(gained > 1e-7 && gained <= planned_only.accessible_gap.unwrap() + 1e-12, "gained {gained}");
+    assert!(gained > 1e-8 && gained <= planned_only.accessible_gap.unwrap() + 1e-12, "gained {gained}");
 }
