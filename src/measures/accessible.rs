@@ -623,8 +623,7 @@ pub fn povm_ascent(start: CMat, f: &dyn Fn(&CMat, bool) -> (f64, Option<CMat>), 
     let mut g = tangent(&a, &eg.expect("gradient requested"));
     let mut eta = g.clone();
     let mut step = 1.0;
-    let mut gains: std::collections::VecDeque<f64> = std::collections::VecDeque::new();
-    let mut window_gain = 0.0;
+    let mut window = GainWindow::new(opts);
     for iter in 0..opts.max_iter {
         let g2 = inner(&g, &g);
         if g2.sqrt() < opts.grad_tol {
@@ -636,18 +635,8 @@ pub fn povm_ascent(start: CMat, f: &dyn Fn(&CMat, bool) -> (f64, Option<CMat>), 
             slope = g2;
         }
         // Armijo backtracking from a step that grows after successes.
-        let mut t = step * 2.0;
-        let (cand, cand_value) = loop {
-            let cand = retract(&(&a + &eta * c(t, 0.0)));
-            let (v, _) = f(&cand, false);
-            if v >= value + 1e-4 * t * slope {
-                break (cand, v);
-            }
-            t *= 0.5;
-            if t * slope.sqrt() < 1e-17 {
-                // No ascent at machine precision along the direction: stationary.
-                return (value, a, iter, true);
-            }
+        let Some((cand, cand_value, t)) = armijo(f, &a, value, &eta, slope, step * 2.0) else {
+            return (value, a, iter, true);
         };
         step = t;
         let gain = cand_value - value;
@@ -659,12 +648,7 @@ pub fn povm_ascent(start: CMat, f: &dyn Fn(&CMat, bool) -> (f64, Option<CMat>), 
         let beta = (inner(&g_new, &(&g_new - &g_old)) / g2).max(0.0);
         eta = &g_new + tangent(&a, &eta) * c(beta, 0.0);
         g = g_new;
-        gains.push_back(gain);
-        window_gain += gain;
-        if gains.len() > opts.window {
-            window_gain -= gains.pop_front().unwrap_or(0.0);
-        }
-        if gains.len() >= opts.window && window_gain < opts.gain_tol {
+        if window.stalled(gain) {
             return (value, a, iter + 1, true);
         }
     }
@@ -685,8 +669,7 @@ pub fn povm_lbfgs(start: CMat, f: &dyn Fn(&CMat, bool) -> (f64, Option<CMat>), o
     let mut g = tangent(&a, &eg.expect("gradient requested"));
     // Pairs (s, y, 1/⟨s, y⟩) for the minimisation of −f: y = g_old − g_new.
     let mut pairs: std::collections::VecDeque<(CMat, CMat, f64)> = std::collections::VecDeque::new();
-    let mut gains: std::collections::VecDeque<f64> = std::collections::VecDeque::new();
-    let mut window_gain = 0.0;
+    let mut window = GainWindow::new(opts);
     for iter in 0..opts.max_iter {
         if inner(&g, &g).sqrt() < opts.grad_tol {
             return (value, a, iter, true);
@@ -713,17 +696,8 @@ pub fn povm_lbfgs(start: CMat, f: &dyn Fn(&CMat, bool) -> (f64, Option<CMat>), o
             dir = g.clone();
             slope = inner(&g, &g);
         }
-        let mut t = 1.0;
-        let (cand, cand_value) = loop {
-            let cand = retract(&(&a + &dir * c(t, 0.0)));
-            let (v, _) = f(&cand, false);
-            if v >= value + 1e-4 * t * slope {
-                break (cand, v);
-            }
-            t *= 0.5;
-            if t * slope.sqrt() < 1e-17 {
-                return (value, a, iter, true);
-            }
+        let Some((cand, cand_value, t)) = armijo(f, &a, value, &dir, slope, 1.0) else {
+            return (value, a, iter, true);
         };
         let gain = cand_value - value;
         let (_, eg) = f(&cand, true);
@@ -745,16 +719,60 @@ pub fn povm_lbfgs(start: CMat, f: &dyn Fn(&CMat, bool) -> (f64, Option<CMat>), o
         a = cand;
         value = cand_value;
         g = g_new;
-        gains.push_back(gain);
-        window_gain += gain;
-        if gains.len() > opts.window {
-            window_gain -= gains.pop_front().unwrap_or(0.0);
-        }
-        if gains.len() >= opts.window && window_gain < opts.gain_tol {
+        if window.stalled(gain) {
             return (value, a, iter + 1, true);
         }
     }
     (value, a, opts.max_iter, false)
+}
+
+/// Armijo backtracking along `dir` from step `t0`, halving: the first retracted point that
+/// gains at least `1e-4·t·slope`, as (point, value, step); `None` when even a step at
+/// machine precision does not ascend (the point is stationary).
+fn armijo(
+    f: &dyn Fn(&CMat, bool) -> (f64, Option<CMat>),
+    a: &CMat,
+    value: f64,
+    dir: &CMat,
+    slope: f64,
+    t0: f64,
+) -> Option<(CMat, f64, f64)> {
+    let mut t = t0;
+    loop {
+        let cand = retract(&(a + dir * c(t, 0.0)));
+        let (v, _) = f(&cand, false);
+        if v >= value + 1e-4 * t * slope {
+            return Some((cand, v, t));
+        }
+        t *= 0.5;
+        if t * slope.sqrt() < 1e-17 {
+            return None;
+        }
+    }
+}
+
+/// The windowed-gain stopping rule of [`AccessibleOptions`]: stalled once `window`
+/// consecutive steps together gain less than `gain_tol`.
+struct GainWindow {
+    gains: std::collections::VecDeque<f64>,
+    total: f64,
+    window: usize,
+    tol: f64,
+}
+
+impl GainWindow {
+    fn new(opts: &AccessibleOptions) -> Self {
+        GainWindow { gains: std::collections::VecDeque::new(), total: 0.0, window: opts.window, tol: opts.gain_tol }
+    }
+    /// Records one step's gain; returns whether the search has stalled.
+    fn stalled(&mut self, gain: f64) -> bool {
+        self.gains.push_back(gain);
+        self.total += gain;
+        if self.gains.len() > self.window {
+            self.total -= self.gains.pop_front().unwrap_or(0.0);
+        }
+        self.gains.len() >= self.window && self.total < self.tol
+    }
 }
 
 fn columns(a: &CMat) -> Vec<CVec> {
