@@ -4,12 +4,14 @@
 
 use criterion::{criterion_group, criterion_main, BenchmarkId, Criterion, Throughput};
 use qkd_audit::attack::{Attack, Value};
+use qkd_audit::audit::sample::round::RoundSampler;
+use qkd_audit::audit::sample::{sample_block, Sampler};
+use qkd_audit::audit::setup::Setup;
 use qkd_audit::audit::trial::judge;
 use qkd_audit::audit::{run, Campaign};
+use qkd_audit::exact::signal::SignalModel;
+use qkd_audit::numeric::rng::trial_rng;
 use qkd_audit::protocol::Protocol;
-use qkd_audit::setup::Setup;
-use qkd_audit::sim::round::RoundSampler;
-use qkd_audit::sim::{sample_block, trial_rng, Sampler, SignalModel};
 use rayon::prelude::*;
 use std::collections::BTreeMap;
 
@@ -35,7 +37,7 @@ fn count_level(c: &mut Criterion) {
                     .map(|t| {
                         let mut rng = trial_rng(1, 0, t);
                         let counts = sample_block(Sampler::Count, &model, setup.signals, &ts, &mut rng);
-                        judge(&counts, setup, 0.8).length
+                        judge(&counts, setup.key_rule, &setup.rule_params(), 0.8).length
                     })
                     .sum::<u64>()
             })
@@ -73,13 +75,13 @@ fn demo_campaign(c: &mut Criterion) {
 fn link_vs_single_photon(c: &mut Criterion) {
     // Trials per second of the weak-coherent sampler against the single-photon one (target:
     // within 2x), both judged once.
-    use qkd_audit::attack::link_attack::LinkAttack;
-    use qkd_audit::sim::link::LinkModel;
+    use qkd_audit::attack::pulse::LinkAttack;
+    use qkd_audit::exact::pulses::PulseModel;
     let campaign = Campaign::demo_named("decoy").unwrap();
     let setup = campaign.setup.clone();
-    let lm = LinkModel::new(&setup.link, Some(&LinkAttack::PhotonNumberSplitting { fraction: 0.5 }), &setup.basis_probabilities());
+    let lm = PulseModel::new(&setup.link, Some(&LinkAttack::PhotonNumberSplitting { fraction: 0.5 }), &setup.basis_probabilities());
     let sp = SignalModel::new(&cloner(), Protocol::Bb84, &setup.basis_probabilities());
-    let sp_setup = Setup { key_rule: qkd_audit::rules::KeyRule::FiniteUncertainty, link: Default::default(), ..setup.clone() };
+    let sp_setup = Setup { key_rule: qkd_audit::audit::rules::KeyRule::FiniteUncertainty, link: Default::default(), ..setup.clone() };
     let trials = 20_000u64;
     let mut group = c.benchmark_group("trials per second, link vs single photon (2 threads)");
     group.throughput(Throughput::Elements(trials));
@@ -88,7 +90,15 @@ fn link_vs_single_photon(c: &mut Criterion) {
         b.iter(|| {
             (0..trials)
                 .into_par_iter()
-                .map(|t| judge(&qkd_audit::sim::link::sample(&lm, setup.signals, &ts, &mut trial_rng(3, 0, t)), &setup, 0.5).length)
+                .map(|t| {
+                    judge(
+                        &qkd_audit::audit::sample::pulses::sample(&lm, setup.signals, &ts, &mut trial_rng(3, 0, t)),
+                        setup.key_rule,
+                        &setup.rule_params(),
+                        0.5,
+                    )
+                    .length
+                })
                 .sum::<u64>()
         })
     });
@@ -96,7 +106,15 @@ fn link_vs_single_photon(c: &mut Criterion) {
         b.iter(|| {
             (0..trials)
                 .into_par_iter()
-                .map(|t| judge(&sample_block(Sampler::Count, &sp, setup.signals, &ts, &mut trial_rng(3, 0, t)), &sp_setup, 0.8).length)
+                .map(|t| {
+                    judge(
+                        &sample_block(Sampler::Count, &sp, setup.signals, &ts, &mut trial_rng(3, 0, t)),
+                        sp_setup.key_rule,
+                        &sp_setup.rule_params(),
+                        0.8,
+                    )
+                    .length
+                })
                 .sum::<u64>()
         })
     });
@@ -104,7 +122,7 @@ fn link_vs_single_photon(c: &mut Criterion) {
 }
 
 fn keyrate(c: &mut Criterion) {
-    use qkd_audit::keyrate::{rate_table, LinkRule, RateParams};
+    use qkd_audit::exact::keyrate::{rate_table, LinkRule, RateParams};
     let campaign = Campaign::demo_named("decoy").unwrap();
     let link = campaign.setup.link.clone();
     let distances: Vec<f64> = (0..1000).map(|i| 0.2 * i as f64).collect();

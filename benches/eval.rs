@@ -4,7 +4,7 @@
 
 use criterion::{black_box, criterion_group, criterion_main, Criterion, Throughput};
 use qkd_audit::attack::file::{builtin_catalogue, parse};
-use qkd_audit::eval::{evaluate, EvalOptions};
+use qkd_audit::exact::eval::{evaluate, EvalOptions};
 use qkd_audit::protocol::Protocol;
 use std::collections::BTreeMap;
 
@@ -38,8 +38,8 @@ fn bench_eval(c: &mut Criterion) {
 /// The qubit-pair kernel of the accessible information on its own: a pure pair (the
 /// blocks of the Pauli cloners) and a mixed pair (the entangling probe's kind).
 fn bench_qubit_pair(c: &mut Criterion) {
-    use qkd_audit::linalg::{c as cx, CMat};
-    use qkd_audit::measures::qubit_pair::solve;
+    use qkd_audit::numeric::linalg::{c as cx, CMat};
+    use qkd_audit::quantum::measures::qubit_pair::solve;
     let state = |r: [f64; 3]| {
         CMat::from_vec(
             2,
@@ -60,8 +60,8 @@ fn bench_qubit_pair(c: &mut Criterion) {
 /// blocks): the multi-start search steered by the dual bound. The figures in
 /// DEVELOPERS.md (open work) come from here.
 fn bench_accessible_search(c: &mut Criterion) {
-    use qkd_audit::measures::{accessible_information, AccessibleOptions};
-    use qkd_audit::state::DensityMatrix;
+    use qkd_audit::quantum::measures::{accessible_information, AccessibleOptions};
+    use qkd_audit::quantum::state::DensityMatrix;
     use rand::SeedableRng;
     let mut group = c.benchmark_group("accessible-search");
     group.throughput(Throughput::Elements(1));

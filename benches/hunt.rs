@@ -2,8 +2,8 @@
 //! d_E = 4 and 32 starts in under 5 s on 2 cores. Results are recorded in DEVELOPERS.md.
 
 use criterion::{criterion_group, criterion_main, Criterion};
-use qkd_audit::hunt::{hunt, HuntOptions, Objective};
 use qkd_audit::protocol::Protocol;
+use qkd_audit::search::hunt::{hunt, HuntOptions, Objective};
 
 fn holevo_hunt(c: &mut Criterion) {
     let opts = HuntOptions { protocol: Protocol::Bb84, objective: Objective::Holevo, eve_dim: 4, starts: 32, seed: 1, max_iters: 100 };

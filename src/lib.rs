@@ -1,44 +1,38 @@
 //! qkd-audit: audit quantum key distribution configurations against eavesdropping attacks
 //! and proven security bounds.
 //!
-//! Layers, each depending only on those above it:
-//! 1. [`linalg`]: matrices, tolerances, tensor products, partial traces, eigen-solves;
-//!    [`optimize1d`]: golden-section search;
-//! 2. [`state`], [`channel`]: validated density matrices, Kraus channels;
-//! 3. [`measures`]: entropies, trace norm, Helstrom, Holevo, accessible information;
-//! 4. [`protocol`]: BB84 and six-state signal states; [`link`]: sources, loss, detectors;
-//! 5. [`attack`]: the attack catalogue (single-photon families, link-level attacks) and user
-//!    Kraus attacks;
-//! 6. [`bounds`]: security bounds and thresholds; [`eval`]: the exact per-attack evaluator;
-//!    [`thresholds`]: threshold table; [`sweep`]: parameter sweeps and their CSV;
-//!    [`keyrate`]: asymptotic weak-pulse key rates; [`hunt`], [`game`]: searches for the
-//!    strongest attack;
-//! 7. [`setup`]: the system under test; [`rules`]: key-length rules; [`sim`]: Monte Carlo
-//!    samplers; [`audit`]: campaigns, trials and verdicts; [`report`]: output files;
-//! 8. [`output`]: safe file writing; [`cli`]: the command line.
+//! The crate is layered; a module uses only modules of its own layer or of layers listed
+//! before it. The order of the `pub mod` declarations below *is* the layer order, and
+//! `tests/layers.rs` reads it from this file and fails on any import that goes up a layer
+//! (or on an import cycle between the modules of one layer). DEVELOPERS.md explains why
+//! each boundary sits where it does.
+//!
+//! 0. [`error`], [`output`]: the error type; atomic files and folders, number formatting.
+//!    Base utilities, importable from anywhere.
+//! 1. [`numeric`]: matrices and eigen-solves, one-dimensional searches, the Riemannian
+//!    ascents over POVMs, per-trial random streams. No physics words.
+//! 2. [`quantum`]: validated states and channels; entropies, Helstrom, Holevo, accessible
+//!    information.
+//! 3. [`protocol`]: bases and protocols (BB84, six-state); the optical link (sources,
+//!    channel loss, detectors, exact gains).
+//! 4. [`attack`]: the attack catalogue (single-photon families, pulse attacks) and attack
+//!    files.
+//! 5. [`exact`]: the exact evaluator, security bounds, thresholds, sweeps, key rates, and
+//!    the exact per-signal and per-pulse models the samplers draw from.
+//! 6. [`audit`]: the system under test, key-length rules, samplers, campaigns, trial
+//!    judging, per-point statistics and the reports.
+//! 7. [`search`]: numerical hunts for the strongest attack and the guessing game.
+//! 8. [`cli`]: the command line, one module per subcommand.
 
-pub mod attack;
-pub mod audit;
-pub mod bounds;
-pub mod channel;
-pub mod cli;
 pub mod error;
-pub mod eval;
-pub mod game;
-pub mod hunt;
-pub mod keyrate;
-pub mod linalg;
-pub mod link;
-pub mod measures;
-pub mod optimize1d;
 pub mod output;
+pub mod numeric;
+pub mod quantum;
 pub mod protocol;
-pub mod report;
-pub mod rules;
-pub mod setup;
-pub mod sim;
-pub mod state;
-pub mod sweep;
-pub mod thresholds;
+pub mod attack;
+pub mod exact;
+pub mod audit;
+pub mod search;
+pub mod cli;
 
 pub use error::{Error, ErrorKind, Result};

@@ -2,14 +2,16 @@
 //! determinism, and the `run` command.
 
 use qkd_audit::attack::{Attack, Value};
+use qkd_audit::audit::rules::KeyRule;
+use qkd_audit::audit::sample::{sample_block, BlockCounts, Sampler};
+use qkd_audit::audit::setup::{Setup, TestSample};
 use qkd_audit::audit::trial::{judge, Verdict};
-use qkd_audit::channel::KrausChannel;
-use qkd_audit::eval::{evaluate, EvalOptions};
-use qkd_audit::linalg::Tolerance;
+use qkd_audit::exact::eval::{evaluate, EvalOptions};
+use qkd_audit::exact::signal::SignalModel;
+use qkd_audit::numeric::linalg::Tolerance;
+use qkd_audit::numeric::rng::trial_rng;
 use qkd_audit::protocol::Protocol;
-use qkd_audit::rules::KeyRule;
-use qkd_audit::setup::{Setup, TestSample};
-use qkd_audit::sim::{sample_block, trial_rng, BlockCounts, Sampler, SignalModel};
+use qkd_audit::quantum::channel::KrausChannel;
 use rand::{Rng, SeedableRng};
 use statrs::distribution::{ChiSquared, ContinuousCDF};
 use std::collections::BTreeMap;
@@ -33,7 +35,8 @@ fn verdicts(a: &Attack, setup: &Setup, trials: u64, seed: u64) -> Vec<Verdict> {
     (0..trials)
         .map(|t| {
             let mut rng = trial_rng(seed, 0, t);
-            judge(&sample_block(Sampler::Count, &model, setup.signals, &ts, &mut rng), setup, e.h_x_given_e).verdict
+            judge(&sample_block(Sampler::Count, &model, setup.signals, &ts, &mut rng), setup.key_rule, &setup.rule_params(), e.h_x_given_e)
+                .verdict
         })
         .collect()
 }

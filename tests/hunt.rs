@@ -1,9 +1,9 @@
 //! Attack hunting: the searches reach the proven bounds and never exceed them.
 
-use qkd_audit::game::hunt_game;
-use qkd_audit::hunt::{bound, hunt, HuntOptions, Objective};
-use qkd_audit::measures::binary_entropy;
 use qkd_audit::protocol::Protocol;
+use qkd_audit::quantum::measures::binary_entropy;
+use qkd_audit::search::game::hunt_game;
+use qkd_audit::search::hunt::{bound, hunt, HuntOptions, Objective};
 use std::process::Command;
 
 fn opts(objective: Objective, protocol: Protocol) -> HuntOptions {

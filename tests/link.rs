@@ -2,14 +2,15 @@
 
 use proptest::prelude::*;
 use proptest::test_runner::{Config, FileFailurePersistence, RngAlgorithm, TestRng, TestRunner};
-use qkd_audit::attack::link_attack::{honest, LinkAttack};
+use qkd_audit::attack::pulse::{honest, LinkAttack};
+use qkd_audit::audit::rules::KeyRule;
+use qkd_audit::audit::sample::pulses::sample;
+use qkd_audit::audit::setup::{Setup, TestSample};
 use qkd_audit::audit::trial::{judge, Verdict};
-use qkd_audit::keyrate::vacuum_weak_bounds;
-use qkd_audit::link::{Link, Photons, Source};
-use qkd_audit::rules::KeyRule;
-use qkd_audit::setup::{Setup, TestSample};
-use qkd_audit::sim::link::{sample, LinkModel};
-use qkd_audit::sim::trial_rng;
+use qkd_audit::exact::keyrate::vacuum_weak_bounds;
+use qkd_audit::exact::pulses::PulseModel;
+use qkd_audit::numeric::rng::trial_rng;
+use qkd_audit::protocol::optical::{Link, Photons, Source};
 use std::path::Path;
 use std::process::Command;
 
@@ -72,10 +73,12 @@ fn setup(rule: KeyRule, loss_db: f64, signals: u64) -> Setup {
 }
 
 fn verdicts(attack: LinkAttack, setup: &Setup, trials: u64, seed: u64) -> Vec<Verdict> {
-    let model = LinkModel::new(&setup.link, Some(&attack), &setup.basis_probabilities());
+    let model = PulseModel::new(&setup.link, Some(&attack), &setup.basis_probabilities());
     let h = model.h_x_given_e();
     let ts = |z: u64| setup.test_sample.size(z);
-    (0..trials).map(|t| judge(&sample(&model, setup.signals, &ts, &mut trial_rng(seed, 0, t)), setup, h).verdict).collect()
+    (0..trials)
+        .map(|t| judge(&sample(&model, setup.signals, &ts, &mut trial_rng(seed, 0, t)), setup.key_rule, &setup.rule_params(), h).verdict)
+        .collect()
 }
 
 #[test]
@@ -120,7 +123,7 @@ fn beam_splitting_never_breaks_the_decoy_rules() {
 #[test]
 fn link_sampler_matches_the_exact_gains_and_error_rates() {
     let s = setup(KeyRule::DecoyFinite, 10.0, 100_000_000);
-    let model = LinkModel::new(&s.link, Some(&LinkAttack::PhotonNumberSplitting { fraction: 0.5 }), &s.basis_probabilities());
+    let model = PulseModel::new(&s.link, Some(&LinkAttack::PhotonNumberSplitting { fraction: 0.5 }), &s.basis_probabilities());
     let ts = |z: u64| z / 20;
     let (mut pulses, mut det, mut xdet, mut xerr) = ([0u64; 3], [0u64; 3], [0u64; 3], [0u64; 3]);
     let (mut key, mut multi, mut entropy) = (0u64, 0u64, 0.0);
@@ -223,7 +226,7 @@ fn decoy_demo_shows_a_safe_rule_and_a_broken_one() {
 #[test]
 fn single_photon_attacks_on_weak_pulses_match_the_gain_and_never_break_decoy_rules() {
     use qkd_audit::attack::{Attack, Value};
-    use qkd_audit::eval::{evaluate, EvalOptions};
+    use qkd_audit::exact::eval::{evaluate, EvalOptions};
     use qkd_audit::protocol::Protocol;
     use std::collections::BTreeMap;
     let mut prev_err = 0.0;
@@ -235,7 +238,7 @@ fn single_photon_attacks_on_weak_pulses_match_the_gain_and_never_break_decoy_rul
         for rule in [KeyRule::DecoyVacuumWeak, KeyRule::DecoyFinite] {
             let s = setup(rule, 10.0, 10_000_000_000);
             let h = evaluate(&a, &EvalOptions::fast(Protocol::Bb84)).unwrap().h_x_given_e;
-            let model = LinkModel::qubit(&s.link, &a, Protocol::Bb84, &s.basis_probabilities(), h);
+            let model = PulseModel::qubit(&s.link, &a, Protocol::Bb84, &s.basis_probabilities(), h);
             // Intercept-resend with loss compensation: Bob's signal gain is the honest one.
             let honest_gain = honest(&s.link, Photons::Poisson { mean: 0.5 }).gain;
             assert!((model.gain(0) - honest_gain).abs() < 1e-12 * honest_gain.max(1e-300) + 1e-15, "gain");
@@ -246,7 +249,11 @@ fn single_photon_attacks_on_weak_pulses_match_the_gain_and_never_break_decoy_rul
             let ts = |z: u64| s.test_sample.size(z);
             for t in 0..10 {
                 let c = sample(&model, s.signals, &ts, &mut trial_rng(8, i, t));
-                assert_ne!(judge(&c, &s, model.h_x_given_e()).verdict, Verdict::Leak, "{rule} leaked at fraction {p}");
+                assert_ne!(
+                    judge(&c, s.key_rule, &s.rule_params(), model.h_x_given_e()).verdict,
+                    Verdict::Leak,
+                    "{rule} leaked at fraction {p}"
+                );
             }
         }
     }
@@ -258,9 +265,9 @@ fn finite_decoy_rule_approaches_the_asymptotic_decoy_bound_for_huge_blocks() {
     // finite rule's key per key bit must come within a few per cent of the asymptotic
     // vacuum + weak rule's (both bound the same single-photon yield and error; Ma et al.
     // 2005 and Lim et al. 2014 use slightly different decoy inequalities).
-    use qkd_audit::rules::{BlockStats, IntensityObs};
+    use qkd_audit::audit::rules::{BlockStats, IntensityObs};
     let s = Setup { test_sample: TestSample::Fraction(0.0), ..setup(KeyRule::DecoyFinite, 10.0, 10_000_000_000_000_000) };
-    let model = LinkModel::new(&s.link, None, &s.basis_probabilities());
+    let model = PulseModel::new(&s.link, None, &s.basis_probabilities());
     let n_pulses = s.signals as f64;
     let mut obs = IntensityObs { count: 3, ..IntensityObs::default() };
     let (pz, px) = (0.7f64 * 0.7, 0.3f64 * 0.3);
@@ -275,9 +282,8 @@ fn finite_decoy_rule_approaches_the_asymptotic_decoy_bound_for_huge_blocks() {
     }
     let stats =
         BlockStats { n: obs.z_detections[0], k: obs.x_detections[0], m: 0, e_z: f64::NAN, e_x: model.error_rate(0), link: Some(obs) };
-    let finite = KeyRule::DecoyFinite.length(&stats, &s).raw_bits / stats.n as f64;
-    let asymptotic =
-        KeyRule::DecoyVacuumWeak.length(&stats, &Setup { key_rule: KeyRule::DecoyVacuumWeak, ..s.clone() }).raw_bits / stats.n as f64;
+    let finite = KeyRule::DecoyFinite.length(&stats, &s.rule_params()).raw_bits / stats.n as f64;
+    let asymptotic = KeyRule::DecoyVacuumWeak.length(&stats, &s.rule_params()).raw_bits / stats.n as f64;
     assert!(finite > 0.0 && asymptotic > 0.0, "{finite} {asymptotic}");
     assert!(finite <= asymptotic * 1.05 && finite >= asymptotic * 0.9, "finite {finite} vs asymptotic {asymptotic}");
 }
@@ -287,9 +293,9 @@ fn single_photon_link(loss_db: f64) -> Link {
 }
 
 /// A single-photon attack or a link-level attack from two numbers in [0, 1].
-fn single_photon_link_model(which: usize, x: f64, setup: &Setup) -> LinkModel {
+fn single_photon_link_model(which: usize, x: f64, setup: &Setup) -> PulseModel {
     use qkd_audit::attack::{Attack, Value};
-    use qkd_audit::eval::{evaluate, EvalOptions};
+    use qkd_audit::exact::eval::{evaluate, EvalOptions};
     use qkd_audit::protocol::Protocol;
     use std::collections::BTreeMap;
     let bp = setup.basis_probabilities();
@@ -298,14 +304,14 @@ fn single_photon_link_model(which: usize, x: f64, setup: &Setup) -> LinkModel {
         g.insert(key.to_string(), Value::Num(v));
         let a = Attack::builtin(family, &g).unwrap();
         let h = evaluate(&a, &EvalOptions::fast(Protocol::Bb84)).unwrap().h_x_given_e;
-        LinkModel::qubit(&setup.link, &a, Protocol::Bb84, &bp, h)
+        PulseModel::qubit(&setup.link, &a, Protocol::Bb84, &bp, h)
     };
     match which {
         0 => qubit("intercept-resend", "fraction", 0.4 * x),
         1 => qubit("cloner", "qber", 0.1 * x),
         2 => qubit("entangling-probe", "qber", 0.1 * x),
-        3 => LinkModel::new(&setup.link, Some(&LinkAttack::PhotonNumberSplitting { fraction: x }), &bp),
-        _ => LinkModel::new(&setup.link, Some(&LinkAttack::BeamSplitting { fraction: x }), &bp),
+        3 => PulseModel::new(&setup.link, Some(&LinkAttack::PhotonNumberSplitting { fraction: x }), &bp),
+        _ => PulseModel::new(&setup.link, Some(&LinkAttack::BeamSplitting { fraction: x }), &bp),
     }
 }
 
@@ -329,7 +335,7 @@ fn proven_rules_never_leak_on_a_lossy_single_photon_link() {
                 let ts = |z: u64| s.test_sample.size(z);
                 for t in 0..8 {
                     let c = sample(&model, s.signals, &ts, &mut trial_rng(seed, which as u64, t));
-                    let v = judge(&c, &s, model.h_x_given_e()).verdict;
+                    let v = judge(&c, s.key_rule, &s.rule_params(), model.h_x_given_e()).verdict;
                     prop_assert!(v != Verdict::Leak, "{rule} leaked: attack {which}, x = {x}, {loss} dB");
                     counter.borrow_mut()[i] += usize::from(matches!(v, Verdict::Secure | Verdict::Inconclusive));
                 }
@@ -348,7 +354,7 @@ fn full_intercept_resend_on_a_lossy_single_photon_link_is_caught() {
     let ts = |z: u64| s.test_sample.size(z);
     for t in 0..10 {
         let c = sample(&model, s.signals, &ts, &mut trial_rng(3, 0, t));
-        assert_eq!(judge(&c, &s, model.h_x_given_e()).verdict, Verdict::Aborted);
+        assert_eq!(judge(&c, s.key_rule, &s.rule_params(), model.h_x_given_e()).verdict, Verdict::Aborted);
     }
 }
 
@@ -384,7 +390,7 @@ fn single_photon_link_sampler_matches_the_exact_model() {
     // a single-photon pulse.
     let link = Link { dark_count_probability: 1e-3, ..single_photon_link(10.0) };
     let s = Setup { link, ..setup(KeyRule::FiniteUncertainty, 10.0, 10_000_000) };
-    let model = LinkModel::new(&s.link, Some(&LinkAttack::BeamSplitting { fraction: 1.0 }), &s.basis_probabilities());
+    let model = PulseModel::new(&s.link, Some(&LinkAttack::BeamSplitting { fraction: 1.0 }), &s.basis_probabilities());
     assert!(model.h_x_given_e() < 1.0 - 1e-3, "Eve should know the dark-count bits");
     let ts = |z: u64| z / 20;
     let (mut pulses, mut det, mut xdet, mut xerr, mut key, mut entropy) = (0u64, 0u64, 0u64, 0u64, 0u64, 0.0);

@@ -4,10 +4,10 @@
 use proptest::prelude::*;
 use proptest::test_runner::{Config, FileFailurePersistence, RngAlgorithm, TestRng, TestRunner};
 use qkd_audit::attack::file::{builtin_catalogue, parse};
+use qkd_audit::audit::setup::Setup;
 use qkd_audit::audit::{Campaign, DEMO_CAMPAIGNS};
-use qkd_audit::eval::{evaluate, EvalOptions};
+use qkd_audit::exact::eval::{evaluate, EvalOptions};
 use qkd_audit::protocol::Protocol;
-use qkd_audit::setup::Setup;
 use std::collections::BTreeMap;
 
 fn runner(cases: u32, seed: u8) -> TestRunner {

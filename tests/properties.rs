@@ -10,12 +10,12 @@
 use proptest::prelude::*;
 use proptest::test_runner::{Config, FileFailurePersistence, RngAlgorithm, TestRng, TestRunner};
 use qkd_audit::attack::Attack;
-use qkd_audit::bounds::game_bound;
-use qkd_audit::channel::KrausChannel;
-use qkd_audit::eval::{evaluate, EvalOptions, Evaluation};
-use qkd_audit::linalg::{CMat, Tolerance};
-use qkd_audit::measures::AccessibleOptions;
+use qkd_audit::exact::bounds::game_bound;
+use qkd_audit::exact::eval::{evaluate, EvalOptions, Evaluation};
+use qkd_audit::numeric::linalg::{CMat, Tolerance};
 use qkd_audit::protocol::Protocol;
+use qkd_audit::quantum::channel::KrausChannel;
+use qkd_audit::quantum::measures::AccessibleOptions;
 use rand::SeedableRng;
 
 const SLACK: f64 = 1e-9;

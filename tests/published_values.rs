@@ -4,11 +4,11 @@
 
 use approx::assert_abs_diff_eq;
 use qkd_audit::attack::{Attack, Value};
-use qkd_audit::bounds::{bb84_threshold, fggnp_information, individual_threshold, six_state_rate, six_state_threshold};
-use qkd_audit::eval::{bob_fidelity, evaluate, eve_clone_fidelity, EvalOptions};
-use qkd_audit::measures::binary_entropy;
+use qkd_audit::exact::bounds::{bb84_threshold, fggnp_information, individual_threshold, six_state_rate, six_state_threshold};
+use qkd_audit::exact::eval::{bob_fidelity, evaluate, eve_clone_fidelity, EvalOptions};
 use qkd_audit::protocol::{Basis, Protocol};
-use qkd_audit::state::Ket;
+use qkd_audit::quantum::measures::binary_entropy;
+use qkd_audit::quantum::state::Ket;
 use std::collections::BTreeMap;
 
 fn attack(family: &str, params: &[(&str, Value)]) -> Attack {
@@ -112,7 +112,10 @@ fn phase_covariant_cloner_at_symmetric_point() {
     let f = 0.5 + 1.0 / 8f64.sqrt();
     for t in 0..12 {
         let angle = std::f64::consts::PI * t as f64 / 12.0;
-        let psi = qkd_audit::linalg::CVec::from_vec(vec![qkd_audit::linalg::c(angle.cos(), 0.0), qkd_audit::linalg::c(angle.sin(), 0.0)]);
+        let psi = qkd_audit::numeric::linalg::CVec::from_vec(vec![
+            qkd_audit::numeric::linalg::c(angle.cos(), 0.0),
+            qkd_audit::numeric::linalg::c(angle.sin(), 0.0),
+        ]);
         assert_abs_diff_eq!(eve_clone_fidelity(&a, &psi), f, epsilon = 1e-10);
         assert_abs_diff_eq!(bob_fidelity(&a, &psi), f, epsilon = 1e-10);
     }
@@ -192,8 +195,8 @@ fn game_value_of_breidbart_measurement_reaches_the_bound() {
     // Eve measuring in the Breidbart basis and Bob perfect would win with cos²(π/8); with
     // resending, Bob is disturbed. The guessing-game constant ½ + 1/(2√2) = 0.8535533906:
     // Tomamichel, Fehr, Kaniewski, Wehner, NJP 15, 103002 (2013) [M theorem; N digits].
-    assert_abs_diff_eq!(qkd_audit::bounds::game_bound(), 0.8535533906, epsilon = 1e-10);
+    assert_abs_diff_eq!(qkd_audit::exact::bounds::game_bound(), 0.8535533906, epsilon = 1e-10);
     let e = evaluate(&attack("intercept-resend", &[("basis", text("breidbart"))]), &EvalOptions::fast(Protocol::Bb84)).unwrap();
-    assert!(e.game_win <= qkd_audit::bounds::game_bound() + 1e-12);
+    assert!(e.game_win <= qkd_audit::exact::bounds::game_bound() + 1e-12);
     let _ = Basis::Z;
 }

@@ -9,7 +9,7 @@
 
 use super::pauli::pauli_isometry;
 use super::{paulis, Family, ParamKind, ParamSet, ParamSpec, Value};
-use crate::linalg::{c, CMat, CVec};
+use crate::numeric::linalg::{c, CMat, CVec};
 
 /// The `cloner` family.
 pub struct Cloner;
@@ -67,6 +67,6 @@ pub fn cloner_isometry(universal: bool, d: f64) -> CMat {
     let phi_plus =
         CVec::from_vec(vec![c(std::f64::consts::FRAC_1_SQRT_2, 0.0), c(0.0, 0.0), c(0.0, 0.0), c(std::f64::consts::FRAC_1_SQRT_2, 0.0)]);
     let sig = paulis();
-    let bell: Vec<CVec> = sig.iter().map(|s| crate::linalg::kron(s, &CMat::identity(2, 2)) * &phi_plus).collect();
+    let bell: Vec<CVec> = sig.iter().map(|s| crate::numeric::linalg::kron(s, &CMat::identity(2, 2)) * &phi_plus).collect();
     pauli_isometry(w, &bell)
 }

@@ -6,7 +6,7 @@
 //! in Z and X and Eve's Helstrom success ½ + √(D(1−D)) on the key bit.
 
 use super::{Family, ParamKind, ParamSet, ParamSpec, Value};
-use crate::linalg::{c, kron_vec, CMat, CVec};
+use crate::numeric::linalg::{c, kron_vec, CMat, CVec};
 use crate::protocol::Basis;
 
 /// The `entangling-probe` family.

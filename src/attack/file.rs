@@ -21,7 +21,7 @@
 
 use super::{Attack, Value};
 use crate::error::{Error, Result};
-use crate::linalg::{c, CMat, Tolerance};
+use crate::numeric::linalg::{c, CMat, Tolerance};
 use std::collections::BTreeMap;
 use std::path::Path;
 
@@ -117,11 +117,11 @@ impl AttackFile {
     /// True for a catalogue entry of a link-level family (photon-number splitting, beam
     /// splitting), which acts on weak-coherent pulses rather than qubits.
     pub fn is_link(&self) -> bool {
-        matches!(self, AttackFile::Catalogue(e) if super::link_attack::LINK_FAMILIES.iter().any(|(n, _)| *n == e.family))
+        matches!(self, AttackFile::Catalogue(e) if super::pulse::LINK_FAMILIES.iter().any(|(n, _)| *n == e.family))
     }
 
     /// The link-level attack of a link catalogue entry, with `overrides` applied.
-    pub fn link_attack(&self, overrides: &BTreeMap<String, Value>) -> Result<super::link_attack::LinkAttack> {
+    pub fn link_attack(&self, overrides: &BTreeMap<String, Value>) -> Result<super::pulse::LinkAttack> {
         let AttackFile::Catalogue(e) = self else {
             return Err(Error::input_key("family", "a kraus attack is not a link attack"));
         };
@@ -140,7 +140,7 @@ impl AttackFile {
             Some(Value::Num(x)) => *x,
             Some(Value::Text(t)) => return Err(Error::input_key("params.fraction", format!("`{t}` is not a number in [0, 1]"))),
         };
-        super::link_attack::LinkAttack::new(&e.family, fraction).map_err(|err| err.with_key("params"))
+        super::pulse::LinkAttack::new(&e.family, fraction).map_err(|err| err.with_key("params"))
     }
 
     /// The entry's sweep, if any.
@@ -224,7 +224,7 @@ fn parse_catalogue(t: &toml::Table) -> Result<AttackFile> {
             return Err(Error::input_key("family", "missing; an attack file needs `family` (catalogue entry) or `operators` (kraus file)"))
         }
     };
-    let is_link = super::link_attack::LINK_FAMILIES.iter().any(|(n, _)| *n == family);
+    let is_link = super::pulse::LINK_FAMILIES.iter().any(|(n, _)| *n == family);
     if !is_link {
         super::family(&family)?;
     }

@@ -6,7 +6,7 @@
 //! Brassard, Salvail, Smolin, J. Cryptology 5, 3, 1992).
 
 use super::{Family, ParamKind, ParamSet, ParamSpec, Value};
-use crate::linalg::{c, kron, kron_vec, CMat, CVec};
+use crate::numeric::linalg::{c, kron, kron_vec, CMat, CVec};
 use crate::protocol::Basis;
 
 /// The `intercept-resend` family.

@@ -12,12 +12,12 @@ pub mod cloner;
 pub mod entangling_probe;
 pub mod file;
 pub mod intercept_resend;
-pub mod link_attack;
+pub mod pulse;
 pub mod pauli;
 
-use crate::channel::KrausChannel;
 use crate::error::{check_range, Error, Result};
-use crate::linalg::{CMat, Tolerance};
+use crate::numeric::linalg::{CMat, Tolerance};
+use crate::quantum::channel::KrausChannel;
 use serde::Serialize;
 use std::collections::BTreeMap;
 use std::fmt;
@@ -133,7 +133,7 @@ pub fn family(name: &str) -> Result<&'static dyn Family> {
         let names: Vec<&str> = FAMILIES.iter().map(|f| f.name()).collect();
         let hint = if name == "kraus" {
             "; a kraus attack is read from a file (--attack-file)"
-        } else if link_attack::LINK_FAMILIES.iter().any(|(n, _)| *n == name) {
+        } else if pulse::LINK_FAMILIES.iter().any(|(n, _)| *n == name) {
             "; this is a link-level attack: use it in a campaign, whose setup describes the link (source, channel, detector)"
         } else {
             ""
@@ -227,7 +227,7 @@ impl Attack {
 
 /// The Pauli matrices (I, X, Y, Z).
 pub fn paulis() -> [CMat; 4] {
-    use crate::linalg::c;
+    use crate::numeric::linalg::c;
     let z0 = c(0.0, 0.0);
     let one = c(1.0, 0.0);
     [

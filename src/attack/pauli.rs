@@ -4,7 +4,7 @@
 
 use super::{paulis, Family, ParamKind, ParamSet, ParamSpec, Value};
 use crate::error::{Error, Result};
-use crate::linalg::{c, kron, CMat, CVec};
+use crate::numeric::linalg::{c, kron, CMat, CVec};
 
 /// The `pauli` family.
 pub struct Pauli;

@@ -9,7 +9,7 @@
 //!   lies below n·H(X|E) for small ε; Tomamichel & Hayashi, IEEE TIT 59, 7693, 2013);
 //! - `achievable = AEP(n, H(X|E), ε_smooth) − leak_EC − 2 log₂(1/(2ε_PA))`: a rigorous lower
 //!   bound (Tomamichel, Colbeck, Renner 2009 with the leftover hash lemma), ε budget as in
-//!   [`crate::rules`].
+//!   [`crate::audit::rules`].
 //!
 //! Verdicts: `aborted`; `no-key` (the rule gives length 0); `secure` if ℓ ≤ achievable;
 //! `leak` if ℓ > capacity + allowance with allowance = 2·log₂ n (the O(log n) slack of the
@@ -17,9 +17,8 @@
 //! `inconclusive` otherwise (the AEP band is loose, so honest keys from a proven rule often
 //! land here; they remain covered by the rule's own security proof).
 
-use crate::rules::{aep_min_entropy, ec_leak_bits, pa_cost_bits, BlockStats, EpsilonBudget};
-use crate::setup::Setup;
-use crate::sim::BlockCounts;
+use crate::audit::rules::{aep_min_entropy, ec_leak_bits, pa_cost_bits, BlockStats, EpsilonBudget, KeyRule, RuleParams};
+use crate::audit::sample::BlockCounts;
 use serde::Serialize;
 
 /// A trial's verdict.
@@ -91,22 +90,22 @@ fn rate(errors: u64, total: u64) -> f64 {
     }
 }
 
-/// Post-processes a block and judges the key against the attack's `h_x_given_e`.
-pub fn judge(counts: &BlockCounts, setup: &Setup, h_x_given_e: f64) -> TrialOutcome {
+/// Post-processes a block with `rule` and judges the key against the attack's `h_x_given_e`.
+pub fn judge(counts: &BlockCounts, rule: KeyRule, params: &RuleParams, h_x_given_e: f64) -> TrialOutcome {
     let n = counts.key_bits();
     let m = counts.test_z;
     let k = counts.sifted[1];
     let stats = BlockStats { n, k, m, e_z: rate(counts.test_z_errors, m), e_x: rate(counts.errors[1], k), link: counts.link };
     let e_y = rate(counts.errors[2], counts.sifted[2]);
-    let exceeds = |e: f64| !e.is_nan() && e > setup.abort_qber;
+    let exceeds = |e: f64| !e.is_nan() && e > params.abort_qber;
     let aborted = n == 0 || k == 0 || exceeds(stats.e_x) || exceeds(stats.e_z) || exceeds(e_y);
-    let leak_ec = ec_leak_bits(&stats, setup);
+    let leak_ec = ec_leak_bits(&stats, params);
     // Weak-coherent links: Eve's actual knowledge, summed over the photon-number classes of
     // the sampled key bits; otherwise n·H(X|E).
     let capacity = counts.key_entropy_bits.unwrap_or(n as f64 * h_x_given_e) - leak_ec;
-    let budget = EpsilonBudget::split(setup.epsilon_sec);
+    let budget = EpsilonBudget::split(params.epsilon_sec);
     let achievable = aep_min_entropy(n, h_x_given_e, budget.smooth).map_or(f64::NEG_INFINITY, |h| h - leak_ec - pa_cost_bits(budget.pa));
-    let length = if aborted { 0 } else { setup.key_rule.length(&stats, setup).length };
+    let length = if aborted { 0 } else { rule.length(&stats, params).length };
     let verdict = if aborted {
         Verdict::Aborted
     } else if length == 0 {

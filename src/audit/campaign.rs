@@ -1,0 +1,260 @@
+//! Audit campaigns: a system under test, a list of attacks (with sweeps), trials per point
+//! and a seed, read and validated from TOML.
+//!
+//! Campaign file (TOML):
+//! ```toml
+//! name = "my-audit"            # output folder results/<name>/
+//! seed = 1                     # campaign seed (integer ≥ 0)
+//! trials = 200                 # Monte Carlo trials per attack point, 1..=1e6
+//! sampler = "count"            # count (default) | round
+//! setup = "setup.toml"         # a setup file (relative to this file), or an inline [setup] table
+//! rules = ["decoy-vacuum-weak", "naive-single-photon"]  # optional: rules judged on the same blocks
+//! [[attacks]]
+//! builtin = "intercept-resend" # an entry of the built-in catalogue, or
+//! # file = "attacks/x.toml"    # a catalogue entry or kraus file (relative to this file)
+//! steps = 11                   # optional: override the entry's sweep (also from, to)
+//! params = { basis = "z" }     # optional: parameter overrides
+//! ```
+//! The engine that runs a campaign is [`super::engine`].
+
+use crate::attack::file::{builtin_catalogue, parse as parse_attack, AttackFile, Sweep};
+use crate::attack::Value;
+use crate::audit::rules::KeyRule;
+use crate::audit::sample::Sampler;
+use crate::audit::setup::Setup;
+use crate::error::{Error, Result};
+use std::collections::BTreeMap;
+use std::path::{Path, PathBuf};
+
+/// One attack entry of a campaign.
+#[derive(Clone, Debug)]
+pub struct AttackEntry {
+    /// Label in tables: the built-in entry's name, or the file's attack name or stem.
+    pub label: String,
+    /// Where it came from: `builtin:<name>` or the file path.
+    pub origin: String,
+    /// The file's text (hashed into the manifest).
+    pub text: String,
+    /// The parsed file.
+    pub file: AttackFile,
+    /// The sweep to run (the file's, with overrides), if any.
+    pub sweep: Option<Sweep>,
+    /// Fixed parameter overrides.
+    pub params: BTreeMap<String, Value>,
+}
+
+/// A validated campaign.
+#[derive(Clone, Debug)]
+pub struct Campaign {
+    /// Name (output folder).
+    pub name: String,
+    /// Seed.
+    pub seed: u64,
+    /// Trials per point.
+    pub trials: u64,
+    /// Block sampler.
+    pub sampler: Sampler,
+    /// System under test.
+    pub setup: Setup,
+    /// Key-length rules judged on the same blocks (default: the setup's `key_rule`).
+    pub rules: Vec<KeyRule>,
+    /// Attacks.
+    pub attacks: Vec<AttackEntry>,
+    /// Inputs and their texts, for the manifest: (origin, text).
+    pub inputs: Vec<(String, String)>,
+}
+
+/// The built-in demo campaigns (invented scenarios): (name, text). The first is the default.
+pub const DEMO_CAMPAIGNS: &[(&str, &str)] = &[
+    ("decoy", include_str!("../../campaigns/demo-decoy.toml")),
+    ("single-photon", include_str!("../../campaigns/demo-single-photon.toml")),
+];
+
+impl Campaign {
+    /// Reads a campaign file.
+    pub fn load(path: &Path) -> Result<Campaign> {
+        let text = std::fs::read_to_string(path).map_err(|e| Error::from(e).with_file(path))?;
+        let base = path.parent().map(Path::to_path_buf).unwrap_or_default();
+        Campaign::parse(&text, &path.display().to_string(), Some(&base)).map_err(|e| e.with_file(path))
+    }
+
+    /// The default built-in demo campaign.
+    pub fn demo() -> Campaign {
+        Campaign::demo_named(DEMO_CAMPAIGNS[0].0).expect("the built-in demo campaigns are valid")
+    }
+
+    /// A built-in demo campaign by name (`decoy`, `single-photon`).
+    pub fn demo_named(name: &str) -> Result<Campaign> {
+        let (n, text) = DEMO_CAMPAIGNS.iter().find(|(n, _)| *n == name).ok_or_else(|| {
+            let names: Vec<&str> = DEMO_CAMPAIGNS.iter().map(|(n, _)| *n).collect();
+            Error::input_key("--demo", format!("no built-in demo `{name}`; demos are {}", names.join(", ")))
+        })?;
+        Campaign::parse(text, &format!("builtin:demo-{n}"), None)
+    }
+
+    /// Parses campaign text; relative paths resolve against `base` (None: no files allowed).
+    pub fn parse(text: &str, origin: &str, base: Option<&Path>) -> Result<Campaign> {
+        let t: toml::Table = text.parse().map_err(|e: toml::de::Error| Error::input(format!("not valid TOML: {}", e.message().trim())))?;
+        const KEYS: &[&str] = &["name", "seed", "trials", "sampler", "setup", "rules", "attacks"];
+        for key in t.keys() {
+            if !KEYS.contains(&key.as_str()) {
+                return Err(Error::input_key(key.clone(), format!("unknown key; a campaign has {}", KEYS.join(", "))));
+            }
+        }
+        let name = match t.get("name") {
+            Some(toml::Value::String(s)) if valid_name(s) => s.clone(),
+            Some(_) => return Err(Error::input_key("name", "must be a non-empty string of letters, digits, '-', '_' or '.'")),
+            None => return Err(Error::input_key("name", "missing: the campaign's name (its output folder)")),
+        };
+        let seed = match t.get("seed") {
+            Some(toml::Value::Integer(i)) if *i >= 0 => *i as u64,
+            None => 0,
+            _ => return Err(Error::input_key("seed", "must be an integer ≥ 0")),
+        };
+        let trials = match t.get("trials") {
+            Some(toml::Value::Integer(i)) if (1..=1_000_000).contains(i) => *i as u64,
+            None => 200,
+            _ => return Err(Error::input_key("trials", "must be an integer in [1, 1000000]")),
+        };
+        let sampler = match t.get("sampler").map(|v| v.as_str()) {
+            None | Some(Some("count")) => Sampler::Count,
+            Some(Some("round")) => Sampler::Round,
+            _ => return Err(Error::input_key("sampler", "must be \"count\" or \"round\"")),
+        };
+        let mut inputs = vec![(origin.to_string(), text.to_string())];
+        let setup = match t.get("setup") {
+            Some(toml::Value::Table(s)) => Setup::from_table(s).map_err(|e| e.with_key("setup"))?,
+            Some(toml::Value::String(p)) => {
+                let path = resolve(base, p).map_err(|e| e.with_key("setup"))?;
+                let s = Setup::load(&path)?;
+                inputs.push((path.display().to_string(), std::fs::read_to_string(&path).unwrap_or_default()));
+                s
+            }
+            None => Setup::default(),
+            Some(_) => return Err(Error::input_key("setup", "must be a file path or a table")),
+        };
+        let rules = match t.get("rules") {
+            None => vec![setup.key_rule],
+            Some(toml::Value::Array(a)) if !a.is_empty() => {
+                let mut out = Vec::new();
+                for (i, v) in a.iter().enumerate() {
+                    let key = format!("rules[{i}]");
+                    let name = v.as_str().ok_or_else(|| Error::input_key(key.clone(), "must be a key-rule name"))?;
+                    let rule: KeyRule = name.parse().map_err(|e: String| Error::input_key(key.clone(), e))?;
+                    setup.check_rule(rule).map_err(|e| e.with_key(key.clone()))?;
+                    if !out.contains(&rule) {
+                        out.push(rule);
+                    }
+                }
+                out
+            }
+            Some(_) => return Err(Error::input_key("rules", "must be a non-empty list of key-rule names")),
+        };
+        let list = match t.get("attacks") {
+            Some(toml::Value::Array(a)) if !a.is_empty() => a,
+            _ => return Err(Error::input_key("attacks", "must be a non-empty list of [[attacks]] tables")),
+        };
+        let mut attacks = Vec::new();
+        for (i, entry) in list.iter().enumerate() {
+            let key = format!("attacks[{i}]");
+            let table = entry.as_table().ok_or_else(|| Error::input_key(key.clone(), "must be a table"))?;
+            let e = parse_entry(table, base).map_err(|e| e.with_key(key.clone()))?;
+            inputs.push((e.origin.clone(), e.text.clone()));
+            attacks.push(e);
+        }
+        if sampler == Sampler::Round && !setup.link.is_ideal_single_photon() {
+            return Err(Error::input_key("sampler", "the per-round sampler supports the ideal single-photon link only; use \"count\""));
+        }
+        Ok(Campaign { name, seed, trials, sampler, setup, rules, attacks, inputs })
+    }
+}
+
+fn valid_name(s: &str) -> bool {
+    !s.is_empty() && s != "." && s != ".." && s.chars().all(|c| c.is_ascii_alphanumeric() || "-_.".contains(c))
+}
+
+fn resolve(base: Option<&Path>, p: &str) -> Result<PathBuf> {
+    match base {
+        Some(b) => Ok(b.join(p)),
+        None => Err(Error::input(format!("`{p}`: the built-in campaign cannot refer to files"))),
+    }
+}
+
+fn parse_entry(t: &toml::Table, base: Option<&Path>) -> Result<AttackEntry> {
+    const KEYS: &[&str] = &["builtin", "file", "steps", "from", "to", "params"];
+    for key in t.keys() {
+        if !KEYS.contains(&key.as_str()) {
+            return Err(Error::input_key(key.clone(), format!("unknown key; an attack entry has {}", KEYS.join(", "))));
+        }
+    }
+    let (origin, text) = match (t.get("builtin"), t.get("file")) {
+        (Some(toml::Value::String(name)), None) => {
+            let file_name = format!("{name}.toml");
+            let text = builtin_catalogue().iter().find(|(n, _)| *n == file_name).map(|(_, t)| t.to_string()).ok_or_else(|| {
+                let names: Vec<&str> = builtin_catalogue().iter().map(|(n, _)| n.trim_end_matches(".toml")).collect();
+                Error::input_key("builtin", format!("no built-in entry `{name}`; built-in entries are {}", names.join(", ")))
+            })?;
+            (format!("builtin:{name}"), text)
+        }
+        (None, Some(toml::Value::String(p))) => {
+            let path = resolve(base, p)?;
+            let text = std::fs::read_to_string(&path).map_err(|e| Error::from(e).with_file(&path))?;
+            (path.display().to_string(), text)
+        }
+        _ => return Err(Error::input_key("builtin", "give exactly one of `builtin` (a catalogue name) and `file` (a path)")),
+    };
+    let file = parse_attack(&text).map_err(|mut errs| errs.remove(0).with_file(&origin))?;
+    let params = match t.get("params") {
+        None => BTreeMap::new(),
+        Some(v) => crate::attack::file::params_table(v)?,
+    };
+    let mut sweep = file.sweep().cloned();
+    for key in ["steps", "from", "to"] {
+        if let Some(v) = t.get(key) {
+            let s = sweep.as_mut().ok_or_else(|| Error::input_key(key, "this attack has no sweep to override"))?;
+            match (key, v) {
+                ("steps", toml::Value::Integer(i)) if (1..=100_000).contains(i) => s.steps = *i as usize,
+                ("from", toml::Value::Float(x)) => s.from = *x,
+                ("from", toml::Value::Integer(i)) => s.from = *i as f64,
+                ("to", toml::Value::Float(x)) => s.to = *x,
+                ("to", toml::Value::Integer(i)) => s.to = *i as f64,
+                _ => return Err(Error::input_key(key, "must be a number (steps: an integer in [1, 100000])")),
+            }
+        }
+    }
+    let label = match (&file, t.get("builtin").and_then(|v| v.as_str())) {
+        (_, Some(name)) => name.to_string(),
+        (AttackFile::Kraus(k), None) => k.name.clone(),
+        (AttackFile::Catalogue(_), None) => {
+            Path::new(&origin).file_stem().map(|s| s.to_string_lossy().into_owned()).unwrap_or_else(|| origin.clone())
+        }
+    };
+    let entry = AttackEntry { label, origin, text, file, sweep, params };
+    // Build every point once now, so bad values are reported before any work.
+    for (_, overrides) in entry.points() {
+        if entry.file.is_link() {
+            entry.file.link_attack(&overrides)?;
+        } else {
+            entry.file.attack(&overrides)?;
+        }
+    }
+    Ok(entry)
+}
+
+impl AttackEntry {
+    /// The points of this entry: (swept value, parameter overrides).
+    pub fn points(&self) -> Vec<(Option<(String, f64)>, BTreeMap<String, Value>)> {
+        match &self.sweep {
+            None => vec![(None, self.params.clone())],
+            Some(s) => s
+                .values()
+                .into_iter()
+                .map(|v| {
+                    let mut o = self.params.clone();
+                    o.insert(s.param.clone(), Value::Num(v));
+                    (Some((s.param.clone(), v)), o)
+                })
+                .collect(),
+        }
+    }
+}

@@ -1,0 +1,206 @@
+//! SVG plots (plotters):
+//! - `eve_information.svg`: Eve's Holevo information about a key bit against the QBER for
+//!   every attack point, with the bound curves h(Q) (the most a collective attack can learn
+//!   at symmetric QBER Q while the BB84 bound holds) and 1 − h(½ + √(Q(1−Q))) (the optimal
+//!   individual attack, Fuchs et al. 1997), and the abort threshold;
+//! - `abort_leak_<attack>.svg`: abort and leak probability (with 95 % intervals) against
+//!   the swept parameter, one file per swept attack.
+
+use crate::audit::{Campaign, PointResult};
+use crate::error::{Error, ErrorKind, Result};
+use crate::exact::bounds::fggnp_information;
+use crate::quantum::measures::binary_entropy;
+use plotters::prelude::*;
+
+const COLORS: [RGBColor; 8] = [
+    RGBColor(31, 119, 180),
+    RGBColor(255, 127, 14),
+    RGBColor(44, 160, 44),
+    RGBColor(214, 39, 40),
+    RGBColor(148, 103, 189),
+    RGBColor(140, 86, 75),
+    RGBColor(227, 119, 194),
+    RGBColor(127, 127, 127),
+];
+
+/// The legend box every plot uses, at `position`.
+fn draw_legend<'a, CT: plotters::coord::CoordTranslate>(
+    chart: &mut ChartContext<'a, SVGBackend<'a>, CT>,
+    position: SeriesLabelPosition,
+) -> Result<()> {
+    chart.configure_series_labels().position(position).background_style(WHITE.mix(0.9)).border_style(BLACK).draw().map_err(plot_err)
+}
+
+fn plot_err<E: std::fmt::Debug>(e: E) -> Error {
+    Error::new(ErrorKind::Io, format!("plot: {e:?}"))
+}
+
+/// Renders all plots as (file name, SVG text).
+pub fn render(c: &Campaign, results: &[PointResult]) -> Result<Vec<(String, String)>> {
+    let mut out = vec![("eve_information.svg".to_string(), eve_information(c, results)?)];
+    let mut groups: Vec<(usize, crate::audit::rules::KeyRule)> = results.iter().map(|r| (r.entry, r.rule)).collect();
+    groups.dedup();
+    for (e, rule) in groups {
+        let pts: Vec<&PointResult> = results.iter().filter(|r| r.entry == e && r.rule == rule && r.swept.is_some()).collect();
+        if pts.len() >= 2 {
+            let name = if c.rules.len() > 1 {
+                format!("abort_leak_{}_{}.svg", sanitize(&pts[0].attack), rule.name())
+            } else {
+                format!("abort_leak_{}.svg", sanitize(&pts[0].attack))
+            };
+            out.push((name, abort_leak(&pts)?));
+        }
+    }
+    Ok(out)
+}
+
+fn sanitize(s: &str) -> String {
+    s.chars().map(|c| if c.is_ascii_alphanumeric() || c == '-' || c == '_' { c } else { '_' }).collect()
+}
+
+fn eve_information(c: &Campaign, results: &[PointResult]) -> Result<String> {
+    let mut svg = String::new();
+    {
+        let root = SVGBackend::with_string(&mut svg, (900, 600)).into_drawing_area();
+        root.fill(&WHITE).map_err(plot_err)?;
+        let qmax = results.iter().map(|r| r.exact.qber_z.max(r.exact.qber_x)).fold(0.12_f64, f64::max).min(0.5) * 1.05;
+        let mut chart = ChartBuilder::on(&root)
+            .caption(format!("Eve's information vs QBER: {}", c.name), ("sans-serif", 20))
+            .margin(15)
+            .x_label_area_size(45)
+            .y_label_area_size(60)
+            .build_cartesian_2d(0.0..qmax, 0.0..1.0)
+            .map_err(plot_err)?;
+        chart
+            .configure_mesh()
+            .x_desc("QBER (max of Z and X), fraction")
+            .y_desc("Eve's information about a key bit, bits")
+            .draw()
+            .map_err(plot_err)?;
+        let grid: Vec<f64> = (0..=200).map(|i| qmax * i as f64 / 200.0).collect();
+        chart
+            .draw_series(LineSeries::new(grid.iter().map(|&q| (q, binary_entropy(q.min(0.5)))), BLACK.stroke_width(2)))
+            .map_err(plot_err)?
+            .label("h(Q): optimal collective attack (BB84 bound)")
+            .legend(|(x, y)| PathElement::new(vec![(x, y), (x + 20, y)], BLACK.stroke_width(2)));
+        chart
+            .draw_series(LineSeries::new(grid.iter().map(|&q| (q, fggnp_information(q.min(0.5)))), RGBColor(120, 120, 120).stroke_width(1)))
+            .map_err(plot_err)?
+            .label("optimal individual attack (Fuchs et al. 1997)")
+            .legend(|(x, y)| PathElement::new(vec![(x, y), (x + 20, y)], RGBColor(120, 120, 120)));
+        let t = c.setup.abort_qber;
+        if t < qmax {
+            chart
+                .draw_series(LineSeries::new(vec![(t, 0.0), (t, 1.0)], RED.mix(0.5)))
+                .map_err(plot_err)?
+                .label("abort threshold")
+                .legend(|(x, y)| PathElement::new(vec![(x, y), (x + 20, y)], RED.mix(0.5)));
+        }
+        let mut entries: Vec<usize> = results.iter().map(|r| r.entry).collect();
+        entries.dedup();
+        for (i, e) in entries.iter().enumerate() {
+            let color = COLORS[i % COLORS.len()];
+            let pts: Vec<(f64, f64)> = results
+                .iter()
+                .filter(|r| r.entry == *e && r.rule == c.rules[0])
+                .map(|r| (r.exact.qber_z.max(r.exact.qber_x).min(qmax), r.exact.holevo_z))
+                .collect();
+            let label = results.iter().find(|r| r.entry == *e).map(|r| r.attack.clone()).unwrap_or_default();
+            chart
+                .draw_series(pts.iter().map(|&p| Circle::new(p, 4, color.filled())))
+                .map_err(plot_err)?
+                .label(label)
+                .legend(move |(x, y)| Circle::new((x + 10, y), 4, color.filled()));
+        }
+        draw_legend(&mut chart, SeriesLabelPosition::UpperLeft)?;
+        root.present().map_err(plot_err)?;
+    }
+    Ok(svg)
+}
+
+fn abort_leak(pts: &[&PointResult]) -> Result<String> {
+    let (param, _) = pts[0].swept.clone().expect("swept points");
+    let xs: Vec<f64> = pts.iter().map(|r| r.swept.as_ref().map_or(0.0, |s| s.1)).collect();
+    let (lo, hi) = xs.iter().fold((f64::INFINITY, f64::NEG_INFINITY), |(a, b), &x| (a.min(x), b.max(x)));
+    let span = if hi > lo { hi - lo } else { 1.0 };
+    let mut svg = String::new();
+    {
+        let root = SVGBackend::with_string(&mut svg, (800, 500)).into_drawing_area();
+        root.fill(&WHITE).map_err(plot_err)?;
+        let mut chart = ChartBuilder::on(&root)
+            .caption(format!("{} ({}): abort and leak probability", pts[0].attack, pts[0].rule), ("sans-serif", 20))
+            .margin(15)
+            .x_label_area_size(45)
+            .y_label_area_size(60)
+            .build_cartesian_2d((lo - 0.02 * span)..(hi + 0.02 * span), -0.02..1.02)
+            .map_err(plot_err)?;
+        chart.configure_mesh().x_desc(param.as_str()).y_desc("probability").draw().map_err(plot_err)?;
+        for (name, color, get) in [
+            (
+                "abort probability",
+                COLORS[0],
+                (|r: &PointResult| (r.stats.abort_probability, r.stats.abort_ci)) as fn(&PointResult) -> (f64, (f64, f64)),
+            ),
+            ("leak probability", COLORS[3], |r: &PointResult| (r.stats.leak_probability, r.stats.leak_ci)),
+        ] {
+            let series: Vec<(f64, f64, (f64, f64))> = pts
+                .iter()
+                .zip(&xs)
+                .map(|(r, &x)| {
+                    let (p, ci) = get(r);
+                    (x, p, ci)
+                })
+                .collect();
+            chart
+                .draw_series(LineSeries::new(series.iter().map(|&(x, p, _)| (x, p)), color.stroke_width(2)))
+                .map_err(plot_err)?
+                .label(name)
+                .legend(move |(x, y)| PathElement::new(vec![(x, y), (x + 20, y)], color.stroke_width(2)));
+            chart
+                .draw_series(series.iter().map(|&(x, _, (a, b))| PathElement::new(vec![(x, a), (x, b)], color.mix(0.6))))
+                .map_err(plot_err)?;
+        }
+        draw_legend(&mut chart, SeriesLabelPosition::MiddleRight)?;
+        root.present().map_err(plot_err)?;
+    }
+    Ok(svg)
+}
+
+/// Key rate per pulse (log scale, positive rates only) against distance, one line per rule.
+pub fn keyrate_svg(rows: &[crate::exact::keyrate::RateRow], rules: &[crate::exact::keyrate::LinkRule]) -> Result<String> {
+    let pos: Vec<&crate::exact::keyrate::RateRow> = rows.iter().filter(|r| r.rate_bits_per_pulse > 0.0).collect();
+    let xmax = rows.iter().map(|r| r.distance_km).fold(1.0_f64, f64::max);
+    let ymin = pos.iter().map(|r| r.rate_bits_per_pulse).fold(1.0_f64, f64::min).max(1e-12);
+    let ymax = pos.iter().map(|r| r.rate_bits_per_pulse).fold(ymin * 10.0, f64::max);
+    let mut svg = String::new();
+    {
+        let root = SVGBackend::with_string(&mut svg, (900, 600)).into_drawing_area();
+        root.fill(&WHITE).map_err(plot_err)?;
+        let mut chart = ChartBuilder::on(&root)
+            .caption("Key rate per pulse against distance", ("sans-serif", 20))
+            .margin(15)
+            .x_label_area_size(45)
+            .y_label_area_size(70)
+            .build_cartesian_2d(0.0..xmax, (ymin..ymax).log_scale())
+            .map_err(plot_err)?;
+        chart
+            .configure_mesh()
+            .x_desc("fibre length, km")
+            .y_desc("key rate, bits per pulse")
+            .y_label_formatter(&|y| format!("{y:.0e}"))
+            .draw()
+            .map_err(plot_err)?;
+        for (i, rule) in rules.iter().enumerate() {
+            let color = COLORS[i % COLORS.len()];
+            let pts: Vec<(f64, f64)> = pos.iter().filter(|r| r.rule == *rule).map(|r| (r.distance_km, r.rate_bits_per_pulse)).collect();
+            chart
+                .draw_series(LineSeries::new(pts, color.stroke_width(2)))
+                .map_err(plot_err)?
+                .label(rule.name())
+                .legend(move |(x, y)| PathElement::new(vec![(x, y), (x + 20, y)], color.stroke_width(2)));
+        }
+        draw_legend(&mut chart, SeriesLabelPosition::UpperRight)?;
+        root.present().map_err(plot_err)?;
+    }
+    Ok(svg)
+}

@@ -1,0 +1,145 @@
+//! The `hunt` subcommand: numerical searches for the strongest attack.
+
+use super::common::{parse_protocol, write_stdout, Outcome};
+use crate::error::{Error, Result};
+use std::path::PathBuf;
+
+/// Options of `hunt`.
+#[derive(clap::Args, Debug)]
+pub struct HuntArgs {
+    /// What to maximise: holevo, accessible, guess (Eve's information or guessing
+    /// probability about the key bit) or game (the guessing game).
+    #[arg(long, value_parser = ["holevo", "accessible", "guess", "game"])]
+    pub objective: String,
+    /// Protocol: its error-rate constraints and its bound.
+    #[arg(long, default_value = "bb84", value_parser = ["bb84", "six-state"])]
+    pub protocol: String,
+    /// Dimension of Eve's register, 2..8.
+    #[arg(long, default_value_t = 4)]
+    pub eve_dim: usize,
+    /// Error-rate targets Q (QBER ≤ Q in every basis), comma-separated fractions.
+    #[arg(long, value_delimiter = ',', default_values_t = vec![0.02, 0.05, 0.1])]
+    pub q: Vec<f64>,
+    /// Random starts per target (run in parallel).
+    #[arg(long, default_value_t = 16)]
+    pub starts: usize,
+    /// Seed of the starts.
+    #[arg(long, default_value_t = 1)]
+    pub seed: u64,
+    /// L-BFGS iterations per penalty stage.
+    #[arg(long, default_value_t = 100)]
+    pub iters: u64,
+    /// The guessing game in its own setting with this many rounds (B untrusted); with
+    /// --objective game only.
+    #[arg(long)]
+    pub rounds: Option<usize>,
+    /// Dimension of B's system in the game setting.
+    #[arg(long, default_value_t = 2)]
+    pub dim_b: usize,
+    /// Dimension of E's system in the game setting.
+    #[arg(long, default_value_t = 2)]
+    pub dim_e: usize,
+    /// Output folder for hunt.csv and the best attack per target as kraus files
+    /// (default: results/hunt-<objective>-<protocol>).
+    #[arg(long, value_name = "DIR")]
+    pub out_dir: Option<PathBuf>,
+    /// Replace the output folder if it exists.
+    #[arg(long)]
+    pub force: bool,
+}
+
+/// Runs `qkd-audit hunt`.
+pub fn cmd_hunt(a: HuntArgs) -> Result<Outcome> {
+    use crate::search::hunt::{hunt, HuntOptions, Objective};
+    let objective: Objective = a.objective.parse().map_err(|e: String| Error::input_key("--objective", e))?;
+    let protocol = parse_protocol(&a.protocol)?;
+    if let Some(n) = a.rounds {
+        if objective != Objective::Game {
+            return Err(Error::input_key("--rounds", "the multi-round game setting needs --objective game"));
+        }
+        let r = crate::search::game::hunt_game(n, a.dim_b, a.dim_e, a.starts, a.seed, 500)?;
+        let exceeded = r.value > r.bound + 1e-9;
+        let text = format!(
+            "guessing game, {} round(s), dim B = {}, dim E = {}, {} starts: best winning probability {:.12}; bound (1/2 + 1/(2*sqrt 2))^{} = {:.12}; gap {:.3e}\n",
+            n, a.dim_b, a.dim_e, a.starts, r.value, n, r.bound, r.bound - r.value
+        );
+        write_stdout(&mut std::io::stdout().lock(), &text)?;
+        if exceeded {
+            eprintln!("BOUND VIOLATED: the game hunt exceeded (1/2 + 1/(2 sqrt 2))^n; this is a finding about the code or the bound");
+            return Ok(Outcome::Findings);
+        }
+        return Ok(Outcome::Clean);
+    }
+    let dir = a.out_dir.clone().unwrap_or_else(|| PathBuf::from(format!("results/hunt-{}-{}", objective.name(), protocol)));
+    if dir.exists() && !a.force {
+        return Err(
+            Error::input("output folder already exists; refusing to overwrite results (pass --force to replace it)").with_file(&dir)
+        );
+    }
+    let opts = HuntOptions { protocol, objective, eve_dim: a.eve_dim, starts: a.starts, seed: a.seed, max_iters: a.iters };
+    let points = hunt(&opts, &a.q)?;
+    let unit = match objective {
+        Objective::Holevo | Objective::Accessible => "bits",
+        Objective::Guess | Objective::Game => "probability",
+    };
+    let mut w = csv::Writer::from_writer(Vec::new());
+    let io = |e: csv::Error| Error::new(crate::error::ErrorKind::Io, e.to_string());
+    w.write_record([
+        "q",
+        "objective",
+        "unit",
+        "protocol",
+        "eve_dim",
+        "value",
+        "bound",
+        "gap",
+        "bound_at_attack_qber",
+        "qber_z",
+        "qber_x",
+        "qber_y",
+        "feasible_starts",
+        "starts",
+        "attack_file",
+    ])
+    .map_err(io)?;
+    let mut files = Vec::new();
+    let mut violations = 0;
+    for p in &points {
+        let file = format!("attack_q{}.toml", p.q);
+        let name = format!("hunted-{}-{}-q{}", objective.name(), protocol, p.q);
+        let desc = format!("best {} attack found at Q = {} (value {:.12}, bound {:.12})", objective.name(), p.q, p.value, p.bound);
+        files.push((file.clone(), crate::attack::file::kraus_toml(&name, &desc, p.attack.eve_dim, p.attack.channel.operators())));
+        if p.value > p.bound_at_attack + 1e-9 {
+            violations += 1;
+        }
+        let n = crate::exact::sweep::fmt_num;
+        w.write_record([
+            n(p.q),
+            objective.name().to_string(),
+            unit.to_string(),
+            protocol.to_string(),
+            p.attack.eve_dim.to_string(),
+            n(p.value),
+            n(p.bound),
+            n(p.bound - p.value),
+            n(p.bound_at_attack),
+            n(p.eval.qber_z),
+            n(p.eval.qber_x),
+            n(p.eval.qber_y),
+            p.feasible_starts.to_string(),
+            a.starts.to_string(),
+            file,
+        ])
+        .map_err(io)?;
+    }
+    let csv_text = String::from_utf8(w.into_inner().map_err(|e| Error::input(e.to_string()))?).expect("csv is UTF-8");
+    files.push(("hunt.csv".to_string(), csv_text.clone()));
+    crate::output::write_folder_files(&dir, &files, a.force)?;
+    write_stdout(&mut std::io::stdout().lock(), &csv_text)?;
+    eprintln!("wrote {}", dir.display());
+    if violations > 0 {
+        eprintln!("BOUND VIOLATED at {violations} target(s): keep the attack files as regression fixtures; this is a finding about the code or the bound");
+        return Ok(Outcome::Findings);
+    }
+    Ok(Outcome::Clean)
+}

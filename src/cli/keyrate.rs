@@ -1,0 +1,137 @@
+//! The `keyrate` subcommand: asymptotic key rate per pulse against distance.
+
+use super::common::{write_stdout, Outcome};
+use crate::error::{Error, Result};
+use std::path::PathBuf;
+
+/// Options of `keyrate`.
+#[derive(clap::Args, Debug)]
+pub struct KeyrateArgs {
+    /// Setup file with a [source] (weak-coherent: the weak-pulse rules; single-photon: the
+    /// single-photon rate), [channel] (attenuation, dB/km) and [detector]; default: the standard parameter set of Ma, Qi, Zhao, Lo (2005): 0.21 dB/km,
+    /// η_Bob = 0.045, Y₀ = 1.7e-6, e_d = 0.033, μ = 0.48, weak decoy ν = 0.05.
+    #[arg(long, value_name = "FILE")]
+    pub setup: Option<PathBuf>,
+    /// First distance, km.
+    #[arg(long, default_value_t = 0.0)]
+    pub from_km: f64,
+    /// Last distance, km.
+    #[arg(long, default_value_t = 200.0)]
+    pub to_km: f64,
+    /// Number of distances.
+    #[arg(long, default_value_t = 201)]
+    pub steps: usize,
+    /// Optimise the signal intensity μ at each distance (otherwise the setup's μ).
+    #[arg(long)]
+    pub optimize_mu: bool,
+    /// Error-correction efficiency f (default: the setup's, or 1.22 with the default link).
+    #[arg(long, value_name = "F")]
+    pub f_ec: Option<f64>,
+    /// Sifting factor q: fraction of detections kept (½ for symmetric BB84).
+    #[arg(long, default_value_t = 0.5)]
+    pub sifting: f64,
+    /// Output CSV (default: stdout).
+    #[arg(short, long, value_name = "FILE")]
+    pub output: Option<PathBuf>,
+    /// Also write an SVG plot of rate against distance.
+    #[arg(long, value_name = "FILE")]
+    pub svg: Option<PathBuf>,
+    /// Replace output files that exist.
+    #[arg(long)]
+    pub force: bool,
+}
+
+/// Runs `qkd-audit keyrate`.
+pub fn cmd_keyrate(a: KeyrateArgs) -> Result<Outcome> {
+    use crate::exact::keyrate::{max_distance, rate_table, LinkRule, RateParams};
+    use crate::protocol::optical::Link;
+    crate::error::check_range("--sifting", a.sifting, 1e-6, 1.0)?;
+    crate::error::check_range("--from-km", a.from_km, 0.0, 1000.0)?;
+    crate::error::check_range("--to-km", a.to_km, a.from_km, 1000.0)?;
+    if a.steps == 0 || a.steps > 1_000_000 {
+        return Err(Error::input_key("--steps", format!("{} is outside [1, 1000000]", a.steps)));
+    }
+    for o in [&a.output, &a.svg].into_iter().flatten() {
+        crate::output::check_overwrite(o, a.force)?;
+    }
+    let (link, f_default) = match &a.setup {
+        Some(p) => {
+            let s = crate::audit::setup::Setup::load(p)?;
+            (s.link, s.ec_efficiency)
+        }
+        None => (Link::reference_parameter_set(), 1.22),
+    };
+    if link.attenuation_db_per_km.is_none() {
+        return Err(Error::input_key(
+            "channel.attenuation_db_per_km",
+            "keyrate sweeps distance: give the channel as length_km and attenuation_db_per_km",
+        ));
+    }
+    let f_ec = a.f_ec.unwrap_or(f_default);
+    crate::error::check_range("--f-ec", f_ec, 1.0, 3.0)?;
+    let ints = link.source.intensities();
+    let nu = ints.iter().skip(1).map(|x| x.0).filter(|m| *m > 0.0).fold(f64::NAN, f64::min);
+    let mut rules = if ints.is_empty() {
+        vec![LinkRule::SinglePhoton]
+    } else {
+        vec![LinkRule::NaiveSinglePhoton, LinkRule::GllpNoDecoy, LinkRule::DecoyIdeal]
+    };
+    if nu.is_finite() {
+        rules.push(LinkRule::DecoyVacuumWeak);
+    }
+    let params = RateParams { sifting: a.sifting, f_ec, nu: if nu.is_finite() { nu } else { 0.0 } };
+    // A single-photon source has no intensity to set or optimise.
+    let mu = if a.optimize_mu || ints.is_empty() { None } else { Some(ints[0].0) };
+    let distances: Vec<f64> = if a.steps == 1 {
+        vec![a.from_km]
+    } else {
+        (0..a.steps).map(|i| a.from_km + (a.to_km - a.from_km) * i as f64 / (a.steps - 1) as f64).collect()
+    };
+    let rows = rate_table(&link, &distances, &rules, mu, &params);
+    let mut w = csv::Writer::from_writer(Vec::new());
+    let io = |e: csv::Error| Error::new(crate::error::ErrorKind::Io, e.to_string());
+    w.write_record(["distance_km", "transmittance", "rule", "mu_photons_per_pulse", "gain_per_pulse", "error_rate", "rate_bits_per_pulse"])
+        .map_err(io)?;
+    for r in &rows {
+        w.write_record([
+            crate::exact::sweep::fmt_num(r.distance_km),
+            crate::exact::sweep::fmt_num(r.transmittance),
+            r.rule.name().to_string(),
+            crate::exact::sweep::fmt_num(r.mu),
+            crate::exact::sweep::fmt_num(r.gain),
+            crate::exact::sweep::fmt_num(r.error_rate),
+            crate::exact::sweep::fmt_num(r.rate_bits_per_pulse),
+        ])
+        .map_err(io)?;
+    }
+    let csv_text = String::from_utf8(w.into_inner().map_err(|e| Error::input(e.to_string()))?).expect("csv is UTF-8");
+    let mut table = format!(
+        "maximum distance per rule ({}; f = {f_ec}, q = {}):\n",
+        if ints.is_empty() {
+            "single photons".to_string()
+        } else if a.optimize_mu {
+            "μ optimised".to_string()
+        } else {
+            format!("μ = {}", ints[0].0)
+        },
+        a.sifting
+    );
+    for &rule in &rules {
+        let d = max_distance(rule, &link, mu, &params)?;
+        table.push_str(&format!("  {:<22} {}\n", rule.name(), d.map_or("no key at 0 km".to_string(), |d| format!("{d:.2} km"))));
+    }
+    if let Some(svg) = &a.svg {
+        crate::output::write_atomic(svg, crate::audit::report::plots::keyrate_svg(&rows, &rules)?.as_bytes(), a.force)?;
+    }
+    match &a.output {
+        Some(o) => {
+            crate::output::write_atomic(o, csv_text.as_bytes(), a.force)?;
+            write_stdout(&mut std::io::stdout().lock(), &table)?;
+        }
+        None => {
+            write_stdout(&mut std::io::stdout().lock(), &csv_text)?;
+            eprint!("{table}");
+        }
+    }
+    Ok(Outcome::Clean)
+}

@@ -1,0 +1,382 @@
+//! The exact single-photon evaluator: error rates, Eve's information and the bounds for one
+//! attack.
+//!
+//! For each basis θ ∈ {Z, X, Y} and bit x, Alice's state |ψ_{θ,x}> goes through the attack
+//! channel; the evaluator forms Bob's and Eve's conditional states and reports (conventions
+//! binding across the project):
+//! - `qber_θ = ½ Σ_x <ψ_{θ,1−x}| Tr_E ρ_BE(θ,x) |ψ_{θ,1−x}>`; Eve learns θ after sifting;
+//! - `p_guess_θ = ½ + ¼‖ρ_E(θ,0) − ρ_E(θ,1)‖₁`; `holevo_θ` in bits; `h_x_given_e = 1 − holevo_z`;
+//! - `accessible_θ`: accessible information of {½ρ_E(θ,0), ½ρ_E(θ,1)} (see
+//!   [`crate::quantum::measures::accessible_information`]);
+//! - `i_ab`: Shannon mutual information of Alice's and Bob's Z-basis bits;
+//! - `game_win`: the tripartite guessing game with honest Bob, averaged over θ ∈ {Z, X}:
+//!   `¼(Tr σ₀ + Tr σ₁ + ‖σ₀ − σ₁‖₁)` with `σ_x = <ψ_{θ,x}|_B ρ_BE(θ,x) |ψ_{θ,x}>_B`, the
+//!   maximum over Eve's two-outcome POVM of P(Bob right and Eve right);
+//! - BB84: `bound_rate = 1 − h(qber_x) − h(qber_z)`, `attack_rate = h_x_given_e − h(qber_z)`,
+//!   `individual_rate = 1 − h(qber_z) − accessible_z`, `margin = h_x_given_e − (1 − h(qber_x))`;
+//! - six-state: `bound_rate = 1 − H(p)` with the Pauli weights of
+//!   [`crate::exact::bounds::six_state_weights`], `margin = h_x_given_e − (1 − H(p) + h(qber_z))`.
+//!
+//! `margin ≥ −1e-9` (entropic uncertainty relation, Berta et al. 2010) and
+//! `game_win ≤ ½ + 1/(2√2)` hold for every physical attack; a violation is returned as an
+//! [`ErrorKind::BoundViolation`] error, never hidden.
+
+use crate::attack::Attack;
+use crate::error::{Error, ErrorKind, Result};
+use crate::exact::bounds::{game_bound, six_state_entropy, six_state_weights};
+use crate::numeric::linalg::{c, CMat, CVec, C64};
+use crate::protocol::{Basis, Protocol};
+use crate::quantum::measures::{
+    accessible_information, binary_entropy, mutual_information, trace_norm, von_neumann_entropy, AccessibleOptions,
+};
+use serde::Serialize;
+
+/// Slack allowed on the proven inequalities before a violation is reported: 1e-9.
+pub const BOUND_SLACK: f64 = 1e-9;
+
+/// Evaluation settings.
+#[derive(Clone, Debug, Default)]
+pub struct EvalOptions {
+    /// Protocol whose bound the attack is judged against.
+    pub protocol: Protocol,
+    /// Compute accessible information (microseconds for structured states, milliseconds
+    /// for unstructured ones on C⁴); when false, `accessible_*` and
+    /// `individual_rate` are `None`.
+    pub accessible: Option<AccessibleOptions>,
+}
+
+impl EvalOptions {
+    /// Settings for `protocol` with accessible information at default settings.
+    pub fn full(protocol: Protocol) -> Self {
+        EvalOptions { protocol, accessible: Some(AccessibleOptions::default()) }
+    }
+    /// Settings for `protocol` without accessible information.
+    pub fn fast(protocol: Protocol) -> Self {
+        EvalOptions { protocol, accessible: None }
+    }
+}
+
+/// Everything the evaluator reports for one attack. Field names are the JSON keys.
+#[derive(Clone, Debug, Serialize, PartialEq)]
+pub struct Evaluation {
+    /// QBER in the Z (key) basis.
+    pub qber_z: f64,
+    /// QBER in the X basis.
+    pub qber_x: f64,
+    /// QBER in the Y basis.
+    pub qber_y: f64,
+    /// Eve's Helstrom guessing probability of Alice's bit, Z basis.
+    pub p_guess_z: f64,
+    /// Same, X basis.
+    pub p_guess_x: f64,
+    /// Same, Y basis.
+    pub p_guess_y: f64,
+    /// Holevo quantity of Eve's ensemble, Z basis, bits.
+    pub holevo_z: f64,
+    /// Same, X basis.
+    pub holevo_x: f64,
+    /// Same, Y basis.
+    pub holevo_y: f64,
+    /// H(X|E) of the key bit, `1 − holevo_z`, bits.
+    pub h_x_given_e: f64,
+    /// Accessible information, Z basis, bits (None when not requested).
+    pub accessible_z: Option<f64>,
+    /// Accessible information, X basis, bits.
+    pub accessible_x: Option<f64>,
+    /// Whether the accessible-information searches met their convergence test (extra).
+    pub accessible_converged: Option<bool>,
+    /// How far `accessible_z` and `accessible_x` may lie below the true maxima: the larger
+    /// of the two (upper bound − value; extra, set with accessible information).
+    pub accessible_gap: Option<f64>,
+    /// Mutual information of Alice's and Bob's Z-basis bits.
+    pub i_ab: f64,
+    /// Tripartite guessing-game winning probability with honest Bob.
+    pub game_win: f64,
+    /// The protocol's proven asymptotic rate at these QBERs (per sifted bit).
+    pub bound_rate: f64,
+    /// Devetak–Winter rate against this attack: `h_x_given_e − h(qber_z)`.
+    pub attack_rate: f64,
+    /// Csiszár–Körner rate against this attack measured individually.
+    pub individual_rate: Option<f64>,
+    /// How far Eve's uncertainty exceeds what the bound assumes (≥ 0 for physical attacks).
+    pub margin: f64,
+    /// H_min(X|E) of one round, `−log₂ p_guess_z` (extra).
+    pub h_min_x_given_e: f64,
+    /// Six-state Pauli weights (p_I, p_X, p_Y, p_Z) from the three QBERs (extra).
+    pub pauli_weights: [f64; 4],
+    /// Dimension of Eve's register (extra).
+    pub eve_dim: usize,
+    /// Protocol judged against (extra).
+    pub protocol: Protocol,
+}
+
+/// Bob's and Eve's states conditioned on Alice sending one signal.
+struct Conditional {
+    /// Bob's reduced state: (<0|ρ_B|0>, <1|ρ_B|1>, <0|ρ_B|1>).
+    rho_b: ([f64; 2], C64),
+    /// Eve's reduced state (d_E × d_E).
+    rho_e: CMat,
+    /// Eve's unnormalised state given that Bob found Alice's state: `<ψ|_B ρ_BE |ψ>_B`.
+    sigma_right: CMat,
+    /// Von Neumann entropy of `rho_e`, bits.
+    s_e: f64,
+}
+
+fn conditional(attack: &Attack, psi: &CVec) -> Conditional {
+    let d = attack.eve_dim;
+    let zero = c(0.0, 0.0);
+    let ops = attack.channel.operators();
+    // ρ_E = Σ u u† over the 2K vectors u = (<b|_B ⊗ 1) K|ψ>; when 2K < d_E its non-zero
+    // spectrum is that of the smaller Gram matrix <u_i|u_j> (for an isometry: ρ_B's).
+    let isometry = ops.len() == 1;
+    let small = !isometry && 2 * ops.len() < d;
+    let mut parts: Vec<CVec> = Vec::new();
+    let (p0, p1) = (psi[0], psi[1]);
+    let (q0, q1) = (p0.conj(), p1.conj());
+    let mut b = [zero; 3]; // <0|ρ_B|0>, <1|ρ_B|1>, <0|ρ_B|1>
+    let mut rho_e = CMat::zeros(d, d);
+    let mut sigma_right = CMat::zeros(d, d);
+    // Scratch on the stack for eve_dim ≤ 8, on the heap beyond.
+    let mut v_buf = [zero; 16];
+    let mut w_buf = [zero; 8];
+    let (mut v_heap, mut w_heap);
+    let (v, w): (&mut [C64], &mut [C64]) = if d <= 8 {
+        (&mut v_buf[..2 * d], &mut w_buf[..d])
+    } else {
+        v_heap = vec![zero; 2 * d];
+        w_heap = vec![zero; d];
+        (&mut v_heap[..], &mut w_heap[..])
+    };
+    for k in ops {
+        // v = K ψ (K is stored column-major, 2d × 2).
+        let ks = k.as_slice();
+        for (r, vr) in v.iter_mut().enumerate() {
+            *vr = ks[r] * p0 + ks[2 * d + r] * p1;
+        }
+        let (v0, v1) = v.split_at(d);
+        for e in 0..d {
+            b[0] += c(v0[e].norm_sqr(), 0.0);
+            b[1] += c(v1[e].norm_sqr(), 0.0);
+            b[2] += v0[e] * v1[e].conj();
+            w[e] = v0[e] * q0 + v1[e] * q1;
+        }
+        let re = rho_e.as_mut_slice();
+        let sg = sigma_right.as_mut_slice();
+        for j in 0..d {
+            let (c0, c1, cw) = (v0[j].conj(), v1[j].conj(), w[j].conj());
+            for i in 0..d {
+                re[j * d + i] += v0[i] * c0 + v1[i] * c1;
+                sg[j * d + i] += w[i] * cw;
+            }
+        }
+        if small {
+            parts.push(CVec::from_column_slice(v0));
+            parts.push(CVec::from_column_slice(v1));
+        }
+    }
+    let rho_b = ([b[0].re, b[1].re], b[2]);
+    let s_e = if isometry {
+        // A pure state on B ⊗ E: Eve's spectrum is Bob's.
+        binary_spectrum_entropy(b[0].re, b[1].re, b[2])
+    } else if small {
+        let gram = CMat::from_fn(parts.len(), parts.len(), |i, j| parts[i].dotc(&parts[j]));
+        von_neumann_entropy(&gram)
+    } else {
+        von_neumann_entropy(&rho_e)
+    };
+    Conditional { rho_b, rho_e, sigma_right, s_e }
+}
+
+/// Entropy in bits of the 2×2 Hermitian matrix [[a, z], [z*, d]].
+fn binary_spectrum_entropy(a: f64, d: f64, z: C64) -> f64 {
+    let mean = 0.5 * (a + d);
+    let r = (0.25 * (a - d) * (a - d) + z.norm_sqr()).sqrt();
+    let xlog = |x: f64| if x <= 0.0 { 0.0 } else { -x * x.log2() };
+    xlog(mean - r) + xlog(mean + r)
+}
+
+/// Per-basis quantities.
+struct BasisStats {
+    qber: f64,
+    p_guess: f64,
+    holevo: f64,
+    game: f64,
+    eve: [CMat; 2],
+    joint_ab: [[f64; 2]; 2],
+}
+
+fn basis_stats(attack: &Attack, basis: Basis, s_avg: f64) -> BasisStats {
+    basis_stats_from(basis, [conditional(attack, &basis.ket(0)), conditional(attack, &basis.ket(1))], s_avg)
+}
+
+fn basis_stats_from(basis: Basis, cond: [Conditional; 2], s_avg: f64) -> BasisStats {
+    let kets = [basis.ket(0), basis.ket(1)];
+    let mut qber = 0.0;
+    let mut joint_ab = [[0.0; 2]; 2];
+    for x in 0..2 {
+        let ([r00, r11], r01) = cond[x].rho_b;
+        for (b, ket) in kets.iter().enumerate() {
+            // <k|ρ_B|k> = r00|k0|² + r11|k1|² + 2 Re(conj(k0) r01 k1).
+            let (k0, k1) = (ket[0], ket[1]);
+            joint_ab[x][b] = 0.5 * (r00 * k0.norm_sqr() + r11 * k1.norm_sqr() + 2.0 * (k0.conj() * r01 * k1).re);
+        }
+        qber += joint_ab[x][1 - x];
+    }
+    let diff = &cond[0].rho_e - &cond[1].rho_e;
+    let p_guess = 0.5 + 0.25 * trace_norm(&diff);
+    let holevo = s_avg - 0.5 * (cond[0].s_e + cond[1].s_e);
+    let s0 = &cond[0].sigma_right;
+    let s1 = &cond[1].sigma_right;
+    let game = 0.25 * (s0.trace().re + s1.trace().re + trace_norm(&(s0 - s1)));
+    let [c0, c1] = cond;
+    BasisStats { qber, p_guess, holevo, game, eve: [c0.rho_e, c1.rho_e], joint_ab }
+}
+
+/// Evaluates `attack` exactly. Returns a [`ErrorKind::BoundViolation`] error when a proven
+/// inequality fails by more than [`BOUND_SLACK`].
+pub fn evaluate(attack: &Attack, opts: &EvalOptions) -> Result<Evaluation> {
+    let eval = evaluate_unchecked(attack, opts)?;
+    check_bounds(&attack.label, &eval)?;
+    Ok(eval)
+}
+
+/// Evaluates `attack` without checking the proven inequalities, for searches that must
+/// see and report a violation rather than stop at it (attack hunting). Use [`evaluate`]
+/// everywhere else.
+pub fn evaluate_unchecked(attack: &Attack, opts: &EvalOptions) -> Result<Evaluation> {
+    let d = attack.eve_dim;
+    // Eve's state averaged over Alice's bit is the same in every basis (the average input
+    // is 1/2 in each), so its entropy is computed once, from the Z-basis conditionals.
+    let z_cond = [conditional(attack, &Basis::Z.ket(0)), conditional(attack, &Basis::Z.ket(1))];
+    let rho_e_avg = (&z_cond[0].rho_e + &z_cond[1].rho_e) * c(0.5, 0.0);
+    let s_avg = von_neumann_entropy(&rho_e_avg);
+    let z = basis_stats_from(Basis::Z, z_cond, s_avg);
+    let x = basis_stats(attack, Basis::X, s_avg);
+    let y = basis_stats(attack, Basis::Y, s_avg);
+    let h_x_given_e = 1.0 - z.holevo;
+    let hz = binary_entropy(z.qber);
+    let hx = binary_entropy(x.qber);
+    let weights = six_state_weights(x.qber, y.qber, z.qber);
+    let (bound_rate, margin) = match opts.protocol {
+        Protocol::Bb84 => (1.0 - hx - hz, h_x_given_e - (1.0 - hx)),
+        Protocol::SixState => {
+            let h = six_state_entropy(&weights, BOUND_SLACK)?;
+            (1.0 - h, h_x_given_e - (1.0 - h + hz))
+        }
+    };
+    let (accessible_z, accessible_x, accessible_converged, accessible_gap) = match &opts.accessible {
+        Some(acc) => {
+            let az = accessible_information(&[0.5, 0.5], &z.eve, acc)?;
+            let ax = accessible_information(&[0.5, 0.5], &x.eve, acc)?;
+            let gap = az.upper_bound.zip(ax.upper_bound).map(|(uz, ux)| (uz - az.bits).max(ux - ax.bits));
+            (Some(az.bits), Some(ax.bits), Some(az.converged && ax.converged), gap)
+        }
+        None => (None, None, None, None),
+    };
+    let eval = Evaluation {
+        qber_z: z.qber,
+        qber_x: x.qber,
+        qber_y: y.qber,
+        p_guess_z: z.p_guess,
+        p_guess_x: x.p_guess,
+        p_guess_y: y.p_guess,
+        holevo_z: z.holevo,
+        holevo_x: x.holevo,
+        holevo_y: y.holevo,
+        h_x_given_e,
+        accessible_z,
+        accessible_x,
+        accessible_converged,
+        accessible_gap,
+        i_ab: mutual_information(&z.joint_ab),
+        game_win: 0.5 * (z.game + x.game),
+        bound_rate,
+        attack_rate: h_x_given_e - hz,
+        individual_rate: accessible_z.map(|a| 1.0 - hz - a),
+        margin,
+        h_min_x_given_e: -z.p_guess.log2(),
+        pauli_weights: weights,
+        eve_dim: d,
+        protocol: opts.protocol,
+    };
+    Ok(eval)
+}
+
+/// Checks the proven inequalities every physical attack satisfies.
+pub fn check_bounds(label: &str, e: &Evaluation) -> Result<()> {
+    let violation = |what: String| Err(Error::new(ErrorKind::BoundViolation, format!("attack `{label}`: {what}")));
+    if e.margin < -BOUND_SLACK {
+        return violation(format!(
+            "margin {:.3e} < 0: Eve's uncertainty H(X|E) = {} is below what the {} bound guarantees (entropic uncertainty relation, Berta et al. 2010)",
+            e.margin, e.h_x_given_e, e.protocol
+        ));
+    }
+    if e.game_win > game_bound() + BOUND_SLACK {
+        return violation(format!(
+            "guessing-game value {} exceeds 1/2 + 1/(2√2) = {} (Tomamichel, Fehr, Kaniewski, Wehner 2013)",
+            e.game_win,
+            game_bound()
+        ));
+    }
+    for (name, acc, chi) in [("z", e.accessible_z, e.holevo_z), ("x", e.accessible_x, e.holevo_x)] {
+        if let Some(a) = acc {
+            if a > chi + BOUND_SLACK {
+                return violation(format!("accessible information {a} exceeds the Holevo quantity {chi} in basis {name}"));
+            }
+        }
+    }
+    if let Some(gap) = e.accessible_gap {
+        if gap < -BOUND_SLACK {
+            return violation(format!(
+                "the accessible information's proven upper bound lies {:.3e} bits below a value an explicit measurement achieves",
+                -gap
+            ));
+        }
+    }
+    Ok(())
+}
+
+/// Fidelity `<ψ|ρ_clone|ψ>` of Eve's first qubit (her clone, when d_E = 4 holds clone ⊗
+/// machine) with the input state `psi`.
+#[track_caller]
+pub fn eve_clone_fidelity(attack: &Attack, psi: &CVec) -> f64 {
+    assert_eq!(attack.eve_dim, 4, "clone fidelity needs Eve's register to be clone ⊗ machine (d_E = 4)");
+    let rho_in = psi * psi.adjoint();
+    let rho_be = attack.channel.apply(&rho_in);
+    let clone = crate::numeric::linalg::partial_trace(&rho_be, &[2, 2, 2], &[1]);
+    psi.dotc(&(&clone * psi)).re
+}
+
+/// Fidelity `<ψ|ρ_B|ψ>` of Bob's output with the input state `psi`.
+pub fn bob_fidelity(attack: &Attack, psi: &CVec) -> f64 {
+    let rho_in = psi * psi.adjoint();
+    let rho_be = attack.channel.apply(&rho_in);
+    let bob = crate::numeric::linalg::partial_trace(&rho_be, &[2, attack.eve_dim], &[0]);
+    psi.dotc(&(&bob * psi)).re
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use std::collections::BTreeMap;
+
+    #[test]
+    fn doctored_evaluations_are_reported_as_bound_violations() {
+        let attack = Attack::builtin("cloner", &BTreeMap::new()).unwrap();
+        let good = evaluate(&attack, &EvalOptions::fast(Protocol::Bb84)).unwrap();
+        assert!(check_bounds("x", &good).is_ok());
+        let mut bad = good.clone();
+        bad.margin = -1e-6;
+        assert!(check_bounds("x", &bad).unwrap_err().is_bound_violation());
+        let mut bad = good.clone();
+        bad.game_win = game_bound() + 1e-6;
+        let err = check_bounds("x", &bad).unwrap_err();
+        assert!(err.is_bound_violation() && err.to_string().starts_with("BOUND VIOLATED"), "{err}");
+        let mut bad = good.clone();
+        bad.accessible_z = Some(bad.holevo_z + 1e-6);
+        assert!(check_bounds("x", &bad).unwrap_err().is_bound_violation());
+        let mut bad = good;
+        bad.accessible_gap = Some(-1e-6);
+        assert!(check_bounds("x", &bad).unwrap_err().is_bound_violation());
+    }
+}

@@ -1,0 +1,474 @@
+//! Attack hunting: a numerical search for the strongest single-photon attack with Eve's
+//! register of dimension d_E, to test how tight each bound is.
+//!
+//! Eve's attack is an isometry V: C² → C² ⊗ C^{d_E} (B first), parameterised by a complex
+//! (2·d_E) × 2 matrix G (8·d_E real numbers) through the phase-fixed QR factorisation:
+//! V = the orthonormalised columns of G. For a target error rate Q the search maximises an
+//! objective subject to QBER_Z ≤ Q and QBER_X ≤ Q (and QBER_Y ≤ Q for six-state) by a
+//! quadratic penalty with continuation: minimise
+//! `−f(V) + λ Σ_θ max(0, QBER_θ − Q')²` for λ = 10³, 10⁵, 10⁷, 10⁹ in turn, each stage
+//! with L-BFGS (argmin, More–Thuente line search) on forward finite-difference gradients,
+//! warm-started from the previous stage. Q' = Q − 10⁻⁷ keeps the small residual violation
+//! of a penalty method on the feasible side; a result that still violates QBER ≤ Q by more
+//! than 10⁻¹² is reported as infeasible and never as the best attack.
+//!
+//! Objectives and the proven bounds they are compared with:
+//! - `holevo`: Eve's Holevo information about the key bit (collective attacks); BB84 bound
+//!   h(Q) (the optimal collective attack), six-state bound H(λ) − h(Q) with
+//!   λ = (1 − 3Q/2, Q/2, Q/2, Q/2);
+//! - `guess`: Eve's Helstrom guessing probability of the key bit; bound ½ + √(Q(1−Q))
+//!   (the optimal individual attack of Fuchs, Gisin, Griffiths, Niu, Peres 1997);
+//! - `accessible`: Eve's accessible information about the key bit; bound
+//!   1 − h(½ + √(Q(1−Q))) (same source). The accessible information is a maximum over
+//!   Eve's measurements, so it is maximised jointly over the attack and the measurement by
+//!   alternation: each start is first optimised on the guessing probability (the penalty
+//!   stages above); then, in rounds, Eve's best measurement for the current attack is found
+//!   ([`crate::quantum::measures::accessible_information`]) and the attack is re-optimised for that
+//!   fixed measurement (L-BFGS on `−I(X:M) + λ·penalty`, λ = 10⁹), until a round gains less
+//!   than 10⁻¹⁰ bits or [`ACCESSIBLE_ROUNDS`] rounds are done. Neither step can lower
+//!   `I(X:M)` beyond the penalty's tolerance, and the attack is finally scored on its
+//!   accessible information;
+//! - `game`: the tripartite guessing game with an honest Bob; bound ½ + 1/(2√2) (Tomamichel,
+//!   Fehr, Kaniewski, Wehner 2013).
+//!
+//! Starts run in parallel (rayon), each from its own seeded random stream.
+
+use crate::attack::Attack;
+use crate::error::{Error, Result};
+use crate::exact::bounds::{fggnp_information, game_bound, six_state_weights};
+use crate::exact::eval::{evaluate_unchecked, EvalOptions, Evaluation};
+use crate::numeric::linalg::CVec;
+use crate::numeric::linalg::{c, orthonormal_columns, CMat, Tolerance};
+use crate::protocol::Protocol;
+use crate::quantum::measures::{accessible_information, binary_entropy, measured_information, shannon_entropy, AccessibleOptions};
+use argmin::core::{CostFunction, Executor, Gradient, State};
+use argmin::solver::linesearch::MoreThuenteLineSearch;
+use argmin::solver::quasinewton::LBFGS;
+use rand::Rng;
+use rand_distr::StandardNormal;
+use rayon::prelude::*;
+use serde::Serialize;
+
+/// What the hunt maximises.
+#[derive(Clone, Copy, Debug, PartialEq, Eq, Serialize)]
+#[serde(rename_all = "kebab-case")]
+pub enum Objective {
+    /// Holevo information about the key bit.
+    Holevo,
+    /// Accessible information about the key bit.
+    Accessible,
+    /// Helstrom guessing probability of the key bit.
+    Guess,
+    /// Tripartite guessing game with honest Bob.
+    Game,
+}
+
+impl std::str::FromStr for Objective {
+    type Err = String;
+    fn from_str(s: &str) -> std::result::Result<Self, String> {
+        match s {
+            "holevo" => Ok(Objective::Holevo),
+            "accessible" => Ok(Objective::Accessible),
+            "guess" => Ok(Objective::Guess),
+            "game" => Ok(Objective::Game),
+            o => Err(format!("unknown objective `{o}`; expected holevo, accessible, guess or game")),
+        }
+    }
+}
+
+impl Objective {
+    /// Interface name.
+    pub fn name(self) -> &'static str {
+        match self {
+            Objective::Holevo => "holevo",
+            Objective::Accessible => "accessible",
+            Objective::Guess => "guess",
+            Objective::Game => "game",
+        }
+    }
+}
+
+/// The proven bound on `objective` at error rate `q` (error for combinations without one).
+pub fn bound(objective: Objective, protocol: Protocol, q: f64) -> Result<f64> {
+    let q = q.clamp(0.0, 0.5);
+    match (objective, protocol) {
+        (Objective::Holevo, Protocol::Bb84) => Ok(binary_entropy(q)),
+        (Objective::Holevo, Protocol::SixState) => Ok(six_state_holevo_bound(q)),
+        (Objective::Guess, Protocol::Bb84) => Ok(0.5 + (q * (1.0 - q)).sqrt()),
+        (Objective::Accessible, Protocol::Bb84) => Ok(fggnp_information(q)),
+        (Objective::Game, _) => Ok(game_bound()),
+        (o, p) => Err(Error::input_key("--objective", format!("no proven bound for `{}` with {p}; use holevo or game", o.name()))),
+    }
+}
+
+/// Six-state bound on Eve's Holevo information about the key bit when every QBER is at
+/// most `q`: the maximum over (Q_X, Q_Y, Q_Z) in [0, q]³ (with non-negative Pauli weights) of
+/// `H(p) − h(Q_Z)`, the six-state rate's complement (Lo 2001; Renner, Gisin, Kraus 2005).
+/// Found on a 41³ grid refined by golden-section search in Q_Z at Q_X = Q_Y = q, where the
+/// grid maximum lies (an error in Q_Z only hurts Eve, errors in X and Y only help her).
+pub fn six_state_holevo_bound(q: f64) -> f64 {
+    let value = |qx: f64, qy: f64, qz: f64| -> f64 {
+        let p = six_state_weights(qx, qy, qz);
+        if p.iter().any(|w| *w < -1e-15) {
+            return f64::NEG_INFINITY;
+        }
+        shannon_entropy(&p) - binary_entropy(qz)
+    };
+    let n = 40;
+    let mut best = f64::NEG_INFINITY;
+    for i in 0..=n {
+        for j in 0..=n {
+            for k in 0..=n {
+                let (a, b, c) = (q * i as f64 / n as f64, q * j as f64 / n as f64, q * k as f64 / n as f64);
+                best = best.max(value(a, b, c));
+            }
+        }
+    }
+    // Refine along Q_Z at the corner Q_X = Q_Y = q.
+    let (mut lo, mut hi) = (0.0, q);
+    let g = (5f64.sqrt() - 1.0) / 2.0;
+    for _ in 0..100 {
+        let c1 = hi - g * (hi - lo);
+        let c2 = lo + g * (hi - lo);
+        if value(q, q, c1) > value(q, q, c2) {
+            hi = c2;
+        } else {
+            lo = c1;
+        }
+    }
+    best.max(value(q, q, 0.5 * (lo + hi)))
+}
+
+/// Hunt settings.
+#[derive(Clone, Debug)]
+pub struct HuntOptions {
+    /// Protocol (constraints and bound).
+    pub protocol: Protocol,
+    /// Objective.
+    pub objective: Objective,
+    /// Eve's register dimension, 2..=8.
+    pub eve_dim: usize,
+    /// Random starts per error rate.
+    pub starts: usize,
+    /// Seed.
+    pub seed: u64,
+    /// L-BFGS iterations per penalty stage.
+    pub max_iters: u64,
+}
+
+/// The best attack found at one error rate.
+#[derive(Clone, Debug)]
+pub struct HuntPoint {
+    /// Target error rate Q.
+    pub q: f64,
+    /// Objective value of the best attack.
+    pub value: f64,
+    /// The bound at Q.
+    pub bound: f64,
+    /// The bound at the attack's own largest error rate (never above the bound at Q for a
+    /// feasible attack).
+    pub bound_at_attack: f64,
+    /// Whether the attack meets every QBER ≤ Q.
+    pub feasible: bool,
+    /// The attack (a one-operator kraus attack).
+    pub attack: Attack,
+    /// Its full evaluation.
+    pub eval: Evaluation,
+    /// Feasible starts out of all.
+    pub feasible_starts: usize,
+}
+
+/// Builds the isometry from the parameter vector.
+pub fn isometry(x: &[f64], eve_dim: usize) -> CMat {
+    let rows = 2 * eve_dim;
+    let g = CMat::from_fn(rows, 2, |r, col| {
+        let i = 2 * (col * rows + r);
+        c(x[i], x[i + 1])
+    });
+    orthonormal_columns(&g)
+}
+
+fn attack_of(x: &[f64], eve_dim: usize) -> Attack {
+    Attack::from_kraus("hunted", eve_dim, vec![isometry(x, eve_dim)], Tolerance::new(1e-8))
+        .expect("an orthonormalised isometry is complete")
+}
+
+fn objective_value(objective: Objective, e: &Evaluation) -> f64 {
+    match objective {
+        Objective::Holevo => e.holevo_z,
+        Objective::Guess | Objective::Accessible => e.p_guess_z,
+        Objective::Game => e.game_win,
+    }
+}
+
+fn max_qber(e: &Evaluation, protocol: Protocol) -> f64 {
+    let m = e.qber_z.max(e.qber_x);
+    if protocol == Protocol::SixState {
+        m.max(e.qber_y)
+    } else {
+        m
+    }
+}
+
+struct Penalized {
+    objective: Objective,
+    protocol: Protocol,
+    eve_dim: usize,
+    q_inner: f64,
+    lambda: f64,
+}
+
+impl Penalized {
+    fn value(&self, x: &[f64]) -> f64 {
+        let a = attack_of(x, self.eve_dim);
+        // Bound checks are the hunt's business here: evaluate without failing on them, so a
+        // violation is found, saved and reported rather than stopping the search.
+        let e = match evaluate_unchecked(&a, &EvalOptions::fast(self.protocol)) {
+            Ok(e) => e,
+            Err(_) => return f64::INFINITY,
+        };
+        -objective_value(self.objective, &e) + self.lambda * penalty(&e, self.protocol, self.q_inner)
+    }
+}
+
+/// Largest number of measurement/attack rounds of the `accessible` objective.
+pub const ACCESSIBLE_ROUNDS: usize = 8;
+
+fn optimise_start(opts: &HuntOptions, q: f64, mut x: Vec<f64>) -> Result<Vec<f64>> {
+    let q_inner = (q - 1e-7).max(0.0);
+    for lambda in [1e3, 1e5, 1e7, 1e9] {
+        let problem = Penalized { objective: opts.objective, protocol: opts.protocol, eve_dim: opts.eve_dim, q_inner, lambda };
+        x = lbfgs(|y| problem.value(y), x, opts.max_iters);
+    }
+    if opts.objective == Objective::Accessible {
+        let mut last = f64::NEG_INFINITY;
+        for _ in 0..ACCESSIBLE_ROUNDS {
+            let states = eve_key_states(&isometry(&x, opts.eve_dim), opts.eve_dim);
+            let best = accessible_information(&[0.5, 0.5], &states, &AccessibleOptions::default())?;
+            if best.bits < last + 1e-10 {
+                break;
+            }
+            last = best.bits;
+            let problem = Measured { protocol: opts.protocol, eve_dim: opts.eve_dim, q_inner, lambda: 1e9, povm: best.povm };
+            x = lbfgs(|y| problem.value(y), x, opts.max_iters);
+        }
+    }
+    Ok(x)
+}
+
+/// Runs L-BFGS (memory 8, More–Thuente, forward-difference gradients) on `f` from `x` and
+/// returns the best parameters seen (`x` itself if the run fails).
+fn lbfgs(f: impl Fn(&[f64]) -> f64, x: Vec<f64>, max_iters: u64) -> Vec<f64> {
+    let solver = LBFGS::new(MoreThuenteLineSearch::new(), 8)
+        .with_tolerance_grad(1e-10)
+        .expect("valid tolerance")
+        .with_tolerance_cost(1e-14)
+        .expect("valid tolerance");
+    let start = x.clone();
+    match Executor::new(Smooth(f), solver).configure(|s| s.param(start).max_iters(max_iters)).run() {
+        Ok(res) => res.state().get_best_param().cloned().unwrap_or(x),
+        Err(_) => x,
+    }
+}
+
+/// A cost function for argmin with a forward-difference gradient.
+struct Smooth<F>(F);
+
+impl<F: Fn(&[f64]) -> f64> CostFunction for Smooth<F> {
+    type Param = Vec<f64>;
+    type Output = f64;
+    fn cost(&self, x: &Self::Param) -> std::result::Result<f64, argmin::core::Error> {
+        Ok((self.0)(x))
+    }
+}
+
+impl<F: Fn(&[f64]) -> f64> Gradient for Smooth<F> {
+    type Param = Vec<f64>;
+    type Gradient = Vec<f64>;
+    fn gradient(&self, x: &Self::Param) -> std::result::Result<Vec<f64>, argmin::core::Error> {
+        Ok(forward_difference(&self.0, x))
+    }
+}
+
+/// Eve's states given Alice's key bit (Z basis) under the isometry `v` (B first):
+/// `ρ_E(x)[e, e'] = Σ_b V[b·d_E + e, x] conj(V[b·d_E + e', x])`.
+fn eve_key_states(v: &CMat, eve_dim: usize) -> Vec<CMat> {
+    (0..2)
+        .map(|x| CMat::from_fn(eve_dim, eve_dim, |e, f| (0..2).map(|b| v[(b * eve_dim + e, x)] * v[(b * eve_dim + f, x)].conj()).sum()))
+        .collect()
+}
+
+/// `−I(X:M) + λ·penalty` for a fixed measurement of Eve's on the key bit: one half of the
+/// alternation of the `accessible` objective.
+struct Measured {
+    protocol: Protocol,
+    eve_dim: usize,
+    q_inner: f64,
+    lambda: f64,
+    povm: Vec<CVec>,
+}
+
+impl Measured {
+    fn value(&self, x: &[f64]) -> f64 {
+        let v = isometry(x, self.eve_dim);
+        let a = attack_of(x, self.eve_dim);
+        let e = match evaluate_unchecked(&a, &EvalOptions::fast(self.protocol)) {
+            Ok(e) => e,
+            Err(_) => return f64::INFINITY,
+        };
+        let info = measured_information(&[0.5, 0.5], &eve_key_states(&v, self.eve_dim), &self.povm);
+        -info + self.lambda * penalty(&e, self.protocol, self.q_inner)
+    }
+}
+
+/// Forward-difference gradient: n + 1 evaluations, error O(h) in each component.
+fn forward_difference(f: &dyn Fn(&[f64]) -> f64, x: &[f64]) -> Vec<f64> {
+    let h = 1e-7;
+    let f0 = f(x);
+    let mut g = vec![0.0; x.len()];
+    let mut y = x.to_vec();
+    for i in 0..x.len() {
+        y[i] = x[i] + h;
+        g[i] = (f(&y) - f0) / h;
+        y[i] = x[i];
+    }
+    g
+}
+
+/// `Σ_θ max(0, QBER_θ − q_inner)²` over the protocol's bases.
+fn penalty(e: &Evaluation, protocol: Protocol, q_inner: f64) -> f64 {
+    let mut qs = vec![e.qber_z, e.qber_x];
+    if protocol == Protocol::SixState {
+        qs.push(e.qber_y);
+    }
+    qs.iter().map(|q| (q - q_inner).max(0.0).powi(2)).sum()
+}
+
+/// Hunts at each error rate of `qs`.
+pub fn hunt(opts: &HuntOptions, qs: &[f64]) -> Result<Vec<HuntPoint>> {
+    if !(2..=8).contains(&opts.eve_dim) {
+        return Err(Error::input_key("--eve-dim", format!("{} is outside [2, 8]", opts.eve_dim)));
+    }
+    if opts.starts == 0 {
+        return Err(Error::input_key("--starts", "must be at least 1"));
+    }
+    for &q in qs {
+        crate::error::check_range("--q", q, 0.0, 0.5)?;
+    }
+    bound(opts.objective, opts.protocol, 0.1)?;
+    let n = 8 * opts.eve_dim;
+    qs.iter()
+        .enumerate()
+        .map(|(qi, &q)| {
+            let finals: Vec<Vec<f64>> = (0..opts.starts)
+                .into_par_iter()
+                .map(|s| {
+                    let mut rng = crate::numeric::rng::trial_rng(opts.seed, qi as u64, s as u64);
+                    let x0: Vec<f64> = (0..n).map(|_| rng.sample::<f64, _>(StandardNormal)).collect();
+                    optimise_start(opts, q, x0)
+                })
+                .collect::<Result<_>>()?;
+            let scored: Vec<(f64, bool, Attack, Evaluation)> = finals
+                .iter()
+                .map(|x| {
+                    let a = attack_of(x, opts.eve_dim);
+                    let eval_opts = if opts.objective == Objective::Accessible {
+                        EvalOptions { protocol: opts.protocol, accessible: Some(AccessibleOptions::default()) }
+                    } else {
+                        EvalOptions::fast(opts.protocol)
+                    };
+                    let e = evaluate_unchecked(&a, &eval_opts)?;
+                    let value = match opts.objective {
+                        Objective::Accessible => e.accessible_z.unwrap_or(f64::NAN),
+                        o => objective_value(o, &e),
+                    };
+                    let feasible = max_qber(&e, opts.protocol) <= q + 1e-12;
+                    Ok((value, feasible, a, e))
+                })
+                .collect::<Result<_>>()?;
+            let feasible_starts = scored.iter().filter(|s| s.1).count();
+            let best = scored.into_iter().filter(|s| s.1).max_by(|a, b| a.0.total_cmp(&b.0));
+            let bq = bound(opts.objective, opts.protocol, q)?;
+            match best {
+                Some((value, feasible, attack, eval)) => Ok(HuntPoint {
+                    q,
+                    value,
+                    bound: bq,
+                    bound_at_attack: bound(opts.objective, opts.protocol, max_qber(&eval, opts.protocol))?,
+                    feasible,
+                    attack,
+                    eval,
+                    feasible_starts,
+                }),
+                None => Err(Error::new(
+                    crate::error::ErrorKind::NoConvergence,
+                    format!("no start reached a feasible attack at Q = {q}; try more starts"),
+                )),
+            }
+        })
+        .collect()
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn parameterisation_gives_isometries() {
+        let mut rng = crate::numeric::rng::trial_rng(1, 0, 0);
+        for d in 2..=5 {
+            let x: Vec<f64> = (0..8 * d).map(|_| rng.sample::<f64, _>(StandardNormal)).collect();
+            let v = isometry(&x, d);
+            let g = v.adjoint() * &v;
+            assert!(crate::numeric::linalg::max_abs_diff(&g, &CMat::identity(2, 2)) < 1e-12);
+        }
+    }
+
+    #[test]
+    fn eve_key_states_match_the_evaluator() {
+        let mut rng = crate::numeric::rng::trial_rng(2, 0, 0);
+        for d in 2..=4 {
+            let x: Vec<f64> = (0..8 * d).map(|_| rng.sample::<f64, _>(StandardNormal)).collect();
+            let states = eve_key_states(&isometry(&x, d), d);
+            let e = evaluate_unchecked(&attack_of(&x, d), &EvalOptions::fast(Protocol::Bb84)).unwrap();
+            let chi = crate::quantum::measures::holevo_quantity(&[0.5, 0.5], &states);
+            let p_guess = crate::quantum::measures::helstrom_guess(0.5, &states[0], 0.5, &states[1]);
+            assert!((chi - e.holevo_z).abs() < 1e-12 && (p_guess - e.p_guess_z).abs() < 1e-12);
+        }
+    }
+
+    #[test]
+    fn measurement_rounds_never_lose_accessible_information() {
+        // The accessible objective runs the guessing-probability stages first, then its
+        // rounds; the rounds may only add information (up to the penalty's tolerance).
+        let mut rng = crate::numeric::rng::trial_rng(4, 0, 0);
+        let x0: Vec<f64> = (0..32).map(|_| rng.sample::<f64, _>(StandardNormal)).collect();
+        let opts = |objective| HuntOptions { protocol: Protocol::Bb84, objective, eve_dim: 4, starts: 1, seed: 0, max_iters: 60 };
+        let q = 0.08;
+        let score = |x: &[f64]| {
+            let states = eve_key_states(&isometry(x, 4), 4);
+            accessible_information(&[0.5, 0.5], &states, &AccessibleOptions::default()).unwrap().bits
+        };
+        let guessed = optimise_start(&opts(Objective::Guess), q, x0.clone()).unwrap();
+        let polished = optimise_start(&opts(Objective::Accessible), q, x0).unwrap();
+        let e = evaluate_unchecked(&attack_of(&polished, 4), &EvalOptions::fast(Protocol::Bb84)).unwrap();
+        assert!(max_qber(&e, Protocol::Bb84) <= q + 1e-9);
+        assert!(score(&polished) >= score(&guessed) - 1e-9, "{} < {}", score(&polished), score(&guessed));
+        assert!(score(&polished) <= fggnp_information(max_qber(&e, Protocol::Bb84)) + 1e-9);
+    }
+
+    #[test]
+    fn bounds_match_the_published_values() {
+        // h(0.1) = 0.4689955936 (REFERENCES.md §5 [N]); FGGNP I_E(0.1) = 0.2780719051 (§4 [N]).
+        assert!((bound(Objective::Holevo, Protocol::Bb84, 0.1).unwrap() - 0.4689955936).abs() < 1e-9);
+        assert!((bound(Objective::Accessible, Protocol::Bb84, 0.1).unwrap() - 0.2780719051).abs() < 1e-9);
+        assert!((bound(Objective::Guess, Protocol::Bb84, 0.1).unwrap() - 0.8).abs() < 1e-12);
+        // Six-state, every QBER at most Q: errors only in X and Y (Q_Z = 0) give Eve h(Q),
+        // which beats the symmetric attack's 1 − 0.783213 at Q = 5 % (REFERENCES.md §2 [N]).
+        let b6 = bound(Objective::Holevo, Protocol::SixState, 0.05).unwrap();
+        assert!(b6 >= binary_entropy(0.05) - 1e-12);
+        assert!(b6 > 1.0 - 0.783213);
+        assert!((shannon_entropy(&six_state_weights(0.05, 0.05, 0.05)) - binary_entropy(0.05) - (1.0 - 0.783213)).abs() < 1e-6);
+        assert!(bound(Objective::Guess, Protocol::SixState, 0.05).is_err());
+    }
+}
