@@ -75,11 +75,11 @@ fn demo_campaign(c: &mut Criterion) {
 fn link_vs_single_photon(c: &mut Criterion) {
     // Trials per second of the weak-coherent sampler against the single-photon one (target:
     // within 2x), both judged once.
-    use qkd_audit::attack::pulse::LinkAttack;
+    use qkd_audit::attack::pulse::PulseAttack;
     use qkd_audit::exact::pulses::PulseModel;
     let campaign = Campaign::demo_named("decoy").unwrap();
     let setup = campaign.setup.clone();
-    let lm = PulseModel::new(&setup.link, Some(&LinkAttack::PhotonNumberSplitting { fraction: 0.5 }), &setup.basis_probabilities());
+    let lm = PulseModel::new(&setup.link, Some(&PulseAttack::PhotonNumberSplitting { fraction: 0.5 }), &setup.basis_probabilities());
     let sp = SignalModel::new(&cloner(), Protocol::Bb84, &setup.basis_probabilities());
     let sp_setup = Setup { key_rule: qkd_audit::audit::rules::KeyRule::FiniteUncertainty, link: Default::default(), ..setup.clone() };
     let trials = 20_000u64;

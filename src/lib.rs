@@ -7,7 +7,8 @@
 //! (or on an import cycle between the modules of one layer). DEVELOPERS.md explains why
 //! each boundary sits where it does.
 //!
-//! 0. [`error`], [`output`]: the error type; atomic files and folders, number formatting.
+//! 0. [`error`], [`input`], [`output`]: the error type; reading user files (TOML with
+//!    line and column, numbers, allowed keys); atomic files and folders, number formatting.
 //!    Base utilities, importable from anywhere.
 //! 1. [`numeric`]: matrices and eigen-solves, one-dimensional searches, the Riemannian
 //!    ascents over POVMs, per-trial random streams. No physics words.
@@ -25,6 +26,7 @@
 //! 8. [`cli`]: the command line, one module per subcommand.
 
 pub mod error;
+pub mod input;
 pub mod output;
 pub mod numeric;
 pub mod quantum;

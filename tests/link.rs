@@ -2,7 +2,7 @@
 
 use proptest::prelude::*;
 use proptest::test_runner::{Config, FileFailurePersistence, RngAlgorithm, TestRng, TestRunner};
-use qkd_audit::attack::pulse::{honest, LinkAttack};
+use qkd_audit::attack::pulse::{honest, PulseAttack};
 use qkd_audit::audit::rules::KeyRule;
 use qkd_audit::audit::sample::pulses::sample;
 use qkd_audit::audit::setup::{Setup, TestSample};
@@ -72,7 +72,7 @@ fn setup(rule: KeyRule, loss_db: f64, signals: u64) -> Setup {
     }
 }
 
-fn verdicts(attack: LinkAttack, setup: &Setup, trials: u64, seed: u64) -> Vec<Verdict> {
+fn verdicts(attack: PulseAttack, setup: &Setup, trials: u64, seed: u64) -> Vec<Verdict> {
     let model = PulseModel::new(&setup.link, Some(&attack), &setup.basis_probabilities());
     let h = model.h_x_given_e();
     let ts = |z: u64| setup.test_sample.size(z);
@@ -84,7 +84,7 @@ fn verdicts(attack: LinkAttack, setup: &Setup, trials: u64, seed: u64) -> Vec<Ve
 #[test]
 fn pns_breaks_the_naive_rule_at_ten_db() {
     let s = setup(KeyRule::NaiveSinglePhoton, 10.0, 10_000_000_000);
-    let v = verdicts(LinkAttack::PhotonNumberSplitting { fraction: 1.0 }, &s, 50, 1);
+    let v = verdicts(PulseAttack::PhotonNumberSplitting { fraction: 1.0 }, &s, 50, 1);
     assert!(v.iter().all(|x| *x == Verdict::Leak), "{v:?}");
 }
 
@@ -99,7 +99,7 @@ fn pns_never_breaks_gllp_or_the_decoy_rules() {
         .run(&strategy, |(seed, loss, fraction)| {
             for (i, rule) in rules.iter().enumerate() {
                 let s = setup(*rule, loss, 10_000_000_000);
-                let v = verdicts(LinkAttack::PhotonNumberSplitting { fraction }, &s, 10, seed);
+                let v = verdicts(PulseAttack::PhotonNumberSplitting { fraction }, &s, 10, seed);
                 prop_assert!(!v.contains(&Verdict::Leak), "{rule} leaked at {loss} dB, fraction {fraction}");
                 counter.borrow_mut()[i] += v.iter().filter(|x| matches!(x, Verdict::Secure | Verdict::Inconclusive)).count();
             }
@@ -114,7 +114,7 @@ fn pns_never_breaks_gllp_or_the_decoy_rules() {
 fn beam_splitting_never_breaks_the_decoy_rules() {
     for rule in [KeyRule::DecoyVacuumWeak, KeyRule::DecoyFinite] {
         for loss in [3.0, 10.0] {
-            let v = verdicts(LinkAttack::BeamSplitting { fraction: 1.0 }, &setup(rule, loss, 10_000_000_000), 20, 9);
+            let v = verdicts(PulseAttack::BeamSplitting { fraction: 1.0 }, &setup(rule, loss, 10_000_000_000), 20, 9);
             assert!(!v.contains(&Verdict::Leak), "{rule} at {loss} dB");
         }
     }
@@ -123,7 +123,7 @@ fn beam_splitting_never_breaks_the_decoy_rules() {
 #[test]
 fn link_sampler_matches_the_exact_gains_and_error_rates() {
     let s = setup(KeyRule::DecoyFinite, 10.0, 100_000_000);
-    let model = PulseModel::new(&s.link, Some(&LinkAttack::PhotonNumberSplitting { fraction: 0.5 }), &s.basis_probabilities());
+    let model = PulseModel::new(&s.link, Some(&PulseAttack::PhotonNumberSplitting { fraction: 0.5 }), &s.basis_probabilities());
     let ts = |z: u64| z / 20;
     let (mut pulses, mut det, mut xdet, mut xerr) = ([0u64; 3], [0u64; 3], [0u64; 3], [0u64; 3]);
     let (mut key, mut multi, mut entropy) = (0u64, 0u64, 0.0);
@@ -310,8 +310,8 @@ fn single_photon_link_model(which: usize, x: f64, setup: &Setup) -> PulseModel {
         0 => qubit("intercept-resend", "fraction", 0.4 * x),
         1 => qubit("cloner", "qber", 0.1 * x),
         2 => qubit("entangling-probe", "qber", 0.1 * x),
-        3 => PulseModel::new(&setup.link, Some(&LinkAttack::PhotonNumberSplitting { fraction: x }), &bp),
-        _ => PulseModel::new(&setup.link, Some(&LinkAttack::BeamSplitting { fraction: x }), &bp),
+        3 => PulseModel::new(&setup.link, Some(&PulseAttack::PhotonNumberSplitting { fraction: x }), &bp),
+        _ => PulseModel::new(&setup.link, Some(&PulseAttack::BeamSplitting { fraction: x }), &bp),
     }
 }
 
@@ -390,7 +390,7 @@ fn single_photon_link_sampler_matches_the_exact_model() {
     // a single-photon pulse.
     let link = Link { dark_count_probability: 1e-3, ..single_photon_link(10.0) };
     let s = Setup { link, ..setup(KeyRule::FiniteUncertainty, 10.0, 10_000_000) };
-    let model = PulseModel::new(&s.link, Some(&LinkAttack::BeamSplitting { fraction: 1.0 }), &s.basis_probabilities());
+    let model = PulseModel::new(&s.link, Some(&PulseAttack::BeamSplitting { fraction: 1.0 }), &s.basis_probabilities());
     assert!(model.h_x_given_e() < 1.0 - 1e-3, "Eve should know the dark-count bits");
     let ts = |z: u64| z / 20;
     let (mut pulses, mut det, mut xdet, mut xerr, mut key, mut entropy) = (0u64, 0u64, 0u64, 0u64, 0u64, 0.0);

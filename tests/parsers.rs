@@ -17,8 +17,12 @@ fn runner(cases: u32, seed: u8) -> TestRunner {
 
 fn exercise(text: &str) {
     if let Ok(file) = parse(text) {
-        let built = if file.is_link() { file.link_attack(&BTreeMap::new()).map(|_| ()) } else { file.attack(&BTreeMap::new()).map(|_| ()) };
-        if built.is_ok() && !file.is_link() {
+        let built = if file.is_pulse_attack() {
+            file.pulse_attack(&BTreeMap::new()).map(|_| ())
+        } else {
+            file.attack(&BTreeMap::new()).map(|_| ())
+        };
+        if built.is_ok() && !file.is_pulse_attack() {
             let a = file.attack(&BTreeMap::new()).unwrap();
             let _ = evaluate(&a, &EvalOptions::fast(Protocol::Bb84));
         }

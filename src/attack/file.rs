@@ -19,8 +19,9 @@
 //! file and the key (e.g. `operators[1][3][0]`), so `validate` reports them all at once.
 //! The built-in catalogue is embedded in the binary ([`builtin_catalogue`]).
 
-use super::{Attack, Value};
+use super::{AnyAttack, Attack, Value};
 use crate::error::{Error, Result};
+use crate::input::{check_keys, parse_toml, unknown_keys};
 use crate::numeric::linalg::{c, CMat, Tolerance};
 use std::collections::BTreeMap;
 use std::path::Path;
@@ -88,7 +89,7 @@ impl AttackFile {
     /// file has no parameters, so overrides are an error).
     pub fn attack(&self, overrides: &BTreeMap<String, Value>) -> Result<Attack> {
         match self {
-            AttackFile::Catalogue(e) if self.is_link() => Err(Error::input_key(
+            AttackFile::Catalogue(e) if self.is_pulse_attack() => Err(Error::input_key(
                 "family",
                 format!(
                     "`{}` is a link-level attack: use it in a campaign, whose setup describes the link (source, channel, detector)",
@@ -114,14 +115,23 @@ impl AttackFile {
             }
         }
     }
+    /// Builds the attack, of whichever kind the file describes, with `overrides` applied.
+    pub fn build(&self, overrides: &BTreeMap<String, Value>) -> Result<AnyAttack> {
+        if self.is_pulse_attack() {
+            self.pulse_attack(overrides).map(AnyAttack::Pulse)
+        } else {
+            self.attack(overrides).map(AnyAttack::Qubit)
+        }
+    }
+
     /// True for a catalogue entry of a link-level family (photon-number splitting, beam
     /// splitting), which acts on weak-coherent pulses rather than qubits.
-    pub fn is_link(&self) -> bool {
-        matches!(self, AttackFile::Catalogue(e) if super::pulse::LINK_FAMILIES.iter().any(|(n, _)| *n == e.family))
+    pub fn is_pulse_attack(&self) -> bool {
+        matches!(self, AttackFile::Catalogue(e) if super::pulse::PULSE_FAMILIES.iter().any(|(n, _)| *n == e.family))
     }
 
     /// The link-level attack of a link catalogue entry, with `overrides` applied.
-    pub fn link_attack(&self, overrides: &BTreeMap<String, Value>) -> Result<super::pulse::LinkAttack> {
+    pub fn pulse_attack(&self, overrides: &BTreeMap<String, Value>) -> Result<super::pulse::PulseAttack> {
         let AttackFile::Catalogue(e) = self else {
             return Err(Error::input_key("family", "a kraus attack is not a link attack"));
         };
@@ -140,7 +150,7 @@ impl AttackFile {
             Some(Value::Num(x)) => *x,
             Some(Value::Text(t)) => return Err(Error::input_key("params.fraction", format!("`{t}` is not a number in [0, 1]"))),
         };
-        super::pulse::LinkAttack::new(&e.family, fraction).map_err(|err| err.with_key("params"))
+        super::pulse::PulseAttack::new(&e.family, fraction).map_err(|err| err.with_key("params"))
     }
 
     /// The entry's sweep, if any.
@@ -176,8 +186,7 @@ pub fn validate(path: &Path) -> Vec<Error> {
         Err(errs) => errs.into_iter().map(|e| e.with_file(path)).collect(),
         Ok(file) => {
             let mut errs = Vec::new();
-            let build =
-                |o: &BTreeMap<String, Value>| if file.is_link() { file.link_attack(o).map(|_| ()) } else { file.attack(o).map(|_| ()) };
+            let build = |o: &BTreeMap<String, Value>| file.build(o).map(|_| ());
             if let Err(e) = build(&BTreeMap::new()) {
                 errs.push(e.with_file(path));
             }
@@ -199,8 +208,7 @@ pub fn validate(path: &Path) -> Vec<Error> {
 
 /// Parses the text of an attack file. Returns every problem found.
 pub fn parse(text: &str) -> std::result::Result<AttackFile, Vec<Error>> {
-    let table: toml::Table =
-        text.parse().map_err(|e: toml::de::Error| vec![Error::input(format!("not valid TOML: {}", e.message().trim()))])?;
+    let table = parse_toml(text).map_err(|e| vec![e])?;
     if table.contains_key("operators") {
         parse_kraus(&table)
     } else {
@@ -209,14 +217,7 @@ pub fn parse(text: &str) -> std::result::Result<AttackFile, Vec<Error>> {
 }
 
 fn parse_catalogue(t: &toml::Table) -> Result<AttackFile> {
-    for key in t.keys() {
-        if !["family", "description", "params", "sweep"].contains(&key.as_str()) {
-            return Err(Error::input_key(
-                key.clone(),
-                "unknown key; a catalogue entry has family, description, params, sweep (a kraus file has operators)",
-            ));
-        }
-    }
+    check_keys(t, &["family", "description", "params", "sweep"], "a catalogue entry (a kraus file has operators)")?;
     let family = match t.get("family") {
         Some(toml::Value::String(s)) => s.clone(),
         Some(_) => return Err(Error::input_key("family", "must be a string")),
@@ -224,7 +225,7 @@ fn parse_catalogue(t: &toml::Table) -> Result<AttackFile> {
             return Err(Error::input_key("family", "missing; an attack file needs `family` (catalogue entry) or `operators` (kraus file)"))
         }
     };
-    let is_link = super::pulse::LINK_FAMILIES.iter().any(|(n, _)| *n == family);
+    let is_link = super::pulse::PULSE_FAMILIES.iter().any(|(n, _)| *n == family);
     if !is_link {
         super::family(&family)?;
     }
@@ -275,11 +276,7 @@ pub fn params_table(v: &toml::Value) -> Result<BTreeMap<String, Value>> {
 }
 
 fn parse_sweep(s: &toml::Table) -> Result<Sweep> {
-    for key in s.keys() {
-        if !["param", "from", "to", "steps"].contains(&key.as_str()) {
-            return Err(Error::input_key(key.clone(), "unknown key; a sweep has param, from, to, steps"));
-        }
-    }
+    check_keys(s, &["param", "from", "to", "steps"], "a sweep")?;
     let param = match s.get("param") {
         Some(toml::Value::String(p)) => p.clone(),
         _ => return Err(Error::input_key("param", "missing or not a string: the name of the swept parameter")),
@@ -300,11 +297,7 @@ fn parse_sweep(s: &toml::Table) -> Result<Sweep> {
 
 fn parse_kraus(t: &toml::Table) -> std::result::Result<AttackFile, Vec<Error>> {
     let mut errs = Vec::new();
-    for key in t.keys() {
-        if !["name", "description", "eve_dim", "operators", "family"].contains(&key.as_str()) {
-            errs.push(Error::input_key(key.clone(), "unknown key; a kraus file has name, description, eve_dim, operators"));
-        }
-    }
+    errs.extend(unknown_keys(t, &["name", "description", "eve_dim", "operators", "family"], "a kraus file"));
     if let Some(f) = t.get("family") {
         if f.as_str() != Some("kraus") {
             errs.push(Error::input_key("family", "a file with operators must have family = \"kraus\" or no family"));
@@ -399,6 +392,20 @@ fn num_of(v: &toml::Value) -> Option<f64> {
         toml::Value::Integer(i) => Some(*i as f64),
         _ => None,
     }
+}
+
+/// The text of the built-in catalogue entry `name` (without `.toml`), or an error naming
+/// `key` that lists the entries.
+pub fn builtin_entry_text(name: &str, key: &str) -> Result<&'static str> {
+    let file_name = format!("{name}.toml");
+    builtin_catalogue().iter().find(|(n, _)| *n == file_name).map(|(_, t)| *t).ok_or_else(|| {
+        Error::input_key(key, format!("no built-in entry `{name}`; built-in entries are {}", builtin_entry_names().join(", ")))
+    })
+}
+
+/// Names of the built-in catalogue entries (`intercept-resend`, `universal-cloner`, …).
+pub fn builtin_entry_names() -> Vec<&'static str> {
+    builtin_catalogue().iter().map(|(n, _)| n.trim_end_matches(".toml")).collect()
 }
 
 /// The built-in catalogue, embedded at build time: `(file name, contents)`.

@@ -105,6 +105,18 @@ impl ParamSet {
     }
 }
 
+/// An attack of either kind the catalogue holds, built and validated: a channel applied to
+/// every single photon (the families of [`FAMILIES`] and kraus files), or an attack on the
+/// pulses of an optical link ([`pulse::PULSE_FAMILIES`]). Attack files build one with
+/// [`file::AttackFile::build`]; the campaign engine matches on it.
+#[derive(Clone, Debug)]
+pub enum AnyAttack {
+    /// A single-photon attack.
+    Qubit(Attack),
+    /// An attack on the pulses of an optical link.
+    Pulse(pulse::PulseAttack),
+}
+
 /// A built-in attack family.
 pub trait Family: Sync {
     /// Interface name (`intercept-resend`, `cloner`, …).
@@ -133,7 +145,7 @@ pub fn family(name: &str) -> Result<&'static dyn Family> {
         let names: Vec<&str> = FAMILIES.iter().map(|f| f.name()).collect();
         let hint = if name == "kraus" {
             "; a kraus attack is read from a file (--attack-file)"
-        } else if pulse::LINK_FAMILIES.iter().any(|(n, _)| *n == name) {
+        } else if pulse::PULSE_FAMILIES.iter().any(|(n, _)| *n == name) {
             "; this is a link-level attack: use it in a campaign, whose setup describes the link (source, channel, detector)"
         } else {
             ""

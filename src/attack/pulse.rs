@@ -26,18 +26,18 @@ use crate::protocol::optical::{Link, Photons, E0};
 use serde::Serialize;
 
 /// Link-level attack families, by name.
-pub const LINK_FAMILIES: &[(&str, &str)] = &[
+pub const PULSE_FAMILIES: &[(&str, &str)] = &[
     ("photon-number-splitting", "photon-number splitting with gain matching"),
     ("beam-splitting", "beam splitter taking the fibre loss, with a quantum memory"),
 ];
 
 /// Their one parameter.
-pub const LINK_PARAMS: &[ParamSpec] =
+pub const PULSE_PARAMS: &[ParamSpec] =
     &[ParamSpec { name: "fraction", kind: ParamKind::Number { lo: 0.0, hi: 1.0 }, help: "fraction of the pulses Eve attacks (default 1)" }];
 
 /// A link-level attack.
 #[derive(Clone, Copy, Debug, PartialEq, Serialize)]
-pub enum LinkAttack {
+pub enum PulseAttack {
     /// Photon-number splitting on a fraction of the pulses.
     PhotonNumberSplitting {
         /// Fraction of pulses attacked.
@@ -50,27 +50,27 @@ pub enum LinkAttack {
     },
 }
 
-impl LinkAttack {
+impl PulseAttack {
     /// Builds from a family name and its `fraction`.
-    pub fn new(family: &str, fraction: f64) -> Result<LinkAttack> {
+    pub fn new(family: &str, fraction: f64) -> Result<PulseAttack> {
         let fraction = check_range("fraction", fraction, 0.0, 1.0)?;
         match family {
-            "photon-number-splitting" => Ok(LinkAttack::PhotonNumberSplitting { fraction }),
-            "beam-splitting" => Ok(LinkAttack::BeamSplitting { fraction }),
+            "photon-number-splitting" => Ok(PulseAttack::PhotonNumberSplitting { fraction }),
+            "beam-splitting" => Ok(PulseAttack::BeamSplitting { fraction }),
             other => Err(Error::input_key("family", format!("`{other}` is not a link attack"))),
         }
     }
     /// Family name.
     pub fn name(&self) -> &'static str {
         match self {
-            LinkAttack::PhotonNumberSplitting { .. } => "photon-number-splitting",
-            LinkAttack::BeamSplitting { .. } => "beam-splitting",
+            PulseAttack::PhotonNumberSplitting { .. } => "photon-number-splitting",
+            PulseAttack::BeamSplitting { .. } => "beam-splitting",
         }
     }
     /// The attacked fraction.
     pub fn fraction(&self) -> f64 {
         match *self {
-            LinkAttack::PhotonNumberSplitting { fraction } | LinkAttack::BeamSplitting { fraction } => fraction,
+            PulseAttack::PhotonNumberSplitting { fraction } | PulseAttack::BeamSplitting { fraction } => fraction,
         }
     }
 }
@@ -221,10 +221,10 @@ pub fn pns_strategy(link: &Link, signal: Photons) -> PnsStrategy {
 /// passed: P(Bob's photons click, Eve holds one) = 1 − (1 − tη_B)ⁿ − tⁿ(1 − (1 − η_B)ⁿ).
 /// For Poisson pulses this gives the familiar 1 − e^{−μ(1−t)} independently of Bob's click;
 /// a single photon that Bob detects is never known to her.
-pub fn attacked(link: &Link, attack: &LinkAttack, photons: Photons, signal: Photons) -> DetectionModel {
+pub fn attacked(link: &Link, attack: &PulseAttack, photons: Photons, signal: Photons) -> DetectionModel {
     let h = honest(link, photons);
     let a = match attack {
-        LinkAttack::PhotonNumberSplitting { .. } => {
+        PulseAttack::PhotonNumberSplitting { .. } => {
             let s = pns_strategy(link, signal);
             let eta_b = link.detector_efficiency;
             let mut m = DetectionModel::zero();
@@ -238,7 +238,7 @@ pub fn attacked(link: &Link, attack: &LinkAttack, photons: Photons, signal: Phot
             }
             m
         }
-        LinkAttack::BeamSplitting { .. } => {
+        PulseAttack::BeamSplitting { .. } => {
             let t = link.channel_transmittance();
             let eta_b = link.detector_efficiency;
             let mut m = DetectionModel::zero();
@@ -363,7 +363,7 @@ mod tests {
         let l = Link { dark_count_probability: 1e-6, misalignment: 0.02, detector_efficiency: 0.1, ..link(10.0) };
         let half = Photons::Poisson { mean: 0.5 };
         let h = honest(&l, half);
-        let pns = attacked(&l, &LinkAttack::PhotonNumberSplitting { fraction: 1.0 }, half, half);
+        let pns = attacked(&l, &PulseAttack::PhotonNumberSplitting { fraction: 1.0 }, half, half);
         assert_relative_eq!(h.gain, pns.gain, max_relative = 1e-9);
         // Error rate unchanged up to the share of dark counts.
         assert!((h.error_rate(0) - pns.error_rate(0)).abs() < 1e-3);
@@ -397,11 +397,11 @@ mod tests {
         let l =
             Link { source: Source::SinglePhoton, dark_count_probability: 1e-4, misalignment: 0.02, detector_efficiency: 0.2, ..link(7.0) };
         let h = honest(&l, Photons::Single);
-        let pns = attacked(&l, &LinkAttack::PhotonNumberSplitting { fraction: 1.0 }, Photons::Single, Photons::Single);
+        let pns = attacked(&l, &PulseAttack::PhotonNumberSplitting { fraction: 1.0 }, Photons::Single, Photons::Single);
         assert_relative_eq!(pns.gain, h.gain, max_relative = 1e-12);
         assert_relative_eq!(pns.error_rate(0), h.error_rate(0), max_relative = 1e-9);
         assert_relative_eq!(pns.h_x_given_e(), 1.0, max_relative = 1e-12);
-        let bs = attacked(&l, &LinkAttack::BeamSplitting { fraction: 1.0 }, Photons::Single, Photons::Single);
+        let bs = attacked(&l, &PulseAttack::BeamSplitting { fraction: 1.0 }, Photons::Single, Photons::Single);
         assert_relative_eq!(bs.gain, h.gain, max_relative = 1e-12);
         let t = l.channel_transmittance();
         let known = (1.0 - t) * l.dark_count_probability / h.gain;
@@ -417,7 +417,7 @@ mod tests {
         for (mu, loss, eta_b, y0) in [(0.5, 3.0, 0.1, 1e-6), (0.1, 10.0, 1.0, 0.0), (0.8, 20.0, 0.3, 1e-4)] {
             let l = Link { detector_efficiency: eta_b, dark_count_probability: y0, ..link(loss) };
             let p = Photons::Poisson { mean: mu };
-            let bs = attacked(&l, &LinkAttack::BeamSplitting { fraction: 1.0 }, p, p);
+            let bs = attacked(&l, &PulseAttack::BeamSplitting { fraction: 1.0 }, p, p);
             let p_e = 1.0 - (-mu * (1.0 - l.channel_transmittance())).exp();
             assert_relative_eq!(1.0 - bs.h_x_given_e(), p_e, max_relative = 1e-9);
             assert_relative_eq!(bs.gain, honest(&l, p).gain, max_relative = 1e-12);
@@ -429,7 +429,7 @@ mod tests {
         // REFERENCES.md §10 [N]: μ = 0.1, channel transmittance 0.1: p_E = 0.086069.
         let l = Link { channel_loss_db: 10.0, detector_efficiency: 1.0, ..Link::default() };
         let weak = Photons::Poisson { mean: 0.1 };
-        let s = attacked(&l, &LinkAttack::BeamSplitting { fraction: 1.0 }, weak, weak);
+        let s = attacked(&l, &PulseAttack::BeamSplitting { fraction: 1.0 }, weak, weak);
         assert_relative_eq!(1.0 - s.h_x_given_e(), 0.086069, max_relative = 1e-5);
         assert_relative_eq!(s.gain, honest(&l, weak).gain, max_relative = 1e-12);
     }

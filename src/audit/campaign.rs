@@ -17,12 +17,13 @@
 //! ```
 //! The engine that runs a campaign is [`super::engine`].
 
-use crate::attack::file::{builtin_catalogue, parse as parse_attack, AttackFile, Sweep};
+use crate::attack::file::{builtin_entry_text, parse as parse_attack, AttackFile, Sweep};
 use crate::attack::Value;
 use crate::audit::rules::KeyRule;
 use crate::audit::sample::Sampler;
 use crate::audit::setup::Setup;
 use crate::error::{Error, Result};
+use crate::input::{check_keys, parse_toml};
 use std::collections::BTreeMap;
 use std::path::{Path, PathBuf};
 
@@ -94,13 +95,8 @@ impl Campaign {
 
     /// Parses campaign text; relative paths resolve against `base` (None: no files allowed).
     pub fn parse(text: &str, origin: &str, base: Option<&Path>) -> Result<Campaign> {
-        let t: toml::Table = text.parse().map_err(|e: toml::de::Error| Error::input(format!("not valid TOML: {}", e.message().trim())))?;
-        const KEYS: &[&str] = &["name", "seed", "trials", "sampler", "setup", "rules", "attacks"];
-        for key in t.keys() {
-            if !KEYS.contains(&key.as_str()) {
-                return Err(Error::input_key(key.clone(), format!("unknown key; a campaign has {}", KEYS.join(", "))));
-            }
-        }
+        let t = parse_toml(text)?;
+        check_keys(&t, &["name", "seed", "trials", "sampler", "setup", "rules", "attacks"], "a campaign")?;
         let name = match t.get("name") {
             Some(toml::Value::String(s)) if valid_name(s) => s.clone(),
             Some(_) => return Err(Error::input_key("name", "must be a non-empty string of letters, digits, '-', '_' or '.'")),
@@ -181,19 +177,10 @@ fn resolve(base: Option<&Path>, p: &str) -> Result<PathBuf> {
 }
 
 fn parse_entry(t: &toml::Table, base: Option<&Path>) -> Result<AttackEntry> {
-    const KEYS: &[&str] = &["builtin", "file", "steps", "from", "to", "params"];
-    for key in t.keys() {
-        if !KEYS.contains(&key.as_str()) {
-            return Err(Error::input_key(key.clone(), format!("unknown key; an attack entry has {}", KEYS.join(", "))));
-        }
-    }
+    check_keys(t, &["builtin", "file", "steps", "from", "to", "params"], "an attack entry")?;
     let (origin, text) = match (t.get("builtin"), t.get("file")) {
         (Some(toml::Value::String(name)), None) => {
-            let file_name = format!("{name}.toml");
-            let text = builtin_catalogue().iter().find(|(n, _)| *n == file_name).map(|(_, t)| t.to_string()).ok_or_else(|| {
-                let names: Vec<&str> = builtin_catalogue().iter().map(|(n, _)| n.trim_end_matches(".toml")).collect();
-                Error::input_key("builtin", format!("no built-in entry `{name}`; built-in entries are {}", names.join(", ")))
-            })?;
+            let text = builtin_entry_text(name, "builtin")?.to_string();
             (format!("builtin:{name}"), text)
         }
         (None, Some(toml::Value::String(p))) => {
@@ -232,11 +219,7 @@ fn parse_entry(t: &toml::Table, base: Option<&Path>) -> Result<AttackEntry> {
     let entry = AttackEntry { label, origin, text, file, sweep, params };
     // Build every point once now, so bad values are reported before any work.
     for (_, overrides) in entry.points() {
-        if entry.file.is_link() {
-            entry.file.link_attack(&overrides)?;
-        } else {
-            entry.file.attack(&overrides)?;
-        }
+        entry.file.build(&overrides)?;
     }
     Ok(entry)
 }

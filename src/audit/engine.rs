@@ -8,7 +8,7 @@ use super::campaign::Campaign;
 use super::rules::KeyRule;
 use super::sample::sample_block;
 use super::{stats, trial};
-use crate::attack::Value;
+use crate::attack::{AnyAttack, Value};
 use crate::error::Result;
 use crate::exact::eval::{evaluate, EvalOptions, Evaluation};
 use crate::exact::pulses::{pulse_evaluation, PulseModel};
@@ -48,7 +48,7 @@ pub struct PointResult {
 /// A point ready to sample.
 enum PointModel {
     Qubit(SignalModel),
-    Link(PulseModel),
+    Pulse(PulseModel),
 }
 
 /// Runs the campaign; `progress` is called once per finished point.
@@ -68,30 +68,32 @@ pub fn run(c: &Campaign, progress: &(dyn Fn() + Sync)) -> Result<Vec<PointResult
         .map(|(index, (ei, entry, swept, overrides))| {
             // Every link but the ideal single-photon one goes through the link model.
             let link_model = !c.setup.link.is_ideal_single_photon();
-            let (family, params, exact, model, note) = if entry.file.is_link() {
-                let attack = entry.file.link_attack(overrides).map_err(|e| e.with_file(&entry.origin))?;
-                let model = PulseModel::new(&c.setup.link, Some(&attack), &basis_prob);
-                let exact = pulse_evaluation(&model, c.setup.protocol);
-                let note = model.note.clone();
-                (
-                    attack.name().to_string(),
-                    vec![("fraction".to_string(), Value::Num(attack.fraction()))],
-                    exact,
-                    PointModel::Link(model),
-                    note,
-                )
-            } else if link_model {
-                let attack = entry.file.attack(overrides).map_err(|e| e.with_file(&entry.origin))?;
-                let qubit = evaluate(&attack, &EvalOptions::fast(c.setup.protocol))?;
-                let model = PulseModel::qubit(&c.setup.link, &attack, c.setup.protocol, &basis_prob, qubit.h_x_given_e);
-                let exact = pulse_evaluation(&model, c.setup.protocol);
-                let note = model.note.clone();
-                (attack.family.clone(), attack.params.0.clone(), exact, PointModel::Link(model), note)
-            } else {
-                let attack = entry.file.attack(overrides).map_err(|e| e.with_file(&entry.origin))?;
-                let exact = evaluate(&attack, &eval_opts)?;
-                let model = SignalModel::new(&attack, c.setup.protocol, &basis_prob);
-                (attack.family.clone(), attack.params.0.clone(), exact, PointModel::Qubit(model), String::new())
+            let attack = entry.file.build(overrides).map_err(|e| e.with_file(&entry.origin))?;
+            let (family, params, exact, model, note) = match attack {
+                AnyAttack::Pulse(attack) => {
+                    let model = PulseModel::new(&c.setup.link, Some(&attack), &basis_prob);
+                    let exact = pulse_evaluation(&model, c.setup.protocol);
+                    let note = model.note.clone();
+                    (
+                        attack.name().to_string(),
+                        vec![("fraction".to_string(), Value::Num(attack.fraction()))],
+                        exact,
+                        PointModel::Pulse(model),
+                        note,
+                    )
+                }
+                AnyAttack::Qubit(attack) if link_model => {
+                    let qubit = evaluate(&attack, &EvalOptions::fast(c.setup.protocol))?;
+                    let model = PulseModel::qubit(&c.setup.link, &attack, c.setup.protocol, &basis_prob, qubit.h_x_given_e);
+                    let exact = pulse_evaluation(&model, c.setup.protocol);
+                    let note = model.note.clone();
+                    (attack.family.clone(), attack.params.0.clone(), exact, PointModel::Pulse(model), note)
+                }
+                AnyAttack::Qubit(attack) => {
+                    let exact = evaluate(&attack, &eval_opts)?;
+                    let model = SignalModel::new(&attack, c.setup.protocol, &basis_prob);
+                    (attack.family.clone(), attack.params.0.clone(), exact, PointModel::Qubit(model), String::new())
+                }
             };
             let setup = &c.setup;
             let test_size = |z: u64| setup.test_sample.size(z);
@@ -101,7 +103,7 @@ pub fn run(c: &Campaign, progress: &(dyn Fn() + Sync)) -> Result<Vec<PointResult
                     let mut rng = trial_rng(c.seed, index as u64, t);
                     let counts = match &model {
                         PointModel::Qubit(m) => sample_block(c.sampler, m, setup.signals, &test_size, &mut rng),
-                        PointModel::Link(m) => crate::audit::sample::pulses::sample(m, setup.signals, &test_size, &mut rng),
+                        PointModel::Pulse(m) => crate::audit::sample::pulses::sample(m, setup.signals, &test_size, &mut rng),
                     };
                     c.rules.iter().map(|&rule| trial::judge(&counts, rule, &rule_params, exact.h_x_given_e)).collect()
                 })
@@ -109,7 +111,7 @@ pub fn run(c: &Campaign, progress: &(dyn Fn() + Sync)) -> Result<Vec<PointResult
             progress();
             let exact_eve_guess = match &model {
                 PointModel::Qubit(m) => m.eve_guess_rate(0),
-                PointModel::Link(_) => exact.p_guess_z,
+                PointModel::Pulse(_) => exact.p_guess_z,
             };
             Ok(c.rules
                 .iter()

@@ -14,6 +14,7 @@
 
 use crate::audit::rules::{KeyRule, RuleParams};
 use crate::error::{check_range, Error, Result};
+use crate::input::{check_keys, number, parse_toml};
 use crate::protocol::optical::Link;
 use crate::protocol::Protocol;
 use serde::Serialize;
@@ -106,19 +107,14 @@ impl Setup {
     /// Reads and validates a setup file.
     pub fn load(path: &Path) -> Result<Setup> {
         let text = std::fs::read_to_string(path).map_err(|e| Error::from(e).with_file(path))?;
-        let table: toml::Table =
-            text.parse().map_err(|e: toml::de::Error| Error::input(format!("not valid TOML: {}", e.message().trim())).with_file(path))?;
+        let table: toml::Table = parse_toml(&text).map_err(|e| e.with_file(path))?;
         Setup::from_table(&table).map_err(|e| e.with_file(path))
     }
 
     /// Validates a parsed TOML table; every key is optional and defaults as in
     /// [`Setup::default`].
     pub fn from_table(t: &toml::Table) -> Result<Setup> {
-        for key in t.keys() {
-            if !KEYS.contains(&key.as_str()) {
-                return Err(Error::input_key(key.clone(), format!("unknown key; a setup has {}", KEYS.join(", "))));
-            }
-        }
+        check_keys(t, KEYS, "a setup")?;
         let mut s = Setup::default();
         if let Some(v) = t.get("name") {
             s.name = v
@@ -231,14 +227,6 @@ impl Setup {
             Protocol::Bb84 => vec![self.basis_z_probability, rest],
             Protocol::SixState => vec![self.basis_z_probability, rest / 2.0, rest / 2.0],
         }
-    }
-}
-
-fn number(v: &toml::Value, key: &str) -> Result<f64> {
-    match v {
-        toml::Value::Float(x) if x.is_finite() => Ok(*x),
-        toml::Value::Integer(i) => Ok(*i as f64),
-        _ => Err(Error::input_key(key, "must be a finite number")),
     }
 }
 

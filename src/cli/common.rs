@@ -22,7 +22,9 @@ pub enum Outcome {
 /// Which single-photon attack a command works on (shared by `eval` and `rounds`).
 #[derive(clap::Args, Debug)]
 pub struct AttackArgs {
-    /// Built-in attack family: intercept-resend, cloner, entangling-probe, pauli.
+    /// Built-in attack: a family (intercept-resend, cloner, entangling-probe, pauli) or a
+    /// catalogue entry (breidbart, universal-cloner, phase-covariant-cloner, …) with its
+    /// parameters; --set overrides either.
     #[arg(long, conflicts_with = "attack_file", required_unless_present = "attack_file")]
     pub attack: Option<String>,
     /// Attack file: a catalogue entry or a kraus file (see attacks/README.md).
@@ -38,13 +40,35 @@ impl AttackArgs {
     pub fn build(&self) -> Result<Attack> {
         let sets = parse_sets(&self.set)?;
         match (&self.attack, &self.attack_file) {
-            (Some(f), None) => Attack::builtin(f, &sets).map_err(|e| {
-                if e.key().is_some() && !e.message().contains("unknown attack family") {
-                    e.with_key("--set")
+            (Some(name), None) => {
+                // Parameter errors name their key; under `eval` that key came from `--set`.
+                let from_set = |e: Error| if e.key().is_some() { e.with_key("--set") } else { e };
+                if let Ok(family) = crate::attack::family(name) {
+                    Attack::builtin(family.name(), &sets).map_err(from_set)
+                } else if attack_file::builtin_entry_names().contains(&name.as_str()) {
+                    let text = attack_file::builtin_entry_text(name, "--attack")?;
+                    let entry = attack_file::parse(text).map_err(|mut errs| errs.remove(0))?;
+                    if entry.is_pulse_attack() {
+                        return Err(Error::input_key(
+                            "--attack",
+                            format!("`{name}` attacks the pulses of an optical link: use it in a campaign, whose setup describes the link"),
+                        ));
+                    }
+                    let mut attack = entry.attack(&sets).map_err(from_set)?;
+                    attack.label = name.clone();
+                    Ok(attack)
                 } else {
-                    e
+                    let families: Vec<&str> = FAMILIES.iter().map(|f| f.name()).collect();
+                    Err(Error::input_key(
+                        "--attack",
+                        format!(
+                            "no built-in attack `{name}`; families are {}; catalogue entries are {}",
+                            families.join(", "),
+                            attack_file::builtin_entry_names().join(", ")
+                        ),
+                    ))
                 }
-            }),
+            }
             (None, Some(p)) => attack_file::load(p)?.attack(&sets).map_err(|e| e.with_file(p)),
             _ => Err(Error::input("give exactly one of --attack and --attack-file")),
         }

@@ -29,7 +29,6 @@ use crate::protocol::{Basis, Protocol};
 use crate::quantum::measures::{
     accessible_information, binary_entropy, mutual_information, trace_norm, von_neumann_entropy, AccessibleOptions,
 };
-use serde::Serialize;
 
 /// Slack allowed on the proven inequalities before a violation is reported: 1e-9.
 pub const BOUND_SLACK: f64 = 1e-9;
@@ -56,8 +55,9 @@ impl EvalOptions {
     }
 }
 
-/// Everything the evaluator reports for one attack. Field names are the JSON keys.
-#[derive(Clone, Debug, Serialize, PartialEq)]
+/// Everything the evaluator reports for one attack. Field names are the JSON keys; the
+/// numeric ones are listed, with their CSV columns, in [`QUANTITIES`].
+#[derive(Clone, Debug, PartialEq)]
 pub struct Evaluation {
     /// QBER in the Z (key) basis.
     pub qber_z: f64,
@@ -108,6 +108,94 @@ pub struct Evaluation {
     pub eve_dim: usize,
     /// Protocol judged against (extra).
     pub protocol: Protocol,
+}
+
+/// How the human table of `eval` shows a quantity.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub enum Shown {
+    /// Ten decimals.
+    Fixed,
+    /// One significant digit in scientific notation (tolerances and gaps).
+    Scientific,
+    /// CSV and JSON only.
+    Hidden,
+}
+
+/// One reported quantity of an [`Evaluation`]. [`QUANTITIES`] is the only list of them:
+/// the JSON keys of `eval --json`, the quantity columns of the sweep and campaign CSVs and
+/// the rows of the human table are all generated from it.
+#[derive(Clone, Copy, Debug)]
+pub struct Quantity {
+    /// JSON key (the [`Evaluation`] field name).
+    pub key: &'static str,
+    /// CSV column, with its unit in the name (`_bits`) where it has one.
+    pub column: &'static str,
+    /// What it is, for the human table.
+    pub help: &'static str,
+    /// How the human table shows it.
+    pub shown: Shown,
+    /// Its value; `None` when it was not computed (accessible information on request only).
+    pub value: fn(&Evaluation) -> Option<f64>,
+}
+
+impl Quantity {
+    /// The quantity whose CSV column is `column`.
+    ///
+    /// # Panics
+    /// If there is none (a programming error in a column list).
+    #[track_caller]
+    pub fn by_column(column: &str) -> &'static Quantity {
+        QUANTITIES.iter().find(|q| q.column == column).unwrap_or_else(|| panic!("no evaluation quantity has CSV column `{column}`"))
+    }
+}
+
+macro_rules! quantity {
+    ($key:ident, $column:literal, $shown:ident, $help:literal) => {
+        Quantity { key: stringify!($key), column: $column, help: $help, shown: Shown::$shown, value: |e| Some(e.$key) }
+    };
+    ($key:ident?, $column:literal, $shown:ident, $help:literal) => {
+        Quantity { key: stringify!($key), column: $column, help: $help, shown: Shown::$shown, value: |e| e.$key }
+    };
+}
+
+/// Every numeric quantity of an [`Evaluation`], in the order of the sweep CSV.
+pub const QUANTITIES: &[Quantity] = &[
+    quantity!(qber_z, "qber_z", Fixed, "error rate, Z (key) basis"),
+    quantity!(qber_x, "qber_x", Fixed, "error rate, X basis"),
+    quantity!(qber_y, "qber_y", Fixed, "error rate, Y basis"),
+    quantity!(p_guess_z, "p_guess_z", Fixed, "Eve's Helstrom guessing probability, Z"),
+    quantity!(p_guess_x, "p_guess_x", Fixed, "same, X"),
+    quantity!(p_guess_y, "p_guess_y", Fixed, "same, Y"),
+    quantity!(holevo_z, "holevo_z_bits", Fixed, "Holevo quantity of Eve's states, Z (bits)"),
+    quantity!(holevo_x, "holevo_x_bits", Fixed, "same, X (bits)"),
+    quantity!(holevo_y, "holevo_y_bits", Fixed, "same, Y (bits)"),
+    quantity!(h_x_given_e, "h_x_given_e_bits", Fixed, "H(X|E) of the key bit (bits)"),
+    quantity!(accessible_z?, "accessible_z_bits", Fixed, "accessible information, Z (bits)"),
+    quantity!(accessible_x?, "accessible_x_bits", Fixed, "accessible information, X (bits)"),
+    quantity!(i_ab, "i_ab_bits", Fixed, "I(A:B), Z basis (bits)"),
+    quantity!(game_win, "game_win", Fixed, "guessing game with honest Bob (bound 0.8535533906)"),
+    quantity!(bound_rate, "bound_rate_bits", Fixed, "proven rate at these QBERs (bits/sifted bit)"),
+    quantity!(attack_rate, "attack_rate_bits", Fixed, "Devetak-Winter rate against this attack"),
+    quantity!(individual_rate?, "individual_rate_bits", Fixed, "Csiszar-Korner rate, attack measured individually"),
+    quantity!(margin, "margin_bits", Fixed, "H(X|E) minus what the bound assumes (>= 0)"),
+    quantity!(h_min_x_given_e, "h_min_x_given_e_bits", Hidden, "min-entropy -log2 p_guess_z (bits)"),
+    quantity!(accessible_gap?, "accessible_gap_bits", Scientific, "upper bound minus accessible value, worse of Z, X (bits)"),
+];
+
+impl Evaluation {
+    /// The JSON object of the evaluation: every [`QUANTITIES`] key (null when not computed
+    /// or NaN) and the extras `accessible_converged`, `pauli_weights`, `eve_dim`, `protocol`.
+    pub fn to_json(&self) -> serde_json::Map<String, serde_json::Value> {
+        let mut m = serde_json::Map::new();
+        for q in QUANTITIES {
+            m.insert(q.key.to_string(), (q.value)(self).map_or(serde_json::Value::Null, serde_json::Value::from));
+        }
+        m.insert("accessible_converged".into(), self.accessible_converged.map_or(serde_json::Value::Null, serde_json::Value::from));
+        m.insert("pauli_weights".into(), self.pauli_weights.iter().map(|&w| serde_json::Value::from(w)).collect());
+        m.insert("eve_dim".into(), self.eve_dim.into());
+        m.insert("protocol".into(), self.protocol.to_string().into());
+        m
+    }
 }
 
 /// Bob's and Eve's states conditioned on Alice sending one signal.

@@ -7,7 +7,7 @@
 
 use super::eval::Evaluation;
 use super::signal::{SignalModel, CELL_CATEGORY};
-use crate::attack::pulse::{attacked, honest, qubit_on_single_photons, DetectionModel, LinkAttack};
+use crate::attack::pulse::{attacked, honest, qubit_on_single_photons, DetectionModel, PulseAttack};
 use crate::attack::Attack;
 use crate::protocol::optical::{Link, Photons};
 use crate::protocol::Protocol;
@@ -28,7 +28,7 @@ pub struct PulseModel {
 
 impl PulseModel {
     /// A link-level attack, or the honest link when `attack` is None.
-    pub fn new(link: &Link, attack: Option<&LinkAttack>, basis_prob: &[f64]) -> PulseModel {
+    pub fn new(link: &Link, attack: Option<&PulseAttack>, basis_prob: &[f64]) -> PulseModel {
         let settings = link.source.settings();
         let signal = settings[0].0;
         let models = settings
@@ -39,7 +39,7 @@ impl PulseModel {
             })
             .collect();
         let mut note = String::new();
-        if let Some(LinkAttack::PhotonNumberSplitting { fraction }) = attack {
+        if let Some(PulseAttack::PhotonNumberSplitting { fraction }) = attack {
             if *fraction > 0.0 && !crate::attack::pulse::pns_strategy(link, signal).matched {
                 note = "photon-number splitting cannot reach the honest signal gain on this link (Eve forwards every pulse)".into();
             }

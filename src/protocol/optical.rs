@@ -10,6 +10,7 @@
 //! gate. No attack or key-length logic lives here.
 
 use crate::error::{check_range, Error, Result};
+use crate::input::{check_keys, number as num};
 use serde::Serialize;
 
 /// Error rate of a dark count (random bit).
@@ -232,20 +233,7 @@ impl Link {
 }
 
 fn allowed(t: &toml::Table, keys: &[&str]) -> Result<()> {
-    for k in t.keys() {
-        if !keys.contains(&k.as_str()) {
-            return Err(Error::input_key(k.clone(), format!("unknown key; allowed: {}", keys.join(", "))));
-        }
-    }
-    Ok(())
-}
-
-fn num(v: &toml::Value, key: &str) -> Result<f64> {
-    match v {
-        toml::Value::Float(x) if x.is_finite() => Ok(*x),
-        toml::Value::Integer(i) => Ok(*i as f64),
-        _ => Err(Error::input_key(key, "must be a finite number")),
-    }
+    check_keys(t, keys, "this table")
 }
 
 fn parse_source(t: &toml::Table) -> Result<Source> {

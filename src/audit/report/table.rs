@@ -33,120 +33,104 @@
 use super::params_string;
 use crate::audit::{Campaign, PointResult};
 use crate::error::{Error, ErrorKind, Result};
+use crate::exact::eval::Quantity;
 use crate::exact::sweep::fmt_num;
 
-/// The header, in order.
-pub const COLUMNS: &[&str] = &[
-    "campaign",
-    "attack",
-    "family",
-    "point",
-    "params",
-    "sweep_param",
-    "sweep_value",
-    "protocol",
-    "key_rule",
-    "signals",
-    "trials",
-    "qber_z",
-    "qber_x",
-    "qber_y",
-    "p_guess_z",
-    "holevo_z_bits",
-    "h_x_given_e_bits",
-    "accessible_z_bits",
-    "accessible_gap_bits",
-    "bound_rate_bits",
-    "attack_rate_bits",
-    "margin_bits",
-    "mc_qber_z",
-    "mc_qber_x",
-    "mc_eve_guess_rate",
-    "mc_key_fraction_single_photon",
-    "mc_key_fraction_multi_photon",
-    "mean_key_bits_n",
-    "abort_probability",
-    "abort_ci_low",
-    "abort_ci_high",
-    "key_length_mean_bits",
-    "key_length_q05_bits",
-    "key_length_q95_bits",
-    "secure_fraction",
-    "inconclusive_fraction",
-    "no_key_fraction",
-    "leak_probability",
-    "leak_ci_low",
-    "leak_ci_high",
-    "mean_excess_bits",
-    "mean_capacity_bits",
-    "mean_achievable_bits",
-    "verdict",
-    "note",
+/// One column: its header and how a row's cell is made.
+struct Column {
+    header: &'static str,
+    cell: fn(&Campaign, &PointResult) -> String,
+}
+
+/// A column of the evaluator's quantities, under the quantity's own CSV column name.
+macro_rules! exact {
+    ($column:literal) => {
+        Column { header: $column, cell: |_, r| fmt_num((Quantity::by_column($column).value)(&r.exact).unwrap_or(f64::NAN)) }
+    };
+}
+
+macro_rules! column {
+    ($header:literal, |$c:ident, $r:ident| $cell:expr) => {
+        Column { header: $header, cell: |$c, $r| $cell }
+    };
+}
+
+/// The columns, in order.
+const COLUMNS: &[Column] = &[
+    column!("campaign", |c, _r| c.name.clone()),
+    column!("attack", |_c, r| r.attack.clone()),
+    column!("family", |_c, r| r.family.clone()),
+    column!("point", |_c, r| r.index.to_string()),
+    column!("params", |_c, r| params_string(&r.params)),
+    column!("sweep_param", |_c, r| r.swept.as_ref().map_or(String::new(), |(p, _)| p.clone())),
+    column!("sweep_value", |_c, r| r.swept.as_ref().map_or(String::new(), |(_, v)| fmt_num(*v))),
+    column!("protocol", |c, _r| c.setup.protocol.to_string()),
+    column!("key_rule", |_c, r| r.rule.to_string()),
+    column!("signals", |c, _r| c.setup.signals.to_string()),
+    column!("trials", |_c, r| r.stats.trials.to_string()),
+    exact!("qber_z"),
+    exact!("qber_x"),
+    exact!("qber_y"),
+    exact!("p_guess_z"),
+    exact!("holevo_z_bits"),
+    exact!("h_x_given_e_bits"),
+    exact!("accessible_z_bits"),
+    exact!("accessible_gap_bits"),
+    exact!("bound_rate_bits"),
+    exact!("attack_rate_bits"),
+    exact!("margin_bits"),
+    column!("mc_qber_z", |_c, r| fmt_num(r.stats.mean_e_z)),
+    column!("mc_qber_x", |_c, r| fmt_num(r.stats.mean_e_x)),
+    column!("mc_eve_guess_rate", |_c, r| fmt_num(r.stats.eve_guess_rate)),
+    column!("mc_key_fraction_single_photon", |_c, r| fmt_num(r.stats.key_fraction_single)),
+    column!("mc_key_fraction_multi_photon", |_c, r| fmt_num(r.stats.key_fraction_multi)),
+    column!("mean_key_bits_n", |_c, r| fmt_num(r.stats.mean_key_bits)),
+    column!("abort_probability", |_c, r| fmt_num(r.stats.abort_probability)),
+    column!("abort_ci_low", |_c, r| fmt_num(r.stats.abort_ci.0)),
+    column!("abort_ci_high", |_c, r| fmt_num(r.stats.abort_ci.1)),
+    column!("key_length_mean_bits", |_c, r| fmt_num(r.stats.key_length_mean)),
+    column!("key_length_q05_bits", |_c, r| r.stats.key_length_q05.to_string()),
+    column!("key_length_q95_bits", |_c, r| r.stats.key_length_q95.to_string()),
+    column!("secure_fraction", |_c, r| fmt_num(r.stats.secure_fraction)),
+    column!("inconclusive_fraction", |_c, r| fmt_num(r.stats.inconclusive_fraction)),
+    column!("no_key_fraction", |_c, r| fmt_num(r.stats.no_key_fraction)),
+    column!("leak_probability", |_c, r| fmt_num(r.stats.leak_probability)),
+    column!("leak_ci_low", |_c, r| fmt_num(r.stats.leak_ci.0)),
+    column!("leak_ci_high", |_c, r| fmt_num(r.stats.leak_ci.1)),
+    column!("mean_excess_bits", |_c, r| fmt_num(r.stats.mean_excess)),
+    column!("mean_capacity_bits", |_c, r| fmt_num(r.stats.mean_capacity)),
+    column!("mean_achievable_bits", |_c, r| fmt_num(r.stats.mean_achievable)),
+    column!("verdict", |_c, r| r.stats.verdict.to_string()),
+    column!("note", |_c, r| r.note.clone()),
 ];
+
+/// The header, in order.
+pub fn header() -> Vec<&'static str> {
+    COLUMNS.iter().map(|c| c.header).collect()
+}
 
 /// Renders the table.
 pub fn render(c: &Campaign, results: &[PointResult]) -> Result<String> {
     let mut w = csv::Writer::from_writer(Vec::new());
     let io = |e: csv::Error| Error::new(ErrorKind::Io, e.to_string());
-    w.write_record(COLUMNS).map_err(io)?;
+    w.write_record(header()).map_err(io)?;
     for r in results {
-        let s = &r.stats;
-        let e = &r.exact;
-        let (sp, sv) = match &r.swept {
-            Some((p, v)) => (p.clone(), fmt_num(*v)),
-            None => (String::new(), String::new()),
-        };
-        let n = fmt_num;
-        let row: Vec<String> = vec![
-            c.name.clone(),
-            r.attack.clone(),
-            r.family.clone(),
-            r.index.to_string(),
-            params_string(&r.params),
-            sp,
-            sv,
-            c.setup.protocol.to_string(),
-            r.rule.to_string(),
-            c.setup.signals.to_string(),
-            s.trials.to_string(),
-            n(e.qber_z),
-            n(e.qber_x),
-            n(e.qber_y),
-            n(e.p_guess_z),
-            n(e.holevo_z),
-            n(e.h_x_given_e),
-            n(e.accessible_z.unwrap_or(f64::NAN)),
-            n(e.accessible_gap.unwrap_or(f64::NAN)),
-            n(e.bound_rate),
-            n(e.attack_rate),
-            n(e.margin),
-            n(s.mean_e_z),
-            n(s.mean_e_x),
-            n(s.eve_guess_rate),
-            n(s.key_fraction_single),
-            n(s.key_fraction_multi),
-            n(s.mean_key_bits),
-            n(s.abort_probability),
-            n(s.abort_ci.0),
-            n(s.abort_ci.1),
-            n(s.key_length_mean),
-            s.key_length_q05.to_string(),
-            s.key_length_q95.to_string(),
-            n(s.secure_fraction),
-            n(s.inconclusive_fraction),
-            n(s.no_key_fraction),
-            n(s.leak_probability),
-            n(s.leak_ci.0),
-            n(s.leak_ci.1),
-            n(s.mean_excess),
-            n(s.mean_capacity),
-            n(s.mean_achievable),
-            s.verdict.to_string(),
-            r.note.clone(),
-        ];
-        debug_assert_eq!(row.len(), COLUMNS.len());
-        w.write_record(&row).map_err(io)?;
+        w.write_record(COLUMNS.iter().map(|col| (col.cell)(c, r))).map_err(io)?;
     }
     let bytes = w.into_inner().map_err(|e| Error::new(ErrorKind::Io, e.to_string()))?;
     Ok(String::from_utf8(bytes).expect("csv is UTF-8"))
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn headers_are_unique_and_tidy() {
+        let mut seen = std::collections::BTreeSet::new();
+        for h in header() {
+            assert!(seen.insert(h), "duplicate column {h}");
+            assert!(h.chars().all(|c| c.is_ascii_lowercase() || c.is_ascii_digit() || c == '_'), "{h}");
+        }
+    }
 }

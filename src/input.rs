@@ -1,0 +1,77 @@
+//! Reading what users write: TOML text with the line and column of a syntax error, numeric
+//! values, and the check that a table holds only the keys its schema allows. Every parser of
+//! the crate (setups, optical links, campaigns, attack files) goes through these, so the
+//! same mistake gets the same message everywhere.
+
+use crate::error::{Error, Result};
+
+/// Parses TOML text; a syntax error names its line and column (1-based).
+pub fn parse_toml(text: &str) -> Result<toml::Table> {
+    text.parse::<toml::Table>().map_err(|e| {
+        let at = e.span().map(|span| {
+            let (line, column) = line_column(text, span.start);
+            format!(" at line {line}, column {column}")
+        });
+        Error::input(format!("not valid TOML{}: {}", at.unwrap_or_default(), e.message().trim()))
+    })
+}
+
+/// The 1-based line and column (in characters) of byte offset `at` in `text`.
+pub fn line_column(text: &str, at: usize) -> (usize, usize) {
+    let before = &text[..at.min(text.len())];
+    let line = before.matches('\n').count() + 1;
+    let column = before.rsplit('\n').next().map_or(0, |l| l.chars().count()) + 1;
+    (line, column)
+}
+
+/// A finite number (an integer or a float); the error names `key`.
+pub fn number(v: &toml::Value, key: &str) -> Result<f64> {
+    match v {
+        toml::Value::Float(x) if x.is_finite() => Ok(*x),
+        toml::Value::Integer(i) => Ok(*i as f64),
+        _ => Err(Error::input_key(key, "must be a finite number")),
+    }
+}
+
+/// Every key of `table` that `allowed` does not list, as errors naming the key and saying
+/// what a `what` (e.g. "a setup") may hold.
+pub fn unknown_keys(table: &toml::Table, allowed: &[&str], what: &str) -> Vec<Error> {
+    table
+        .keys()
+        .filter(|k| !allowed.contains(&k.as_str()))
+        .map(|k| Error::input_key(k.clone(), format!("unknown key; {what} has {}", allowed.join(", "))))
+        .collect()
+}
+
+/// The first unknown key of `table` as an error (see [`unknown_keys`]).
+pub fn check_keys(table: &toml::Table, allowed: &[&str], what: &str) -> Result<()> {
+    match unknown_keys(table, allowed, what).into_iter().next() {
+        Some(e) => Err(e),
+        None => Ok(()),
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn syntax_errors_name_line_and_column() {
+        let e = parse_toml("a = 1\nb = = 2\n").unwrap_err();
+        assert!(e.message().contains("line 2, column 5"), "{e}");
+        assert_eq!(line_column("xé\nyz", 5), (2, 2));
+    }
+
+    #[test]
+    fn numbers_and_keys() {
+        assert_eq!(number(&toml::Value::Integer(3), "k").unwrap(), 3.0);
+        assert!(number(&toml::Value::Float(f64::NAN), "k").is_err());
+        assert!(number(&toml::Value::String("1".into()), "k").unwrap_err().to_string().contains("key `k`"));
+        let t = parse_toml("a = 1\nzz = 2\nyy = 3").unwrap();
+        let errs = unknown_keys(&t, &["a"], "a thing");
+        assert_eq!(errs.len(), 2);
+        assert_eq!(errs[0].key(), Some("yy"));
+        assert!(errs[0].message().contains("a thing has a"), "{}", errs[0]);
+        assert!(check_keys(&t, &["a", "yy", "zz"], "x").is_ok());
+    }
+}
