@@ -38,7 +38,7 @@ fn eval_json_has_every_key_and_exits_zero() {
     assert_eq!(out.status.code(), Some(0), "{}", String::from_utf8_lossy(&out.stderr));
     let v: serde_json::Value = serde_json::from_slice(&out.stdout).unwrap();
     for k in JSON_KEYS {
-        assert!(v.get(*k).map_or(false, |x| x.is_number()), "missing numeric key {k}");
+        assert!(v.get(*k).is_some_and(|x| x.is_number()), "missing numeric key {k}");
     }
     assert!((v["qber_z"].as_f64().unwrap() - 0.125).abs() < 1e-12);
 }
@@ -92,7 +92,7 @@ fn validate_accepts_the_shipped_catalogue() {
     let files: Vec<String> = std::fs::read_dir(repo().join("attacks"))
         .unwrap()
         .map(|e| e.unwrap().path())
-        .filter(|p| p.extension().map_or(false, |x| x == "toml"))
+        .filter(|p| p.extension().is_some_and(|x| x == "toml"))
         .map(|p| p.to_string_lossy().into_owned())
         .collect();
     assert!(files.len() >= 6);

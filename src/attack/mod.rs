@@ -4,7 +4,7 @@
 //! by Kraus operators of shape (2·d_E) × 2 in tensor order B first (output row index
 //! `b·d_E + e`). Eve holds E only, never the Kraus index: whatever she must remember (a
 //! flag, her basis, her outcome) lives in E. Built-in families implement [`Family`] and
-//! are listed in [`FAMILIES`]; user-defined attacks arrive as `kraus` files (see [`file`])
+//! are listed in [`FAMILIES`]; user-defined attacks arrive as `kraus` files (see [`mod@file`])
 //! and become the same [`Attack`] value, so every consumer serves both alike. This module
 //! knows nothing about bounds or evaluation.
 

@@ -27,6 +27,9 @@ use crate::input::{check_keys, parse_toml};
 use std::collections::BTreeMap;
 use std::path::{Path, PathBuf};
 
+/// A swept parameter and its value at one point.
+pub type Swept = (String, f64);
+
 /// One attack entry of a campaign.
 #[derive(Clone, Debug)]
 pub struct AttackEntry {
@@ -225,8 +228,8 @@ fn parse_entry(t: &toml::Table, base: Option<&Path>) -> Result<AttackEntry> {
 }
 
 impl AttackEntry {
-    /// The points of this entry: (swept value, parameter overrides).
-    pub fn points(&self) -> Vec<(Option<(String, f64)>, BTreeMap<String, Value>)> {
+    /// The points of this entry: (swept parameter and value, parameter overrides).
+    pub fn points(&self) -> Vec<(Option<Swept>, BTreeMap<String, Value>)> {
         match &self.sweep {
             None => vec![(None, self.params.clone())],
             Some(s) => s

@@ -40,7 +40,7 @@ pub struct HuntArgs {
     #[arg(long, default_value_t = 2)]
     pub dim_e: usize,
     /// Output folder for hunt.csv and the best attack per target as kraus files
-    /// (default: results/hunt-<objective>-<protocol>).
+    /// (default: results/hunt-OBJECTIVE-PROTOCOL).
     #[arg(long, value_name = "DIR")]
     pub out_dir: Option<PathBuf>,
     /// Replace the output folder if it exists.

@@ -7,8 +7,8 @@ use std::path::PathBuf;
 /// Options of `keyrate`.
 #[derive(clap::Args, Debug)]
 pub struct KeyrateArgs {
-    /// Setup file with a [source] (weak-coherent: the weak-pulse rules; single-photon: the
-    /// single-photon rate), [channel] (attenuation, dB/km) and [detector]; default: the standard parameter set of Ma, Qi, Zhao, Lo (2005): 0.21 dB/km,
+    /// Setup file with a source table (weak-coherent: the weak-pulse rules; single-photon: the
+    /// single-photon rate), a channel table (attenuation, dB/km) and a detector table; default: the standard parameter set of Ma, Qi, Zhao, Lo (2005): 0.21 dB/km,
     /// η_Bob = 0.045, Y₀ = 1.7e-6, e_d = 0.033, μ = 0.48, weak decoy ν = 0.05.
     #[arg(long, value_name = "FILE")]
     pub setup: Option<PathBuf>,

@@ -9,7 +9,7 @@ use std::path::PathBuf;
 /// Options of `sweep`.
 #[derive(clap::Args, Debug)]
 pub struct SweepArgs {
-    /// Attack file with a [sweep] table (catalogue entry).
+    /// Attack file with a sweep table (a catalogue entry).
     #[arg(long, value_name = "PATH")]
     pub attack_file: PathBuf,
     /// Number of points (overrides the file's `steps`).
