@@ -285,6 +285,42 @@ fn leak_verdict_exits_one_and_says_so() {
 }
 
 #[test]
+fn a_rules_list_never_drops_the_systems_own_rule() {
+    // Regression: `rules` used to replace the setup's key_rule, so a leaking system rule
+    // vanished from the table and the exit status when comparison rules were listed.
+    let dir = tempfile::tempdir().unwrap();
+    let text = SMALL_CAMPAIGN.replace("RULE", "individual").replace("trials = 50", "trials = 50\nrules = [\"finite-uncertainty\"]");
+    std::fs::write(dir.path().join("c.toml"), text).unwrap();
+    let out = qkd(&["run", "c.toml", "-q"], dir.path(), "2");
+    assert_eq!(out.status.code(), Some(1), "{}", String::from_utf8_lossy(&out.stderr));
+    let csv = std::fs::read_to_string(dir.path().join("results/small/attack_vs_bound.csv")).unwrap();
+    assert!(csv.lines().any(|l| l.contains(",individual,") && l.contains(",leak,")), "{csv}");
+    assert!(csv.contains(",finite-uncertainty,"));
+}
+
+#[test]
+fn a_point_whose_trials_give_no_key_is_no_key_not_secure() {
+    // Regression: points with mean key 0 were called `secure`.
+    let dir = tempfile::tempdir().unwrap();
+    let text = SMALL_CAMPAIGN.replace("RULE", "finite-uncertainty").replace("signals = 20000", "signals = 300");
+    std::fs::write(dir.path().join("c.toml"), text).unwrap();
+    let out = qkd(&["run", "c.toml", "-q"], dir.path(), "2");
+    assert_eq!(out.status.code(), Some(0), "{}", String::from_utf8_lossy(&out.stderr));
+    let csv = std::fs::read_to_string(dir.path().join("results/small/attack_vs_bound.csv")).unwrap();
+    let header: Vec<&str> = csv.lines().next().unwrap().split(',').collect();
+    let col = |name: &str| header.iter().position(|h| *h == name).unwrap();
+    let (mean, verdict) = (col("key_length_mean_bits"), col("verdict"));
+    for line in csv.lines().skip(1) {
+        let cells: Vec<&str> = line.split(',').collect();
+        assert_eq!(cells[mean], "0", "{line}");
+        assert!(matches!(cells[verdict], "no-key" | "aborted"), "{line}");
+    }
+    assert!(csv.contains(",no-key,"), "{csv}");
+    let summary = std::fs::read_to_string(dir.path().join("results/small/summary.md")).unwrap();
+    assert!(!summary.contains("| secure |") && summary.contains("**Verdict: no key.**"), "{summary}");
+}
+
+#[test]
 fn bad_setup_gives_status_two_with_file_key_and_range() {
     let dir = tempfile::tempdir().unwrap();
     std::fs::write(dir.path().join("setup.toml"), "abort_qber = 0.9\n").unwrap();

@@ -8,7 +8,8 @@
 //! trials = 200                 # Monte Carlo trials per attack point, 1..=1e6
 //! sampler = "count"            # count (default) | round
 //! setup = "setup.toml"         # a setup file (relative to this file), or an inline [setup] table
-//! rules = ["decoy-vacuum-weak", "naive-single-photon"]  # optional: rules judged on the same blocks
+//! rules = ["decoy-vacuum-weak", "naive-single-photon"]  # optional: comparison rules judged on
+//!                              # the same blocks, besides the setup's own key_rule (always judged)
 //! [[attacks]]
 //! builtin = "intercept-resend" # an entry of the built-in catalogue, or
 //! # file = "attacks/x.toml"    # a catalogue entry or kraus file (relative to this file)
@@ -60,7 +61,8 @@ pub struct Campaign {
     pub sampler: Sampler,
     /// System under test.
     pub setup: Setup,
-    /// Key-length rules judged on the same blocks (default: the setup's `key_rule`).
+    /// Key-length rules judged on the same blocks: the setup's `key_rule` first, then the
+    /// campaign's comparison `rules` not already listed.
     pub rules: Vec<KeyRule>,
     /// Attacks.
     pub attacks: Vec<AttackEntry>,
@@ -135,7 +137,9 @@ impl Campaign {
         let rules = match t.get("rules") {
             None => vec![setup.key_rule],
             Some(toml::Value::Array(a)) if !a.is_empty() => {
-                let mut out = Vec::new();
+                // The system's own rule is always judged (first), and it alone sets the exit
+                // status; the list adds comparison rules.
+                let mut out = vec![setup.key_rule];
                 for (i, v) in a.iter().enumerate() {
                     let key = format!("rules[{i}]");
                     let name = v.as_str().ok_or_else(|| Error::input_key(key.clone(), "must be a key-rule name"))?;

@@ -88,9 +88,8 @@ pub struct PointStats {
     pub key_fraction_single: f64,
     /// Weak-coherent links: fraction of all key bits from multi-photon pulses.
     pub key_fraction_multi: f64,
-    /// Worst verdict: `leak` if any trial leaked, else `inconclusive` if any was, else
-    /// `caught` if every trial aborted, else `secure`.
-    pub verdict: &'static str,
+    /// The point's verdict ([`point_verdict`]).
+    pub verdict: Verdict,
 }
 
 fn mean(xs: impl Iterator<Item = f64>) -> f64 {
@@ -123,6 +122,25 @@ fn class_fraction(trials: &[TrialOutcome], c: usize) -> f64 {
     }
 }
 
+/// The verdict of a point from its trials' verdicts: `leak` if any trial leaked, else
+/// `inconclusive` if any was, else `aborted` if every trial aborted, else `no-key` if no
+/// trial gave a key, else `secure` (some trials gave keys, and every key was secure). A
+/// point without trials is `no-key`.
+pub fn point_verdict(trials: impl Iterator<Item = Verdict> + Clone) -> Verdict {
+    let any = |v: Verdict| trials.clone().any(|t| t == v);
+    if any(Verdict::Leak) {
+        Verdict::Leak
+    } else if any(Verdict::Inconclusive) {
+        Verdict::Inconclusive
+    } else if any(Verdict::Secure) {
+        Verdict::Secure
+    } else if trials.clone().next().is_some() && trials.clone().all(|t| t == Verdict::Aborted) {
+        Verdict::Aborted
+    } else {
+        Verdict::NoKey
+    }
+}
+
 /// Summarises trials (in trial order).
 pub fn summarize(trials: &[TrialOutcome]) -> PointStats {
     let t = trials.len() as u64;
@@ -135,15 +153,7 @@ pub fn summarize(trials: &[TrialOutcome]) -> PointStats {
     let passed = || trials.iter().filter(|o| !o.aborted);
     let key_bits: u64 = trials.iter().map(|o| o.stats.n).sum();
     let eve: u64 = trials.iter().map(|o| o.eve_correct_key).sum();
-    let verdict = if leaks > 0 {
-        "leak"
-    } else if count(Verdict::Inconclusive) > 0 {
-        "inconclusive"
-    } else if aborted == t {
-        "caught"
-    } else {
-        "secure"
-    };
+    let verdict = point_verdict(trials.iter().map(|o| o.verdict));
     PointStats {
         trials: t,
         abort_probability: frac(aborted),
@@ -186,6 +196,19 @@ mod tests {
         assert_eq!(hi, 1.0);
         let (lo, hi) = clopper_pearson(5, 10);
         assert!(lo < 0.5 && hi > 0.5 && (lo + hi - 1.0).abs() < 1e-9);
+    }
+
+    #[test]
+    fn point_verdicts_follow_the_worst_trial_and_never_call_no_key_secure() {
+        use Verdict::*;
+        let v = |xs: &[Verdict]| point_verdict(xs.iter().copied());
+        assert_eq!(v(&[Secure, Leak, Aborted]), Leak);
+        assert_eq!(v(&[Secure, Inconclusive]), Inconclusive);
+        assert_eq!(v(&[Aborted, Aborted]), Aborted);
+        assert_eq!(v(&[Aborted, NoKey]), NoKey);
+        assert_eq!(v(&[NoKey, NoKey]), NoKey);
+        assert_eq!(v(&[NoKey, Secure, Aborted]), Secure);
+        assert_eq!(v(&[]), NoKey);
     }
 
     #[test]

@@ -21,13 +21,15 @@ use crate::audit::rules::{aep_min_entropy, ec_leak_bits, pa_cost_bits, BlockStat
 use crate::audit::sample::BlockCounts;
 use serde::Serialize;
 
-/// A trial's verdict.
+/// A verdict, of one trial or (the worst that matters over its trials, see
+/// [`crate::audit::stats::point_verdict`]) of one attack point. One vocabulary for both.
 #[derive(Clone, Copy, Debug, PartialEq, Eq, Serialize, PartialOrd, Ord, Hash)]
 #[serde(rename_all = "kebab-case")]
 pub enum Verdict {
-    /// The protocol aborted (observed error rate above threshold, or nothing to test).
+    /// The protocol aborted (observed error rate above threshold, or nothing to test); for
+    /// a point: every trial aborted.
     Aborted,
-    /// The rule gave no key.
+    /// The rule gave no key; for a point: no trial gave a key, and not all aborted.
     NoKey,
     /// ℓ ≤ achievable: secret against this attack, rigorously.
     Secure,
@@ -47,6 +49,12 @@ impl Verdict {
             Verdict::Inconclusive => "inconclusive",
             Verdict::Leak => "leak",
         }
+    }
+}
+
+impl std::fmt::Display for Verdict {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        f.write_str(self.name())
     }
 }
 

@@ -2,6 +2,7 @@
 
 use super::common::Outcome;
 use crate::audit::report::manifest::{sha256_hex, InputHash, Manifest};
+use crate::audit::trial::Verdict;
 use crate::audit::{point_count, run, Campaign};
 use crate::error::{Error, Result};
 use std::io::IsTerminal;
@@ -93,10 +94,10 @@ pub fn cmd_run(a: RunArgs) -> Result<Outcome> {
     };
     crate::audit::report::write_folder(&dir, &campaign, &results, &manifest, a.force)?;
     let system_rule = campaign.setup.key_rule;
-    let leaks = results.iter().filter(|r| r.stats.verdict == "leak").count();
-    let gating = results.iter().filter(|r| r.stats.verdict == "leak" && (a.fail_on_any_rule || r.rule == system_rule)).count();
+    let leaks = results.iter().filter(|r| r.stats.verdict == Verdict::Leak).count();
+    let gating = results.iter().filter(|r| r.stats.verdict == Verdict::Leak && (a.fail_on_any_rule || r.rule == system_rule)).count();
     if !a.quiet {
-        let comparison = leaks - results.iter().filter(|r| r.stats.verdict == "leak" && r.rule == system_rule).count();
+        let comparison = leaks - results.iter().filter(|r| r.stats.verdict == Verdict::Leak && r.rule == system_rule).count();
         eprintln!(
             "{} rows ({} trials each), {:.1} s; {}{}",
             results.len(),

@@ -4,6 +4,7 @@
 //! "Not caught" means the protocol aborted in at most half of the trials; "strongest"
 //! means the largest information of Eve about a key bit, 1 − H(X|E), among those points.
 
+use crate::audit::trial::Verdict;
 use crate::audit::{Campaign, PointResult};
 use std::fmt::Write;
 
@@ -36,9 +37,9 @@ fn link_text(l: &crate::protocol::optical::Link) -> String {
 /// Renders the summary.
 pub fn render(c: &Campaign, results: &[PointResult]) -> String {
     let mut s = String::new();
-    let leaks: Vec<&PointResult> = results.iter().filter(|r| r.stats.verdict == "leak").collect();
+    let leaks: Vec<&PointResult> = results.iter().filter(|r| r.stats.verdict == Verdict::Leak).collect();
     let system_leaks = leaks.iter().filter(|r| r.rule == c.setup.key_rule).count();
-    let inconclusive = results.iter().filter(|r| r.stats.verdict == "inconclusive").count();
+    let inconclusive = results.iter().filter(|r| r.stats.verdict == Verdict::Inconclusive).count();
     let setup = &c.setup;
     let _ = writeln!(s, "# Audit summary: {}\n", c.name);
     let _ = writeln!(
@@ -76,12 +77,22 @@ pub fn render(c: &Campaign, results: &[PointResult]) -> String {
             }
         );
     }
-    if leaks.is_empty() {
+    let keyless = results.iter().filter(|r| matches!(r.stats.verdict, Verdict::Aborted | Verdict::NoKey)).count();
+    if leaks.is_empty() && keyless == results.len() {
         let _ = writeln!(
             s,
-            "**{}: no leak found.** No trial at any of the {} attack points extracted more key than the attack leaves secret.\n",
+            "**{}: no key.** No trial at any of the {} attack points gave a key (every point is `no-key` or `aborted`), so nothing \
+             leaked, and the system as configured produces nothing to use. Check the block size, the channel loss and the detectors.\n",
             if c.rules.len() > 1 { "Across all rules" } else { "Verdict" },
             results.len()
+        );
+    } else if leaks.is_empty() {
+        let _ = writeln!(
+            s,
+            "**{}: no leak found.** No trial at any of the {} attack points extracted more key than the attack leaves secret{}.\n",
+            if c.rules.len() > 1 { "Across all rules" } else { "Verdict" },
+            results.len(),
+            if keyless > 0 { format!("; {keyless} of them gave no key at all (`no-key` or `aborted`)") } else { String::new() }
         );
     } else {
         let _ = writeln!(
@@ -118,7 +129,7 @@ pub fn render(c: &Campaign, results: &[PointResult]) -> String {
         let first = pts[0];
         let label = if c.rules.len() > 1 { format!("{} under `{}`", first.attack, rule) } else { first.attack.clone() };
         let param = first.swept.as_ref().map(|(p, _)| p.clone()).unwrap_or_default();
-        let attack_leaks = pts.iter().filter(|r| r.stats.verdict == "leak").count();
+        let attack_leaks = pts.iter().filter(|r| r.stats.verdict == Verdict::Leak).count();
         let fixed: Vec<(String, crate::attack::Value)> = first.params.iter().filter(|(k, _)| *k != param).cloned().collect();
         if fixed.is_empty() {
             let _ = writeln!(s, "## {label}\n");
@@ -127,8 +138,10 @@ pub fn render(c: &Campaign, results: &[PointResult]) -> String {
         }
         let verdict = if attack_leaks > 0 {
             format!("LEAK at {attack_leaks} of {} points", pts.len())
-        } else if pts.iter().all(|r| r.stats.verdict == "caught") {
-            "caught at every point".to_string()
+        } else if pts.iter().all(|r| r.stats.verdict == Verdict::Aborted) {
+            "aborted at every point".to_string()
+        } else if pts.iter().all(|r| matches!(r.stats.verdict, Verdict::Aborted | Verdict::NoKey)) {
+            "no key at any point (nothing extracted, so nothing leaked)".to_string()
         } else {
             "no leak".to_string()
         };

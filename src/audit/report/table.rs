@@ -22,7 +22,7 @@
 //! | leak_probability, leak_ci_low, leak_ci_high | trials with ℓ > capacity + 2 log₂ n |
 //! | mean_excess_bits | mean ℓ − capacity over trials with a key |
 //! | mean_capacity_bits, mean_achievable_bits | means over trials that did not abort |
-//! | verdict | leak, inconclusive, caught (all aborted) or secure |
+//! | verdict | the point's verdict: leak, inconclusive, secure, no-key (no trial gave a key) or aborted (every trial aborted) |
 //! | note | remarks, e.g. an attack that cannot match the honest gain |
 //!
 //! With several rules (campaign key `rules`), each point has one row per rule, all judged
