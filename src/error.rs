@@ -20,6 +20,9 @@ pub enum ErrorKind {
     NotPhysical,
     /// An iterative solver did not converge.
     NoConvergence,
+    /// A computed quantity is NaN (or a probability lies outside [0, 1] by more than the
+    /// stated rounding tolerance): never reported as data, never skipped by a check.
+    NotANumber,
     /// A computed quantity violates a proven bound: a defect in the code, the model or the
     /// bound. Never hidden, never clipped.
     BoundViolation,

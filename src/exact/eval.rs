@@ -33,6 +33,45 @@ use crate::quantum::measures::{
 /// Slack allowed on the proven inequalities before a violation is reported: 1e-9.
 pub const BOUND_SLACK: f64 = 1e-9;
 
+/// Probabilities computed from a channel that is complete within the Kraus tolerance
+/// ([`crate::numeric::linalg::Tolerance`], 1e-9 per entry by default) can leave [0, 1] by a
+/// few times that. Within this slack they are clamped to [0, 1] before entropies are taken;
+/// beyond it the evaluation is an error naming the quantity.
+pub const PROBABILITY_SLACK: f64 = 1e-8;
+
+/// Rounding noise: a probability, information, entropy, gap or margin within this of a bound
+/// it must respect (0 below; 1 above for probabilities and one-bit quantities) is reported
+/// as that bound, so that −6.7e-16 bits prints as 0. Anything further out is reported as
+/// computed (and, where a proven inequality is at stake, checked against [`BOUND_SLACK`]).
+pub const ROUNDING_SLACK: f64 = 1e-12;
+
+/// Clamps probability `p` (named `name` in the error) to [0, 1] within [`PROBABILITY_SLACK`].
+pub fn clamp_probability(name: &str, p: f64) -> Result<f64> {
+    if p.is_nan() {
+        return Err(Error::new(ErrorKind::NotANumber, format!("{name} is NaN")));
+    }
+    if !(-PROBABILITY_SLACK..=1.0 + PROBABILITY_SLACK).contains(&p) {
+        return Err(Error::new(
+            ErrorKind::NotANumber,
+            format!(
+                "{name} = {p} lies outside [0, 1] by more than the rounding slack {PROBABILITY_SLACK}: the channel is not trace preserving"
+            ),
+        ));
+    }
+    Ok(snap(p.clamp(0.0, 1.0), 0.0, 1.0))
+}
+
+/// Snaps `x` to `lo` or `hi` when it lies within [`ROUNDING_SLACK`] of either.
+fn snap(x: f64, lo: f64, hi: f64) -> f64 {
+    if (x - lo).abs() <= ROUNDING_SLACK {
+        lo
+    } else if (x - hi).abs() <= ROUNDING_SLACK {
+        hi
+    } else {
+        x
+    }
+}
+
 /// Evaluation settings.
 #[derive(Clone, Debug, Default)]
 pub struct EvalOptions {
@@ -293,6 +332,22 @@ struct BasisStats {
     joint_ab: [[f64; 2]; 2],
 }
 
+impl BasisStats {
+    /// Clamps the probabilities and snaps the Holevo quantity (see [`PROBABILITY_SLACK`],
+    /// [`ROUNDING_SLACK`]); `basis` names them in errors.
+    fn checked(mut self, basis: &str) -> Result<BasisStats> {
+        self.qber = clamp_probability(&format!("qber_{basis}"), self.qber)?;
+        self.p_guess = clamp_probability(&format!("p_guess_{basis}"), self.p_guess)?;
+        for row in &mut self.joint_ab {
+            for p in row {
+                *p = clamp_probability(&format!("P(Alice, Bob) in basis {basis}"), *p)?;
+            }
+        }
+        self.holevo = snap(self.holevo, 0.0, 1.0);
+        Ok(self)
+    }
+}
+
 fn basis_stats(attack: &Attack, basis: Basis, s_avg: f64) -> BasisStats {
     basis_stats_from(basis, [conditional(attack, &basis.ket(0)), conditional(attack, &basis.ket(1))], s_avg)
 }
@@ -338,9 +393,9 @@ pub fn evaluate_unchecked(attack: &Attack, opts: &EvalOptions) -> Result<Evaluat
     let z_cond = [conditional(attack, &Basis::Z.ket(0)), conditional(attack, &Basis::Z.ket(1))];
     let rho_e_avg = (&z_cond[0].rho_e + &z_cond[1].rho_e) * c(0.5, 0.0);
     let s_avg = von_neumann_entropy(&rho_e_avg);
-    let z = basis_stats_from(Basis::Z, z_cond, s_avg);
-    let x = basis_stats(attack, Basis::X, s_avg);
-    let y = basis_stats(attack, Basis::Y, s_avg);
+    let z = basis_stats_from(Basis::Z, z_cond, s_avg).checked("z")?;
+    let x = basis_stats(attack, Basis::X, s_avg).checked("x")?;
+    let y = basis_stats(attack, Basis::Y, s_avg).checked("y")?;
     let h_x_given_e = 1.0 - z.holevo;
     let hz = binary_entropy(z.qber);
     let hx = binary_entropy(x.qber);
@@ -356,8 +411,8 @@ pub fn evaluate_unchecked(attack: &Attack, opts: &EvalOptions) -> Result<Evaluat
         Some(acc) => {
             let az = accessible_information(&[0.5, 0.5], &z.eve, acc)?;
             let ax = accessible_information(&[0.5, 0.5], &x.eve, acc)?;
-            let gap = az.upper_bound.zip(ax.upper_bound).map(|(uz, ux)| (uz - az.bits).max(ux - ax.bits));
-            (Some(az.bits), Some(ax.bits), Some(az.converged && ax.converged), gap)
+            let gap = az.upper_bound.zip(ax.upper_bound).map(|(uz, ux)| snap((uz - az.bits).max(ux - ax.bits), 0.0, f64::INFINITY));
+            (Some(snap(az.bits, 0.0, 1.0)), Some(snap(ax.bits, 0.0, 1.0)), Some(az.converged && ax.converged), gap)
         }
         None => (None, None, None, None),
     };
@@ -381,13 +436,25 @@ pub fn evaluate_unchecked(attack: &Attack, opts: &EvalOptions) -> Result<Evaluat
         bound_rate,
         attack_rate: h_x_given_e - hz,
         individual_rate: accessible_z.map(|a| 1.0 - hz - a),
-        margin,
+        margin: snap(margin, 0.0, f64::INFINITY),
         h_min_x_given_e: -z.p_guess.log2(),
         pauli_weights: weights,
         eve_dim: d,
         protocol: opts.protocol,
     };
+    check_no_nan(&attack.label, &eval)?;
     Ok(eval)
+}
+
+/// A NaN in any reported quantity is an error naming the quantity: it would otherwise print
+/// as a silent null and slip past every inequality check.
+pub fn check_no_nan(label: &str, e: &Evaluation) -> Result<()> {
+    for q in QUANTITIES {
+        if (q.value)(e).is_some_and(f64::is_nan) {
+            return Err(Error::new(ErrorKind::NotANumber, format!("attack `{label}`: {} is NaN", q.key)));
+        }
+    }
+    Ok(())
 }
 
 /// Checks the proven inequalities every physical attack satisfies.
@@ -447,6 +514,53 @@ pub fn bob_fidelity(attack: &Attack, psi: &CVec) -> f64 {
 mod tests {
     use super::*;
     use std::collections::BTreeMap;
+
+    #[test]
+    fn probabilities_at_the_edge_are_clamped_and_nan_is_an_error() {
+        // A full bit flip whose Kraus operator is complete only to 0.9e-9 (inside the
+        // default Kraus tolerance): QBER_Z came out as 1.0000000009 and the entropies NaN.
+        let scale = (1.0 + 0.9e-9_f64).sqrt();
+        let flip = CMat::from_row_slice(2, 2, &[c(0.0, 0.0), c(scale, 0.0), c(scale, 0.0), c(0.0, 0.0)]);
+        let attack = Attack::from_kraus("edge", 1, vec![flip], crate::numeric::linalg::Tolerance::default()).unwrap();
+        for protocol in [Protocol::Bb84, Protocol::SixState] {
+            let e = evaluate(&attack, &EvalOptions::full(protocol)).unwrap();
+            assert_eq!(e.qber_z, 1.0);
+            assert!(QUANTITIES.iter().all(|q| (q.value)(&e).is_none_or(|v| !v.is_nan())), "{e:?}");
+            assert!(e.bound_rate.is_finite() && e.margin >= 0.0);
+        }
+        assert_eq!(clamp_probability("p", 1.0 + 5e-9).unwrap(), 1.0);
+        assert_eq!(clamp_probability("p", -3e-13).unwrap(), 0.0);
+        assert_eq!(clamp_probability("p", 0.25).unwrap(), 0.25);
+        let far = clamp_probability("qber_z", 1.001).unwrap_err();
+        assert_eq!(far.kind(), &ErrorKind::NotANumber);
+        assert!(far.message().contains("qber_z"), "{far}");
+        assert!(clamp_probability("p", f64::NAN).is_err());
+    }
+
+    #[test]
+    fn a_nan_in_any_quantity_is_an_error_naming_it() {
+        let attack = Attack::builtin("cloner", &BTreeMap::new()).unwrap();
+        let mut e = evaluate(&attack, &EvalOptions::fast(Protocol::Bb84)).unwrap();
+        assert!(check_no_nan("x", &e).is_ok());
+        e.bound_rate = f64::NAN;
+        let err = check_no_nan("x", &e).unwrap_err();
+        assert_eq!(err.kind(), &ErrorKind::NotANumber);
+        assert!(err.message().contains("bound_rate"), "{err}");
+    }
+
+    #[test]
+    fn rounding_noise_is_reported_as_the_bound() {
+        assert_eq!(snap(-6.7e-16, 0.0, 1.0), 0.0);
+        assert_eq!(snap(1.0 + 1e-13, 0.0, 1.0), 1.0);
+        assert_eq!(snap(-1e-9, 0.0, 1.0), -1e-9, "beyond the slack the value is kept, to be checked");
+        for fam in crate::attack::FAMILIES {
+            let a = Attack::builtin(fam.name(), &BTreeMap::new()).unwrap();
+            let e = evaluate(&a, &EvalOptions::full(Protocol::Bb84)).unwrap();
+            for v in [e.accessible_z.unwrap(), e.accessible_x.unwrap(), e.accessible_gap.unwrap(), e.holevo_z, e.margin] {
+                assert!(v >= 0.0, "{}: {v}", fam.name());
+            }
+        }
+    }
 
     #[test]
     fn doctored_evaluations_are_reported_as_bound_violations() {
