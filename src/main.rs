@@ -3,6 +3,7 @@
 
 use clap::Parser;
 use qkd_audit::cli::{run, Cli, Outcome};
+use std::io::Write;
 use std::process::ExitCode;
 
 fn main() -> ExitCode {
@@ -18,7 +19,8 @@ fn main() -> ExitCode {
         Ok(Outcome::Clean) => ExitCode::SUCCESS,
         Ok(Outcome::Findings) => ExitCode::from(1),
         Err(e) => {
-            eprintln!("error: {e}");
+            // stderr may be closed too; the exit status still says what happened.
+            let _ = writeln!(std::io::stderr().lock(), "error: {e}");
             ExitCode::from(2)
         }
     }

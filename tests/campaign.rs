@@ -321,6 +321,29 @@ fn a_point_whose_trials_give_no_key_is_no_key_not_secure() {
 }
 
 #[test]
+fn a_closed_or_full_stdout_keeps_the_status_and_never_panics() {
+    // Regression: `run leaky.toml --quiet | true` exited 101 (a panic), losing the finding.
+    let dir = tempfile::tempdir().unwrap();
+    std::fs::write(dir.path().join("c.toml"), SMALL_CAMPAIGN.replace("RULE", "individual")).unwrap();
+    let mut child = Command::new(env!("CARGO_BIN_EXE_qkd-audit"))
+        .args(["run", "c.toml", "--quiet", "--results-dir", "closed"])
+        .current_dir(dir.path())
+        .stdout(std::process::Stdio::piped())
+        .stderr(std::process::Stdio::piped())
+        .spawn()
+        .unwrap();
+    drop(child.stdout.take());
+    let out = child.wait_with_output().unwrap();
+    assert_eq!(out.status.code(), Some(1), "{}", String::from_utf8_lossy(&out.stderr));
+    if Path::new("/dev/full").exists() {
+        let full = std::fs::OpenOptions::new().write(true).open("/dev/full").unwrap();
+        let out = Command::new(env!("CARGO_BIN_EXE_qkd-audit")).arg("thresholds").stdout(full).output().unwrap();
+        assert_eq!(out.status.code(), Some(2));
+        assert!(String::from_utf8_lossy(&out.stderr).contains("cannot write to stdout"), "{}", String::from_utf8_lossy(&out.stderr));
+    }
+}
+
+#[test]
 fn bad_setup_gives_status_two_with_file_key_and_range() {
     let dir = tempfile::tempdir().unwrap();
     std::fs::write(dir.path().join("setup.toml"), "abort_qber = 0.9\n").unwrap();

@@ -93,13 +93,27 @@ pub fn parse_sets(sets: &[String]) -> Result<BTreeMap<String, Value>> {
     Ok(out)
 }
 
-/// Writes to stdout; a closed pipe (e.g. `| head`) is not an error.
+/// A diagnostic line on stderr. Never panics: if stderr is closed or full the line is
+/// dropped, and the command's outcome is unchanged.
+pub fn note(text: &str) {
+    let mut err = std::io::stderr().lock();
+    let _ = writeln!(err, "{text}");
+}
+
+/// Writes `text` to stdout. A closed pipe (`| head`, `| true`) is not an error: the
+/// command keeps its outcome. Any other write failure (a full disk, `> /dev/full`) is an
+/// error, never a panic.
+pub fn print(text: &str) -> Result<()> {
+    write_stdout(&mut std::io::stdout().lock(), text)
+}
+
+/// Writes to `out`; a closed pipe (e.g. `| head`) is not an error (see [`print`]).
 pub fn write_stdout(out: &mut impl Write, text: &str) -> Result<()> {
     match out.write_all(text.as_bytes()).and_then(|_| out.flush()) {
         Ok(()) => Ok(()),
         // A closed pipe (e.g. `| head`) is not an error.
         Err(e) if e.kind() == std::io::ErrorKind::BrokenPipe => Ok(()),
-        Err(e) => Err(e.into()),
+        Err(e) => Err(Error::new(crate::error::ErrorKind::Io, format!("cannot write to stdout: {e}"))),
     }
 }
 

@@ -1,6 +1,6 @@
 //! The `hunt` subcommand: numerical searches for the strongest attack.
 
-use super::common::{parse_protocol, write_stdout, Outcome};
+use super::common::{note, parse_protocol, write_stdout, Outcome};
 use crate::error::{Error, Result};
 use std::path::PathBuf;
 
@@ -65,7 +65,7 @@ pub fn cmd_hunt(a: HuntArgs) -> Result<Outcome> {
         );
         write_stdout(&mut std::io::stdout().lock(), &text)?;
         if exceeded {
-            eprintln!("BOUND VIOLATED: the game hunt exceeded (1/2 + 1/(2 sqrt 2))^n; this is a finding about the code or the bound");
+            note("BOUND VIOLATED: the game hunt exceeded (1/2 + 1/(2 sqrt 2))^n; this is a finding about the code or the bound");
             return Ok(Outcome::Findings);
         }
         return Ok(Outcome::Clean);
@@ -136,9 +136,9 @@ pub fn cmd_hunt(a: HuntArgs) -> Result<Outcome> {
     files.push(("hunt.csv".to_string(), csv_text.clone()));
     crate::output::write_folder_files(&dir, &files, a.force)?;
     write_stdout(&mut std::io::stdout().lock(), &csv_text)?;
-    eprintln!("wrote {}", dir.display());
+    note(&format!("wrote {}", dir.display()));
     if violations > 0 {
-        eprintln!("BOUND VIOLATED at {violations} target(s): keep the attack files as regression fixtures; this is a finding about the code or the bound");
+        note(&format!("BOUND VIOLATED at {violations} target(s): keep the attack files as regression fixtures; this is a finding about the code or the bound"));
         return Ok(Outcome::Findings);
     }
     Ok(Outcome::Clean)

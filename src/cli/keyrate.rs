@@ -1,6 +1,6 @@
 //! The `keyrate` subcommand: asymptotic key rate per pulse against distance.
 
-use super::common::{write_stdout, Outcome};
+use super::common::{note, write_stdout, Outcome};
 use crate::error::{Error, Result};
 use std::path::PathBuf;
 
@@ -130,7 +130,7 @@ pub fn cmd_keyrate(a: KeyrateArgs) -> Result<Outcome> {
         }
         None => {
             write_stdout(&mut std::io::stdout().lock(), &csv_text)?;
-            eprint!("{table}");
+            note(table.trim_end());
         }
     }
     Ok(Outcome::Clean)

@@ -1,6 +1,6 @@
 //! The `run` subcommand: a finite-key audit campaign into a results folder.
 
-use super::common::Outcome;
+use super::common::{note, print, Outcome};
 use crate::audit::report::manifest::{sha256_hex, InputHash, Manifest};
 use crate::audit::trial::Verdict;
 use crate::audit::{point_count, run, Campaign};
@@ -98,7 +98,7 @@ pub fn cmd_run(a: RunArgs) -> Result<Outcome> {
     let gating = results.iter().filter(|r| r.stats.verdict == Verdict::Leak && (a.fail_on_any_rule || r.rule == system_rule)).count();
     if !a.quiet {
         let comparison = leaks - results.iter().filter(|r| r.stats.verdict == Verdict::Leak && r.rule == system_rule).count();
-        eprintln!(
+        note(&format!(
             "{} rows ({} trials each), {:.1} s; {}{}",
             results.len(),
             campaign.trials,
@@ -109,8 +109,8 @@ pub fn cmd_run(a: RunArgs) -> Result<Outcome> {
                 format!("LEAK under the system's rule `{system_rule}`")
             },
             if comparison > 0 { format!("; {comparison} leaking row(s) under comparison rules") } else { String::new() }
-        );
+        ));
     }
-    println!("{}", dir.display());
+    print(&format!("{}\n", dir.display()))?;
     Ok(if gating > 0 { Outcome::Findings } else { Outcome::Clean })
 }

@@ -1,6 +1,6 @@
 //! The `sweep` subcommand: an attack file's parameter sweep as tidy CSV.
 
-use super::common::{parse_protocol, write_stdout, Outcome};
+use super::common::{note, parse_protocol, write_stdout, Outcome};
 use crate::attack::file as attack_file;
 use crate::error::Result;
 use crate::exact::eval::EvalOptions;
@@ -38,7 +38,7 @@ pub fn cmd_sweep(a: SweepArgs) -> Result<Outcome> {
     match &a.output {
         Some(o) => {
             crate::output::write_atomic(o, csv.as_bytes(), a.force)?;
-            eprintln!("wrote {} points to {}", points.len(), o.display());
+            note(&format!("wrote {} points to {}", points.len(), o.display()));
         }
         None => write_stdout(&mut std::io::stdout().lock(), &csv)?,
     }

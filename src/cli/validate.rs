@@ -1,6 +1,6 @@
 //! The `validate` subcommand: check attack files and report every problem found.
 
-use super::common::Outcome;
+use super::common::{note, print, Outcome};
 use crate::attack::file as attack_file;
 use crate::error::{Error, Result};
 use std::path::PathBuf;
@@ -19,10 +19,10 @@ pub fn cmd_validate(a: ValidateArgs) -> Result<Outcome> {
     for f in &a.files {
         let errs = attack_file::validate(f);
         if errs.is_empty() {
-            println!("ok {}", f.display());
+            print(&format!("ok {}\n", f.display()))?;
         } else {
             for e in &errs {
-                eprintln!("error: {e}");
+                note(&format!("error: {e}"));
             }
             problems += errs.len();
         }
