@@ -18,12 +18,16 @@ pub fn clopper_pearson(k: u64, n: u64) -> (f64, f64) {
     (lo, hi)
 }
 
+/// Width at which the Beta quantile's bisection stops: far below the 4 significant digits
+/// a confidence bound is read to, and above the spacing of doubles near 1.
+const BETA_QUANTILE_TOL: f64 = 1e-13;
+
 /// Quantile of the Beta(a, b) law by bisection on statrs' regularised incomplete beta
 /// function to 1e-13 (statrs' own `inverse_cdf` stops near 1e-5).
 fn beta_quantile(a: f64, b: f64, p: f64) -> f64 {
     let dist = Beta::new(a, b).expect("positive shape parameters");
     let (mut lo, mut hi) = (0.0_f64, 1.0_f64);
-    while hi - lo > 1e-13 {
+    while hi - lo > BETA_QUANTILE_TOL {
         let mid = 0.5 * (lo + hi);
         if dist.cdf(mid) < p {
             lo = mid;

@@ -2,6 +2,7 @@
 
 use super::common::{note, parse_protocol, write_stdout, Outcome};
 use crate::error::{Error, Result};
+use crate::exact::eval::BOUND_SLACK;
 use std::path::PathBuf;
 
 /// Options of `hunt`.
@@ -58,7 +59,7 @@ pub fn cmd_hunt(a: HuntArgs) -> Result<Outcome> {
             return Err(Error::input_key("--rounds", "the multi-round game setting needs --objective game"));
         }
         let r = crate::search::game::hunt_game(n, a.dim_b, a.dim_e, a.starts, a.seed, 500)?;
-        let exceeded = r.value > r.bound + 1e-9;
+        let exceeded = r.value > r.bound + BOUND_SLACK;
         let text = format!(
             "guessing game, {} round(s), dim B = {}, dim E = {}, {} starts: best winning probability {:.12}; bound (1/2 + 1/(2*sqrt 2))^{} = {:.12}; gap {:.3e}\n",
             n, a.dim_b, a.dim_e, a.starts, r.value, n, r.bound, r.bound - r.value
@@ -109,7 +110,7 @@ pub fn cmd_hunt(a: HuntArgs) -> Result<Outcome> {
         let name = format!("hunted-{}-{}-q{}", objective.name(), protocol, p.q);
         let desc = format!("best {} attack found at Q = {} (value {:.12}, bound {:.12})", objective.name(), p.q, p.value, p.bound);
         files.push((file.clone(), crate::attack::file::kraus_toml(&name, &desc, p.attack.eve_dim, p.attack.channel.operators())));
-        if p.value > p.bound_at_attack + 1e-9 {
+        if p.value > p.bound_at_attack + BOUND_SLACK {
             violations += 1;
         }
         let n = crate::exact::sweep::fmt_num;

@@ -63,9 +63,10 @@ impl SignalModel {
                         }
                     }
                 }
-                // Rounding only: each row is a probability vector.
+                // Rounding only: each row is a probability vector of a channel complete
+                // within the Kraus tolerance, so its sum is 1 to that tolerance.
                 let sum: f64 = cells[ia][ib].iter().sum();
-                debug_assert!((sum - 1.0).abs() < 1e-9, "signal distribution sums to {sum}");
+                debug_assert!((sum - 1.0).abs() < crate::numeric::linalg::DEFAULT_TOL, "signal distribution sums to {sum}");
                 for p in cells[ia][ib].iter_mut() {
                     *p /= sum;
                 }

@@ -288,7 +288,10 @@ fn parse_source(t: &toml::Table) -> Result<Source> {
             let probability = 1.0 - probs.iter().sum::<f64>();
             if let Some(p) = t.get("probability") {
                 let p = num(p, "probability")?;
-                if (p - probability).abs() > 1e-9 {
+                // The signal probability is implied by the decoys'; a stated value may differ
+                // from 1 − Σ only by decimal rounding of the inputs.
+                const IMPLIED_PROBABILITY_SLACK: f64 = 1e-9;
+                if (p - probability).abs() > IMPLIED_PROBABILITY_SLACK {
                     return Err(Error::input_key(
                         "probability",
                         format!("{p} does not equal 1 minus the decoy probabilities ({probability})"),

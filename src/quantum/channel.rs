@@ -125,7 +125,8 @@ impl KrausChannel {
         let g = CMat::from_fn(n, n, |_, _| c(rng.sample(StandardNormal), rng.sample(StandardNormal)));
         let h = (&g + g.adjoint()) * c(0.5, 0.0);
         let (vals, vecs) = crate::numeric::linalg::hermitian_eigen(&h);
-        let norm = vals.iter().fold(0.0_f64, |m, v| m.max(v.abs())).max(1e-300);
+        // A zero generator (probability zero in the Gaussian draw) must not divide by zero.
+        let norm = vals.iter().fold(0.0_f64, |m, v| m.max(v.abs())).max(f64::MIN_POSITIVE);
         let phases =
             CMat::from_diagonal(&crate::numeric::linalg::CVec::from_iterator(n, vals.iter().map(|v| C64::from_polar(1.0, -t * v / norm))));
         let u = &vecs * phases * vecs.adjoint();

@@ -170,7 +170,9 @@ fn abort_leak(pts: &[&PointResult]) -> Result<String> {
 pub fn keyrate_svg(rows: &[crate::exact::keyrate::RateRow], rules: &[crate::exact::keyrate::LinkRule]) -> Result<String> {
     let pos: Vec<&crate::exact::keyrate::RateRow> = rows.iter().filter(|r| r.rate_bits_per_pulse > 0.0).collect();
     let xmax = rows.iter().map(|r| r.distance_km).fold(1.0_f64, f64::max);
-    let ymin = pos.iter().map(|r| r.rate_bits_per_pulse).fold(1.0_f64, f64::min).max(1e-12);
+    // Lowest rate the logarithmic axis shows, bits per pulse: below, a curve has ended.
+    const RATE_AXIS_FLOOR: f64 = 1e-12;
+    let ymin = pos.iter().map(|r| r.rate_bits_per_pulse).fold(1.0_f64, f64::min).max(RATE_AXIS_FLOOR);
     let ymax = pos.iter().map(|r| r.rate_bits_per_pulse).fold(ymin * 10.0, f64::max);
     let mut svg = String::new();
     {
