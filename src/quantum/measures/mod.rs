@@ -12,7 +12,7 @@ use crate::numeric::linalg::{c, CMat, CVec};
 pub mod accessible;
 pub mod qubit_pair;
 
-pub use accessible::{accessible_information, dual_upper_bound, invariant_blocks, povm_ascent, povm_lbfgs, Accessible, AccessibleOptions};
+pub use accessible::{accessible_information, dual_upper_bound, invariant_blocks, Accessible, AccessibleOptions};
 #[doc(hidden)]
 pub fn accessible_dual(p: &[f64], s: &[CMat], povm: &[CVec]) -> f64 {
     dual_upper_bound([p[0], p[1]], [&s[0], &s[1]], povm)

@@ -1,5 +1,10 @@
-//! One-dimensional maximisation shared by the numerical kernels: golden-section search on
-//! a bracket. No physics here; callers bring the function and the bracket.
+//! Searches shared by the numerical kernels: golden-section search for a maximum on a
+//! bracket, and ([`povm`]) the Riemannian ascents over rank-one POVMs. No physics here;
+//! callers bring the function and the bracket or the starting point.
+
+pub mod povm;
+
+pub use povm::{povm_ascent, povm_lbfgs, AscentOptions, PovmObjective};
 
 /// Golden-section search for a maximum of `f` on `[a, b]` in `iters` steps (the bracket
 /// shrinks by 0.618 per step). Returns `(x, f(x))` of the best interior point visited;
