@@ -20,7 +20,7 @@
 //! Rates are not clipped; a rule's maximum distance is where its (optimised) rate reaches 0.
 
 use crate::error::Result;
-use crate::exact::bounds::bisect;
+use crate::numeric::optimize::bisect;
 use crate::protocol::optical::{gains, Link, E0};
 use crate::quantum::measures::binary_entropy;
 use serde::Serialize;

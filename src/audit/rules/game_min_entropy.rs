@@ -36,6 +36,8 @@ pub fn length(obs: &BlockStats, params: &RuleParams) -> KeyLength {
 #[cfg(test)]
 mod tests {
     use super::*;
+    use crate::numeric::optimize::bisect;
+    use crate::quantum::measures::binary_entropy;
     use approx::assert_abs_diff_eq;
 
     #[test]
@@ -43,9 +45,7 @@ mod tests {
         // −log₂(½ + 1/(2√2)) = 0.2284466968; 0.22845 − 2h(δ) = 0 at δ = 0.015309
         // (REFERENCES.md §11 [N; rate form M?]).
         assert_abs_diff_eq!(-game_bound().log2(), 0.2284466968, epsilon = 1e-9);
-        let root =
-            crate::exact::bounds::bisect(|d| -game_bound().log2() - 2.0 * crate::quantum::measures::binary_entropy(d), 1e-9, 0.5, 1e-12)
-                .unwrap();
+        let root = bisect(|d| -game_bound().log2() - 2.0 * binary_entropy(d), 1e-9, 0.5, 1e-12).unwrap();
         assert_abs_diff_eq!(root, 0.015309, epsilon = 1e-5);
     }
 }
