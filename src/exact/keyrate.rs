@@ -20,7 +20,7 @@
 //! Rates are not clipped; a rule's maximum distance is where its (optimised) rate reaches 0.
 
 use crate::error::Result;
-use crate::numeric::optimize::bisect;
+use crate::numeric::optimize::{bisect, golden_section_midpoint};
 use crate::protocol::optical::{gains, Link, E0};
 use crate::quantum::measures::binary_entropy;
 use serde::Serialize;
@@ -133,20 +133,7 @@ pub fn optimal_mu(rule: LinkRule, link: &Link, p: &RateParams) -> (f64, f64) {
     let grid: Vec<f64> = (0..=n).map(|i| llo + (lhi - llo) * i as f64 / n as f64).collect();
     let r = |lm: f64| rate(rule, link, lm.exp(), p);
     let best = (0..=n).max_by(|&a, &b| r(grid[a]).total_cmp(&r(grid[b]))).unwrap_or(0);
-    let (mut a, mut b) = (grid[best.saturating_sub(1)], grid[(best + 1).min(n)]);
-    let g = (5f64.sqrt() - 1.0) / 2.0;
-    let mut c = b - g * (b - a);
-    let mut d = a + g * (b - a);
-    for _ in 0..80 {
-        if r(c) > r(d) {
-            b = d;
-        } else {
-            a = c;
-        }
-        c = b - g * (b - a);
-        d = a + g * (b - a);
-    }
-    let lm = 0.5 * (a + b);
+    let lm = golden_section_midpoint(r, grid[best.saturating_sub(1)], grid[(best + 1).min(n)], 80);
     let (mu, val) = if r(lm) >= r(grid[best]) { (lm.exp(), r(lm)) } else { (grid[best].exp(), r(grid[best])) };
     (mu, val)
 }
