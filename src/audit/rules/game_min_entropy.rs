@@ -8,8 +8,9 @@
 //! `ℓ = n(−log₂ β − h(δ)) − leak_EC − 2 log₂(1/(2ε_PA))`.
 
 use super::RuleParams;
-use super::{ec_leak_bits, h_capped, pa_cost_bits, sampling_deviation, BlockStats, EpsilonBudget, KeyLength};
+use super::{ec_leak_bits, pa_cost_bits, sampling_deviation, BlockStats, EpsilonBudget, KeyLength};
 use crate::exact::bounds::game_bound;
+use crate::quantum::measures::binary_entropy_capped;
 
 /// The rule's length.
 pub fn length(obs: &BlockStats, params: &RuleParams) -> KeyLength {
@@ -24,7 +25,7 @@ pub fn length(obs: &BlockStats, params: &RuleParams) -> KeyLength {
     if delta == f64::NEG_INFINITY {
         delta = 0.5;
     }
-    let per_bit = -game_bound().log2() - h_capped(delta);
+    let per_bit = -game_bound().log2() - binary_entropy_capped(delta);
     let raw = obs.n as f64 * per_bit - ec_leak_bits(obs, params) - pa_cost_bits(budget.pa);
     KeyLength::new(
         raw,
