@@ -5,6 +5,7 @@
 //! attacks from the catalogue. Rates are per sifted bit and are not clipped at zero.
 
 use crate::error::{Error, ErrorKind, Result};
+use crate::numeric::optimize::bisect;
 use crate::quantum::measures::{binary_entropy, shannon_entropy};
 
 /// The monogamy-of-entanglement guessing-game value per round, ½ + 1/(2√2) = cos²(π/8)
@@ -51,29 +52,6 @@ pub fn fggnp_information(d: f64) -> f64 {
     1.0 - binary_entropy(0.5 + (d * (1.0 - d)).sqrt())
 }
 
-/// Finds a root of `f` in `[lo, hi]` by bisection until the bracket is below `tol`; `f`
-/// must change sign on the bracket.
-pub fn bisect(f: impl Fn(f64) -> f64, mut lo: f64, mut hi: f64, tol: f64) -> Result<f64> {
-    let (mut flo, fhi) = (f(lo), f(hi));
-    if flo.is_nan() || fhi.is_nan() || flo.signum() == fhi.signum() {
-        return Err(Error::new(ErrorKind::NoConvergence, format!("no sign change of the function on [{lo}, {hi}]: {flo} and {fhi}")));
-    }
-    while hi - lo > tol {
-        let mid = 0.5 * (lo + hi);
-        let fm = f(mid);
-        if fm == 0.0 {
-            return Ok(mid);
-        }
-        if fm.signum() == flo.signum() {
-            lo = mid;
-            flo = fm;
-        } else {
-            hi = mid;
-        }
-    }
-    Ok(0.5 * (lo + hi))
-}
-
 /// BB84 zero-rate QBER for symmetric errors: root of `1 − (1+f)·h(e)` on (0, ½).
 pub fn bb84_threshold(f: f64) -> Result<f64> {
     bisect(|e| bb84_rate(e, e, f), 1e-15, 0.5, 1e-13)
@@ -104,11 +82,5 @@ mod tests {
         for (a, b) in w.iter().zip(p.iter()) {
             assert_abs_diff_eq!(a, b, epsilon = 1e-15);
         }
-    }
-
-    #[test]
-    fn bisect_finds_sqrt_two() {
-        assert_abs_diff_eq!(bisect(|x| x * x - 2.0, 0.0, 2.0, 1e-14).unwrap(), 2f64.sqrt(), epsilon = 1e-13);
-        assert!(bisect(|x| x * x + 1.0, 0.0, 2.0, 1e-14).is_err());
     }
 }

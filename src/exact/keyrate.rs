@@ -20,9 +20,9 @@
 //! Rates are not clipped; a rule's maximum distance is where its (optimised) rate reaches 0.
 
 use crate::error::Result;
-use crate::exact::bounds::bisect;
+use crate::numeric::optimize::{bisect, golden_section_midpoint};
 use crate::protocol::optical::{gains, Link, E0};
-use crate::quantum::measures::binary_entropy;
+use crate::quantum::measures::binary_entropy_capped;
 use serde::Serialize;
 
 /// The asymptotic link-level rules.
@@ -67,15 +67,6 @@ pub struct RateParams {
     pub nu: f64,
 }
 
-/// h(x) for an error-rate estimate, 1 at or above ½.
-fn hc(x: f64) -> f64 {
-    if !(x < 0.5) {
-        1.0
-    } else {
-        binary_entropy(x.max(0.0))
-    }
-}
-
 /// Vacuum + weak decoy bounds (Ma et al. 2005): Y₁ᴸ and e₁ᵁ from the gains at μ and ν and
 /// the vacuum yield Y₀.
 pub fn vacuum_weak_bounds(mu: f64, nu: f64, q_mu: f64, q_nu: f64, e_nu: f64, y0: f64) -> (f64, f64) {
@@ -94,18 +85,18 @@ pub fn rate(rule: LinkRule, link: &Link, mu: f64, p: &RateParams) -> f64 {
     let eta = link.transmittance();
     let (y0, ed) = (link.dark_count_probability, link.misalignment);
     let s = gains(mu, eta, y0, ed);
-    let ec = p.f_ec * hc(s.error_rate);
+    let ec = p.f_ec * binary_entropy_capped(s.error_rate);
     match rule {
-        LinkRule::SinglePhoton => p.sifting * s.y1 * (1.0 - (1.0 + p.f_ec) * hc(s.e1)),
-        LinkRule::NaiveSinglePhoton => p.sifting * s.gain * (1.0 - hc(s.error_rate) - ec),
+        LinkRule::SinglePhoton => p.sifting * s.y1 * (1.0 - (1.0 + p.f_ec) * binary_entropy_capped(s.e1)),
+        LinkRule::NaiveSinglePhoton => p.sifting * s.gain * (1.0 - binary_entropy_capped(s.error_rate) - ec),
         LinkRule::GllpNoDecoy => {
             let delta = multi_photon_probability(mu) / s.gain;
             if delta >= 1.0 {
                 return -p.sifting * s.gain * ec;
             }
-            p.sifting * s.gain * (-ec + (1.0 - delta) * (1.0 - hc(s.error_rate / (1.0 - delta))))
+            p.sifting * s.gain * (-ec + (1.0 - delta) * (1.0 - binary_entropy_capped(s.error_rate / (1.0 - delta))))
         }
-        LinkRule::DecoyIdeal => p.sifting * (-s.gain * ec + s.single_gain * (1.0 - hc(s.e1))),
+        LinkRule::DecoyIdeal => p.sifting * (-s.gain * ec + s.single_gain * (1.0 - binary_entropy_capped(s.e1))),
         LinkRule::DecoyVacuumWeak => {
             let w = gains(p.nu, eta, y0, ed);
             let (y1l, e1u) = vacuum_weak_bounds(mu, p.nu, s.gain, w.gain, w.error_rate, y0);
@@ -113,7 +104,7 @@ pub fn rate(rule: LinkRule, link: &Link, mu: f64, p: &RateParams) -> f64 {
             if y1l <= 0.0 {
                 return -p.sifting * s.gain * ec;
             }
-            p.sifting * (-s.gain * ec + q1l * (1.0 - hc(e1u)))
+            p.sifting * (-s.gain * ec + q1l * (1.0 - binary_entropy_capped(e1u)))
         }
     }
 }
@@ -133,20 +124,7 @@ pub fn optimal_mu(rule: LinkRule, link: &Link, p: &RateParams) -> (f64, f64) {
     let grid: Vec<f64> = (0..=n).map(|i| llo + (lhi - llo) * i as f64 / n as f64).collect();
     let r = |lm: f64| rate(rule, link, lm.exp(), p);
     let best = (0..=n).max_by(|&a, &b| r(grid[a]).total_cmp(&r(grid[b]))).unwrap_or(0);
-    let (mut a, mut b) = (grid[best.saturating_sub(1)], grid[(best + 1).min(n)]);
-    let g = (5f64.sqrt() - 1.0) / 2.0;
-    let mut c = b - g * (b - a);
-    let mut d = a + g * (b - a);
-    for _ in 0..80 {
-        if r(c) > r(d) {
-            b = d;
-        } else {
-            a = c;
-        }
-        c = b - g * (b - a);
-        d = a + g * (b - a);
-    }
-    let lm = 0.5 * (a + b);
+    let lm = golden_section_midpoint(r, grid[best.saturating_sub(1)], grid[(best + 1).min(n)], 80);
     let (mu, val) = if r(lm) >= r(grid[best]) { (lm.exp(), r(lm)) } else { (grid[best].exp(), r(grid[best])) };
     (mu, val)
 }
@@ -216,6 +194,7 @@ pub fn rate_table(link: &Link, distances: &[f64], rules: &[LinkRule], mu: Option
 #[cfg(test)]
 mod tests {
     use super::*;
+    use crate::quantum::measures::binary_entropy;
     use approx::assert_relative_eq;
 
     fn gys() -> Link {

@@ -4,8 +4,9 @@
 
 use crate::attack::{Attack, Value};
 use crate::error::Result;
-use crate::exact::bounds::{bb84_threshold, bisect, individual_threshold, six_state_threshold};
+use crate::exact::bounds::{bb84_threshold, individual_threshold, six_state_threshold};
 use crate::exact::eval::{bob_fidelity, evaluate, eve_clone_fidelity, EvalOptions};
+use crate::numeric::optimize::bisect;
 use crate::protocol::{Basis, Protocol};
 use serde::Serialize;
 use std::collections::BTreeMap;

@@ -9,13 +9,13 @@
 //! `W = 2⁻ⁿ Σ_θ Σ_x P^θ_x ⊗ B^θ_x ⊗ E^θ_x`, so the best state is W's top eigenvector. With
 //! the state and E fixed, B's best measurement for each θ is a minimum-error discrimination
 //! of the operators `σ^θ_x = Tr_{AE}[(P^θ_x ⊗ 1 ⊗ E^θ_x)|ψ⟩⟨ψ|]`, solved over rank-one
-//! POVMs by [`crate::quantum::measures::povm_ascent`] (and the same for E). Every step can only
+//! POVMs by [`crate::numeric::optimize::povm_ascent`] (and the same for E). Every step can only
 //! raise the winning probability; the search stops when a round gains less than 1e-13.
 
 use crate::error::{Error, Result};
 use crate::numeric::linalg::{c, hermitian_eigen, kron, partial_trace, CMat};
+use crate::numeric::optimize::{povm_ascent, AscentOptions};
 use crate::protocol::Basis;
-use crate::quantum::measures::{povm_ascent, AccessibleOptions};
 use rand::Rng;
 use rand_distr::StandardNormal;
 use rayon::prelude::*;
@@ -87,7 +87,7 @@ fn best_measurement(sigma: &[CMat], current: &[CMat], d: usize) -> Vec<CMat> {
         }
         (value, grad)
     };
-    let opts = AccessibleOptions { max_iter: 400, gain_tol: 1e-14, grad_tol: 1e-12, ..AccessibleOptions::default() };
+    let opts = AscentOptions { max_iter: 400, gain_tol: 1e-14, grad_tol: 1e-12, ..AscentOptions::default() };
     let (_, a, _, _) = povm_ascent(columns_of_povm(current, d), &f, &opts);
     povm_from_columns(&a, outcomes)
 }

@@ -39,6 +39,7 @@ use crate::exact::bounds::{fggnp_information, game_bound, six_state_weights};
 use crate::exact::eval::{evaluate_unchecked, EvalOptions, Evaluation};
 use crate::numeric::linalg::CVec;
 use crate::numeric::linalg::{c, orthonormal_columns, CMat, Tolerance};
+use crate::numeric::optimize::golden_section_midpoint;
 use crate::protocol::Protocol;
 use crate::quantum::measures::{accessible_information, binary_entropy, measured_information, shannon_entropy, AccessibleOptions};
 use argmin::core::{CostFunction, Executor, Gradient, State};
@@ -125,18 +126,8 @@ pub fn six_state_holevo_bound(q: f64) -> f64 {
         }
     }
     // Refine along Q_Z at the corner Q_X = Q_Y = q.
-    let (mut lo, mut hi) = (0.0, q);
-    let g = (5f64.sqrt() - 1.0) / 2.0;
-    for _ in 0..100 {
-        let c1 = hi - g * (hi - lo);
-        let c2 = lo + g * (hi - lo);
-        if value(q, q, c1) > value(q, q, c2) {
-            hi = c2;
-        } else {
-            lo = c1;
-        }
-    }
-    best.max(value(q, q, 0.5 * (lo + hi)))
+    let qz = golden_section_midpoint(|qz| value(q, q, qz), 0.0, q, 100);
+    best.max(value(q, q, qz))
 }
 
 /// Hunt settings.

@@ -5,11 +5,12 @@
 //! where it leaks.
 
 use super::RuleParams;
-use super::{h_capped, BlockStats, KeyLength};
+use super::{BlockStats, KeyLength};
+use crate::quantum::measures::binary_entropy_capped;
 
 /// `n·(1 − h(e_X) − f·h(e_Z))` with observed rates (the EC estimate stands in for e_Z).
 pub fn length(obs: &BlockStats, params: &RuleParams) -> KeyLength {
-    let raw = obs.n as f64 * (1.0 - h_capped(obs.e_x) - params.ec_efficiency * h_capped(obs.q_for_ec()));
+    let raw = obs.n as f64 * (1.0 - binary_entropy_capped(obs.e_x) - params.ec_efficiency * binary_entropy_capped(obs.q_for_ec()));
     KeyLength::new(
         raw,
         "asymptotic block length: observed error rates taken as exact, no finite-size terms, no ε",

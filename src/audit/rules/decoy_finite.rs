@@ -32,7 +32,8 @@
 //! ε_PE = ε_sec/28.
 
 use super::RuleParams;
-use super::{ec_leak_bits, h_capped, pa_cost_bits, BlockStats, IntensityObs, KeyLength};
+use super::{ec_leak_bits, pa_cost_bits, BlockStats, IntensityObs, KeyLength};
+use crate::quantum::measures::binary_entropy_capped;
 
 const ASSUMPTIONS: &str = "Poisson source with three intensities, phase randomised; general attacks; finite block with Hoeffding bounds";
 const SOURCE: &str = "after Lim, Curty, Walenta, Xu, Zbinden, PRA 89, 022307 (2014); epsilon accounting documented in rules::decoy_finite";
@@ -127,7 +128,7 @@ fn raw_length(obs: &BlockStats, l: &IntensityObs, params: &RuleParams) -> Option
     }
     let lambda = (v_x1.max(0.0) / s_x1).min(0.5);
     let phi = lambda + gamma(eps_smooth * eps_smooth, lambda, s_x1, s1_key);
-    Some(s0_key + s1_key * (1.0 - h_capped(phi)) - ec_leak_bits(obs, params) - pa_cost_bits(eps_pa))
+    Some(s0_key + s1_key * (1.0 - binary_entropy_capped(phi)) - ec_leak_bits(obs, params) - pa_cost_bits(eps_pa))
 }
 
 #[cfg(test)]

@@ -16,13 +16,14 @@
 //! the `ln(4/ε_sec)` form of the rule (REFERENCES.md §8 discusses the ln(2/ε_sec) variant).
 
 use super::RuleParams;
-use super::{ec_leak_bits, h_capped, pa_cost_bits, sampling_deviation, BlockStats, EpsilonBudget, KeyLength};
+use super::{ec_leak_bits, pa_cost_bits, sampling_deviation, BlockStats, EpsilonBudget, KeyLength};
+use crate::quantum::measures::binary_entropy_capped;
 
 /// The rule's length for a block that passed the abort test.
 pub fn length(obs: &BlockStats, params: &RuleParams) -> KeyLength {
     let budget = EpsilonBudget::split(params.epsilon_sec);
     let mu = sampling_deviation(obs.n, obs.k, budget.smooth);
-    let raw = obs.n as f64 * (1.0 - h_capped(params.abort_qber + mu)) - ec_leak_bits(obs, params) - pa_cost_bits(budget.pa);
+    let raw = obs.n as f64 * (1.0 - binary_entropy_capped(params.abort_qber + mu)) - ec_leak_bits(obs, params) - pa_cost_bits(budget.pa);
     KeyLength::new(
         raw,
         "qubit signals (or squashing), trusted measurements, abort if the X error rate exceeds abort_qber; general attacks",

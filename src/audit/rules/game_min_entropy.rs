@@ -8,8 +8,9 @@
 //! `ℓ = n(−log₂ β − h(δ)) − leak_EC − 2 log₂(1/(2ε_PA))`.
 
 use super::RuleParams;
-use super::{ec_leak_bits, h_capped, pa_cost_bits, sampling_deviation, BlockStats, EpsilonBudget, KeyLength};
+use super::{ec_leak_bits, pa_cost_bits, sampling_deviation, BlockStats, EpsilonBudget, KeyLength};
 use crate::exact::bounds::game_bound;
+use crate::quantum::measures::binary_entropy_capped;
 
 /// The rule's length.
 pub fn length(obs: &BlockStats, params: &RuleParams) -> KeyLength {
@@ -24,7 +25,7 @@ pub fn length(obs: &BlockStats, params: &RuleParams) -> KeyLength {
     if delta == f64::NEG_INFINITY {
         delta = 0.5;
     }
-    let per_bit = -game_bound().log2() - h_capped(delta);
+    let per_bit = -game_bound().log2() - binary_entropy_capped(delta);
     let raw = obs.n as f64 * per_bit - ec_leak_bits(obs, params) - pa_cost_bits(budget.pa);
     KeyLength::new(
         raw,
@@ -36,6 +37,8 @@ pub fn length(obs: &BlockStats, params: &RuleParams) -> KeyLength {
 #[cfg(test)]
 mod tests {
     use super::*;
+    use crate::numeric::optimize::bisect;
+    use crate::quantum::measures::binary_entropy;
     use approx::assert_abs_diff_eq;
 
     #[test]
@@ -43,9 +46,7 @@ mod tests {
         // −log₂(½ + 1/(2√2)) = 0.2284466968; 0.22845 − 2h(δ) = 0 at δ = 0.015309
         // (REFERENCES.md §11 [N; rate form M?]).
         assert_abs_diff_eq!(-game_bound().log2(), 0.2284466968, epsilon = 1e-9);
-        let root =
-            crate::exact::bounds::bisect(|d| -game_bound().log2() - 2.0 * crate::quantum::measures::binary_entropy(d), 1e-9, 0.5, 1e-12)
-                .unwrap();
+        let root = bisect(|d| -game_bound().log2() - 2.0 * binary_entropy(d), 1e-9, 0.5, 1e-12).unwrap();
         assert_abs_diff_eq!(root, 0.015309, epsilon = 1e-5);
     }
 }

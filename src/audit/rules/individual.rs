@@ -5,14 +5,15 @@
 //! finite-size correction. Insecure against collective attacks.
 
 use super::RuleParams;
-use super::{h_capped, BlockStats, KeyLength};
+use super::{BlockStats, KeyLength};
 use crate::exact::bounds::fggnp_information;
+use crate::quantum::measures::binary_entropy_capped;
 
 /// The rule's length.
 pub fn length(obs: &BlockStats, params: &RuleParams) -> KeyLength {
     let d = obs.q_for_ec().max(if obs.e_x.is_nan() { 0.0 } else { obs.e_x });
     let info = if d.is_nan() || d >= 0.5 { 1.0 } else { fggnp_information(d.max(0.0)) };
-    let raw = obs.n as f64 * (1.0 - params.ec_efficiency * h_capped(obs.q_for_ec()) - info);
+    let raw = obs.n as f64 * (1.0 - params.ec_efficiency * binary_entropy_capped(obs.q_for_ec()) - info);
     KeyLength::new(
         raw,
         "Eve measures each signal individually after the basis announcement; asymptotic; no ε",

@@ -12,8 +12,9 @@
 //!   `ℓ = n·(Q₁ᴸ/Q_μ)[1 − h(e₁ᵁ)] − leak_EC`, asymptotic (no finite-size terms).
 
 use super::RuleParams;
-use super::{ec_leak_bits, finite_uncertainty, h_capped, BlockStats, KeyLength};
+use super::{ec_leak_bits, finite_uncertainty, BlockStats, KeyLength};
 use crate::exact::keyrate::vacuum_weak_bounds;
+use crate::quantum::measures::binary_entropy_capped;
 
 /// `naive-single-photon`.
 pub fn naive_single_photon(obs: &BlockStats, params: &RuleParams) -> KeyLength {
@@ -34,10 +35,10 @@ pub fn gllp_no_decoy(obs: &BlockStats, params: &RuleParams) -> KeyLength {
     };
     let q = l.gain(0);
     let delta = l.multi_photon[0] / q;
-    let raw = if !(delta < 1.0) {
+    let raw = if delta.is_nan() || delta >= 1.0 {
         -ec_leak_bits(obs, params)
     } else {
-        obs.n as f64 * (1.0 - delta) * (1.0 - h_capped(obs.e_x / (1.0 - delta))) - ec_leak_bits(obs, params)
+        obs.n as f64 * (1.0 - delta) * (1.0 - binary_entropy_capped(obs.e_x / (1.0 - delta))) - ec_leak_bits(obs, params)
     };
     KeyLength::new(raw, ASSUMPTIONS, SOURCE)
 }
@@ -59,7 +60,7 @@ pub fn decoy_vacuum_weak(obs: &BlockStats, params: &RuleParams) -> KeyLength {
     let (y1l, e1u) = vacuum_weak_bounds(mu, nu, q_mu, l.gain(w), l.x_error_rate(w), l.gain(v));
     let single_fraction = (y1l * mu * (-mu).exp() / q_mu).clamp(0.0, 1.0);
     let raw = if y1l > 0.0 && single_fraction.is_finite() {
-        obs.n as f64 * single_fraction * (1.0 - h_capped(e1u)) - ec_leak_bits(obs, params)
+        obs.n as f64 * single_fraction * (1.0 - binary_entropy_capped(e1u)) - ec_leak_bits(obs, params)
     } else {
         -ec_leak_bits(obs, params)
     };

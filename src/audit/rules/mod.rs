@@ -269,16 +269,6 @@ pub fn sampling_deviation(n: u64, k: u64, eps: f64) -> f64 {
     ((n + k) / (n * k) * (k + 1.0) / k * (1.0 / eps).ln()).sqrt()
 }
 
-/// `h(min(x, ½))`: the binary entropy of an error-rate bound, which never favours Eve
-/// when the bound passes ½.
-pub fn h_capped(x: f64) -> f64 {
-    if x.is_nan() || x >= 0.5 {
-        1.0
-    } else {
-        binary_entropy(x.max(0.0))
-    }
-}
-
 /// AEP lower bound on the smooth min-entropy of `n` i.i.d. rounds of a classical bit X
 /// with conditional entropy `h` (bits): `n·h − 4 log₂(2+√2) √(n log₂(2/ε²))`, valid for
 /// `n ≥ (8/5) log₂(2/ε²)` (Tomamichel, Colbeck, Renner, IEEE TIT 55, 5840, 2009, with

@@ -25,9 +25,9 @@
 //!    `certificate_tol` of the projective value, goes to the multi-start search below.
 //!
 //! The search: rank-one POVMs with at most `d²` outcomes suffice (Davies, IEEE TIT 24, 596,
-//! 1978); a rank-one POVM `{|a_k><a_k|}` is the set of columns of a d × K matrix `A` with
-//! `A A† = 1`, and `I(X:M)` is maximised on that manifold by a Riemannian quasi-Newton
-//! (L-BFGS) ascent from several seeded starts. For two states the dual bound [`dual_upper_bound`] steers
+//! 1978), and `I(X:M)` is maximised over them by the Riemannian quasi-Newton (L-BFGS)
+//! ascent [`povm_lbfgs`] (its module doc describes the manifold and the steps) from
+//! several seeded starts. For two states the dual bound [`dual_upper_bound`] steers
 //! it: a bound within `certificate_tol` of the best value proves that no start can do
 //! better and ends the search; a wider one sends it on (polishing, more random starts).
 //!
@@ -40,6 +40,7 @@ use super::qubit_pair;
 use super::{holevo_quantity, measured_information, mutual_information};
 use crate::error::Result;
 use crate::numeric::linalg::{c, hermitian_eigen, CMat, CVec, RMat};
+use crate::numeric::optimize::{povm_lbfgs, AscentOptions};
 use rand::{Rng, SeedableRng};
 use rand_distr::StandardNormal;
 
@@ -50,22 +51,19 @@ pub struct AccessibleOptions {
     pub random_starts: usize,
     /// Seed of the starting POVMs (default 0x5eed): the result is deterministic.
     pub seed: u64,
-    /// Convergence: stop a start when `window` consecutive steps together gain less than
-    /// this many bits (default 1e-11).
-    pub gain_tol: f64,
-    /// See `gain_tol` (default 10).
-    pub window: usize,
-    /// Iteration cap per start (default 3000); hitting it is reported in
-    /// [`Accessible::converged`], not hidden.
-    pub max_iter: usize,
-    /// Convergence: stop when the Riemannian gradient norm falls below this (default 1e-10).
-    pub grad_tol: f64,
-    /// Random starts stop when `window` steps gain less than this (default 1e-9); one that
-    /// ends more than this above the best value so far is polished with `gain_tol`.
+    /// Stopping rules of each start's ascent (defaults of [`AscentOptions`]: stop when
+    /// `window` = 10 consecutive steps together gain less than `gain_tol` = 1e-11 bits, when
+    /// the Riemannian gradient norm falls below `grad_tol` = 1e-10, or after `max_iter` =
+    /// 3000 steps; hitting the cap is reported in [`Accessible::converged`], not hidden).
+    /// `gain_tol` is also the slack within which a value counts as reaching the Holevo
+    /// quantity.
+    pub ascent: AscentOptions,
+    /// Random starts stop when `ascent.window` steps gain less than this (default 1e-9); one
+    /// that ends more than this above the best value so far is polished with `gain_tol`.
     pub screen_gain_tol: f64,
     /// Rounds of polishing when the dual bound is not yet within `certificate_tol` after
     /// the planned starts (default 3): each continues the best POVM's ascent without the
-    /// windowed-gain stop, up to `max_iter` steps.
+    /// windowed-gain stop, up to `ascent.max_iter` steps.
     pub polish_rounds: usize,
     /// Random starts in all, at most, while the dual bound is not within `certificate_tol`
     /// (two states; default 24). Fewer than `random_starts` means no extra starts.
@@ -91,10 +89,7 @@ impl Default for AccessibleOptions {
         AccessibleOptions {
             random_starts: 3,
             seed: 0x5eed,
-            gain_tol: 1e-11,
-            window: 10,
-            max_iter: 3000,
-            grad_tol: 1e-10,
+            ascent: AscentOptions::default(),
             screen_gain_tol: 1e-9,
             polish_rounds: 3,
             max_random_starts: 24,
@@ -153,7 +148,7 @@ fn commuting(priors: &[f64], states: &[CMat], opts: &AccessibleOptions) -> Optio
     let povm = eigen_columns(&generic_combination(states));
     let bits = measured_information(priors, states, &povm);
     let chi = holevo_quantity(priors, states);
-    (bits >= chi - opts.gain_tol).then_some(Accessible { bits, povm, iterations: 0, converged: true, upper_bound: Some(chi) })
+    (bits >= chi - opts.ascent.gain_tol).then_some(Accessible { bits, povm, iterations: 0, converged: true, upper_bound: Some(chi) })
 }
 
 /// `Σᵢ (i + π) ρᵢ`: a positive combination with no accidental symmetry between the states.
@@ -395,7 +390,7 @@ fn search(priors: &[f64], states: &[CMat], opts: &AccessibleOptions) -> Result<A
     let dual = |povm: &[CVec]| dual_upper_bound([priors[0], priors[1]], [&states[0], &states[1]], povm);
     let mut s = Search { best: None, iterations: 0, bound: None };
     let certified = |s: &Search| s.bound.is_some_and(|u| u - s.value() <= opts.certificate_tol);
-    let holevo_reached = |s: &Search| s.value() >= chi - opts.gain_tol;
+    let holevo_reached = |s: &Search| s.value() >= chi - opts.ascent.gain_tol;
     // Structured starts, then the planned random starts.
     for (i, start) in structured.into_iter().map(Some).chain((0..opts.random_starts).map(|_| None)).enumerate() {
         let start = start.unwrap_or_else(&mut random_start);
@@ -412,7 +407,7 @@ fn search(priors: &[f64], states: &[CMat], opts: &AccessibleOptions) -> Result<A
     }
     // Not yet shown optimal (two states): polish, then more random starts.
     if two_states && !holevo_reached(&s) && !certified(&s) {
-        let strict = AccessibleOptions { gain_tol: 0.0, grad_tol: opts.grad_tol * 1e-4, ..opts.clone() };
+        let strict = AscentOptions { gain_tol: 0.0, grad_tol: opts.ascent.grad_tol * 1e-4, ..opts.ascent };
         let mut extra = opts.max_random_starts.saturating_sub(opts.random_starts);
         loop {
             for _ in 0..opts.polish_rounds {
@@ -432,12 +427,12 @@ fn search(priors: &[f64], states: &[CMat], opts: &AccessibleOptions) -> Result<A
         }
     }
     let (bits, povm, converged) = s.best.take().expect("at least one start ran");
-    let upper_bound = if bits >= chi - opts.gain_tol { chi } else { s.bound.map_or(chi, |u| u.min(chi)) };
+    let upper_bound = if bits >= chi - opts.ascent.gain_tol { chi } else { s.bound.map_or(chi, |u| u.min(chi)) };
     Ok(Accessible {
         bits,
         povm,
         iterations: s.iterations,
-        converged: converged || bits >= chi - opts.gain_tol,
+        converged: converged || bits >= chi - opts.ascent.gain_tol,
         upper_bound: Some(upper_bound),
     })
 }
@@ -478,8 +473,8 @@ impl Search {
         self.best.as_ref().map(|b| b.1.clone()).unwrap_or_default()
     }
     /// Polishes the best POVM with [`povm_lbfgs`]; returns whether that gained.
-    fn polish(&mut self, priors: &[f64], states: &[CMat], opts: &AccessibleOptions) -> bool {
-        let run = ascend_lbfgs(priors, states, &self.povm(), opts);
+    fn polish(&mut self, priors: &[f64], states: &[CMat], opts: &AscentOptions) -> bool {
+        let run = ascend(priors, states, &self.povm(), opts);
         self.iterations += run.iterations;
         let improved = run.value > self.value();
         if improved {
@@ -493,16 +488,16 @@ impl Search {
     /// with the full rule if it ends above the best value so far.
     fn run(&mut self, priors: &[f64], states: &[CMat], start: &[CVec], opts: &AccessibleOptions, screened: bool) -> bool {
         let run = if screened && self.best.is_some() {
-            let loose = AccessibleOptions { gain_tol: opts.screen_gain_tol.max(opts.gain_tol), ..opts.clone() };
+            let loose = AscentOptions { gain_tol: opts.screen_gain_tol.max(opts.ascent.gain_tol), ..opts.ascent };
             let first = ascend(priors, states, start, &loose);
             self.iterations += first.iterations;
             if first.value > self.value() + opts.screen_gain_tol {
-                ascend(priors, states, &first.povm, opts)
+                ascend(priors, states, &first.povm, &opts.ascent)
             } else {
                 first
             }
         } else {
-            ascend(priors, states, start, opts)
+            ascend(priors, states, start, &opts.ascent)
         };
         self.iterations += run.iterations;
         let improved = run.value > self.value();
@@ -563,31 +558,6 @@ fn info_and_grad(priors: &[f64], states: &[CMat], a: &CMat, want_grad: bool) -> 
     (value, grad)
 }
 
-/// Real inner product `Re tr(X†Y)`.
-fn inner(x: &CMat, y: &CMat) -> f64 {
-    x.iter().zip(y.iter()).map(|(p, q)| (p.conj() * q).re).sum()
-}
-
-/// Projects `xi` onto the tangent space of `{A : A A† = 1}` at `a`: `ξ − sym(ξA†) A`.
-fn tangent(a: &CMat, xi: &CMat) -> CMat {
-    let m = xi * a.adjoint();
-    let sym = (&m + m.adjoint()) * c(0.5, 0.0);
-    xi - sym * a
-}
-
-/// Retraction onto `{A : A A† = 1}`: `L⁻¹ B` with `B B† = L L†` (Cholesky; a QR-type
-/// retraction), falling back to the polar form `(B B†)^{-1/2} B` if `B B†` is not
-/// numerically positive definite.
-fn retract(b: &CMat) -> CMat {
-    let g = b * b.adjoint();
-    if let Some(chol) = g.clone().cholesky() {
-        if let Some(x) = chol.l().solve_lower_triangular(b) {
-            return x;
-        }
-    }
-    crate::numeric::linalg::psd_inverse_sqrt(&g, 1e-300) * b
-}
-
 /// One start's outcome.
 struct Ascent {
     value: f64,
@@ -596,183 +566,12 @@ struct Ascent {
     converged: bool,
 }
 
-fn ascend_lbfgs(priors: &[f64], states: &[CMat], start: &[CVec], opts: &AccessibleOptions) -> Ascent {
+/// Ascends from `start` by [`povm_lbfgs`] on `I(X:M)`.
+fn ascend(priors: &[f64], states: &[CMat], start: &[CVec], opts: &AscentOptions) -> Ascent {
     let d = start[0].len();
     let a0 = CMat::from_fn(d, start.len(), |r, k| start[k][r]);
     let (value, a, iterations, converged) = povm_lbfgs(a0, &|a, g| info_and_grad(priors, states, a, g), opts);
     Ascent { value, povm: columns(&a), iterations, converged }
-}
-
-fn ascend(priors: &[f64], states: &[CMat], start: &[CVec], opts: &AccessibleOptions) -> Ascent {
-    let d = start[0].len();
-    let a0 = CMat::from_fn(d, start.len(), |r, k| start[k][r]);
-    let (value, a, iterations, converged) = povm_lbfgs(a0, &|a, g| info_and_grad(priors, states, a, g), opts);
-    Ascent { value, povm: columns(&a), iterations, converged }
-}
-
-/// Maximises a smooth function `f` of a rank-one POVM `{|a_k><a_k|}`, written as the
-/// columns of a d × K matrix `A` with `A A† = 1`, by Riemannian conjugate-gradient ascent
-/// (Polak–Ribière+, projection transport, QR-type retraction, Armijo steps; Absil, Mahony,
-/// Sepulchre 2008). `f(A, want_grad)` returns the value and, if asked, the Euclidean
-/// gradient `2 ∂f/∂Ā`. The start is retracted onto the manifold first. Stops as described
-/// in [`AccessibleOptions`] (gradient norm, windowed gain, iteration cap). Returns (value,
-/// A, iterations, converged).
-pub fn povm_ascent(start: CMat, f: &dyn Fn(&CMat, bool) -> (f64, Option<CMat>), opts: &AccessibleOptions) -> (f64, CMat, usize, bool) {
-    let mut a = retract(&start);
-    let (mut value, eg) = f(&a, true);
-    let mut g = tangent(&a, &eg.expect("gradient requested"));
-    let mut eta = g.clone();
-    let mut step = 1.0;
-    let mut window = GainWindow::new(opts);
-    for iter in 0..opts.max_iter {
-        let g2 = inner(&g, &g);
-        if g2.sqrt() < opts.grad_tol {
-            return (value, a, iter, true);
-        }
-        let mut slope = inner(&g, &eta);
-        if slope <= 0.0 {
-            eta = g.clone();
-            slope = g2;
-        }
-        // Armijo backtracking from a step that grows after successes.
-        let Some((cand, cand_value, t)) = armijo(f, &a, value, &eta, slope, step * 2.0) else {
-            return (value, a, iter, true);
-        };
-        step = t;
-        let gain = cand_value - value;
-        a = cand;
-        value = cand_value;
-        let (_, eg) = f(&a, true);
-        let g_new = tangent(&a, &eg.expect("gradient requested"));
-        let g_old = tangent(&a, &g);
-        let beta = (inner(&g_new, &(&g_new - &g_old)) / g2).max(0.0);
-        eta = &g_new + tangent(&a, &eta) * c(beta, 0.0);
-        g = g_new;
-        if window.stalled(gain) {
-            return (value, a, iter + 1, true);
-        }
-    }
-    (value, a, opts.max_iter, false)
-}
-
-/// Riemannian L-BFGS ascent of `f` over the same manifold as [`povm_ascent`] (memory 10,
-/// stored pairs carried to the current point by projection onto its tangent space as
-/// vector transport, Armijo steps from the unit step; Absil, Mahony, Sepulchre,
-/// "Optimization Algorithms on Matrix Manifolds", 2008, ch. 4 and 8). The quasi-Newton
-/// curvature finishes where conjugate gradients creep (nearly identical states, outcomes
-/// of tiny probability); the accessible-information search uses it for every start. Same
-/// stopping rules and return value as [`povm_ascent`].
-pub fn povm_lbfgs(start: CMat, f: &dyn Fn(&CMat, bool) -> (f64, Option<CMat>), opts: &AccessibleOptions) -> (f64, CMat, usize, bool) {
-    const MEMORY: usize = 10;
-    let mut a = retract(&start);
-    let (mut value, eg) = f(&a, true);
-    let mut g = tangent(&a, &eg.expect("gradient requested"));
-    // Pairs (s, y, 1/⟨s, y⟩) for the minimisation of −f: y = g_old − g_new.
-    let mut pairs: std::collections::VecDeque<(CMat, CMat, f64)> = std::collections::VecDeque::new();
-    let mut window = GainWindow::new(opts);
-    for iter in 0..opts.max_iter {
-        if inner(&g, &g).sqrt() < opts.grad_tol {
-            return (value, a, iter, true);
-        }
-        // Two-loop recursion: direction = H·g (ascent for f).
-        let mut q = g.clone();
-        let mut alphas = Vec::with_capacity(pairs.len());
-        for (s_i, y_i, rho_i) in pairs.iter().rev() {
-            let alpha = rho_i * inner(s_i, &q);
-            q -= y_i * c(alpha, 0.0);
-            alphas.push(alpha);
-        }
-        if let Some((s_n, y_n, _)) = pairs.back() {
-            q *= c(inner(s_n, y_n) / inner(y_n, y_n), 0.0);
-        }
-        for ((s_i, y_i, rho_i), alpha) in pairs.iter().zip(alphas.into_iter().rev()) {
-            let beta = rho_i * inner(y_i, &q);
-            q += s_i * c(alpha - beta, 0.0);
-        }
-        let mut dir = tangent(&a, &q);
-        let mut slope = inner(&g, &dir);
-        if !(slope > 0.0) {
-            pairs.clear();
-            dir = g.clone();
-            slope = inner(&g, &g);
-        }
-        let Some((cand, cand_value, t)) = armijo(f, &a, value, &dir, slope, 1.0) else {
-            return (value, a, iter, true);
-        };
-        let gain = cand_value - value;
-        let (_, eg) = f(&cand, true);
-        let g_new = tangent(&cand, &eg.expect("gradient requested"));
-        // Carry the step, the old gradient and the stored pairs to the new point.
-        let s_new = tangent(&cand, &(&dir * c(t, 0.0)));
-        let y_new = tangent(&cand, &g) - &g_new;
-        for (s_i, y_i, _) in pairs.iter_mut() {
-            *s_i = tangent(&cand, s_i);
-            *y_i = tangent(&cand, y_i);
-        }
-        let sy = inner(&s_new, &y_new);
-        if sy > 1e-300 {
-            pairs.push_back((s_new, y_new, 1.0 / sy));
-            if pairs.len() > MEMORY {
-                pairs.pop_front();
-            }
-        }
-        a = cand;
-        value = cand_value;
-        g = g_new;
-        if window.stalled(gain) {
-            return (value, a, iter + 1, true);
-        }
-    }
-    (value, a, opts.max_iter, false)
-}
-
-/// Armijo backtracking along `dir` from step `t0`, halving: the first retracted point that
-/// gains at least `1e-4·t·slope`, as (point, value, step); `None` when even a step at
-/// machine precision does not ascend (the point is stationary).
-fn armijo(
-    f: &dyn Fn(&CMat, bool) -> (f64, Option<CMat>),
-    a: &CMat,
-    value: f64,
-    dir: &CMat,
-    slope: f64,
-    t0: f64,
-) -> Option<(CMat, f64, f64)> {
-    let mut t = t0;
-    loop {
-        let cand = retract(&(a + dir * c(t, 0.0)));
-        let (v, _) = f(&cand, false);
-        if v >= value + 1e-4 * t * slope {
-            return Some((cand, v, t));
-        }
-        t *= 0.5;
-        if t * slope.sqrt() < 1e-17 {
-            return None;
-        }
-    }
-}
-
-/// The windowed-gain stopping rule of [`AccessibleOptions`]: stalled once `window`
-/// consecutive steps together gain less than `gain_tol`.
-struct GainWindow {
-    gains: std::collections::VecDeque<f64>,
-    total: f64,
-    window: usize,
-    tol: f64,
-}
-
-impl GainWindow {
-    fn new(opts: &AccessibleOptions) -> Self {
-        GainWindow { gains: std::collections::VecDeque::new(), total: 0.0, window: opts.window, tol: opts.gain_tol }
-    }
-    /// Records one step's gain; returns whether the search has stalled.
-    fn stalled(&mut self, gain: f64) -> bool {
-        self.gains.push_back(gain);
-        self.total += gain;
-        if self.gains.len() > self.window {
-            self.total -= self.gains.pop_front().unwrap_or(0.0);
-        }
-        self.gains.len() >= self.window && self.total < self.tol
-    }
 }
 
 fn columns(a: &CMat) -> Vec<CVec> {

@@ -12,7 +12,7 @@ use crate::numeric::linalg::{c, CMat, CVec};
 pub mod accessible;
 pub mod qubit_pair;
 
-pub use accessible::{accessible_information, dual_upper_bound, invariant_blocks, povm_ascent, povm_lbfgs, Accessible, AccessibleOptions};
+pub use accessible::{accessible_information, dual_upper_bound, invariant_blocks, Accessible, AccessibleOptions};
 #[doc(hidden)]
 pub fn accessible_dual(p: &[f64], s: &[CMat], povm: &[CVec]) -> f64 {
     dual_upper_bound([p[0], p[1]], [&s[0], &s[1]], povm)
@@ -25,6 +25,22 @@ pub fn binary_entropy(p: f64) -> f64 {
         return f64::NAN;
     }
     xlog(p) + xlog(1.0 - p)
+}
+
+/// Binary entropy of an error-rate estimate or bound, clamped to what a key-length formula
+/// may safely use: `h(min(x, ½))` with a negative `x` read as 0, and 1 for NaN.
+///
+/// `h` falls again above ½, so an estimate at or past ½ would otherwise be charged less
+/// than one of exactly ½ and a key-length formula would favour Eve the worse the channel
+/// looks; the cap charges it the maximum, 1 bit, and a NaN estimate (no data behind it)
+/// is charged the same. Below 0 (a bound pushed there by rounding) the entropy is that of
+/// 0, where plain [`binary_entropy`] would return NaN.
+pub fn binary_entropy_capped(x: f64) -> f64 {
+    if x.is_nan() || x >= 0.5 {
+        1.0
+    } else {
+        binary_entropy(x.max(0.0))
+    }
 }
 
 /// `−x log₂ x` with the limit 0 at x = 0.
@@ -132,6 +148,23 @@ mod tests {
         assert_eq!(binary_entropy(0.0), 0.0);
         assert_eq!(binary_entropy(0.5), 1.0);
         assert!(binary_entropy(1.5).is_nan());
+    }
+
+    #[test]
+    fn capped_entropy_is_h_below_one_half_and_one_from_there() {
+        for i in 0..500 {
+            let x = i as f64 / 1000.0;
+            assert_eq!(binary_entropy_capped(x).to_bits(), binary_entropy(x).to_bits(), "x = {x}");
+        }
+        for x in [0.5, 0.5 + 1e-16, 0.7, 1.0, 3.0, f64::INFINITY, f64::NAN] {
+            assert_eq!(binary_entropy_capped(x), 1.0, "x = {x}");
+        }
+        for x in [-1e-18, -0.2, f64::NEG_INFINITY] {
+            assert_eq!(binary_entropy_capped(x), 0.0, "x = {x}");
+        }
+        // Never decreasing: a larger error rate never buys a longer key.
+        let grid: Vec<f64> = (-10..=1200).map(|i| binary_entropy_capped(i as f64 / 1000.0)).collect();
+        assert!(grid.windows(2).all(|w| w[0] <= w[1]));
     }
 
     #[test]
