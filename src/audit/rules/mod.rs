@@ -20,7 +20,7 @@ pub mod game_min_entropy;
 pub mod individual;
 pub mod link_rules;
 
-use crate::quantum::measures::binary_entropy;
+use crate::quantum::measures::binary_entropy_capped;
 use serde::Serialize;
 use std::fmt;
 use std::str::FromStr;
@@ -253,8 +253,8 @@ pub fn verification_bits(eps_cor: f64) -> f64 {
 /// Error-correction leak: `f·n·h(Q) + log₂(2/ε_cor)` bits.
 pub fn ec_leak_bits(obs: &BlockStats, params: &RuleParams) -> f64 {
     let q = obs.q_for_ec();
-    let hq = if q.is_nan() { 1.0 } else { binary_entropy(q.min(0.5)) };
-    params.ec_efficiency * obs.n as f64 * hq + verification_bits(params.epsilon_cor)
+    // No observed rate (NaN) charges the full bit, as does a rate of ½ or more.
+    params.ec_efficiency * obs.n as f64 * binary_entropy_capped(q) + verification_bits(params.epsilon_cor)
 }
 
 /// Deviation μ such that the error rate on `n` unobserved bits exceeds the rate observed
