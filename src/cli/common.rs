@@ -107,7 +107,7 @@ pub fn print(text: &str) -> Result<()> {
     write_stdout(&mut std::io::stdout().lock(), text)
 }
 
-/// Writes to `out`; a closed pipe (e.g. `| head`) is not an error (see [`print`]).
+/// Writes to `out`; a closed pipe (e.g. `| head`) is not an error (see [`fn@print`]).
 pub fn write_stdout(out: &mut impl Write, text: &str) -> Result<()> {
     match out.write_all(text.as_bytes()).and_then(|_| out.flush()) {
         Ok(()) => Ok(()),

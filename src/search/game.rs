@@ -51,7 +51,7 @@ fn povm_from_columns(a: &CMat, outcomes: usize) -> Vec<CMat> {
     (0..outcomes)
         .map(|x| {
             let cols = a.columns(x * per, per);
-            &cols * cols.adjoint()
+            cols * cols.adjoint()
         })
         .collect()
 }

@@ -295,7 +295,7 @@ mod tests {
         assert_abs_diff_eq!(4.0 * (2.0 + std::f64::consts::SQRT_2).log2(), 7.0862133, epsilon = 1e-6);
         assert_abs_diff_eq!(aep_min_entropy(1_000_000, 0.713603, 1e-10).unwrap(), 655_410.4, epsilon = 1.0);
         assert_abs_diff_eq!(aep_min_entropy(100_000, 1.0, 1e-10).unwrap(), 81_597.9, epsilon = 1.0);
-        let h = 1.0 - binary_entropy(0.03);
+        let h = 1.0 - crate::quantum::measures::binary_entropy(0.03);
         assert_abs_diff_eq!(aep_min_entropy(100_000_000, h, 1e-9).unwrap() / 1e7, 8.000830, epsilon = 1e-5);
         assert!(aep_min_entropy(10, 1.0, 1e-10).is_none());
     }

@@ -20,7 +20,7 @@
 //!    one-dimensional blocks, so the later stages work on the support only.
 //! 3. **Per block:** a one-dimensional block or one holding a single state carries no
 //!    further information; commuting block states go to stage 1; a pair of qubit states is
-//!    solved by [`qubit_pair`](super::qubit_pair): the best projective measurement with a
+//!    solved by [`qubit_pair`]: the best projective measurement with a
 //!    dual upper bound; anything else, or a qubit pair whose bound is not within
 //!    `certificate_tol` of the projective value, goes to the multi-start search below.
 //!
