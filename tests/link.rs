@@ -134,7 +134,7 @@ fn link_sampler_matches_the_exact_gains_and_error_rates() {
         key += c.key_bits();
         multi += classes[2];
         entropy += c.key_entropy_bits.unwrap();
-        let l = c.link.unwrap();
+        let l = c.intensities.unwrap();
         for k in 0..3 {
             pulses[k] += l.pulses[k];
             det[k] += l.detections[k];
@@ -280,8 +280,14 @@ fn finite_decoy_rule_approaches_the_asymptotic_decoy_bound_for_huge_blocks() {
         obs.x_detections[k] = (n_pulses * p * model.gain(k) * px) as u64;
         obs.x_errors[k] = (obs.x_detections[k] as f64 * model.error_rate(k)) as u64;
     }
-    let stats =
-        BlockStats { n: obs.z_detections[0], k: obs.x_detections[0], m: 0, e_z: f64::NAN, e_x: model.error_rate(0), link: Some(obs) };
+    let stats = BlockStats {
+        n: obs.z_detections[0],
+        k: obs.x_detections[0],
+        m: 0,
+        e_z: f64::NAN,
+        e_x: model.error_rate(0),
+        intensities: Some(obs),
+    };
     let finite = KeyRule::DecoyFinite.length(&stats, &s.rule_params()).raw_bits / stats.n as f64;
     let asymptotic = KeyRule::DecoyVacuumWeak.length(&stats, &s.rule_params()).raw_bits / stats.n as f64;
     assert!(finite > 0.0 && asymptotic > 0.0, "{finite} {asymptotic}");
@@ -400,7 +406,7 @@ fn single_photon_link_sampler_matches_the_exact_model() {
         assert_eq!(classes[1], c.key_bits(), "only single-photon key bits");
         key += c.key_bits();
         entropy += c.key_entropy_bits.unwrap();
-        let l = c.link.unwrap();
+        let l = c.intensities.unwrap();
         assert_eq!(l.count, 1);
         assert!(l.mu[0] == 1.0 && l.multi_photon[0] == 0.0);
         pulses += l.pulses[0];

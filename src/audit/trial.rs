@@ -103,7 +103,7 @@ pub fn judge(counts: &BlockCounts, rule: KeyRule, params: &RuleParams, h_x_given
     let n = counts.key_bits();
     let m = counts.test_z;
     let k = counts.sifted[1];
-    let stats = BlockStats { n, k, m, e_z: rate(counts.test_z_errors, m), e_x: rate(counts.errors[1], k), link: counts.link };
+    let stats = BlockStats { n, k, m, e_z: rate(counts.test_z_errors, m), e_x: rate(counts.errors[1], k), intensities: counts.intensities };
     let e_y = rate(counts.errors[2], counts.sifted[2]);
     let exceeds = |e: f64| !e.is_nan() && e > params.abort_qber;
     let aborted = n == 0 || k == 0 || exceeds(stats.e_x) || exceeds(stats.e_z) || exceeds(e_y);

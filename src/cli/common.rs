@@ -116,8 +116,3 @@ pub fn write_stdout(out: &mut impl Write, text: &str) -> Result<()> {
         Err(e) => Err(Error::new(crate::error::ErrorKind::Io, format!("cannot write to stdout: {e}"))),
     }
 }
-
-/// Names of the built-in families, for help texts.
-pub fn family_names() -> Vec<&'static str> {
-    FAMILIES.iter().map(|f| f.name()).collect()
-}

@@ -43,7 +43,7 @@ pub struct KeyrateArgs {
 
 /// Runs `qkd-audit keyrate`.
 pub fn cmd_keyrate(a: KeyrateArgs) -> Result<Outcome> {
-    use crate::exact::keyrate::{max_distance, rate_table, LinkRule, RateParams};
+    use crate::exact::keyrate::{max_distance, rate_table, RateParams, RateRule};
     use crate::protocol::optical::Link;
     crate::error::check_range("--sifting", a.sifting, 1e-6, 1.0)?;
     crate::error::check_range("--from-km", a.from_km, 0.0, 1000.0)?;
@@ -72,12 +72,12 @@ pub fn cmd_keyrate(a: KeyrateArgs) -> Result<Outcome> {
     let ints = link.source.intensities();
     let nu = ints.iter().skip(1).map(|x| x.0).filter(|m| *m > 0.0).fold(f64::NAN, f64::min);
     let mut rules = if ints.is_empty() {
-        vec![LinkRule::SinglePhoton]
+        vec![RateRule::SinglePhoton]
     } else {
-        vec![LinkRule::NaiveSinglePhoton, LinkRule::GllpNoDecoy, LinkRule::DecoyIdeal]
+        vec![RateRule::NaiveSinglePhoton, RateRule::GllpNoDecoy, RateRule::DecoyIdeal]
     };
     if nu.is_finite() {
-        rules.push(LinkRule::DecoyVacuumWeak);
+        rules.push(RateRule::DecoyVacuumWeak);
     }
     let params = RateParams { sifting: a.sifting, f_ec, nu: if nu.is_finite() { nu } else { 0.0 } };
     // A single-photon source has no intensity to set or optimise.

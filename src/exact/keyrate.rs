@@ -25,10 +25,15 @@ use crate::protocol::optical::{gains, Link, E0};
 use crate::quantum::measures::binary_entropy_capped;
 use serde::Serialize;
 
-/// The asymptotic link-level rules.
+/// The asymptotic rate formulas of `keyrate`: key bits per pulse of an optical link in the
+/// limit of infinite blocks. Three share a name with a finite-block key-length rule of
+/// [`crate::audit::rules::KeyRule`] (`naive-single-photon`, `gllp-no-decoy`,
+/// `decoy-vacuum-weak`): the same security argument, but these take the exact expected gains
+/// and error rates of the link, with no finite-size terms and no ε budget, while the
+/// `KeyRule`s read one sampled block's statistics. They are not interchangeable.
 #[derive(Clone, Copy, Debug, PartialEq, Eq, Serialize)]
 #[serde(rename_all = "kebab-case")]
-pub enum LinkRule {
+pub enum RateRule {
     /// Every detection treated as a single photon.
     NaiveSinglePhoton,
     /// GLLP without decoys.
@@ -41,17 +46,17 @@ pub enum LinkRule {
     SinglePhoton,
 }
 
-impl LinkRule {
+impl RateRule {
     /// The weak-coherent rules, in report order.
-    pub const ALL: [LinkRule; 4] = [LinkRule::NaiveSinglePhoton, LinkRule::GllpNoDecoy, LinkRule::DecoyIdeal, LinkRule::DecoyVacuumWeak];
+    pub const ALL: [RateRule; 4] = [RateRule::NaiveSinglePhoton, RateRule::GllpNoDecoy, RateRule::DecoyIdeal, RateRule::DecoyVacuumWeak];
     /// Interface name.
     pub fn name(self) -> &'static str {
         match self {
-            LinkRule::NaiveSinglePhoton => "naive-single-photon",
-            LinkRule::GllpNoDecoy => "gllp-no-decoy",
-            LinkRule::DecoyIdeal => "decoy-ideal",
-            LinkRule::DecoyVacuumWeak => "decoy-vacuum-weak",
-            LinkRule::SinglePhoton => "single-photon",
+            RateRule::NaiveSinglePhoton => "naive-single-photon",
+            RateRule::GllpNoDecoy => "gllp-no-decoy",
+            RateRule::DecoyIdeal => "decoy-ideal",
+            RateRule::DecoyVacuumWeak => "decoy-vacuum-weak",
+            RateRule::SinglePhoton => "single-photon",
         }
     }
 }
@@ -81,23 +86,23 @@ fn multi_photon_probability(mu: f64) -> f64 {
 }
 
 /// Rate per pulse of `rule` on `link` at intensity `mu` (ignored by `single-photon`).
-pub fn rate(rule: LinkRule, link: &Link, mu: f64, p: &RateParams) -> f64 {
+pub fn rate(rule: RateRule, link: &Link, mu: f64, p: &RateParams) -> f64 {
     let eta = link.transmittance();
     let (y0, ed) = (link.dark_count_probability, link.misalignment);
     let s = gains(mu, eta, y0, ed);
     let ec = p.f_ec * binary_entropy_capped(s.error_rate);
     match rule {
-        LinkRule::SinglePhoton => p.sifting * s.y1 * (1.0 - (1.0 + p.f_ec) * binary_entropy_capped(s.e1)),
-        LinkRule::NaiveSinglePhoton => p.sifting * s.gain * (1.0 - binary_entropy_capped(s.error_rate) - ec),
-        LinkRule::GllpNoDecoy => {
+        RateRule::SinglePhoton => p.sifting * s.y1 * (1.0 - (1.0 + p.f_ec) * binary_entropy_capped(s.e1)),
+        RateRule::NaiveSinglePhoton => p.sifting * s.gain * (1.0 - binary_entropy_capped(s.error_rate) - ec),
+        RateRule::GllpNoDecoy => {
             let delta = multi_photon_probability(mu) / s.gain;
             if delta >= 1.0 {
                 return -p.sifting * s.gain * ec;
             }
             p.sifting * s.gain * (-ec + (1.0 - delta) * (1.0 - binary_entropy_capped(s.error_rate / (1.0 - delta))))
         }
-        LinkRule::DecoyIdeal => p.sifting * (-s.gain * ec + s.single_gain * (1.0 - binary_entropy_capped(s.e1))),
-        LinkRule::DecoyVacuumWeak => {
+        RateRule::DecoyIdeal => p.sifting * (-s.gain * ec + s.single_gain * (1.0 - binary_entropy_capped(s.e1))),
+        RateRule::DecoyVacuumWeak => {
             let w = gains(p.nu, eta, y0, ed);
             let (y1l, e1u) = vacuum_weak_bounds(mu, p.nu, s.gain, w.gain, w.error_rate, y0);
             let q1l = y1l * mu * (-mu).exp();
@@ -113,11 +118,11 @@ pub fn rate(rule: LinkRule, link: &Link, mu: f64, p: &RateParams) -> f64 {
 /// golden-section refinement in log μ between the grid neighbours of the best point. The
 /// grid matters for `gllp-no-decoy`, whose rate is positive only in a narrow window near
 /// μ ≈ 0.6η. Returns (μ, rate).
-pub fn optimal_mu(rule: LinkRule, link: &Link, p: &RateParams) -> (f64, f64) {
-    if rule == LinkRule::SinglePhoton {
+pub fn optimal_mu(rule: RateRule, link: &Link, p: &RateParams) -> (f64, f64) {
+    if rule == RateRule::SinglePhoton {
         return (1.0, rate(rule, link, 1.0, p));
     }
-    let lo = if rule == LinkRule::DecoyVacuumWeak { (p.nu * 1.001).max(1e-6) } else { 1e-6 };
+    let lo = if rule == RateRule::DecoyVacuumWeak { (p.nu * 1.001).max(1e-6) } else { 1e-6 };
     let hi = 1.0_f64;
     let (llo, lhi) = (lo.ln(), hi.ln());
     let n = 60;
@@ -132,7 +137,7 @@ pub fn optimal_mu(rule: LinkRule, link: &Link, p: &RateParams) -> (f64, f64) {
 /// Maximum distance (km) at which the rule's rate is positive, with the intensity optimised
 /// (`mu = None`) or fixed; bisection to 1e-6 km on [0, 500]. `None` if the rate is not
 /// positive at 0 km.
-pub fn max_distance(rule: LinkRule, link: &Link, mu: Option<f64>, p: &RateParams) -> Result<Option<f64>> {
+pub fn max_distance(rule: RateRule, link: &Link, mu: Option<f64>, p: &RateParams) -> Result<Option<f64>> {
     let rate_at = |km: f64| -> f64 {
         let l = link.at_distance(km);
         match mu {
@@ -157,7 +162,7 @@ pub struct RateRow {
     /// Overall transmittance η.
     pub transmittance: f64,
     /// Rule.
-    pub rule: LinkRule,
+    pub rule: RateRule,
     /// Signal intensity used, photons per pulse (1 for a single-photon source).
     pub mu: f64,
     /// Gain Q_μ (Y₁ for a single-photon source).
@@ -169,7 +174,7 @@ pub struct RateRow {
 }
 
 /// Rates over `distances` for `rules`, with μ optimised or fixed.
-pub fn rate_table(link: &Link, distances: &[f64], rules: &[LinkRule], mu: Option<f64>, p: &RateParams) -> Vec<RateRow> {
+pub fn rate_table(link: &Link, distances: &[f64], rules: &[RateRule], mu: Option<f64>, p: &RateParams) -> Vec<RateRow> {
     use rayon::prelude::*;
     distances
         .par_iter()
@@ -183,7 +188,7 @@ pub fn rate_table(link: &Link, distances: &[f64], rules: &[LinkRule], mu: Option
                         None => optimal_mu(rule, &l, p),
                     };
                     let s = l.stats(m);
-                    let (gain, error_rate) = if rule == LinkRule::SinglePhoton { (s.y1, s.e1) } else { (s.gain, s.error_rate) };
+                    let (gain, error_rate) = if rule == RateRule::SinglePhoton { (s.y1, s.e1) } else { (s.gain, s.error_rate) };
                     RateRow { distance_km: km, transmittance: l.transmittance(), rule, mu: m, gain, error_rate, rate_bits_per_pulse: r }
                 })
                 .collect::<Vec<_>>()
@@ -209,8 +214,8 @@ mod tests {
         // infinite-decoy R = 2.225952e-4; vacuum + weak R = 2.096250e-4, Y₁ᴸ = 3.954807e-3,
         // e₁ᵁ = 0.035398 at μ = 0.48, ν = 0.05.
         let l = gys().at_distance(50.0);
-        assert_relative_eq!(rate(LinkRule::DecoyIdeal, &l, 0.48, &P), 2.225952e-4, max_relative = 1e-5);
-        assert_relative_eq!(rate(LinkRule::DecoyVacuumWeak, &l, 0.48, &P), 2.096250e-4, max_relative = 1e-5);
+        assert_relative_eq!(rate(RateRule::DecoyIdeal, &l, 0.48, &P), 2.225952e-4, max_relative = 1e-5);
+        assert_relative_eq!(rate(RateRule::DecoyVacuumWeak, &l, 0.48, &P), 2.096250e-4, max_relative = 1e-5);
         let s = l.stats(0.48);
         let w = l.stats(0.05);
         let (y1l, e1u) = vacuum_weak_bounds(0.48, 0.05, s.gain, w.gain, w.error_rate, 1.7e-6);
@@ -219,8 +224,8 @@ mod tests {
         // GLLP at L = 0, μ = 0.02: R = 1.439333e-4 (Δ = 0.218966); at 20 km, μ = 0.01: 1.884623e-5.
         let l0 = gys().at_distance(0.0);
         assert_relative_eq!(multi_photon_probability(0.02) / l0.stats(0.02).gain, 0.218966, max_relative = 1e-5);
-        assert_relative_eq!(rate(LinkRule::GllpNoDecoy, &l0, 0.02, &P), 1.439333e-4, max_relative = 1e-5);
-        assert_relative_eq!(rate(LinkRule::GllpNoDecoy, &gys().at_distance(20.0), 0.01, &P), 1.884623e-5, max_relative = 1e-5);
+        assert_relative_eq!(rate(RateRule::GllpNoDecoy, &l0, 0.02, &P), 1.439333e-4, max_relative = 1e-5);
+        assert_relative_eq!(rate(RateRule::GllpNoDecoy, &gys().at_distance(20.0), 0.01, &P), 1.884623e-5, max_relative = 1e-5);
     }
 
     #[test]
@@ -228,14 +233,14 @@ mod tests {
         // REFERENCES.md §9 [N]: optimal μ 0.479 at 50 km (infinite decoy); maximum distance
         // 142.2 km (infinite decoy), 141.0 km (vacuum + weak, ν = 0.05), 40.2 km (no decoy),
         // each ±0.2 km. Published: "over 140 km" (Ma, quant-ph/0503057, abstract) [V].
-        let (mu, _) = optimal_mu(LinkRule::DecoyIdeal, &gys().at_distance(50.0), &P);
+        let (mu, _) = optimal_mu(RateRule::DecoyIdeal, &gys().at_distance(50.0), &P);
         assert!((mu - 0.479).abs() < 0.002, "μ_opt = {mu}");
         let d = |r| max_distance(r, &gys(), None, &P).unwrap().unwrap();
-        assert!((d(LinkRule::DecoyIdeal) - 142.2).abs() < 0.2, "{}", d(LinkRule::DecoyIdeal));
-        assert!((d(LinkRule::DecoyVacuumWeak) - 141.0).abs() < 0.2, "{}", d(LinkRule::DecoyVacuumWeak));
-        assert!((d(LinkRule::GllpNoDecoy) - 40.2).abs() < 0.2, "{}", d(LinkRule::GllpNoDecoy));
+        assert!((d(RateRule::DecoyIdeal) - 142.2).abs() < 0.2, "{}", d(RateRule::DecoyIdeal));
+        assert!((d(RateRule::DecoyVacuumWeak) - 141.0).abs() < 0.2, "{}", d(RateRule::DecoyVacuumWeak));
+        assert!((d(RateRule::GllpNoDecoy) - 40.2).abs() < 0.2, "{}", d(RateRule::GllpNoDecoy));
         // The naive rule claims more than every proven rule.
-        assert!(d(LinkRule::NaiveSinglePhoton) > d(LinkRule::DecoyIdeal));
+        assert!(d(RateRule::NaiveSinglePhoton) > d(RateRule::DecoyIdeal));
     }
 
     #[test]
@@ -248,9 +253,9 @@ mod tests {
         let (y0, ed, eta_b, alpha) = (1.7e-6, 0.033, 0.045, 0.21);
         let eta_star = y0 * (0.5 - e_star) / (e_star - ed);
         let l_star = -10.0 * (eta_star / eta_b).log10() / alpha;
-        let d = max_distance(LinkRule::SinglePhoton, &link, None, &P).unwrap().unwrap();
+        let d = max_distance(RateRule::SinglePhoton, &link, None, &P).unwrap().unwrap();
         assert!((d - l_star).abs() < 1e-4, "{d} vs {l_star}");
         // One photon per pulse beats the decoy rules' reach on the same link.
-        assert!(d > max_distance(LinkRule::DecoyIdeal, &gys(), None, &P).unwrap().unwrap());
+        assert!(d > max_distance(RateRule::DecoyIdeal, &gys(), None, &P).unwrap().unwrap());
     }
 }

@@ -48,11 +48,6 @@ pub fn c(re: f64, im: f64) -> C64 {
     C64::new(re, im)
 }
 
-/// Conjugate transpose.
-pub fn dagger(m: &CMat) -> CMat {
-    m.adjoint()
-}
-
 /// Tensor (Kronecker) product `a ⊗ b`.
 pub fn kron(a: &CMat, b: &CMat) -> CMat {
     a.kronecker(b)

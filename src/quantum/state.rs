@@ -109,11 +109,6 @@ impl DensityMatrix {
     pub fn partial_trace(&self, dims: &[usize], keep: &[usize]) -> Self {
         DensityMatrix(crate::numeric::linalg::partial_trace(&self.0, dims, keep))
     }
-    /// Fidelity with a pure state, `<ψ|ρ|ψ>` (the squared convention).
-    pub fn fidelity_squared_with_ket(&self, ket: &Ket) -> f64 {
-        let v = ket.vector();
-        (v.adjoint() * &self.0 * v)[(0, 0)].re
-    }
 }
 
 #[cfg(test)]

@@ -167,7 +167,7 @@ fn abort_leak(pts: &[&PointResult]) -> Result<String> {
 }
 
 /// Key rate per pulse (log scale, positive rates only) against distance, one line per rule.
-pub fn keyrate_svg(rows: &[crate::exact::keyrate::RateRow], rules: &[crate::exact::keyrate::LinkRule]) -> Result<String> {
+pub fn keyrate_svg(rows: &[crate::exact::keyrate::RateRow], rules: &[crate::exact::keyrate::RateRule]) -> Result<String> {
     let pos: Vec<&crate::exact::keyrate::RateRow> = rows.iter().filter(|r| r.rate_bits_per_pulse > 0.0).collect();
     let xmax = rows.iter().map(|r| r.distance_km).fold(1.0_f64, f64::max);
     // Lowest rate the logarithmic axis shows, bits per pulse: below, a curve has ended.

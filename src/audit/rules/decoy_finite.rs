@@ -82,7 +82,7 @@ impl Decoy {
 
 /// The rule's length.
 pub fn length(obs: &BlockStats, params: &RuleParams) -> KeyLength {
-    let Some(l) = obs.link else {
+    let Some(l) = obs.intensities else {
         return KeyLength::new(f64::NAN, ASSUMPTIONS, SOURCE);
     };
     let raw = raw_length(obs, &l, params).unwrap_or(f64::NAN);

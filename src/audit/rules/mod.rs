@@ -18,7 +18,7 @@ pub mod decoy_finite;
 pub mod finite_uncertainty;
 pub mod game_min_entropy;
 pub mod individual;
-pub mod link_rules;
+pub mod weak_pulse;
 
 use crate::quantum::measures::binary_entropy_capped;
 use serde::Serialize;
@@ -95,9 +95,9 @@ impl KeyRule {
             KeyRule::Asymptotic => asymptotic::length(obs, params),
             KeyRule::Individual => individual::length(obs, params),
             KeyRule::GameMinEntropy => game_min_entropy::length(obs, params),
-            KeyRule::NaiveSinglePhoton => link_rules::naive_single_photon(obs, params),
-            KeyRule::GllpNoDecoy => link_rules::gllp_no_decoy(obs, params),
-            KeyRule::DecoyVacuumWeak => link_rules::decoy_vacuum_weak(obs, params),
+            KeyRule::NaiveSinglePhoton => weak_pulse::naive_single_photon(obs, params),
+            KeyRule::GllpNoDecoy => weak_pulse::gllp_no_decoy(obs, params),
+            KeyRule::DecoyVacuumWeak => weak_pulse::decoy_vacuum_weak(obs, params),
             KeyRule::DecoyFinite => decoy_finite::length(obs, params),
         }
     }
@@ -146,7 +146,7 @@ pub struct BlockStats {
     /// Observed error rate on the sifted X bits (NaN when k = 0).
     pub e_x: f64,
     /// Per-intensity statistics of a weak-coherent link (None for single photons).
-    pub link: Option<IntensityObs>,
+    pub intensities: Option<IntensityObs>,
 }
 
 /// What a block on an optical link showed per kind of pulse (signal first, then decoys).

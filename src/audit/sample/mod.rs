@@ -38,7 +38,7 @@ pub struct BlockCounts {
     /// Key bits (sifted Z not in the test sample) by category `2·error + eve_correct`.
     pub key: [u64; 4],
     /// Per-intensity statistics of a weak-coherent link (None for single photons).
-    pub link: Option<crate::audit::rules::IntensityObs>,
+    pub intensities: Option<crate::audit::rules::IntensityObs>,
     /// Weak-coherent links: key bits by photon-number class of the pulse (0, 1, ≥ 2).
     pub key_classes: Option<[u64; 3]>,
     /// Weak-coherent links: Σ over the sampled key bits of H(X|E) of their class, bits.

@@ -97,6 +97,6 @@ pub fn sample(model: &PulseModel, signals: u64, test_size: &dyn Fn(u64) -> u64, 
             }
         }
     }
-    out.link = Some(obs);
+    out.intensities = Some(obs);
     out
 }

@@ -13,10 +13,6 @@ pub mod accessible;
 pub mod qubit_pair;
 
 pub use accessible::{accessible_information, dual_upper_bound, invariant_blocks, Accessible, AccessibleOptions};
-#[doc(hidden)]
-pub fn accessible_dual(p: &[f64], s: &[CMat], povm: &[CVec]) -> f64 {
-    dual_upper_bound([p[0], p[1]], [&s[0], &s[1]], povm)
-}
 
 /// Binary entropy `h(p) = −p log₂ p − (1−p) log₂(1−p)`, with `h(0) = h(1) = 0`.
 /// Arguments outside [0, 1] are a programmer error (NaN is returned so it propagates).

@@ -30,7 +30,7 @@ pub fn naive_single_photon(obs: &BlockStats, params: &RuleParams) -> KeyLength {
 pub fn gllp_no_decoy(obs: &BlockStats, params: &RuleParams) -> KeyLength {
     const ASSUMPTIONS: &str = "every multi-photon pulse detected and known to Eve; single photons tagged-free; asymptotic";
     const SOURCE: &str = "Gottesman, Lo, Lutkenhaus, Preskill, QIC 4, 325 (2004)";
-    let Some(l) = obs.link else {
+    let Some(l) = obs.intensities else {
         return KeyLength::new(f64::NAN, ASSUMPTIONS, SOURCE);
     };
     let q = l.gain(0);
@@ -47,7 +47,7 @@ pub fn gllp_no_decoy(obs: &BlockStats, params: &RuleParams) -> KeyLength {
 pub fn decoy_vacuum_weak(obs: &BlockStats, params: &RuleParams) -> KeyLength {
     const ASSUMPTIONS: &str = "Poisson source with vacuum and weak decoys; observed gains taken as exact; asymptotic";
     const SOURCE: &str = "Ma, Qi, Zhao, Lo, PRA 72, 012326 (2005)";
-    let Some(l) = obs.link else {
+    let Some(l) = obs.intensities else {
         return KeyLength::new(f64::NAN, ASSUMPTIONS, SOURCE);
     };
     let vac = (1..l.count).find(|&i| l.mu[i] == 0.0);
