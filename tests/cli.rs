@@ -55,6 +55,27 @@ fn eval_reads_kraus_and_catalogue_files_with_overrides() {
 }
 
 #[test]
+fn eval_takes_catalogue_names_as_campaigns_do() {
+    // The same name in every command: `eval --attack universal-cloner` is the catalogue
+    // entry a campaign names with `builtin = "universal-cloner"`.
+    let by_name = qkd(&["eval", "--attack", "universal-cloner", "--set", "qber=0.1", "--json"], repo());
+    assert_eq!(by_name.status.code(), Some(0), "{}", String::from_utf8_lossy(&by_name.stderr));
+    let by_file = qkd(&["eval", "--attack-file", "attacks/universal-cloner.toml", "--set", "qber=0.1", "--json"], repo());
+    let (a, b): (serde_json::Value, serde_json::Value) =
+        (serde_json::from_slice(&by_name.stdout).unwrap(), serde_json::from_slice(&by_file.stdout).unwrap());
+    assert_eq!(a["attack"], "universal-cloner");
+    for k in JSON_KEYS {
+        assert_eq!(a[*k], b[*k], "{k}");
+    }
+    let pulse = qkd(&["eval", "--attack", "photon-number-splitting"], repo());
+    assert_eq!(pulse.status.code(), Some(2));
+    assert!(String::from_utf8_lossy(&pulse.stderr).contains("key `--attack`"), "{}", String::from_utf8_lossy(&pulse.stderr));
+    let unknown = qkd(&["eval", "--attack", "nonesuch"], repo());
+    let err = String::from_utf8_lossy(&unknown.stderr);
+    assert!(err.contains("breidbart") && err.contains("cloner"), "{err}");
+}
+
+#[test]
 fn bad_parameter_gives_status_two_and_names_key_and_range() {
     let out = qkd(&["eval", "--attack", "intercept-resend", "--set", "fraction=1.5"], repo());
     assert_eq!(out.status.code(), Some(2));

@@ -75,9 +75,22 @@ impl AttackArgs {
     }
 }
 
-/// Parses `--protocol`.
-pub fn parse_protocol(s: &str) -> Result<Protocol> {
-    s.parse().map_err(|e: String| Error::input_key("--protocol", e))
+/// `--protocol`: the protocol whose bases and bound apply.
+#[derive(clap::ValueEnum, Clone, Copy, Debug, PartialEq, Eq)]
+pub enum ProtocolArg {
+    /// BB84: bases Z and X.
+    Bb84,
+    /// The six-state protocol: bases Z, X and Y.
+    SixState,
+}
+
+impl From<ProtocolArg> for Protocol {
+    fn from(p: ProtocolArg) -> Protocol {
+        match p {
+            ProtocolArg::Bb84 => Protocol::Bb84,
+            ProtocolArg::SixState => Protocol::SixState,
+        }
+    }
 }
 
 /// Parses `KEY=VALUE` overrides.

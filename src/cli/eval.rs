@@ -1,9 +1,10 @@
 //! The `eval` subcommand: one single-photon attack, evaluated exactly.
 
-use super::common::{parse_protocol, write_stdout, AttackArgs, Outcome};
+use super::common::{write_stdout, AttackArgs, Outcome, ProtocolArg};
 use crate::attack::Attack;
 use crate::error::{Error, Result};
 use crate::exact::eval::{evaluate, EvalOptions, Evaluation, Shown, QUANTITIES};
+use crate::protocol::Protocol;
 
 /// Options of `eval`.
 #[derive(clap::Args, Debug)]
@@ -12,8 +13,8 @@ pub struct EvalArgs {
     #[command(flatten)]
     pub attack: AttackArgs,
     /// Protocol whose bound the attack is judged against.
-    #[arg(long, default_value = "bb84", value_parser = ["bb84", "six-state"])]
-    pub protocol: String,
+    #[arg(long, value_enum, default_value_t = ProtocolArg::Bb84)]
+    pub protocol: ProtocolArg,
     /// Print one JSON object instead of a table.
     #[arg(long)]
     pub json: bool,
@@ -21,7 +22,7 @@ pub struct EvalArgs {
 
 /// Runs `qkd-audit eval`.
 pub fn cmd_eval(a: EvalArgs) -> Result<Outcome> {
-    let protocol = parse_protocol(&a.protocol)?;
+    let protocol = Protocol::from(a.protocol);
     let attack = a.attack.build()?;
     let eval = evaluate(&attack, &EvalOptions::full(protocol))?;
     let mut out = std::io::stdout().lock();

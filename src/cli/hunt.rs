@@ -1,20 +1,33 @@
 //! The `hunt` subcommand: numerical searches for the strongest attack.
 
-use super::common::{note, parse_protocol, write_stdout, Outcome};
+use super::common::{note, write_stdout, Outcome, ProtocolArg};
 use crate::error::{Error, Result};
 use crate::exact::eval::BOUND_SLACK;
+use crate::protocol::Protocol;
 use std::path::PathBuf;
+
+/// `--objective`: what a hunt maximises.
+#[derive(clap::ValueEnum, Clone, Copy, Debug, PartialEq, Eq)]
+pub enum ObjectiveArg {
+    /// Eve's Holevo information about the key bit.
+    Holevo,
+    /// Eve's accessible information about the key bit.
+    Accessible,
+    /// Eve's Helstrom probability of guessing the key bit.
+    Guess,
+    /// The tripartite guessing game.
+    Game,
+}
 
 /// Options of `hunt`.
 #[derive(clap::Args, Debug)]
 pub struct HuntArgs {
-    /// What to maximise: holevo, accessible, guess (Eve's information or guessing
-    /// probability about the key bit) or game (the guessing game).
-    #[arg(long, value_parser = ["holevo", "accessible", "guess", "game"])]
-    pub objective: String,
+    /// What to maximise.
+    #[arg(long, value_enum)]
+    pub objective: ObjectiveArg,
     /// Protocol: its error-rate constraints and its bound.
-    #[arg(long, default_value = "bb84", value_parser = ["bb84", "six-state"])]
-    pub protocol: String,
+    #[arg(long, value_enum, default_value_t = ProtocolArg::Bb84)]
+    pub protocol: ProtocolArg,
     /// Dimension of Eve's register, 2..8.
     #[arg(long, default_value_t = 4)]
     pub eve_dim: usize,
@@ -52,8 +65,13 @@ pub struct HuntArgs {
 /// Runs `qkd-audit hunt`.
 pub fn cmd_hunt(a: HuntArgs) -> Result<Outcome> {
     use crate::search::hunt::{hunt, HuntOptions, Objective};
-    let objective: Objective = a.objective.parse().map_err(|e: String| Error::input_key("--objective", e))?;
-    let protocol = parse_protocol(&a.protocol)?;
+    let objective = match a.objective {
+        ObjectiveArg::Holevo => Objective::Holevo,
+        ObjectiveArg::Accessible => Objective::Accessible,
+        ObjectiveArg::Guess => Objective::Guess,
+        ObjectiveArg::Game => Objective::Game,
+    };
+    let protocol = Protocol::from(a.protocol);
     if let Some(n) = a.rounds {
         if objective != Objective::Game {
             return Err(Error::input_key("--rounds", "the multi-round game setting needs --objective game"));

@@ -8,6 +8,25 @@ use crate::error::{Error, Result};
 use std::io::IsTerminal;
 use std::path::PathBuf;
 
+/// `--demo`: which built-in demo campaign runs without a campaign file.
+#[derive(clap::ValueEnum, Clone, Copy, Debug, PartialEq, Eq)]
+pub enum DemoArg {
+    /// Weak pulses with decoys against photon-number splitting and beam splitting.
+    Decoy,
+    /// The single-photon attack catalogue.
+    SinglePhoton,
+}
+
+impl DemoArg {
+    /// The demo's name in `audit::DEMO_CAMPAIGNS`.
+    pub fn name(self) -> &'static str {
+        match self {
+            DemoArg::Decoy => "decoy",
+            DemoArg::SinglePhoton => "single-photon",
+        }
+    }
+}
+
 /// Options of `run`.
 #[derive(clap::Args, Debug)]
 pub struct RunArgs {
@@ -17,8 +36,8 @@ pub struct RunArgs {
     /// Which built-in demo to run without a campaign file: decoy (weak pulses with decoys,
     /// photon-number splitting and beam splitting against four rules; the default) or
     /// single-photon (the single-photon attack catalogue against the finite-key rule).
-    #[arg(long, value_name = "NAME")]
-    pub demo: Option<String>,
+    #[arg(long, value_enum, value_name = "NAME")]
+    pub demo: Option<DemoArg>,
     /// Folder that receives `<campaign name>/`.
     #[arg(long, default_value = "results", value_name = "DIR")]
     pub results_dir: PathBuf,
@@ -41,7 +60,7 @@ pub struct RunArgs {
 pub fn cmd_run(a: RunArgs) -> Result<Outcome> {
     let campaign = match (&a.campaign, &a.demo) {
         (Some(p), _) => Campaign::load(p)?,
-        (None, Some(d)) => Campaign::demo_named(d)?,
+        (None, Some(d)) => Campaign::demo_named(d.name())?,
         (None, None) => Campaign::demo(),
     };
     let dir = a.results_dir.join(&campaign.name);

@@ -1,9 +1,10 @@
 //! The `sweep` subcommand: an attack file's parameter sweep as tidy CSV.
 
-use super::common::{note, parse_protocol, write_stdout, Outcome};
+use super::common::{note, write_stdout, Outcome, ProtocolArg};
 use crate::attack::file as attack_file;
 use crate::error::Result;
 use crate::exact::eval::EvalOptions;
+use crate::protocol::Protocol;
 use std::path::PathBuf;
 
 /// Options of `sweep`.
@@ -16,8 +17,8 @@ pub struct SweepArgs {
     #[arg(long, value_name = "N")]
     pub steps: Option<usize>,
     /// Protocol whose bound the attack is judged against.
-    #[arg(long, default_value = "bb84", value_parser = ["bb84", "six-state"])]
-    pub protocol: String,
+    #[arg(long, value_enum, default_value_t = ProtocolArg::Bb84)]
+    pub protocol: ProtocolArg,
     /// Output CSV file (default: stdout).
     #[arg(short, long, value_name = "FILE")]
     pub output: Option<PathBuf>,
@@ -28,7 +29,7 @@ pub struct SweepArgs {
 
 /// Runs `qkd-audit sweep`.
 pub fn cmd_sweep(a: SweepArgs) -> Result<Outcome> {
-    let protocol = parse_protocol(&a.protocol)?;
+    let protocol = Protocol::from(a.protocol);
     if let Some(o) = &a.output {
         crate::output::check_overwrite(o, a.force)?;
     }
