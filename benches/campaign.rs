@@ -126,7 +126,7 @@ fn keyrate(c: &mut Criterion) {
     let campaign = Campaign::demo_named("decoy").unwrap();
     let link = campaign.setup.link.clone();
     let distances: Vec<f64> = (0..1000).map(|i| 0.2 * i as f64).collect();
-    let p = RateParams { sifting: 0.5, f_ec: 1.22, nu: 0.1 };
+    let p = RateParams { sifting: 0.5, f_ec: 1.22, nu: 0.1, mu_max: 1.0 };
     let mut group = c.benchmark_group("keyrate");
     group.bench_function("1000 distances, 4 rules, mu optimised (2 threads)", |b| {
         b.iter(|| rate_table(&link, &distances, &RateRule::ALL, None, &p).len())

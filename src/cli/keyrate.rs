@@ -24,6 +24,11 @@ pub struct KeyrateArgs {
     /// Optimise the signal intensity μ at each distance (otherwise the setup's μ).
     #[arg(long)]
     pub optimize_mu: bool,
+    /// Largest signal intensity μ the optimisation searches, photons per pulse (the search
+    /// starts at 1e-6). An optimum at this limit is flagged: the rule would take brighter
+    /// pulses, and its maximum distance is the limit's, not the rule's.
+    #[arg(long, default_value_t = 1.0, value_name = "PHOTONS")]
+    pub mu_max: f64,
     /// Error-correction efficiency f (default: the setup's, or 1.22 with the default link).
     #[arg(long, value_name = "F")]
     pub f_ec: Option<f64>,
@@ -43,7 +48,7 @@ pub struct KeyrateArgs {
 
 /// Runs `qkd-audit keyrate`.
 pub fn cmd_keyrate(a: KeyrateArgs) -> Result<Outcome> {
-    use crate::exact::keyrate::{max_distance, rate_table, RateParams, RateRule};
+    use crate::exact::keyrate::{at_search_limit, max_distance, optimal_mu, rate_table, RateParams, RateRule, MU_MIN};
     use crate::protocol::optical::Link;
     crate::error::check_range("--sifting", a.sifting, 1e-6, 1.0)?;
     crate::error::check_range("--from-km", a.from_km, 0.0, 1000.0)?;
@@ -79,7 +84,8 @@ pub fn cmd_keyrate(a: KeyrateArgs) -> Result<Outcome> {
     if nu.is_finite() {
         rules.push(RateRule::DecoyVacuumWeak);
     }
-    let params = RateParams { sifting: a.sifting, f_ec, nu: if nu.is_finite() { nu } else { 0.0 } };
+    crate::error::check_range("--mu-max", a.mu_max, 1e-3, 100.0)?;
+    let params = RateParams { sifting: a.sifting, f_ec, nu: if nu.is_finite() { nu } else { 0.0 }, mu_max: a.mu_max };
     // A single-photon source has no intensity to set or optimise.
     let mu = if a.optimize_mu || ints.is_empty() { None } else { Some(ints[0].0) };
     let distances: Vec<f64> = if a.steps == 1 {
@@ -90,14 +96,24 @@ pub fn cmd_keyrate(a: KeyrateArgs) -> Result<Outcome> {
     let rows = rate_table(&link, &distances, &rules, mu, &params);
     let mut w = csv::Writer::from_writer(Vec::new());
     let io = |e: csv::Error| Error::new(crate::error::ErrorKind::Io, e.to_string());
-    w.write_record(["distance_km", "transmittance", "rule", "mu_photons_per_pulse", "gain_per_pulse", "error_rate", "rate_bits_per_pulse"])
-        .map_err(io)?;
+    w.write_record([
+        "distance_km",
+        "transmittance",
+        "rule",
+        "mu_photons_per_pulse",
+        "mu_at_search_limit",
+        "gain_per_pulse",
+        "error_rate",
+        "rate_bits_per_pulse",
+    ])
+    .map_err(io)?;
     for r in &rows {
         w.write_record([
             crate::exact::sweep::fmt_num(r.distance_km),
             crate::exact::sweep::fmt_num(r.transmittance),
             r.rule.name().to_string(),
             crate::exact::sweep::fmt_num(r.mu),
+            r.mu_at_search_limit.to_string(),
             crate::exact::sweep::fmt_num(r.gain),
             crate::exact::sweep::fmt_num(r.error_rate),
             crate::exact::sweep::fmt_num(r.rate_bits_per_pulse),
@@ -110,7 +126,7 @@ pub fn cmd_keyrate(a: KeyrateArgs) -> Result<Outcome> {
         if ints.is_empty() {
             "single photons".to_string()
         } else if a.optimize_mu {
-            "μ optimised".to_string()
+            format!("μ optimised over [{MU_MIN:e}, {}] photons per pulse", a.mu_max)
         } else {
             format!("μ = {}", ints[0].0)
         },
@@ -118,7 +134,23 @@ pub fn cmd_keyrate(a: KeyrateArgs) -> Result<Outcome> {
     );
     for &rule in &rules {
         let d = max_distance(rule, &link, mu, &params)?;
-        table.push_str(&format!("  {:<22} {}\n", rule.name(), d.map_or("no key at 0 km".to_string(), |d| format!("{d:.2} km"))));
+        // Just inside the maximum distance, is the optimum pinned to the top of the range?
+        let pinned = match d {
+            Some(d) if mu.is_none() && rule != RateRule::SinglePhoton => {
+                at_search_limit(optimal_mu(rule, &link.at_distance((d - 1e-3).max(0.0)), &params).0, &params)
+            }
+            _ => false,
+        };
+        table.push_str(&format!(
+            "  {:<22} {}{}\n",
+            rule.name(),
+            d.map_or("no key at 0 km".to_string(), |d| format!("{d:.2} km")),
+            if pinned {
+                format!(" (optimum at the search limit μ = {}: the range sets this distance; raise --mu-max)", a.mu_max)
+            } else {
+                String::new()
+            }
+        ));
     }
     if let Some(svg) = &a.svg {
         crate::output::write_atomic(svg, crate::audit::report::plots::keyrate_svg(&rows, &rules)?.as_bytes(), a.force)?;

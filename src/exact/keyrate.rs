@@ -70,6 +70,19 @@ pub struct RateParams {
     pub f_ec: f64,
     /// Weak decoy intensity ν (vacuum + weak rule).
     pub nu: f64,
+    /// Largest signal intensity μ the optimisation searches, photons per pulse. An optimum
+    /// at this limit is the range's artefact, not the rule's optimum: [`at_search_limit`]
+    /// tells, and the outputs flag it.
+    pub mu_max: f64,
+}
+
+/// Smallest signal intensity μ the optimisation searches, photons per pulse.
+pub const MU_MIN: f64 = 1e-6;
+
+/// Whether an optimised μ lies at the top of the searched range (within 0.1 %, the grid
+/// and golden-section resolution being far finer): the rule would prefer brighter pulses.
+pub fn at_search_limit(mu: f64, p: &RateParams) -> bool {
+    mu >= p.mu_max * (1.0 - 1e-3)
 }
 
 /// Vacuum + weak decoy bounds (Ma et al. 2005): Y₁ᴸ and e₁ᵁ from the gains at μ and ν and
@@ -114,7 +127,7 @@ pub fn rate(rule: RateRule, link: &Link, mu: f64, p: &RateParams) -> f64 {
     }
 }
 
-/// The intensity that maximises the rate: a log-spaced grid over [lo, 1] (60 points) then a
+/// The intensity that maximises the rate: a log-spaced grid over [lo, μ_max] (60 points) then a
 /// golden-section refinement in log μ between the grid neighbours of the best point. The
 /// grid matters for `gllp-no-decoy`, whose rate is positive only in a narrow window near
 /// μ ≈ 0.6η. Returns (μ, rate).
@@ -122,8 +135,9 @@ pub fn optimal_mu(rule: RateRule, link: &Link, p: &RateParams) -> (f64, f64) {
     if rule == RateRule::SinglePhoton {
         return (1.0, rate(rule, link, 1.0, p));
     }
-    let lo = if rule == RateRule::DecoyVacuumWeak { (p.nu * 1.001).max(1e-6) } else { 1e-6 };
-    let hi = 1.0_f64;
+    // The vacuum + weak bounds need μ > ν.
+    let lo = if rule == RateRule::DecoyVacuumWeak { (p.nu * 1.001).max(MU_MIN) } else { MU_MIN };
+    let hi = p.mu_max.max(lo);
     let (llo, lhi) = (lo.ln(), hi.ln());
     let n = 60;
     let grid: Vec<f64> = (0..=n).map(|i| llo + (lhi - llo) * i as f64 / n as f64).collect();
@@ -171,6 +185,8 @@ pub struct RateRow {
     pub error_rate: f64,
     /// Key rate, bits per pulse (not clipped).
     pub rate_bits_per_pulse: f64,
+    /// Whether μ was optimised and the optimum lies at the top of the searched range.
+    pub mu_at_search_limit: bool,
 }
 
 /// Rates over `distances` for `rules`, with μ optimised or fixed.
@@ -183,13 +199,26 @@ pub fn rate_table(link: &Link, distances: &[f64], rules: &[RateRule], mu: Option
             rules
                 .iter()
                 .map(move |&rule| {
-                    let (m, r) = match mu {
-                        Some(m) => (m, rate(rule, &l, m, p)),
-                        None => optimal_mu(rule, &l, p),
+                    let (m, r, limit) = match mu {
+                        Some(m) => (m, rate(rule, &l, m, p), false),
+                        None if rule == RateRule::SinglePhoton => (1.0, rate(rule, &l, 1.0, p), false),
+                        None => {
+                            let (m, r) = optimal_mu(rule, &l, p);
+                            (m, r, at_search_limit(m, p))
+                        }
                     };
                     let s = l.stats(m);
                     let (gain, error_rate) = if rule == RateRule::SinglePhoton { (s.y1, s.e1) } else { (s.gain, s.error_rate) };
-                    RateRow { distance_km: km, transmittance: l.transmittance(), rule, mu: m, gain, error_rate, rate_bits_per_pulse: r }
+                    RateRow {
+                        distance_km: km,
+                        transmittance: l.transmittance(),
+                        rule,
+                        mu: m,
+                        gain,
+                        error_rate,
+                        rate_bits_per_pulse: r,
+                        mu_at_search_limit: limit,
+                    }
                 })
                 .collect::<Vec<_>>()
         })
@@ -206,7 +235,30 @@ mod tests {
         Link::reference_parameter_set()
     }
 
-    const P: RateParams = RateParams { sifting: 0.5, f_ec: 1.22, nu: 0.05 };
+    const P: RateParams = RateParams { sifting: 0.5, f_ec: 1.22, nu: 0.05, mu_max: 1.0 };
+
+    #[test]
+    fn an_optimum_at_the_mu_limit_is_flagged_and_moves_with_the_limit() {
+        // The naive rule prefers ever brighter pulses (photon-number splitting is what
+        // stops them, and the rule ignores it), so its 171.5 km at μ ≤ 1 is the range's
+        // artefact. Recomputed independently for this issue: 185.8 km with μ ≤ 2 and about
+        // 219 km with μ ≤ 10 [N].
+        let link = gys();
+        let d1 = max_distance(RateRule::NaiveSinglePhoton, &link, None, &P).unwrap().unwrap();
+        assert!((d1 - 171.5).abs() < 0.2, "{d1}");
+        assert!(at_search_limit(optimal_mu(RateRule::NaiveSinglePhoton, &link.at_distance(d1 - 1.0), &P).0, &P));
+        let p2 = RateParams { mu_max: 2.0, ..P };
+        let d2 = max_distance(RateRule::NaiveSinglePhoton, &link, None, &p2).unwrap().unwrap();
+        assert!((d2 - 185.8).abs() < 0.3, "{d2}");
+        let p10 = RateParams { mu_max: 10.0, ..P };
+        let d10 = max_distance(RateRule::NaiveSinglePhoton, &link, None, &p10).unwrap().unwrap();
+        assert!((d10 - 219.0).abs() < 1.0, "{d10}");
+        // The decoy rule's optimum is interior, and the limit does not move it.
+        let (mu, _) = optimal_mu(RateRule::DecoyIdeal, &link.at_distance(50.0), &P);
+        assert!(!at_search_limit(mu, &P) && (mu - 0.479).abs() < 0.01, "{mu}");
+        let rows = rate_table(&link, &[100.0], &[RateRule::NaiveSinglePhoton, RateRule::DecoyIdeal], None, &P);
+        assert!(rows[0].mu_at_search_limit && !rows[1].mu_at_search_limit);
+    }
 
     #[test]
     fn rates_at_50_km_match_recomputed_values() {
