@@ -85,6 +85,8 @@ pub struct PointStats {
     pub mean_e_z: f64,
     /// See `mean_e_z`.
     pub mean_e_x: f64,
+    /// See `mean_e_z` (six-state; NaN for BB84).
+    pub mean_e_y: f64,
     /// Eve's correct guesses over all key bits of all trials.
     pub eve_guess_rate: f64,
     /// Weak-coherent links: fraction of all key bits from single-photon pulses (NaN
@@ -176,6 +178,7 @@ pub fn summarize(trials: &[TrialOutcome]) -> PointStats {
         mean_key_bits: mean(trials.iter().map(|o| o.stats.n as f64)),
         mean_e_z: mean(trials.iter().map(|o| o.stats.e_z)),
         mean_e_x: mean(trials.iter().map(|o| o.stats.e_x)),
+        mean_e_y: mean(trials.iter().map(|o| o.e_y)),
         eve_guess_rate: if key_bits == 0 { f64::NAN } else { eve as f64 / key_bits as f64 },
         key_fraction_single: class_fraction(trials, 1),
         key_fraction_multi: class_fraction(trials, 2),

@@ -4,7 +4,7 @@
 //! |---|---|
 //! | campaign, attack, family | names |
 //! | point | index of the point in the campaign (its random-stream key) |
-//! | params | all resolved parameters, `name=value;…` |
+//! | param_<name> | one column per attack parameter over all rows (e.g. `param_fraction`, `param_kind`), empty where an attack has no such parameter |
 //! | sweep_param, sweep_value | the swept parameter and its value (empty if none) |
 //! | protocol, key_rule, signals, trials | the setup and the trial count |
 //! | qber_z, qber_x, qber_y | exact error rates |
@@ -12,7 +12,7 @@
 //! | holevo_z_bits, h_x_given_e_bits, accessible_z_bits | exact information quantities |
 //! | accessible_gap_bits | proven upper bound on the accessible information minus its value (worse of Z, X) |
 //! | bound_rate_bits, attack_rate_bits, margin_bits | exact rates per sifted bit (see `eval`) |
-//! | mc_qber_z, mc_qber_x | mean observed error rates over trials |
+//! | mc_qber_z, mc_qber_x, mc_qber_y | mean observed error rates over trials (Y: six-state only) |
 //! | mc_eve_guess_rate | fraction of all key bits Eve guessed (Monte Carlo) |
 //! | mc_key_fraction_single_photon, mc_key_fraction_multi_photon | weak-coherent links: share of the key bits from single- and multi-photon pulses (empty otherwise) |
 //! | mean_key_bits_n | mean number of key bits n (sifted Z minus the test sample) |
@@ -30,7 +30,7 @@
 //! classical: Eve knows a fraction of the key bits exactly (`holevo_z_bits` = that
 //! fraction); Y-basis, game and qubit-bound columns are empty.
 
-use super::params_string;
+use crate::attack::Value;
 use crate::audit::{Campaign, PointResult};
 use crate::error::{Error, ErrorKind, Result};
 use crate::exact::eval::Quantity;
@@ -41,6 +41,9 @@ struct Column {
     header: &'static str,
     cell: fn(&Campaign, &PointResult) -> String,
 }
+
+/// The columns before the attack parameters.
+const LEADING: usize = 4;
 
 /// A column of the evaluator's quantities, under the quantity's own CSV column name.
 macro_rules! exact {
@@ -61,7 +64,6 @@ const COLUMNS: &[Column] = &[
     column!("attack", |_c, r| r.attack.clone()),
     column!("family", |_c, r| r.family.clone()),
     column!("point", |_c, r| r.index.to_string()),
-    column!("params", |_c, r| params_string(&r.params)),
     column!("sweep_param", |_c, r| r.swept.as_ref().map_or(String::new(), |(p, _)| p.clone())),
     column!("sweep_value", |_c, r| r.swept.as_ref().map_or(String::new(), |(_, v)| fmt_num(*v))),
     column!("protocol", |c, _r| c.setup.protocol.to_string()),
@@ -81,6 +83,7 @@ const COLUMNS: &[Column] = &[
     exact!("margin_bits"),
     column!("mc_qber_z", |_c, r| fmt_num(r.stats.mean_e_z)),
     column!("mc_qber_x", |_c, r| fmt_num(r.stats.mean_e_x)),
+    column!("mc_qber_y", |_c, r| fmt_num(r.stats.mean_e_y)),
     column!("mc_eve_guess_rate", |_c, r| fmt_num(r.stats.eve_guess_rate)),
     column!("mc_key_fraction_single_photon", |_c, r| fmt_num(r.stats.key_fraction_single)),
     column!("mc_key_fraction_multi_photon", |_c, r| fmt_num(r.stats.key_fraction_multi)),
@@ -104,18 +107,41 @@ const COLUMNS: &[Column] = &[
     column!("note", |_c, r| r.note.clone()),
 ];
 
-/// The header, in order.
-pub fn header() -> Vec<&'static str> {
-    COLUMNS.iter().map(|c| c.header).collect()
+/// The names of the attack parameters over all rows, in order of first appearance: one
+/// `param_<name>` column each, empty where a row's attack has no such parameter.
+fn parameter_names(results: &[PointResult]) -> Vec<String> {
+    let mut names: Vec<String> = Vec::new();
+    for r in results {
+        for (k, _) in &r.params {
+            if !names.contains(k) {
+                names.push(k.clone());
+            }
+        }
+    }
+    names
+}
+
+/// The header, in order, for rows with attack parameters `params`.
+pub fn header(params: &[String]) -> Vec<String> {
+    let fixed = COLUMNS.iter().map(|c| c.header.to_string());
+    fixed.clone().take(LEADING).chain(params.iter().map(|p| format!("param_{p}"))).chain(fixed.skip(LEADING)).collect()
 }
 
 /// Renders the table.
 pub fn render(c: &Campaign, results: &[PointResult]) -> Result<String> {
     let mut w = csv::Writer::from_writer(Vec::new());
     let io = |e: csv::Error| Error::new(ErrorKind::Io, e.to_string());
-    w.write_record(header()).map_err(io)?;
+    let params = parameter_names(results);
+    w.write_record(header(&params)).map_err(io)?;
     for r in results {
-        w.write_record(COLUMNS.iter().map(|col| (col.cell)(c, r))).map_err(io)?;
+        let cells = COLUMNS.iter().map(|col| (col.cell)(c, r));
+        let values = params.iter().map(|p| match r.params.iter().find(|(k, _)| k == p) {
+            Some((_, Value::Num(x))) => fmt_num(*x),
+            Some((_, Value::Text(s))) => s.clone(),
+            None => String::new(),
+        });
+        let row: Vec<String> = cells.clone().take(LEADING).chain(values).chain(cells.skip(LEADING)).collect();
+        w.write_record(row).map_err(io)?;
     }
     let bytes = w.into_inner().map_err(|e| Error::new(ErrorKind::Io, e.to_string()))?;
     Ok(String::from_utf8(bytes).expect("csv is UTF-8"))
@@ -128,9 +154,9 @@ mod tests {
     #[test]
     fn headers_are_unique_and_tidy() {
         let mut seen = std::collections::BTreeSet::new();
-        for h in header() {
-            assert!(seen.insert(h), "duplicate column {h}");
+        for h in header(&["fraction".to_string()]) {
             assert!(h.chars().all(|c| c.is_ascii_lowercase() || c.is_ascii_digit() || c == '_'), "{h}");
+            assert!(seen.insert(h.clone()), "duplicate column {h}");
         }
     }
 }
