@@ -343,6 +343,55 @@ fn a_closed_or_full_stdout_keeps_the_status_and_never_panics() {
     }
 }
 
+/// The cells of the summary's attack × rule matrix for `attack`.
+fn matrix_cells(summary: &str, attack: &str) -> Vec<String> {
+    let section = summary.split("## Verdict by attack and rule").nth(1).unwrap_or_else(|| panic!("no matrix:\n{summary}"));
+    let row = section.lines().find(|l| l.starts_with(&format!("| {attack} |"))).unwrap_or_else(|| panic!("no row {attack}:\n{summary}"));
+    row.trim_matches('|').split('|').skip(1).map(|c| c.trim().to_string()).collect()
+}
+
+#[test]
+fn every_verdict_word_reaches_the_csv_the_summary_matrix_and_the_exit_status() {
+    // (rule, signals, attack entry, the point verdict, the matrix cell's first word, exit status)
+    let cases = [
+        ("individual", 20_000, "builtin = \"phase-covariant-cloner\"\nfrom = 0.04\nto = 0.04\nsteps = 1", "leak", "**LEAK**", 1),
+        (
+            "finite-uncertainty",
+            20_000,
+            "builtin = \"phase-covariant-cloner\"\nfrom = 0.02\nto = 0.02\nsteps = 1",
+            "inconclusive",
+            "inconclusive",
+            0,
+        ),
+        ("finite-uncertainty", 1_000_000, "builtin = \"phase-covariant-cloner\"\nfrom = 0.02\nto = 0.02\nsteps = 1", "secure", "secure", 0),
+        ("finite-uncertainty", 300, "builtin = \"phase-covariant-cloner\"\nfrom = 0.02\nto = 0.02\nsteps = 1", "no-key", "no-key", 0),
+        ("finite-uncertainty", 20_000, "builtin = \"intercept-resend\"\nfrom = 1\nto = 1\nsteps = 1", "aborted", "aborted", 0),
+    ];
+    for (rule, signals, entry, verdict, cell, status) in cases {
+        let dir = tempfile::tempdir().unwrap();
+        let text = format!(
+            "name = \"v\"\nseed = 3\ntrials = 40\n[setup]\nsignals = {signals}\ntest_fraction = 0.05\nabort_qber = 0.11\nkey_rule = \"{rule}\"\n[[attacks]]\n{entry}\n"
+        );
+        std::fs::write(dir.path().join("c.toml"), text).unwrap();
+        let out = qkd(&["run", "c.toml", "-q"], dir.path(), "2");
+        assert_eq!(out.status.code(), Some(status), "{verdict}: {}", String::from_utf8_lossy(&out.stderr));
+        let csv = std::fs::read_to_string(dir.path().join("results/v/attack_vs_bound.csv")).unwrap();
+        let last = csv.lines().nth(1).unwrap();
+        assert!(last.ends_with(&format!(",{verdict},")), "{verdict}: {last}");
+        let summary = std::fs::read_to_string(dir.path().join("results/v/summary.md")).unwrap();
+        let attack = entry.split('"').nth(1).unwrap();
+        let cells = matrix_cells(&summary, attack);
+        assert!(cells[0].starts_with(cell), "{verdict}: {cells:?}");
+        if verdict == "leak" {
+            let explained = summary.split("## Leaks explained").nth(1).unwrap_or_else(|| panic!("{summary}"));
+            assert!(
+                explained.contains("bits on average") && explained.contains("Cause: the rule assumes Eve measures each signal"),
+                "{summary}"
+            );
+        }
+    }
+}
+
 #[test]
 fn bad_setup_gives_status_two_with_file_key_and_range() {
     let dir = tempfile::tempdir().unwrap();

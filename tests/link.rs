@@ -176,7 +176,9 @@ fn keyrate_command_reports_the_maximum_distances() {
         assert!((value - km).abs() < 0.2, "{rule}: {value}");
     }
     let csv = std::fs::read_to_string(dir.path().join("k.csv")).unwrap();
-    assert!(csv.starts_with("distance_km,transmittance,rule,mu_photons_per_pulse,mu_at_search_limit,gain_per_pulse,error_rate,rate_bits_per_pulse"));
+    assert!(csv.starts_with(
+        "distance_km,transmittance,rule,mu_photons_per_pulse,mu_at_search_limit,gain_per_pulse,error_rate,rate_bits_per_pulse"
+    ));
     assert!(table.contains("naive-single-photon") && table.contains("raise --mu-max"), "{table}");
     assert_eq!(csv.lines().count(), 1 + 41 * 4);
     assert!(dir.path().join("k.svg").exists());

@@ -34,6 +34,100 @@ fn link_text(l: &crate::protocol::optical::Link) -> String {
     )
 }
 
+/// A number of bits, rounded to the bit, with thin grouping for reading.
+fn bits(x: f64) -> String {
+    if !x.is_finite() {
+        return "-".into();
+    }
+    let n = x.round() as i128;
+    let digits = n.unsigned_abs().to_string();
+    let mut out = String::new();
+    for (i, ch) in digits.chars().enumerate() {
+        if i > 0 && (digits.len() - i) % 3 == 0 {
+            out.push('\u{202f}');
+        }
+        out.push(ch);
+    }
+    if n < 0 {
+        format!("−{out}")
+    } else {
+        out
+    }
+}
+
+/// A parameter value as a reader writes it: up to 6 significant digits, no float noise.
+fn num(x: f64) -> String {
+    let s = format!("{:.6}", x);
+    let s = s.trim_end_matches('0').trim_end_matches('.');
+    if x != 0.0 && (x.abs() < 1e-3 || x.abs() >= 1e7) {
+        format!("{x:e}")
+    } else {
+        s.to_string()
+    }
+}
+
+fn test_sample_text(t: &crate::audit::setup::TestSample) -> String {
+    match *t {
+        crate::audit::setup::TestSample::Fraction(f) => format!("{} % of the sifted Z bits", num(100.0 * f)),
+        crate::audit::setup::TestSample::Count(n) => format!("{n} sifted Z bits"),
+    }
+}
+
+/// Where a point sits on its sweep, for sentences.
+fn at(r: &PointResult) -> String {
+    r.swept.as_ref().map(|(p, v)| format!("{p} = {}", num(*v))).unwrap_or_else(|| "the only point".into())
+}
+
+/// One sentence on why a leaking point leaks: which assumption of the rule the attack
+/// breaks, computed from the exact quantities and the sampled blocks.
+fn leak_cause(c: &Campaign, r: &PointResult) -> String {
+    use crate::audit::rules::KeyRule;
+    let s = &r.stats;
+    let verification = crate::audit::rules::verification_bits(c.setup.epsilon_cor);
+    let excess_per_key = s.mean_excess;
+    let multi = s.key_fraction_multi.is_finite() && s.key_fraction_multi > 0.0;
+    if multi && r.rule == KeyRule::NaiveSinglePhoton {
+        return format!(
+            "the rule `{}` counts every detection as a single photon; under this attack {} of the key bits came from \
+             multi-photon pulses, and Eve guesses {} of all key bits",
+            r.rule,
+            pct(s.key_fraction_multi),
+            pct(s.eve_guess_rate)
+        );
+    }
+    match r.rule {
+        KeyRule::Asymptotic
+            if (excess_per_key - verification).abs() <= 2.0 * (s.mean_key_bits.max(2.0)).log2() && r.exact.h_x_given_e >= 1.0 - 1e-9 =>
+        {
+            format!(
+                "the rule omits the error-verification hash: Eve learns nothing here, and the excess is the {} bits of the hash \
+                 that the rule does not subtract",
+                num(verification)
+            )
+        }
+        KeyRule::Asymptotic => format!(
+            "the rule has no finite-size term: it takes the observed phase error rate ({}) as exact, while the attack leaves \
+             H(X|E) = {} bits per key bit, and it subtracts neither a sampling deviation nor the privacy-amplification and \
+             verification costs",
+            pct(s.mean_e_x),
+            num(r.exact.h_x_given_e)
+        ),
+        KeyRule::Individual => format!(
+            "the rule assumes Eve measures each signal on its own (accessible information {} bits per key bit), but this \
+             attack keeps her quantum memory until the bases are announced: her Holevo information is {} bits per key bit",
+            r.exact.accessible_z.map_or("-".to_string(), num),
+            num(r.exact.holevo_z)
+        ),
+        _ => format!(
+            "the rule extracted ℓ = {} bits on average while this attack leaves only n·H(X|E) − leak_EC = {} bits secret \
+             (H(X|E) = {} bits per key bit)",
+            bits(s.key_length_mean),
+            bits(s.mean_capacity),
+            num(r.exact.h_x_given_e)
+        ),
+    }
+}
+
 /// Renders the summary.
 pub fn render(c: &Campaign, results: &[PointResult]) -> String {
     let mut s = String::new();
@@ -41,21 +135,30 @@ pub fn render(c: &Campaign, results: &[PointResult]) -> String {
     let system_leaks = leaks.iter().filter(|r| r.rule == c.setup.key_rule).count();
     let inconclusive = results.iter().filter(|r| r.stats.verdict == Verdict::Inconclusive).count();
     let setup = &c.setup;
+    let six_state = setup.protocol == crate::protocol::Protocol::SixState;
     let _ = writeln!(s, "# Audit summary: {}\n", c.name);
     let _ = writeln!(
         s,
-        "System under test `{}`: {} with {} signals per block, P(Z) = {}, test sample {:?}, abort above QBER {}, \
-         error correction f = {}, ε_sec = {:e}, ε_cor = {:e}, key-length rule(s) `{}`. {} trials per attack point, seed {}. Link: {}.\n",
+        "System under test `{}`: {} with {} signals per block, P(Z) = {}, test sample {}, abort above QBER {}, \
+         error correction f = {}, ε_sec = {:e}, ε_cor = {:e}, the system's key-length rule `{}`{}. {} trials per attack point, seed {}. Link: {}.\n",
         setup.name,
         setup.protocol,
         setup.signals,
-        setup.basis_z_probability,
-        setup.test_sample,
-        setup.abort_qber,
-        setup.ec_efficiency,
+        num(setup.basis_z_probability),
+        test_sample_text(&setup.test_sample),
+        num(setup.abort_qber),
+        num(setup.ec_efficiency),
         setup.epsilon_sec,
         setup.epsilon_cor,
-        c.rules.iter().map(|r| r.name()).collect::<Vec<_>>().join("`, `"),
+        setup.key_rule,
+        if c.rules.len() > 1 {
+            format!(
+                " (comparison rules `{}`)",
+                c.rules.iter().filter(|r| **r != setup.key_rule).map(|r| r.name()).collect::<Vec<_>>().join("`, `")
+            )
+        } else {
+            String::new()
+        },
         c.trials,
         c.seed,
         link_text(&setup.link)
@@ -105,11 +208,14 @@ pub fn render(c: &Campaign, results: &[PointResult]) -> String {
             results.len(),
             {
                 let mut names: Vec<&str> = leaks.iter().map(|r| r.rule.name()).collect();
+                names.sort_unstable();
                 names.dedup();
                 names.join("`, `")
             }
         );
     }
+    matrix(&mut s, c, results);
+    explain_leaks(&mut s, c, results);
     if inconclusive > 0 {
         let _ = writeln!(
             s,
@@ -173,15 +279,20 @@ pub fn render(c: &Campaign, results: &[PointResult]) -> String {
             }
         }
         let pname = if param.is_empty() { "point".to_string() } else { param.clone() };
-        let _ = writeln!(s, "| {pname} | QBER_Z | QBER_X | H(X\\|E) bits | abort | leak | mean key bits | verdict |");
-        let _ = writeln!(s, "|---|---|---|---|---|---|---|---|");
+        let _ = writeln!(
+            s,
+            "| {pname} | QBER_Z | QBER_X |{} H(X\\|E) bits | abort | leak | mean key bits | verdict |",
+            if six_state { " QBER_Y |" } else { "" }
+        );
+        let _ = writeln!(s, "|---|---|---|{}---|---|---|---|---|", if six_state { "---|" } else { "" });
         for r in &pts {
             let _ = writeln!(
                 s,
-                "| {} | {:.4} | {:.4} | {:.4} | {} | {} | {:.0} | {} |",
+                "| {} | {:.4} | {:.4} |{} {:.4} | {} | {} | {:.0} | {} |",
                 r.swept.as_ref().map(|(_, v)| format!("{v:.4}")).unwrap_or_else(|| r.index.to_string()),
                 r.exact.qber_z,
                 r.exact.qber_x,
+                if six_state { format!(" {:.4} |", r.exact.qber_y) } else { String::new() },
                 r.exact.h_x_given_e,
                 pct(r.stats.abort_probability),
                 pct(r.stats.leak_probability),
@@ -197,4 +308,84 @@ pub fn render(c: &Campaign, results: &[PointResult]) -> String {
          Defer to the applicable standards and certification schemes."
     );
     s
+}
+
+/// The attack × rule matrix: one cell per (attack entry, rule) with the worst point's
+/// verdict, the largest leak probability and the largest mean excess.
+fn matrix(s: &mut String, c: &Campaign, results: &[PointResult]) {
+    let mut entries: Vec<usize> = results.iter().map(|r| r.entry).collect();
+    entries.dedup();
+    let _ = writeln!(s, "## Verdict by attack and rule\n");
+    let header: Vec<String> =
+        c.rules.iter().map(|r| if *r == c.setup.key_rule { format!("`{r}` (the system's rule)") } else { format!("`{r}`") }).collect();
+    let _ = writeln!(s, "| attack | {} |", header.join(" | "));
+    let _ = writeln!(s, "|---|{}", "---|".repeat(c.rules.len()));
+    for e in entries {
+        let label = &results.iter().find(|r| r.entry == e).map(|r| r.attack.clone()).unwrap_or_default();
+        let cells: Vec<String> = c
+            .rules
+            .iter()
+            .map(|rule| {
+                let pts: Vec<&PointResult> = results.iter().filter(|r| r.entry == e && r.rule == *rule).collect();
+                let verdict = crate::audit::stats::point_verdict(pts.iter().map(|r| r.stats.verdict));
+                if verdict == Verdict::Leak {
+                    let worst = pts.iter().map(|r| r.stats.mean_excess).filter(|x| x.is_finite()).fold(f64::NEG_INFINITY, f64::max);
+                    let prob = pts.iter().map(|r| r.stats.leak_probability).fold(0.0, f64::max);
+                    format!("**LEAK** (up to {} excess bits; leak probability up to {})", bits(worst), pct(prob))
+                } else {
+                    verdict.to_string()
+                }
+            })
+            .collect();
+        let _ = writeln!(s, "| {label} | {} |", cells.join(" | "));
+    }
+    let _ = writeln!(s);
+}
+
+/// For every leaking (attack, rule) pair: the excess at the first leaking point and at the
+/// worst, in bits and as a share of the key, and the cause.
+fn explain_leaks(s: &mut String, c: &Campaign, results: &[PointResult]) {
+    let mut pairs: Vec<(usize, crate::audit::rules::KeyRule)> =
+        results.iter().filter(|r| r.stats.verdict == Verdict::Leak).map(|r| (r.entry, r.rule)).collect();
+    pairs.dedup();
+    if pairs.is_empty() {
+        return;
+    }
+    let _ = writeln!(s, "## Leaks explained\n");
+    for (e, rule) in pairs {
+        let pts: Vec<&PointResult> =
+            results.iter().filter(|r| r.entry == e && r.rule == rule && r.stats.verdict == Verdict::Leak).collect();
+        let first = pts[0];
+        let worst = pts.iter().copied().max_by(|a, b| a.stats.mean_excess.total_cmp(&b.stats.mean_excess)).unwrap_or(first);
+        // The capacity is negative when Eve knows more than error correction leaves: then
+        // the whole key is exposed and the excess exceeds it.
+        let share = |r: &PointResult| {
+            if r.stats.mean_excess >= r.stats.key_length_mean {
+                "all of the key".to_string()
+            } else if r.stats.key_length_mean > 0.0 {
+                format!("{} of the key", pct(r.stats.mean_excess / r.stats.key_length_mean))
+            } else {
+                "-".into()
+            }
+        };
+        let _ = writeln!(
+            s,
+            "- **{} under `{}`{}**: leaks at {} of its points. First leaking point {}: the key exceeds what the attack \
+             leaves secret by {} bits on average ({}), leak probability {}. Worst point {}: {} bits ({}). \
+             Cause: {}.",
+            first.attack,
+            rule,
+            if rule == c.setup.key_rule { " (the system's rule)" } else { "" },
+            pts.len(),
+            at(first),
+            bits(first.stats.mean_excess),
+            share(first),
+            pct(first.stats.leak_probability),
+            at(worst),
+            bits(worst.stats.mean_excess),
+            share(worst),
+            leak_cause(c, worst)
+        );
+    }
+    let _ = writeln!(s);
 }
