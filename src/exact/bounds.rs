@@ -8,6 +8,27 @@ use crate::error::{Error, ErrorKind, Result};
 use crate::numeric::optimize::bisect;
 use crate::quantum::measures::{binary_entropy, shannon_entropy};
 
+/// Bracket width at which the zero-rate threshold bisections stop, as a QBER (a fraction).
+/// Ten times finer than the 1e-12 to which the thresholds are stated, and far above the
+/// rounding noise of the rate formulas near their roots (rates of order one with slopes of
+/// order one in the QBER, so about 1e-16 in QBER), so a bisection ends on its width rather
+/// than on noise. Shared with the other threshold searches of [`crate::exact::thresholds`].
+pub const THRESHOLD_BISECTION_TOL: f64 = 1e-13;
+
+/// Lower end of the threshold brackets `[THRESHOLD_BRACKET_LOW, ½]`: just inside the open
+/// interval (0, ½) on which a zero-rate QBER is sought. Every rate here is about 1 > 0 at
+/// that end and negative at ½, which is the sign change bisection needs; 1e-15 is a hundred
+/// times below [`THRESHOLD_BISECTION_TOL`], so it does not limit the accuracy.
+const THRESHOLD_BRACKET_LOW: f64 = 1e-15;
+
+/// Slack on the non-negativity of the six-state Pauli weights that [`six_state_rate`]
+/// computes from its QBERs: a weight down to −1e-9 is taken as rounding and counts as zero;
+/// below that the QBERs are not those of a qubit channel. The same slack, and the same
+/// value, as the evaluator's proven-inequality slack
+/// ([`crate::exact::eval::BOUND_SLACK`]), which this module cannot import since the
+/// evaluator imports it.
+const PAULI_WEIGHT_SLACK: f64 = 1e-9;
+
 /// The monogamy-of-entanglement guessing-game value per round, ½ + 1/(2√2) = cos²(π/8)
 /// (Tomamichel, Fehr, Kaniewski, Wehner, NJP 15, 103002, 2013).
 pub fn game_bound() -> f64 {
@@ -42,7 +63,7 @@ pub fn six_state_entropy(weights: &[f64; 4], tol: f64) -> Result<f64> {
 /// Six-state key rate per sifted bit (Lo, QIC 1, 81, 2001; Renner, Gisin, Kraus 2005):
 /// `1 − H(p) + h(Q_Z) − f·h(Q_Z)`. With f = 1 this is `1 − H(p)`.
 pub fn six_state_rate(q_x: f64, q_y: f64, q_z: f64, f: f64) -> Result<f64> {
-    let h = six_state_entropy(&six_state_weights(q_x, q_y, q_z), 1e-9)?;
+    let h = six_state_entropy(&six_state_weights(q_x, q_y, q_z), PAULI_WEIGHT_SLACK)?;
     Ok(1.0 - h + binary_entropy(q_z) - f * binary_entropy(q_z))
 }
 
@@ -54,19 +75,19 @@ pub fn fggnp_information(d: f64) -> f64 {
 
 /// BB84 zero-rate QBER for symmetric errors: root of `1 − (1+f)·h(e)` on (0, ½).
 pub fn bb84_threshold(f: f64) -> Result<f64> {
-    bisect(|e| bb84_rate(e, e, f), 1e-15, 0.5, 1e-13)
+    bisect(|e| bb84_rate(e, e, f), THRESHOLD_BRACKET_LOW, 0.5, THRESHOLD_BISECTION_TOL)
 }
 
 /// Six-state zero-rate QBER for the symmetric (depolarising) attack, Q_X = Q_Y = Q_Z = Q.
 pub fn six_state_threshold(f: f64) -> Result<f64> {
-    bisect(|q| six_state_rate(q, q, q, f).unwrap_or(f64::NAN), 1e-15, 0.5, 1e-13)
+    bisect(|q| six_state_rate(q, q, q, f).unwrap_or(f64::NAN), THRESHOLD_BRACKET_LOW, 0.5, THRESHOLD_BISECTION_TOL)
 }
 
 /// The individual-attack limit: the QBER where Bob's key information after error
 /// correction, `1 − f·h(D)`, equals Eve's under the optimal individual attack
 /// (Csiszár & Körner, IEEE TIT 24, 339, 1978, with Fuchs et al. 1997).
 pub fn individual_threshold(f: f64) -> Result<f64> {
-    bisect(|d| 1.0 - f * binary_entropy(d) - fggnp_information(d), 1e-15, 0.5, 1e-13)
+    bisect(|d| 1.0 - f * binary_entropy(d) - fggnp_information(d), THRESHOLD_BRACKET_LOW, 0.5, THRESHOLD_BISECTION_TOL)
 }
 
 #[cfg(test)]

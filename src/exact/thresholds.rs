@@ -4,7 +4,7 @@
 
 use crate::attack::{Attack, Value};
 use crate::error::Result;
-use crate::exact::bounds::{bb84_threshold, individual_threshold, six_state_threshold};
+use crate::exact::bounds::{bb84_threshold, individual_threshold, six_state_threshold, THRESHOLD_BISECTION_TOL};
 use crate::exact::eval::{bob_fidelity, evaluate, eve_clone_fidelity, EvalOptions};
 use crate::numeric::optimize::bisect;
 use crate::protocol::{Basis, Protocol};
@@ -41,7 +41,7 @@ pub fn threshold_table(f_ec: f64) -> Result<Vec<Threshold>> {
             let a = Attack::builtin("cloner", &g).expect("cloner parameters in range");
             states.iter().map(|(b, x)| bob_fidelity(&a, &b.ket(*x)) - eve_clone_fidelity(&a, &b.ket(*x))).sum::<f64>()
         };
-        let d = bisect(gap, 0.0, 0.5, 1e-13)?;
+        let d = bisect(gap, 0.0, 0.5, THRESHOLD_BISECTION_TOL)?;
         qber_of("cloner", &[("kind", Value::Text(kind.into())), ("qber", Value::Num(d))])
     };
     let six: Vec<(Basis, usize)> = Basis::ALL.iter().flat_map(|b| [(*b, 0), (*b, 1)]).collect();

@@ -8,9 +8,10 @@
 //! quadratic penalty with continuation: minimise
 //! `−f(V) + λ Σ_θ max(0, QBER_θ − Q')²` for λ = 10³, 10⁵, 10⁷, 10⁹ in turn, each stage
 //! with L-BFGS (argmin, More–Thuente line search) on forward finite-difference gradients,
-//! warm-started from the previous stage. Q' = Q − 10⁻⁷ keeps the small residual violation
-//! of a penalty method on the feasible side; a result that still violates QBER ≤ Q by more
-//! than 10⁻¹² is reported as infeasible and never as the best attack.
+//! warm-started from the previous stage. Q' = Q − 10⁻⁷ (`QBER_BACKOFF`) keeps the small
+//! residual violation of a penalty method on the feasible side; a result that still violates
+//! QBER ≤ Q by more than 10⁻¹² (`FEASIBILITY_SLACK`) is reported as infeasible and never as
+//! the best attack.
 //!
 //! Objectives and the proven bounds they are compared with:
 //! - `holevo`: Eve's Holevo information about the key bit (collective attacks); BB84 bound
@@ -25,9 +26,9 @@
 //!   stages above); then, in rounds, Eve's best measurement for the current attack is found
 //!   ([`crate::quantum::measures::accessible_information`]) and the attack is re-optimised for that
 //!   fixed measurement (L-BFGS on `−I(X:M) + λ·penalty`, λ = 10⁹), until a round gains less
-//!   than 10⁻¹⁰ bits or [`ACCESSIBLE_ROUNDS`] rounds are done. Neither step can lower
-//!   `I(X:M)` beyond the penalty's tolerance, and the attack is finally scored on its
-//!   accessible information;
+//!   than 10⁻¹⁰ bits (`ACCESSIBLE_ROUND_GAIN_TOL`) or [`ACCESSIBLE_ROUNDS`] rounds are done.
+//!   Neither step can lower `I(X:M)` beyond the penalty's tolerance, and the attack is
+//!   finally scored on its accessible information;
 //! - `game`: the tripartite guessing game with an honest Bob; bound ½ + 1/(2√2) (Tomamichel,
 //!   Fehr, Kaniewski, Wehner 2013).
 //!
@@ -108,9 +109,13 @@ pub fn bound(objective: Objective, protocol: Protocol, q: f64) -> Result<f64> {
 /// Found on a 41³ grid refined by golden-section search in Q_Z at Q_X = Q_Y = q, where the
 /// grid maximum lies (an error in Q_Z only hurts Eve, errors in X and Y only help her).
 pub fn six_state_holevo_bound(q: f64) -> f64 {
+    // A weight down to −1e-15 is rounding and the grid point stays in: weights are sums and
+    // differences of grid QBERs of at most ½, rounded to about 1e-16, so a boundary point
+    // (a weight that is zero in exact arithmetic) must not be lost to that noise.
+    const GRID_WEIGHT_SLACK: f64 = 1e-15;
     let value = |qx: f64, qy: f64, qz: f64| -> f64 {
         let p = six_state_weights(qx, qy, qz);
-        if p.iter().any(|w| *w < -1e-15) {
+        if p.iter().any(|w| *w < -GRID_WEIGHT_SLACK) {
             return f64::NEG_INFINITY;
         }
         shannon_entropy(&p) - binary_entropy(qz)
@@ -180,7 +185,12 @@ pub fn isometry(x: &[f64], eve_dim: usize) -> CMat {
 }
 
 fn attack_of(x: &[f64], eve_dim: usize) -> Attack {
-    Attack::from_kraus("hunted", eve_dim, vec![isometry(x, eve_dim)], Tolerance::new(1e-8))
+    // The isometry is orthonormalised by Householder QR, so it is complete to rounding
+    // (about 1e-15 per entry of V†V − 1) whatever the parameters. The completeness check
+    // gets ten times the default tolerance (1e-9), so it cannot fail on rounding: the
+    // `expect` below relies on that.
+    const ISOMETRY_COMPLETENESS_TOL: f64 = 1e-8;
+    Attack::from_kraus("hunted", eve_dim, vec![isometry(x, eve_dim)], Tolerance::new(ISOMETRY_COMPLETENESS_TOL))
         .expect("an orthonormalised isometry is complete")
 }
 
@@ -225,8 +235,28 @@ impl Penalized {
 /// Largest number of measurement/attack rounds of the `accessible` objective.
 pub const ACCESSIBLE_ROUNDS: usize = 8;
 
+/// The `accessible` alternation stops when a round raises the accessible information by
+/// less than this many bits: the tolerance (`certificate_tol`, 1e-10 by default) within
+/// which [`accessible_information`] accepts a value as the maximum, so a smaller gain may be
+/// that solver's own slack rather than progress of the attack.
+const ACCESSIBLE_ROUND_GAIN_TOL: f64 = 1e-10;
+
+/// The penalty stages aim at `Q' = Q − QBER_BACKOFF` (QBER as a fraction). A quadratic
+/// penalty's minimiser overshoots its target by about the objective's slope over 2λ, below
+/// 1e-9 at the last stage (λ = 10⁹, slopes of order one); the back-off is over a hundred
+/// times that, so the result lands at or below Q, and it is negligible beside the error
+/// rates a hunt is run at (percents by default), so it does not weaken the comparison.
+const QBER_BACKOFF: f64 = 1e-7;
+
+/// An attack counts as meeting QBER ≤ Q when its largest QBER is at most `Q +
+/// FEASIBILITY_SLACK`: room for the rounding of evaluated QBERs (probabilities of order
+/// one, accurate to about 1e-15), and five orders of magnitude below [`QBER_BACKOFF`]. The
+/// back-off, not this slack, is what keeps a penalty result feasible, so any real excess
+/// over Q is reported as infeasible.
+const FEASIBILITY_SLACK: f64 = 1e-12;
+
 fn optimise_start(opts: &HuntOptions, q: f64, mut x: Vec<f64>) -> Result<Vec<f64>> {
-    let q_inner = (q - 1e-7).max(0.0);
+    let q_inner = (q - QBER_BACKOFF).max(0.0);
     for lambda in [1e3, 1e5, 1e7, 1e9] {
         let problem = Penalized { objective: opts.objective, protocol: opts.protocol, eve_dim: opts.eve_dim, q_inner, lambda };
         x = lbfgs(|y| problem.value(y), x, opts.max_iters);
@@ -236,7 +266,7 @@ fn optimise_start(opts: &HuntOptions, q: f64, mut x: Vec<f64>) -> Result<Vec<f64
         for _ in 0..ACCESSIBLE_ROUNDS {
             let states = eve_key_states(&isometry(&x, opts.eve_dim), opts.eve_dim);
             let best = accessible_information(&[0.5, 0.5], &states, &AccessibleOptions::default())?;
-            if best.bits < last + 1e-10 {
+            if best.bits < last + ACCESSIBLE_ROUND_GAIN_TOL {
                 break;
             }
             last = best.bits;
@@ -250,10 +280,18 @@ fn optimise_start(opts: &HuntOptions, q: f64, mut x: Vec<f64>) -> Result<Vec<f64
 /// Runs L-BFGS (memory 8, More–Thuente, forward-difference gradients) on `f` from `x` and
 /// returns the best parameters seen (`x` itself if the run fails).
 fn lbfgs(f: impl Fn(&[f64]) -> f64, x: Vec<f64>, max_iters: u64) -> Vec<f64> {
+    // Stop on a gradient norm below GRAD_TOL: below the accuracy of the forward-difference
+    // gradient (errors of order its step, 1e-7), so in practice a run ends on the cost test
+    // or the iteration cap rather than on a noisy gradient.
+    const GRAD_TOL: f64 = 1e-10;
+    // Stop when an iteration changes the cost by less than COST_TOL: the cost (an objective
+    // of order one plus the penalty) is then moving at the level of its own rounding, about
+    // a hundred ulps of one.
+    const COST_TOL: f64 = 1e-14;
     let solver = LBFGS::new(MoreThuenteLineSearch::new(), 8)
-        .with_tolerance_grad(1e-10)
+        .with_tolerance_grad(GRAD_TOL)
         .expect("valid tolerance")
-        .with_tolerance_cost(1e-14)
+        .with_tolerance_cost(COST_TOL)
         .expect("valid tolerance");
     let start = x.clone();
     match Executor::new(Smooth(f), solver).configure(|s| s.param(start).max_iters(max_iters)).run() {
@@ -314,13 +352,16 @@ impl Measured {
 
 /// Forward-difference gradient: n + 1 evaluations, error O(h) in each component.
 fn forward_difference(f: &dyn Fn(&[f64]) -> f64, x: &[f64]) -> Vec<f64> {
-    let h = 1e-7;
+    // The step h balances truncation error (of order h) against rounding (of order ε/h with
+    // the unit roundoff ε ≈ 1.1e-16): the best h is of order √ε ≈ 1e-8 for parameters of
+    // order one (standard normal entries of G), and 1e-7 sits just above it.
+    const H: f64 = 1e-7;
     let f0 = f(x);
     let mut g = vec![0.0; x.len()];
     let mut y = x.to_vec();
     for i in 0..x.len() {
-        y[i] = x[i] + h;
-        g[i] = (f(&y) - f0) / h;
+        y[i] = x[i] + H;
+        g[i] = (f(&y) - f0) / H;
         y[i] = x[i];
     }
     g
@@ -373,7 +414,7 @@ pub fn hunt(opts: &HuntOptions, qs: &[f64]) -> Result<Vec<HuntPoint>> {
                         Objective::Accessible => e.accessible_z.unwrap_or(f64::NAN),
                         o => objective_value(o, &e),
                     };
-                    let feasible = max_qber(&e, opts.protocol) <= q + 1e-12;
+                    let feasible = max_qber(&e, opts.protocol) <= q + FEASIBILITY_SLACK;
                     Ok((value, feasible, a, e))
                 })
                 .collect::<Result<_>>()?;

@@ -46,6 +46,27 @@ impl Default for AscentOptions {
     }
 }
 
+/// Smallest value treated as non-zero where a quantity is divided by, or raised to the
+/// power −½: an eigenvalue of `B B†` in the polar retraction, the curvature `⟨s, y⟩` of an
+/// L-BFGS pair, and callers' divisors of the same kind. It sits just above the smallest
+/// normal `f64` (about 2.2e-308), so it sets aside only exact zeros and underflow; the
+/// quotients it admits stay finite (up to 1e300, or 1e150 for an inverse square root). It
+/// is relative to the range of `f64`, not to any scale of the problem.
+pub const DIVISOR_FLOOR: f64 = 1e-300;
+
+/// Armijo's sufficient-increase constant: a backtracking step is accepted once it gains at
+/// least this fraction of the gain `t·slope` predicted by the directional derivative. Small
+/// (the customary 1e-4 of Nocedal & Wright, "Numerical Optimization", 2006, §3.1), so that
+/// nearly any step that ascends at all is taken and the step lengths stay long.
+const ARMIJO_SUFFICIENT_INCREASE: f64 = 1e-4;
+
+/// Backtracking gives up (the point is taken as stationary) when `t·√slope` falls below
+/// this: the length of the move `t·ξ` when the direction ξ is the gradient itself (then
+/// slope = ‖ξ‖²), and the same measure of it otherwise. The entries of a matrix with
+/// orthonormal rows are at most one in magnitude and the unit roundoff is 1.1e-16, so a
+/// move below 1e-17 rounds back to the same matrix and no shorter step can ascend.
+const STEP_LENGTH_FLOOR: f64 = 1e-17;
+
 /// Maximises a smooth function `f` of a rank-one POVM `{|a_k><a_k|}`, written as the
 /// columns of a d × K matrix `A` with `A A† = 1`, by Riemannian conjugate-gradient ascent
 /// (Polak–Ribière+, projection transport, QR-type retraction, Armijo steps; Absil, Mahony,
@@ -146,7 +167,7 @@ pub fn povm_lbfgs(start: CMat, f: &PovmObjective<'_>, opts: &AscentOptions) -> (
             *y_i = tangent(&cand, y_i);
         }
         let sy = inner(&s_new, &y_new);
-        if sy > 1e-300 {
+        if sy > DIVISOR_FLOOR {
             pairs.push_back((s_new, y_new, 1.0 / sy));
             if pairs.len() > MEMORY {
                 pairs.pop_front();
@@ -163,18 +184,19 @@ pub fn povm_lbfgs(start: CMat, f: &PovmObjective<'_>, opts: &AscentOptions) -> (
 }
 
 /// Armijo backtracking along `dir` from step `t0`, halving: the first retracted point that
-/// gains at least `1e-4·t·slope`, as (point, value, step); `None` when even a step at
-/// machine precision does not ascend (the point is stationary).
+/// gains at least `ARMIJO_SUFFICIENT_INCREASE·t·slope`, as (point, value, step); `None`
+/// when even a step at machine precision ([`STEP_LENGTH_FLOOR`]) does not ascend (the point
+/// is stationary).
 fn armijo(f: &PovmObjective<'_>, a: &CMat, value: f64, dir: &CMat, slope: f64, t0: f64) -> Option<(CMat, f64, f64)> {
     let mut t = t0;
     loop {
         let cand = retract(&(a + dir * c(t, 0.0)));
         let (v, _) = f(&cand, false);
-        if v >= value + 1e-4 * t * slope {
+        if v >= value + ARMIJO_SUFFICIENT_INCREASE * t * slope {
             return Some((cand, v, t));
         }
         t *= 0.5;
-        if t * slope.sqrt() < 1e-17 {
+        if t * slope.sqrt() < STEP_LENGTH_FLOOR {
             return None;
         }
     }
@@ -226,7 +248,7 @@ fn retract(b: &CMat) -> CMat {
             return x;
         }
     }
-    crate::numeric::linalg::psd_inverse_sqrt(&g, 1e-300) * b
+    crate::numeric::linalg::psd_inverse_sqrt(&g, DIVISOR_FLOOR) * b
 }
 
 #[cfg(test)]

@@ -40,6 +40,7 @@ use super::qubit_pair;
 use super::{holevo_quantity, measured_information, mutual_information};
 use crate::error::Result;
 use crate::numeric::linalg::{c, hermitian_eigen, CMat, CVec, RMat};
+use crate::numeric::optimize::povm::DIVISOR_FLOOR;
 use crate::numeric::optimize::{povm_lbfgs, AscentOptions};
 use rand::{Rng, SeedableRng};
 use rand_distr::StandardNormal;
@@ -138,9 +139,17 @@ pub fn accessible_information(priors: &[f64], states: &[CMat], opts: &Accessible
     search(priors, states, opts)
 }
 
+/// Largest entry of a commutator `ρᵢρⱼ − ρⱼρᵢ` for which two states count as commuting.
+/// The states have trace one, so the products' entries are at most one in magnitude, and
+/// rounding leaves the commutator of truly commuting states at about d·1e-16 (d rounded
+/// terms per entry); 1e-13 admits that noise with room up to dimensions in the hundreds.
+/// A false "commuting" costs nothing: the shortcut's answer is kept only if it reaches the
+/// Holevo quantity.
+const COMMUTATOR_TOL: f64 = 1e-13;
+
 /// Stage 1: a common eigenbasis, accepted when it reaches the Holevo quantity.
 fn commuting(priors: &[f64], states: &[CMat], opts: &AccessibleOptions) -> Option<Accessible> {
-    let commute = states.iter().all(|a| states.iter().all(|b| crate::numeric::linalg::max_abs_diff(&(a * b), &(b * a)) < 1e-13));
+    let commute = states.iter().all(|a| states.iter().all(|b| crate::numeric::linalg::max_abs_diff(&(a * b), &(b * a)) < COMMUTATOR_TOL));
     if !commute {
         return None;
     }
@@ -407,7 +416,12 @@ fn search(priors: &[f64], states: &[CMat], opts: &AccessibleOptions) -> Result<A
     }
     // Not yet shown optimal (two states): polish, then more random starts.
     if two_states && !holevo_reached(&s) && !certified(&s) {
-        let strict = AscentOptions { gain_tol: 0.0, grad_tol: opts.ascent.grad_tol * 1e-4, ..opts.ascent };
+        // Polishing drops the windowed-gain stop and tightens the gradient stop by this
+        // factor (1e-10 becomes 1e-14 by default, near the rounding level of a gradient of
+        // an information of order one bit), so a polish goes on where the ordinary rule
+        // stopped and ends on stationarity to rounding or on the iteration cap.
+        const POLISH_GRAD_TOL_FACTOR: f64 = 1e-4;
+        let strict = AscentOptions { gain_tol: 0.0, grad_tol: opts.ascent.grad_tol * POLISH_GRAD_TOL_FACTOR, ..opts.ascent };
         let mut extra = opts.max_random_starts.saturating_sub(opts.random_starts);
         loop {
             for _ in 0..opts.polish_rounds {
@@ -446,10 +460,15 @@ fn symmetric_log_derivative(priors: &[f64], states: &[CMat]) -> CMat {
     let mean = &states[0] * c(priors[0], 0.0) + &states[1] * c(priors[1], 0.0);
     let (vals, basis) = hermitian_eigen(&mean);
     let delta = basis.adjoint() * (&states[0] - &states[1]) * &basis;
+    // λ_i + λ_j at or below this fraction of ρ̄'s largest eigenvalue counts as vanishing:
+    // eigenvalues come out of the eigen-solve with errors of a few ulps of the largest one
+    // (about 1e-16 relative; the cut-off leaves a factor of a hundred for that), and
+    // dividing by such noise would blow L up along directions outside ρ̄'s support.
+    const SUPPORT_CUTOFF: f64 = 1e-14;
     let top = vals.iter().fold(0.0_f64, |m, v| m.max(v.abs()));
     let l = CMat::from_fn(vals.len(), vals.len(), |i, j| {
         let s = vals[i] + vals[j];
-        if s > 1e-14 * top {
+        if s > SUPPORT_CUTOFF * top {
             delta[(i, j)] * c(2.0 / s, 0.0)
         } else {
             c(0.0, 0.0)
@@ -520,7 +539,7 @@ fn complete_povm(b: &[CVec]) -> Vec<CVec> {
     for v in b {
         g += v * v.adjoint();
     }
-    let t = crate::numeric::linalg::psd_inverse_sqrt(&g, 1e-300);
+    let t = crate::numeric::linalg::psd_inverse_sqrt(&g, DIVISOR_FLOOR);
     b.iter().map(|v| &t * v).collect()
 }
 

@@ -28,6 +28,7 @@
 //! search on random pairs.
 
 use crate::numeric::linalg::{c, CMat, CVec};
+use crate::numeric::optimize::povm::DIVISOR_FLOOR;
 use std::f64::consts::{LN_2, PI};
 use std::sync::OnceLock;
 
@@ -135,7 +136,7 @@ impl Curve {
             g += self.pi[x] * p[x] * log_ratio;
             dg += self.pi[x] * dp[x] * log_ratio;
             // d²p/dt² = −(p − 1).
-            ddg += self.pi[x] * (-(p[x] - 1.0) * log_ratio + dp[x] * dp[x] / p[x].max(1e-300) - dp[x] * dp_bar / p_bar);
+            ddg += self.pi[x] * (-(p[x] - 1.0) * log_ratio + dp[x] * dp[x] / p[x].max(DIVISOR_FLOOR) - dp[x] * dp_bar / p_bar);
         }
         [g, dg, ddg]
     }
@@ -160,6 +161,10 @@ fn grid() -> &'static [(f64, f64); GRID] {
 fn maximise(f: &dyn Fn(f64) -> [f64; 3], lo: f64, hi: f64) -> (f64, f64) {
     let (f_lo, f_hi) = (f(lo), f(hi));
     let (mut a, mut b) = (lo, hi);
+    // Newton stops when a step, or the bracket, is below this relative to 1 + |t|: t is an
+    // angle of order one and 1e-15 is a few ulps of it (unit roundoff 1.1e-16), so further
+    // steps could only move t by rounding.
+    const NEWTON_STEP_TOL: f64 = 1e-15;
     if f_lo[1] > 0.0 && f_hi[1] < 0.0 {
         let mut t = 0.5 * (a + b);
         for _ in 0..200 {
@@ -176,7 +181,7 @@ fn maximise(f: &dyn Fn(f64) -> [f64; 3], lo: f64, hi: f64) -> (f64, f64) {
             let next = if newton > a && newton < b { newton } else { 0.5 * (a + b) };
             let moved = (next - t).abs();
             t = next;
-            if moved <= 1e-15 * (1.0 + t.abs()) || b - a <= 1e-15 * (1.0 + t.abs()) {
+            if moved <= NEWTON_STEP_TOL * (1.0 + t.abs()) || b - a <= NEWTON_STEP_TOL * (1.0 + t.abs()) {
                 break;
             }
         }
@@ -206,8 +211,13 @@ fn bloch(tau: &CMat) -> [f64; 3] {
 /// An orthonormal basis `(e₁, e₂)` of a plane containing both Bloch vectors, with `e₁`
 /// along `π₀r₀ − π₁r₁` (the Helstrom measurement's direction) where that is not zero.
 fn plane(pi: [f64; 2], r: &[[f64; 3]; 2]) -> ([f64; 3], [f64; 3]) {
+    // A candidate shorter than this does not fix a direction: Bloch vectors have length at
+    // most one, and one whose length is near rounding level (about 1e-16 per component; the
+    // floor leaves a factor of a hundred) has a direction made of noise.
+    const DIRECTION_NORM_FLOOR: f64 = 1e-14;
     let helstrom = [pi[0] * r[0][0] - pi[1] * r[1][0], pi[0] * r[0][1] - pi[1] * r[1][1], pi[0] * r[0][2] - pi[1] * r[1][2]];
-    let e1 = [helstrom, r[0], r[1], [0.0, 0.0, 1.0]].into_iter().find(|v| norm(v) > 1e-14).map(unit).unwrap_or([0.0, 0.0, 1.0]);
+    let e1 =
+        [helstrom, r[0], r[1], [0.0, 0.0, 1.0]].into_iter().find(|v| norm(v) > DIRECTION_NORM_FLOOR).map(unit).unwrap_or([0.0, 0.0, 1.0]);
     let candidates = [r[0], r[1], [1.0, 0.0, 0.0], [0.0, 1.0, 0.0]];
     let e2 = candidates
         .into_iter()
@@ -215,7 +225,7 @@ fn plane(pi: [f64; 2], r: &[[f64; 3]; 2]) -> ([f64; 3], [f64; 3]) {
             let s = dot(&v, &e1);
             [v[0] - s * e1[0], v[1] - s * e1[1], v[2] - s * e1[2]]
         })
-        .find(|v| norm(v) > 1e-14)
+        .find(|v| norm(v) > DIRECTION_NORM_FLOOR)
         .map(unit)
         .unwrap_or([0.0, 1.0, 0.0]);
     (e1, e2)
