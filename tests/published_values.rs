@@ -68,6 +68,24 @@ fn partial_intercept_resend() {
 }
 
 #[test]
+fn intercept_resend_over_the_six_state_bases() {
+    // Eve measures in Z, X or Y with probability 1/3 each: QBER 1/3 in every basis (Bruß,
+    // "Optimal eavesdropping in quantum cryptography with six states", PRL 81, 3018, 1998).
+    // Derived here [N]: she holds the key bit exactly when she chose Z (1/3) and nothing
+    // otherwise, so p_guess = 1/3 + (2/3)(1/2) = 2/3 and her information is 1/3 bit.
+    let a = attack("intercept-resend", &[("basis", text("random-zxy"))]);
+    for protocol in [Protocol::Bb84, Protocol::SixState] {
+        let e = evaluate(&a, &EvalOptions::full(protocol)).unwrap();
+        for q in [e.qber_z, e.qber_x, e.qber_y] {
+            assert_abs_diff_eq!(q, 1.0 / 3.0, epsilon = 1e-12);
+        }
+        assert_abs_diff_eq!(e.p_guess_z, 2.0 / 3.0, epsilon = 1e-12);
+        assert_abs_diff_eq!(e.holevo_z, 1.0 / 3.0, epsilon = 1e-12);
+        assert_abs_diff_eq!(e.accessible_z.unwrap(), 1.0 / 3.0, epsilon = 1e-9);
+    }
+}
+
+#[test]
 fn breidbart_intercept_resend() {
     // QBER 0.25 in both bases, p_guess cos²(π/8) = 0.8535533906, I = 0.3991239633:
     // Bennett et al. 1992 [M]; REFERENCES.md §3 [N].

@@ -1,7 +1,9 @@
 //! `intercept-resend`: with probability 1 − `fraction` the qubit passes untouched;
 //! otherwise Eve measures it in a basis chosen by `basis` and resends the state she found.
 //! E records the flag, the basis used and the outcome: d_E = 1 + 2·(number of bases), with
-//! index 0 = "passed" and `1 + 2β + o` = "measured in basis β with outcome o". The Breidbart
+//! index 0 = "passed" and `1 + 2β + o` = "measured in basis β with outcome o". With
+//! `random-zxy` Eve picks each of the six-state protocol's three bases with probability 1/3,
+//! which causes QBER 1/3 in every basis (Bruß, PRL 81, 3018, 1998). The Breidbart
 //! basis is {cos(π/8)|0> + sin(π/8)|1>, −sin(π/8)|0> + cos(π/8)|1>} (Bennett, Bessette,
 //! Brassard, Salvail, Smolin, J. Cryptology 5, 3, 1992).
 
@@ -20,8 +22,9 @@ const PARAMS: &[ParamSpec] = &[
     },
     ParamSpec {
         name: "basis",
-        kind: ParamKind::Choice(&["z", "x", "random", "breidbart"]),
-        help: "Eve's measurement: z, x, random (z or x with probability 1/2), breidbart (default random)",
+        kind: ParamKind::Choice(&["z", "x", "random", "random-zxy", "breidbart"]),
+        help: "Eve's measurement: z, x, random (z or x with probability 1/2), random-zxy (z, x or y with probability 1/3: \
+               the six-state protocol's bases), breidbart (default random)",
     },
 ];
 
@@ -47,6 +50,7 @@ impl Family for InterceptResend {
             "z" => vec![(1.0, [Basis::Z.ket(0), Basis::Z.ket(1)])],
             "x" => vec![(1.0, [Basis::X.ket(0), Basis::X.ket(1)])],
             "breidbart" => vec![(1.0, breidbart())],
+            "random-zxy" => [Basis::Z, Basis::X, Basis::Y].iter().map(|b| (1.0 / 3.0, [b.ket(0), b.ket(1)])).collect(),
             _ => vec![(0.5, [Basis::Z.ket(0), Basis::Z.ket(1)]), (0.5, [Basis::X.ket(0), Basis::X.ket(1)])],
         };
         let d_e = 1 + 2 * bases.len();
