@@ -123,6 +123,20 @@ fn validate_accepts_the_shipped_catalogue() {
 }
 
 #[test]
+fn validate_reads_campaigns_and_setups_too() {
+    let out = qkd(&["validate", "campaigns/demo-decoy.toml", "campaigns/demo-single-photon.toml"], repo());
+    assert_eq!(out.status.code(), Some(0), "{}", String::from_utf8_lossy(&out.stderr));
+    let dir = tempfile::tempdir().unwrap();
+    std::fs::write(dir.path().join("setup.toml"), "signals = 1000\nabort_qber = 0.9\n").unwrap();
+    std::fs::write(dir.path().join("broken.toml"), "signals = 1000\nabort_qber = = 0.9\n").unwrap();
+    let out = qkd(&["validate", "setup.toml", "broken.toml"], dir.path());
+    assert_eq!(out.status.code(), Some(2));
+    let err = String::from_utf8_lossy(&out.stderr);
+    assert!(err.contains("setup.toml: key `abort_qber`"), "{err}");
+    assert!(err.contains("broken.toml: not valid TOML at line 2, column"), "{err}");
+}
+
+#[test]
 fn sweep_writes_csv_and_refuses_to_overwrite() {
     let dir = tempfile::tempdir().unwrap();
     let cat = repo().join("attacks/intercept-resend.toml");

@@ -1,14 +1,20 @@
-//! The `validate` subcommand: check attack files and report every problem found.
+//! The `validate` subcommand: check input files and report the problems found, without
+//! running anything. A file is read as a campaign when it has `attacks`, as an attack file
+//! when it has `operators` or `family`, and as a setup otherwise. Attack files report every
+//! problem in one pass; campaigns and setups report their first problem.
 
 use super::common::{note, print, Outcome};
 use crate::attack::file as attack_file;
+use crate::audit::setup::Setup;
+use crate::audit::Campaign;
 use crate::error::{Error, Result};
-use std::path::PathBuf;
+use std::path::{Path, PathBuf};
 
 /// Options of `validate`.
 #[derive(clap::Args, Debug)]
 pub struct ValidateArgs {
-    /// Attack files to check.
+    /// Files to check: campaigns, setups, catalogue entries or kraus files (the kind is
+    /// read from the keys).
     #[arg(required = true, value_name = "FILE")]
     pub files: Vec<PathBuf>,
 }
@@ -17,7 +23,7 @@ pub struct ValidateArgs {
 pub fn cmd_validate(a: ValidateArgs) -> Result<Outcome> {
     let mut problems = 0;
     for f in &a.files {
-        let errs = attack_file::validate(f);
+        let errs = check_file(f);
         if errs.is_empty() {
             print(&format!("ok {}\n", f.display()))?;
         } else {
@@ -31,4 +37,23 @@ pub fn cmd_validate(a: ValidateArgs) -> Result<Outcome> {
         return Err(Error::input(format!("{problems} problem(s) found in {} file(s)", a.files.len())));
     }
     Ok(Outcome::Clean)
+}
+
+/// What kind of input a file is, from its top-level keys.
+fn check_file(path: &Path) -> Vec<Error> {
+    let text = match std::fs::read_to_string(path) {
+        Ok(t) => t,
+        Err(e) => return vec![Error::from(e).with_file(path)],
+    };
+    let table = match crate::input::parse_toml(&text) {
+        Ok(t) => t,
+        Err(e) => return vec![e.with_file(path)],
+    };
+    if table.contains_key("attacks") {
+        Campaign::load(path).err().into_iter().collect()
+    } else if table.contains_key("operators") || table.contains_key("family") {
+        attack_file::validate(path)
+    } else {
+        Setup::load(path).err().into_iter().collect()
+    }
 }
