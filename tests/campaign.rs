@@ -393,6 +393,22 @@ fn every_verdict_word_reaches_the_csv_the_summary_matrix_and_the_exit_status() {
 }
 
 #[test]
+fn settings_to_look_at_twice_are_flagged_before_the_run() {
+    let dir = tempfile::tempdir().unwrap();
+    let text = "name = \"w\"\ntrials = 5\n[setup]\nsignals = 1000\nbasis_z_probability = 1e-300\nabort_qber = 0.2\n\
+                [[attacks]]\nbuiltin = \"intercept-resend\"\nparams = { fraction = \"abc\" }\n";
+    std::fs::write(dir.path().join("c.toml"), text).unwrap();
+    let out = qkd(&["run", "c.toml", "-q"], dir.path(), "2");
+    assert_eq!(out.status.code(), Some(0));
+    let err = String::from_utf8_lossy(&out.stderr);
+    for needle in ["the setup cannot give a key", "zero-rate QBER 0.1100", "params.fraction is ignored"] {
+        assert!(err.contains(needle), "{needle}: {err}");
+    }
+    let summary = std::fs::read_to_string(dir.path().join("results/w/summary.md")).unwrap();
+    assert!(summary.contains("the setup cannot give a key") && summary.contains("**Verdict: no key.**"), "{summary}");
+}
+
+#[test]
 fn bad_setup_gives_status_two_with_file_key_and_range() {
     let dir = tempfile::tempdir().unwrap();
     std::fs::write(dir.path().join("setup.toml"), "abort_qber = 0.9\n").unwrap();

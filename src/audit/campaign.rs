@@ -68,6 +68,9 @@ pub struct Campaign {
     pub attacks: Vec<AttackEntry>,
     /// Inputs and their texts, for the manifest: (origin, text).
     pub inputs: Vec<(String, String)>,
+    /// Settings a reviewer should look at twice, found before any work (see
+    /// [`preflight_warnings`]); printed on stderr and in the summary.
+    pub warnings: Vec<String>,
 }
 
 /// The built-in demo campaigns (invented scenarios): (name, text). The first is the default.
@@ -168,7 +171,72 @@ impl Campaign {
         if sampler == Sampler::Round && !setup.link.is_ideal_single_photon() {
             return Err(Error::input_key("sampler", "the per-round sampler supports the ideal single-photon link only; use \"count\""));
         }
-        Ok(Campaign { name, seed, trials, sampler, setup, rules, attacks, inputs })
+        let warnings = preflight_warnings(&setup, &attacks);
+        Ok(Campaign { name, seed, trials, sampler, setup, rules, attacks, inputs, warnings })
+    }
+}
+
+/// Expected number of sifted Z bits per block without an attack: signals × P(signal
+/// intensity) × its gain × P(Z)² on an optical link, signals × P(Z)² on the ideal one.
+pub fn expected_sifted_z_bits(setup: &Setup) -> f64 {
+    let pz = setup.basis_z_probability;
+    let per_signal = if setup.link.is_ideal_single_photon() {
+        1.0
+    } else {
+        let model = crate::exact::pulses::PulseModel::new(&setup.link, None, &setup.basis_probabilities());
+        model.settings[0].1 * model.models[0].gain
+    };
+    setup.signals as f64 * per_signal * pz * pz
+}
+
+/// Settings that are valid but that a reviewer should look at twice: a setup that can never
+/// give a key, an abort threshold above the protocol's zero-rate QBER (with one-way
+/// post-processing at the Shannon limit), and a parameter override that a sweep replaces.
+pub fn preflight_warnings(setup: &Setup, attacks: &[AttackEntry]) -> Vec<String> {
+    let mut out = Vec::new();
+    let sifted = expected_sifted_z_bits(setup);
+    let key_bits = sifted - setup.test_sample.size(sifted.floor() as u64) as f64;
+    if key_bits < 1.0 {
+        out.push(format!(
+            "the setup cannot give a key: about {} sifted Z bits are expected per block without any attack, {} after the \
+             test sample; every point will be `no-key` or `aborted` (check signals, channel loss, detector efficiency and \
+             basis_z_probability)",
+            approx(sifted),
+            approx(key_bits.max(0.0))
+        ));
+    }
+    let zero_rate = match setup.protocol {
+        crate::protocol::Protocol::Bb84 => crate::exact::bounds::bb84_threshold(1.0),
+        crate::protocol::Protocol::SixState => crate::exact::bounds::six_state_threshold(1.0),
+    };
+    if let Ok(q) = zero_rate {
+        if setup.abort_qber > q {
+            out.push(format!(
+                "abort_qber = {} lies above the {} zero-rate QBER {:.4}: blocks the proven rate cannot turn into key are \
+                 accepted (the key rule must then give no key on its own)",
+                setup.abort_qber, setup.protocol, q
+            ));
+        }
+    }
+    for e in attacks {
+        if let Some(s) = &e.sweep {
+            if e.params.contains_key(&s.param) {
+                out.push(format!("attack `{}`: params.{} is ignored, because the sweep sets {} at every point", e.label, s.param, s.param));
+            }
+        }
+    }
+    out
+}
+
+/// A count for a sentence: 3 decimals, or 2 significant digits in scientific notation when
+/// very small or large.
+fn approx(x: f64) -> String {
+    if x == 0.0 {
+        "0".into()
+    } else if x.abs() < 1e-3 || x.abs() >= 1e6 {
+        format!("{x:.2e}")
+    } else {
+        format!("{x:.3}")
     }
 }
 

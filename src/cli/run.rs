@@ -63,6 +63,9 @@ pub fn cmd_run(a: RunArgs) -> Result<Outcome> {
         (None, Some(d)) => Campaign::demo_named(d.name())?,
         (None, None) => Campaign::demo(),
     };
+    for w in &campaign.warnings {
+        note(&format!("warning: {w}"));
+    }
     let dir = a.results_dir.join(&campaign.name);
     if dir.exists() && !a.force {
         return Err(

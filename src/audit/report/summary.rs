@@ -163,6 +163,13 @@ pub fn render(c: &Campaign, results: &[PointResult]) -> String {
         c.seed,
         link_text(&setup.link)
     );
+    if !c.warnings.is_empty() {
+        let _ = writeln!(s, "**Warnings, found before the run:**\n");
+        for w in &c.warnings {
+            let _ = writeln!(s, "- {w}");
+        }
+        let _ = writeln!(s);
+    }
     if c.rules.len() > 1 {
         let _ = writeln!(
             s,
