@@ -101,7 +101,9 @@ pub fn parse_sets(sets: &[String]) -> Result<BTreeMap<String, Value>> {
         if k.trim().is_empty() {
             return Err(Error::input_key("--set", format!("`{s}` has an empty key")));
         }
-        out.insert(k.trim().to_string(), Value::parse(v));
+        if let Some(old) = out.insert(k.trim().to_string(), Value::parse(v)) {
+            note(&format!("warning: --set {} given more than once; the last value ({}) replaces {old}", k.trim(), v.trim()));
+        }
     }
     Ok(out)
 }
