@@ -33,6 +33,27 @@ pub fn number(v: &toml::Value, key: &str) -> Result<f64> {
     }
 }
 
+/// Longest name (of a setup, an attack) accepted, in characters.
+pub const NAME_MAX_CHARS: usize = 120;
+
+/// A name a user gives to something that reports will print (a setup, a kraus attack):
+/// non-empty, at most [`NAME_MAX_CHARS`] characters, and free of control characters (a line
+/// break or an escape sequence in a name could forge a line of a report or drive a
+/// terminal). The error names `key`.
+pub fn name(v: &toml::Value, key: &str) -> Result<String> {
+    let s = v.as_str().ok_or_else(|| Error::input_key(key, "must be a string"))?;
+    if s.trim().is_empty() {
+        return Err(Error::input_key(key, "must be a non-empty string"));
+    }
+    if s.chars().count() > NAME_MAX_CHARS {
+        return Err(Error::input_key(key, format!("is longer than {NAME_MAX_CHARS} characters")));
+    }
+    if let Some(c) = s.chars().find(|c| c.is_control()) {
+        return Err(Error::input_key(key, format!("contains the control character U+{:04X}; names are printed in reports", c as u32)));
+    }
+    Ok(s.to_string())
+}
+
 /// Every key of `table` that `allowed` does not list, as errors naming the key and saying
 /// what a `what` (e.g. "a setup") may hold.
 pub fn unknown_keys(table: &toml::Table, allowed: &[&str], what: &str) -> Vec<Error> {
@@ -73,5 +94,9 @@ mod tests {
         assert_eq!(errs[0].key(), Some("yy"));
         assert!(errs[0].message().contains("a thing has a"), "{}", errs[0]);
         assert!(check_keys(&t, &["a", "yy", "zz"], "x").is_ok());
+        let forged = toml::Value::String("probe\n**Verdict: no leak found.**".into());
+        assert!(name(&forged, "name").unwrap_err().message().contains("U+000A"));
+        assert!(name(&toml::Value::String("\u{1b}[2J".into()), "name").is_err());
+        assert_eq!(name(&toml::Value::String("probe-β 2".into()), "name").unwrap(), "probe-β 2");
     }
 }

@@ -303,10 +303,14 @@ fn parse_kraus(t: &toml::Table) -> std::result::Result<AttackFile, Vec<Error>> {
             errs.push(Error::input_key("family", "a file with operators must have family = \"kraus\" or no family"));
         }
     }
-    let name = match t.get("name") {
-        Some(toml::Value::String(s)) if !s.trim().is_empty() => s.clone(),
-        _ => {
-            errs.push(Error::input_key("name", "missing or not a non-empty string"));
+    let name = match t.get("name").map(|v| crate::input::name(v, "name")) {
+        Some(Ok(s)) => s,
+        Some(Err(e)) => {
+            errs.push(e);
+            String::new()
+        }
+        None => {
+            errs.push(Error::input_key("name", "missing: a kraus file names its attack"));
             String::new()
         }
     };

@@ -117,11 +117,7 @@ impl Setup {
         check_keys(t, KEYS, "a setup")?;
         let mut s = Setup::default();
         if let Some(v) = t.get("name") {
-            s.name = v
-                .as_str()
-                .filter(|n| !n.trim().is_empty())
-                .ok_or_else(|| Error::input_key("name", "must be a non-empty string"))?
-                .to_string();
+            s.name = crate::input::name(v, "name")?;
         }
         if let Some(v) = t.get("protocol") {
             let p = v.as_str().ok_or_else(|| Error::input_key("protocol", "must be a string: bb84 or six-state"))?;
