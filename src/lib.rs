@@ -8,7 +8,7 @@
 //! each boundary sits where it does.
 //!
 //! 0. [`error`], [`input`], [`output`]: the error type; reading user files (TOML with
-//!    line and column, numbers, allowed keys); atomic files and folders, number formatting.
+//!    line and column, numbers, allowed keys); atomic files and locked output folders.
 //!    Base utilities, importable from anywhere.
 //! 1. [`numeric`]: matrices and eigen-solves, one-dimensional searches, the Riemannian
 //!    ascents over POVMs, per-trial random streams. No physics words.

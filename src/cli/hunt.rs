@@ -90,11 +90,9 @@ pub fn cmd_hunt(a: HuntArgs) -> Result<Outcome> {
         return Ok(Outcome::Clean);
     }
     let dir = a.out_dir.clone().unwrap_or_else(|| PathBuf::from(format!("results/hunt-{}-{}", objective.name(), protocol)));
-    if dir.exists() && !a.force {
-        return Err(
-            Error::input("output folder already exists; refusing to overwrite results (pass --force to replace it)").with_file(&dir)
-        );
-    }
+    crate::output::clean_up_on_signals();
+    let folder = crate::output::prepare_folder(&dir, a.force)?;
+    folder.notes().iter().for_each(|n| note(n));
     let opts = HuntOptions { protocol, objective, eve_dim: a.eve_dim, starts: a.starts, seed: a.seed, max_iters: a.iters };
     let points = hunt(&opts, &a.q)?;
     let unit = match objective {
@@ -153,7 +151,7 @@ pub fn cmd_hunt(a: HuntArgs) -> Result<Outcome> {
     }
     let csv_text = String::from_utf8(w.into_inner().map_err(|e| Error::input(e.to_string()))?).expect("csv is UTF-8");
     files.push(("hunt.csv".to_string(), csv_text.clone()));
-    crate::output::write_folder_files(&dir, &files, a.force)?;
+    folder.commit(&files)?;
     write_stdout(&mut std::io::stdout().lock(), &csv_text)?;
     note(&format!("wrote {}", dir.display()));
     if violations > 0 {

@@ -67,11 +67,10 @@ pub fn cmd_run(a: RunArgs) -> Result<Outcome> {
         note(&format!("warning: {w}"));
     }
     let dir = a.results_dir.join(&campaign.name);
-    if dir.exists() && !a.force {
-        return Err(
-            Error::input("output folder already exists; refusing to overwrite results (pass --force to replace it)").with_file(&dir)
-        );
-    }
+    // Every output problem shows now, before the computation; the lock holds until written.
+    crate::output::clean_up_on_signals();
+    let folder = crate::output::prepare_folder(&dir, a.force)?;
+    folder.notes().iter().for_each(|n| note(n));
     let pool = {
         let mut b = rayon::ThreadPoolBuilder::new();
         if let Some(n) = a.threads {
@@ -114,7 +113,7 @@ pub fn cmd_run(a: RunArgs) -> Result<Outcome> {
         elapsed_s: clock.elapsed().as_secs_f64(),
         threads: pool.current_num_threads(),
     };
-    crate::audit::report::write_folder(&dir, &campaign, &results, &manifest, a.force)?;
+    crate::audit::report::write_folder(folder, &campaign, &results, &manifest)?;
     let system_rule = campaign.setup.key_rule;
     let leaks = results.iter().filter(|r| r.stats.verdict == Verdict::Leak).count();
     let gating = results.iter().filter(|r| r.stats.verdict == Verdict::Leak && (a.fail_on_any_rule || r.rule == system_rule)).count();

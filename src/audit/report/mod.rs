@@ -4,8 +4,9 @@
 //! - [`plots`]: SVG plots;
 //! - [`manifest`]: `manifest.json`, how the results were made.
 //!
-//! [`write_folder`] writes everything into a temporary sibling folder and renames it into
-//! place, refusing to replace an existing folder unless asked.
+//! [`write_folder`] renders every file and hands them to the folder's
+//! [`crate::output::FolderGuard`], taken before the campaign ran, which puts them in place
+//! atomically.
 
 pub mod manifest;
 pub mod plots;
@@ -14,17 +15,17 @@ pub mod table;
 
 use crate::audit::{Campaign, PointResult};
 use crate::error::Result;
-use std::path::Path;
+use crate::output::FolderGuard;
 
-/// Writes the campaign's output folder `dir` (e.g. `results/<name>`).
-pub fn write_folder(dir: &Path, campaign: &Campaign, results: &[PointResult], manifest: &manifest::Manifest, force: bool) -> Result<()> {
+/// Writes the campaign's output folder (e.g. `results/<name>`), prepared as `folder`.
+pub fn write_folder(folder: FolderGuard, campaign: &Campaign, results: &[PointResult], manifest: &manifest::Manifest) -> Result<()> {
     let mut files = vec![
         ("attack_vs_bound.csv".to_string(), table::render(campaign, results)?),
         ("summary.md".to_string(), summary::render(campaign, results)),
     ];
     files.extend(plots::render(campaign, results)?);
     files.push(("manifest.json".to_string(), manifest.to_json()));
-    crate::output::write_folder_files(dir, &files, force)
+    folder.commit(&files)
 }
 
 /// `name=value;…` of a point's parameters.
