@@ -4,7 +4,7 @@
 //! |---|---|
 //! | campaign, attack, family | names |
 //! | point | index of the point in the campaign (its random-stream key) |
-//! | param_<name> | one column per attack parameter over all rows (e.g. `param_fraction`, `param_kind`), empty where an attack has no such parameter |
+//! | `param_<name>` | one column per attack parameter over all rows (e.g. `param_fraction`, `param_kind`), empty where an attack has no such parameter |
 //! | sweep_param, sweep_value | the swept parameter and its value (empty if none) |
 //! | protocol, key_rule, signals, trials | the setup and the trial count |
 //! | qber_z, qber_x, qber_y | exact error rates |
