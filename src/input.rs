@@ -5,6 +5,28 @@
 
 use crate::error::{Error, Result};
 
+/// Largest input file read, bytes. The largest legitimate input, a kraus file with 16
+/// operators of a 16-dimensional register, is well under 1 MiB of TOML.
+pub const MAX_INPUT_BYTES: u64 = 4 << 20;
+
+/// Reads a user file as text: only a regular file (not a device, pipe or directory, so that
+/// `/dev/urandom` is refused instead of read forever), at most [`MAX_INPUT_BYTES`], UTF-8.
+/// Errors name the file.
+pub fn read_text(path: &std::path::Path) -> Result<String> {
+    use std::io::Read;
+    let fail = |e: std::io::Error| Error::from(e).with_file(path);
+    let meta = std::fs::metadata(path).map_err(fail)?;
+    if !meta.is_file() {
+        return Err(Error::input("not a regular file (devices, pipes and folders are not read)").with_file(path));
+    }
+    let mut text = String::new();
+    let read = std::fs::File::open(path).map_err(fail)?.take(MAX_INPUT_BYTES + 1).read_to_string(&mut text).map_err(fail)?;
+    if read as u64 > MAX_INPUT_BYTES {
+        return Err(Error::input(format!("larger than the input limit of {} MiB", MAX_INPUT_BYTES >> 20)).with_file(path));
+    }
+    Ok(text)
+}
+
 /// Parses TOML text; a syntax error names its line and column (1-based).
 pub fn parse_toml(text: &str) -> Result<toml::Table> {
     text.parse::<toml::Table>().map_err(|e| {
@@ -81,6 +103,21 @@ mod tests {
         let e = parse_toml("a = 1\nb = = 2\n").unwrap_err();
         assert!(e.message().contains("line 2, column 5"), "{e}");
         assert_eq!(line_column("xé\nyz", 5), (2, 2));
+    }
+
+    #[test]
+    fn only_regular_files_of_bounded_size_are_read() {
+        if std::path::Path::new("/dev/urandom").exists() {
+            assert!(read_text(std::path::Path::new("/dev/urandom")).unwrap_err().message().contains("not a regular file"));
+        }
+        let dir = tempfile::tempdir().unwrap();
+        assert!(read_text(dir.path()).is_err());
+        let big = dir.path().join("big.toml");
+        std::fs::write(&big, vec![b'#'; (MAX_INPUT_BYTES + 10) as usize]).unwrap();
+        assert!(read_text(&big).unwrap_err().message().contains("input limit"));
+        let ok = dir.path().join("ok.toml");
+        std::fs::write(&ok, "a = 1\n").unwrap();
+        assert_eq!(read_text(&ok).unwrap(), "a = 1\n");
     }
 
     #[test]

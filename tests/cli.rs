@@ -182,3 +182,30 @@ fn help_and_unknown_commands() {
     assert_eq!(qkd(&["eval", "--help"], repo()).status.code(), Some(0));
     assert_eq!(qkd(&["frobnicate"], repo()).status.code(), Some(2));
 }
+
+#[test]
+fn unbounded_requests_are_refused_before_any_work() {
+    // Regressions: a huge --steps panicked (capacity overflow), /dev/urandom was read
+    // forever, --threads 10000 and the per-round sampler on 10^15 signals were accepted.
+    let out = qkd(&["sweep", "--attack-file", "attacks/pauli.toml", "--steps", "18446744073709551615"], repo());
+    assert_eq!(out.status.code(), Some(2));
+    assert!(String::from_utf8_lossy(&out.stderr).contains("[1, 100000]"));
+    if Path::new("/dev/urandom").exists() {
+        let out = qkd(&["eval", "--attack-file", "/dev/urandom"], repo());
+        assert_eq!(out.status.code(), Some(2));
+        assert!(String::from_utf8_lossy(&out.stderr).contains("not a regular file"));
+    }
+    let out = qkd(&["run", "--threads", "10000", "-q"], repo());
+    assert_eq!(out.status.code(), Some(2));
+    assert!(String::from_utf8_lossy(&out.stderr).contains("--threads"));
+    let dir = tempfile::tempdir().unwrap();
+    std::fs::write(
+        dir.path().join("c.toml"),
+        "name = \"r\"\nsampler = \"round\"\n[setup]\nsignals = 1000000000000000\n[[attacks]]\nbuiltin = \"pauli\"\n",
+    )
+    .unwrap();
+    let out = qkd(&["run", "c.toml", "-q"], dir.path());
+    assert_eq!(out.status.code(), Some(2));
+    let err = String::from_utf8_lossy(&out.stderr);
+    assert!(err.contains("CPU seconds") && err.contains("sampler = \"count\""), "{err}");
+}

@@ -82,7 +82,7 @@ pub const DEMO_CAMPAIGNS: &[(&str, &str)] = &[
 impl Campaign {
     /// Reads a campaign file.
     pub fn load(path: &Path) -> Result<Campaign> {
-        let text = std::fs::read_to_string(path).map_err(|e| Error::from(e).with_file(path))?;
+        let text = crate::input::read_text(path)?;
         let base = path.parent().map(Path::to_path_buf).unwrap_or_default();
         Campaign::parse(&text, &path.display().to_string(), Some(&base)).map_err(|e| e.with_file(path))
     }
@@ -131,7 +131,7 @@ impl Campaign {
             Some(toml::Value::String(p)) => {
                 let path = resolve(base, p).map_err(|e| e.with_key("setup"))?;
                 let s = Setup::load(&path)?;
-                inputs.push((path.display().to_string(), std::fs::read_to_string(&path).unwrap_or_default()));
+                inputs.push((path.display().to_string(), crate::input::read_text(&path)?));
                 s
             }
             None => Setup::default(),
@@ -167,6 +167,21 @@ impl Campaign {
             let e = parse_entry(table, base).map_err(|e| e.with_key(key.clone()))?;
             inputs.push((e.origin.clone(), e.text.clone()));
             attacks.push(e);
+        }
+        // The per-round sampler draws every signal: about 10⁸ signals per second per core.
+        const ROUND_SAMPLER_MAX_SIGNALS: u64 = 1_000_000_000;
+        if sampler == Sampler::Round && setup.signals > ROUND_SAMPLER_MAX_SIGNALS {
+            let points: usize = attacks.iter().map(|e| e.points().len()).sum();
+            let seconds = setup.signals as f64 * trials as f64 * points as f64 / 1e8;
+            return Err(Error::input_key(
+                "sampler",
+                format!(
+                    "the per-round sampler draws every one of the {} signals of a block: about {seconds:.1e} CPU seconds for this \
+                     campaign; it is capped at {ROUND_SAMPLER_MAX_SIGNALS} signals per block. Use sampler = \"count\" (exact in \
+                     distribution, cost independent of the block size)",
+                    setup.signals
+                ),
+            ));
         }
         if sampler == Sampler::Round && !setup.link.is_ideal_single_photon() {
             return Err(Error::input_key("sampler", "the per-round sampler supports the ideal single-photon link only; use \"count\""));
@@ -260,7 +275,7 @@ fn parse_entry(t: &toml::Table, base: Option<&Path>) -> Result<AttackEntry> {
         }
         (None, Some(toml::Value::String(p))) => {
             let path = resolve(base, p)?;
-            let text = std::fs::read_to_string(&path).map_err(|e| Error::from(e).with_file(&path))?;
+            let text = crate::input::read_text(&path)?;
             (path.display().to_string(), text)
         }
         _ => return Err(Error::input_key("builtin", "give exactly one of `builtin` (a catalogue name) and `file` (a path)")),
@@ -275,7 +290,9 @@ fn parse_entry(t: &toml::Table, base: Option<&Path>) -> Result<AttackEntry> {
         if let Some(v) = t.get(key) {
             let s = sweep.as_mut().ok_or_else(|| Error::input_key(key, "this attack has no sweep to override"))?;
             match (key, v) {
-                ("steps", toml::Value::Integer(i)) if (1..=100_000).contains(i) => s.steps = *i as usize,
+                ("steps", toml::Value::Integer(i)) if (1..=crate::exact::sweep::MAX_SWEEP_STEPS as i64).contains(i) => {
+                    s.steps = *i as usize
+                }
                 ("from", toml::Value::Float(x)) => s.from = *x,
                 ("from", toml::Value::Integer(i)) => s.from = *i as f64,
                 ("to", toml::Value::Float(x)) => s.to = *x,

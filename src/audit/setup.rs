@@ -106,7 +106,7 @@ const KEYS: &[&str] = &[
 impl Setup {
     /// Reads and validates a setup file.
     pub fn load(path: &Path) -> Result<Setup> {
-        let text = std::fs::read_to_string(path).map_err(|e| Error::from(e).with_file(path))?;
+        let text = crate::input::read_text(path)?;
         let table: toml::Table = parse_toml(&text).map_err(|e| e.with_file(path))?;
         Setup::from_table(&table).map_err(|e| e.with_file(path))
     }

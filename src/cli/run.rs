@@ -74,8 +74,10 @@ pub fn cmd_run(a: RunArgs) -> Result<Outcome> {
     let pool = {
         let mut b = rayon::ThreadPoolBuilder::new();
         if let Some(n) = a.threads {
-            if n == 0 {
-                return Err(Error::input_key("--threads", "must be at least 1"));
+            // More workers than this only adds memory and scheduling; results do not change.
+            const MAX_THREADS: usize = 256;
+            if n == 0 || n > MAX_THREADS {
+                return Err(Error::input_key("--threads", format!("{n} is outside [1, {MAX_THREADS}]")));
             }
             b = b.num_threads(n);
         }

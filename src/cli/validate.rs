@@ -41,9 +41,9 @@ pub fn cmd_validate(a: ValidateArgs) -> Result<Outcome> {
 
 /// What kind of input a file is, from its top-level keys.
 fn check_file(path: &Path) -> Vec<Error> {
-    let text = match std::fs::read_to_string(path) {
+    let text = match crate::input::read_text(path) {
         Ok(t) => t,
-        Err(e) => return vec![Error::from(e).with_file(path)],
+        Err(e) => return vec![e],
     };
     let table = match crate::input::parse_toml(&text) {
         Ok(t) => t,

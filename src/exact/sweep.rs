@@ -26,6 +26,11 @@ pub fn fmt_num(x: f64) -> String {
     }
 }
 
+/// Most points a sweep evaluates (the campaign files' cap on `steps` too): at the slowest
+/// family's tens of thousands of evaluations per second, a few seconds of work; a larger
+/// request is refused before any allocation.
+pub const MAX_SWEEP_STEPS: usize = 100_000;
+
 /// One evaluated point of a sweep.
 pub struct SweepPoint {
     /// Attack label.
@@ -42,8 +47,8 @@ pub struct SweepPoint {
 pub fn run_sweep(file: &AttackFile, steps: Option<usize>, opts: &EvalOptions) -> Result<Vec<SweepPoint>> {
     let mut sweep = file.sweep().cloned().ok_or_else(|| Error::input_key("sweep", "the file has no [sweep] table to run"))?;
     if let Some(n) = steps {
-        if n == 0 {
-            return Err(Error::input_key("--steps", "must be at least 1"));
+        if n == 0 || n > MAX_SWEEP_STEPS {
+            return Err(Error::input_key("--steps", format!("{n} is outside [1, {MAX_SWEEP_STEPS}]")));
         }
         sweep.steps = n;
     }
