@@ -14,7 +14,7 @@
 //! `ROUND_GAIN_TOL` = 1e-13.
 
 use crate::error::{Error, Result};
-use crate::numeric::linalg::{c, hermitian_eigen, kron, partial_trace, CMat};
+use crate::numeric::linalg::{c, hermitian_eigen, kron, partial_trace, CMat, CVec};
 use crate::numeric::optimize::povm::DIVISOR_FLOOR;
 use crate::numeric::optimize::{povm_ascent, AscentOptions};
 use crate::protocol::Basis;
@@ -39,6 +39,12 @@ pub struct GameResult {
     pub bound: f64,
     /// Alternation rounds used by the best start.
     pub iterations: usize,
+    /// The best strategy found: the tripartite state on A (2ⁿ), B and E, in that order.
+    pub state: CVec,
+    /// B's measurement per basis string θ: `bob[θ][x]` for answer x.
+    pub bob: Vec<Vec<CMat>>,
+    /// E's measurement per basis string θ: `eve[θ][x]`.
+    pub eve: Vec<Vec<CMat>>,
 }
 
 /// Alice's projector P^θ_x on n qubits (qubit 0 most significant).
@@ -132,7 +138,8 @@ pub fn hunt_game(rounds: usize, d_b: usize, d_e: usize, starts: usize, seed: u64
     let dims = [na, d_b, d_e];
     let proj: Vec<Vec<CMat>> = (0..thetas).map(|t| (0..outcomes).map(|x| alice_projector(rounds, t, x)).collect()).collect();
     let scale = 1.0 / thetas as f64;
-    let runs: Vec<(f64, usize)> = (0..starts)
+    type Strategy = (f64, usize, CVec, Vec<Vec<CMat>>, Vec<Vec<CMat>>);
+    let runs: Vec<Strategy> = (0..starts)
         .into_par_iter()
         .map(|s| {
             let mut rng = crate::numeric::rng::trial_rng(seed, 0, s as u64);
@@ -140,6 +147,7 @@ pub fn hunt_game(rounds: usize, d_b: usize, d_e: usize, starts: usize, seed: u64
             let mut me: Vec<Vec<CMat>> = (0..thetas).map(|_| random_povm(outcomes, d_e, &mut rng)).collect();
             let mut value = f64::NEG_INFINITY;
             let mut used = 0;
+            let mut best: Option<(CVec, Vec<Vec<CMat>>, Vec<Vec<CMat>>)> = None;
             for round in 0..max_rounds {
                 used = round + 1;
                 // Best state for the measurements: top eigenvector of W.
@@ -154,6 +162,10 @@ pub fn hunt_game(rounds: usize, d_b: usize, d_e: usize, starts: usize, seed: u64
                 let new_value = vals[top];
                 let psi = vecs.column(top).into_owned();
                 let rho = &psi * psi.adjoint();
+                if new_value > value {
+                    // The state with the measurements it was computed for wins `new_value`.
+                    best = Some((psi.clone(), mb.clone(), me.clone()));
+                }
                 // Best measurements for B, then for E.
                 for t in 0..thetas {
                     let sigma: Vec<CMat> = (0..outcomes)
@@ -179,16 +191,34 @@ pub fn hunt_game(rounds: usize, d_b: usize, d_e: usize, starts: usize, seed: u64
                     break;
                 }
             }
-            (value, used)
+            let (psi, b, e) = best.expect("at least one alternation round");
+            (value, used, psi, b, e)
         })
         .collect();
-    let (value, iterations) = runs.into_iter().fold((f64::NEG_INFINITY, 0), |acc, r| if r.0 > acc.0 { r } else { acc });
-    Ok(GameResult { rounds, value, bound: crate::exact::bounds::game_bound().powi(rounds as i32), iterations })
+    let (value, iterations, state, bob, eve) =
+        runs.into_iter().reduce(|acc, r| if r.0 > acc.0 { r } else { acc }).expect("at least one start");
+    Ok(GameResult { rounds, value, bound: crate::exact::bounds::game_bound().powi(rounds as i32), iterations, state, bob, eve })
 }
 
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    #[test]
+    fn the_returned_strategy_wins_with_the_reported_value() {
+        let r = hunt_game(1, 2, 2, 3, 5, 200).unwrap();
+        let rho = &r.state * r.state.adjoint();
+        let thetas = r.bob.len();
+        let mut won = 0.0;
+        for t in 0..thetas {
+            for x in 0..r.bob[t].len() {
+                let op = kron(&kron(&alice_projector(1, t, x), &r.bob[t][x]), &r.eve[t][x]);
+                won += (&op * &rho).trace().re / thetas as f64;
+            }
+        }
+        assert!((won - r.value).abs() < 1e-10, "{won} vs {}", r.value);
+        assert!(r.value <= r.bound + 1e-9);
+    }
 
     #[test]
     fn alice_projectors_resolve_the_identity() {
