@@ -47,6 +47,9 @@ pub struct GameResult {
     pub eve: Vec<Vec<CMat>>,
 }
 
+/// One party's measurements: `m[θ][x]` is the element for answer x on basis string θ.
+type Measurements = Vec<Vec<CMat>>;
+
 /// Alice's projector P^θ_x on n qubits (qubit 0 most significant).
 fn alice_projector(n: usize, theta: usize, x: usize) -> CMat {
     let mut p = CMat::identity(1, 1);
@@ -138,7 +141,7 @@ pub fn hunt_game(rounds: usize, d_b: usize, d_e: usize, starts: usize, seed: u64
     let dims = [na, d_b, d_e];
     let proj: Vec<Vec<CMat>> = (0..thetas).map(|t| (0..outcomes).map(|x| alice_projector(rounds, t, x)).collect()).collect();
     let scale = 1.0 / thetas as f64;
-    type Strategy = (f64, usize, CVec, Vec<Vec<CMat>>, Vec<Vec<CMat>>);
+    type Strategy = (f64, usize, CVec, Measurements, Measurements);
     let runs: Vec<Strategy> = (0..starts)
         .into_par_iter()
         .map(|s| {
@@ -147,7 +150,7 @@ pub fn hunt_game(rounds: usize, d_b: usize, d_e: usize, starts: usize, seed: u64
             let mut me: Vec<Vec<CMat>> = (0..thetas).map(|_| random_povm(outcomes, d_e, &mut rng)).collect();
             let mut value = f64::NEG_INFINITY;
             let mut used = 0;
-            let mut best: Option<(CVec, Vec<Vec<CMat>>, Vec<Vec<CMat>>)> = None;
+            let mut best: Option<(CVec, Measurements, Measurements)> = None;
             for round in 0..max_rounds {
                 used = round + 1;
                 // Best state for the measurements: top eigenvector of W.
