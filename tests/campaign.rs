@@ -409,6 +409,20 @@ fn settings_to_look_at_twice_are_flagged_before_the_run() {
 }
 
 #[test]
+fn two_entries_with_one_label_keep_both_plots() {
+    // Regression: the second entry's abort_leak plot overwrote the first's.
+    let dir = tempfile::tempdir().unwrap();
+    let text = SMALL_CAMPAIGN.replace("RULE", "finite-uncertainty")
+        + "[[attacks]]\nbuiltin = \"intercept-resend\"\nsteps = 3\nparams = { basis = \"z\" }\n";
+    std::fs::write(dir.path().join("c.toml"), text).unwrap();
+    let out = qkd(&["run", "c.toml", "-q"], dir.path(), "2");
+    assert_eq!(out.status.code(), Some(0), "{}", String::from_utf8_lossy(&out.stderr));
+    let folder = dir.path().join("results/small");
+    assert!(folder.join("abort_leak_intercept-resend.svg").exists());
+    assert!(folder.join("abort_leak_intercept-resend_entry2.svg").exists());
+}
+
+#[test]
 fn bad_setup_gives_status_two_with_file_key_and_range() {
     let dir = tempfile::tempdir().unwrap();
     std::fs::write(dir.path().join("setup.toml"), "abort_qber = 0.9\n").unwrap();

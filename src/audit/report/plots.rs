@@ -43,12 +43,17 @@ pub fn render(c: &Campaign, results: &[PointResult]) -> Result<Vec<(String, Stri
     for (e, rule) in groups {
         let pts: Vec<&PointResult> = results.iter().filter(|r| r.entry == e && r.rule == rule && r.swept.is_some()).collect();
         if pts.len() >= 2 {
-            let name = if c.rules.len() > 1 {
-                format!("abort_leak_{}_{}.svg", sanitize(&pts[0].attack), rule.name())
+            let mut name = if c.rules.len() > 1 {
+                format!("abort_leak_{}_{}", sanitize(&pts[0].attack), rule.name())
             } else {
-                format!("abort_leak_{}.svg", sanitize(&pts[0].attack))
+                format!("abort_leak_{}", sanitize(&pts[0].attack))
             };
-            out.push((name, abort_leak(&pts)?));
+            // Two entries with one label (or labels equal after sanitising) must not share a
+            // file: the later one gets its entry number.
+            if out.iter().any(|(n, _)| *n == format!("{name}.svg")) {
+                name = format!("{name}_entry{e}");
+            }
+            out.push((format!("{name}.svg"), abort_leak(&pts)?));
         }
     }
     Ok(out)
