@@ -3,7 +3,7 @@
 use qkd_audit::protocol::Protocol;
 use qkd_audit::quantum::measures::binary_entropy;
 use qkd_audit::search::game::hunt_game;
-use qkd_audit::search::hunt::{bound, hunt, HuntOptions, Objective};
+use qkd_audit::search::hunt::{bound, hunt, hunt_each, HuntOptions, Objective};
 use std::process::Command;
 
 fn opts(objective: Objective, protocol: Protocol) -> HuntOptions {
@@ -85,4 +85,23 @@ fn saved_attacks_reproduce_their_objective_under_eval() {
         .output()
         .unwrap();
     assert_eq!(again.status.code(), Some(2));
+}
+
+#[test]
+fn an_infeasible_target_keeps_the_other_targets_results() {
+    // Regression: `--q 0.05,0` discarded every result because Q = 0 has no feasible start.
+    let o = HuntOptions { starts: 2, max_iters: 20, ..opts(Objective::Guess, Protocol::Bb84) };
+    let out = hunt_each(&o, &[0.05, 0.0]).unwrap();
+    assert!(out[0].is_ok());
+    assert!(out[1].as_ref().unwrap_err().message().contains("no start reached a feasible attack"));
+    let dir = tempfile::tempdir().unwrap();
+    let run = Command::new(env!("CARGO_BIN_EXE_qkd-audit"))
+        .args(["hunt", "--objective", "guess", "--q", "0.05,0", "--starts", "2", "--iters", "20", "--out-dir", "h"])
+        .current_dir(dir.path())
+        .output()
+        .unwrap();
+    assert_eq!(run.status.code(), Some(0), "{}", String::from_utf8_lossy(&run.stderr));
+    let csv = std::fs::read_to_string(dir.path().join("h/hunt.csv")).unwrap();
+    assert_eq!(csv.lines().count(), 3, "{csv}");
+    assert!(csv.contains("none: no start reached a feasible attack") && dir.path().join("h/attack_q0.05.toml").exists());
 }

@@ -64,7 +64,7 @@ pub struct HuntArgs {
 
 /// Runs `qkd-audit hunt`.
 pub fn cmd_hunt(a: HuntArgs) -> Result<Outcome> {
-    use crate::search::hunt::{hunt, HuntOptions, Objective};
+    use crate::search::hunt::{hunt_each, HuntOptions, Objective};
     let objective = match a.objective {
         ObjectiveArg::Holevo => Objective::Holevo,
         ObjectiveArg::Accessible => Objective::Accessible,
@@ -120,7 +120,18 @@ pub fn cmd_hunt(a: HuntArgs) -> Result<Outcome> {
     let folder = crate::output::prepare_folder(&dir, a.force)?;
     folder.notes().iter().for_each(|n| note(n));
     let opts = HuntOptions { protocol, objective, eve_dim: a.eve_dim, starts: a.starts, seed: a.seed, max_iters: a.iters };
-    let points = hunt(&opts, &a.q)?;
+    let outcomes = hunt_each(&opts, &a.q)?;
+    let mut points = Vec::new();
+    let mut infeasible = Vec::new();
+    for (q, outcome) in a.q.iter().zip(outcomes) {
+        match outcome {
+            Ok(p) => points.push(p),
+            Err(e) => {
+                note(&format!("warning: Q = {q}: {}", e.message()));
+                infeasible.push(*q);
+            }
+        }
+    }
     let unit = match objective {
         Objective::Holevo | Objective::Accessible => "bits",
         Objective::Guess | Objective::Game => "probability",
@@ -184,6 +195,20 @@ pub fn cmd_hunt(a: HuntArgs) -> Result<Outcome> {
             file,
         ])
         .map_err(io)?;
+    }
+    // A target no start could reach keeps its row, with the reason instead of values.
+    for q in &infeasible {
+        let mut row = vec![String::new(); 16];
+        row[0] = crate::exact::sweep::fmt_num(*q);
+        row[1] = objective.name().to_string();
+        row[2] = unit.to_string();
+        row[3] = protocol.to_string();
+        row[4] = a.eve_dim.to_string();
+        row[12] = bound_setting.to_string();
+        row[13] = "0".to_string();
+        row[14] = a.starts.to_string();
+        row[15] = "none: no start reached a feasible attack".to_string();
+        w.write_record(&row).map_err(io)?;
     }
     let csv_text = String::from_utf8(w.into_inner().map_err(|e| Error::input(e.to_string()))?).expect("csv is UTF-8");
     files.push(("hunt.csv".to_string(), csv_text.clone()));

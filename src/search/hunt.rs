@@ -378,6 +378,13 @@ fn penalty(e: &Evaluation, protocol: Protocol, q_inner: f64) -> f64 {
 
 /// Hunts at each error rate of `qs`.
 pub fn hunt(opts: &HuntOptions, qs: &[f64]) -> Result<Vec<HuntPoint>> {
+    hunt_each(opts, qs)?.into_iter().collect()
+}
+
+/// Like [`hunt`], but one outcome per target: a target where no start reached a feasible
+/// attack (Q = 0, say) is an error of its own and the other targets keep their results.
+/// Errors of the options themselves are the outer error.
+pub fn hunt_each(opts: &HuntOptions, qs: &[f64]) -> Result<Vec<Result<HuntPoint>>> {
     if !(2..=8).contains(&opts.eve_dim) {
         return Err(Error::input_key("--eve-dim", format!("{} is outside [2, 8]", opts.eve_dim)));
     }
@@ -389,7 +396,8 @@ pub fn hunt(opts: &HuntOptions, qs: &[f64]) -> Result<Vec<HuntPoint>> {
     }
     bound(opts.objective, opts.protocol, 0.1)?;
     let n = 8 * opts.eve_dim;
-    qs.iter()
+    let out: Vec<Result<HuntPoint>> = qs
+        .iter()
         .enumerate()
         .map(|(qi, &q)| {
             let finals: Vec<Vec<f64>> = (0..opts.starts)
@@ -438,7 +446,8 @@ pub fn hunt(opts: &HuntOptions, qs: &[f64]) -> Result<Vec<HuntPoint>> {
                 )),
             }
         })
-        .collect()
+        .collect();
+    Ok(out)
 }
 
 #[cfg(test)]
