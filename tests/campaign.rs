@@ -450,6 +450,16 @@ fn demo_campaign_runs_from_any_directory() {
 }
 
 #[test]
+fn the_round_log_refuses_a_setup_whose_link_it_would_ignore() {
+    let dir = tempfile::tempdir().unwrap();
+    std::fs::write(dir.path().join("s.toml"), "[channel]\nloss_db = 3\n").unwrap();
+    let out = qkd(&["rounds", "--attack", "pauli", "--setup", "s.toml", "--signals", "100"], dir.path(), "1");
+    assert_eq!(out.status.code(), Some(2));
+    let err = String::from_utf8_lossy(&out.stderr);
+    assert!(err.contains("s.toml") && err.contains("ideal link"), "{err}");
+}
+
+#[test]
 fn round_log_lists_every_round() {
     let dir = tempfile::tempdir().unwrap();
     let out = qkd(&["rounds", "--attack", "intercept-resend", "--signals", "500", "-o", "t.csv"], dir.path(), "1");

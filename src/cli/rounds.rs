@@ -40,7 +40,19 @@ pub fn cmd_rounds(a: RoundsArgs) -> Result<Outcome> {
         crate::output::check_overwrite(o, a.force)?;
     }
     let setup = match &a.setup {
-        Some(p) => Setup::load(p)?,
+        Some(p) => {
+            let s = Setup::load(p)?;
+            // The per-round log draws single photons on the ideal link only; a setup that
+            // describes another link would be silently ignored, so it is refused.
+            if !s.link.is_ideal_single_photon() {
+                return Err(Error::input(
+                    "rounds logs single photons on an ideal link (lossless, perfect detectors); this setup describes another \
+                     source, channel or detector, which the log would ignore: remove those tables, or run a campaign",
+                )
+                .with_file(p));
+            }
+            s
+        }
         None => Setup::default(),
     };
     let attack = a.attack.build()?;
