@@ -20,7 +20,7 @@ fn main() -> ExitCode {
         Ok(Outcome::Findings) => ExitCode::from(1),
         Err(e) => {
             // stderr may be closed too; the exit status still says what happened.
-            let _ = writeln!(std::io::stderr().lock(), "error: {e}");
+            let _ = writeln!(std::io::stderr().lock(), "error: {}", qkd_audit::cli::common::printable(&e.to_string()));
             ExitCode::from(2)
         }
     }

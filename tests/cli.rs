@@ -209,3 +209,11 @@ fn unbounded_requests_are_refused_before_any_work() {
     let err = String::from_utf8_lossy(&out.stderr);
     assert!(err.contains("CPU seconds") && err.contains("sampler = \"count\""), "{err}");
 }
+
+#[test]
+fn control_characters_in_user_values_never_reach_the_terminal() {
+    let out = qkd(&["eval", "--attack", "intercept-resend", "--set", "basis=\u{1b}[2Jboom"], repo());
+    assert_eq!(out.status.code(), Some(2));
+    let err = String::from_utf8_lossy(&out.stderr);
+    assert!(!err.contains('\u{1b}') && err.contains("\\u{1b}"), "{err}");
+}

@@ -108,11 +108,17 @@ pub fn parse_sets(sets: &[String]) -> Result<BTreeMap<String, Value>> {
     Ok(out)
 }
 
-/// A diagnostic line on stderr. Never panics: if stderr is closed or full the line is
-/// dropped, and the command's outcome is unchanged.
+/// `text` with every control character but the line break written as a `\u{…}` escape,
+/// so that a value a user wrote (echoed in an error) cannot drive the terminal.
+pub fn printable(text: &str) -> String {
+    text.chars().map(|c| if c.is_control() && c != '\n' { c.escape_unicode().to_string() } else { c.to_string() }).collect()
+}
+
+/// A diagnostic line on stderr, made [`printable`]. Never panics: if stderr is closed or
+/// full the line is dropped, and the command's outcome is unchanged.
 pub fn note(text: &str) {
     let mut err = std::io::stderr().lock();
-    let _ = writeln!(err, "{text}");
+    let _ = writeln!(err, "{}", printable(text));
 }
 
 /// Writes `text` to stdout. A closed pipe (`| head`, `| true`) is not an error: the
