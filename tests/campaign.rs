@@ -423,6 +423,17 @@ fn two_entries_with_one_label_keep_both_plots() {
 }
 
 #[test]
+fn a_dry_run_shows_the_plan_and_computes_nothing() {
+    let dir = tempfile::tempdir().unwrap();
+    std::fs::write(dir.path().join("c.toml"), SMALL_CAMPAIGN.replace("RULE", "individual")).unwrap();
+    let out = qkd(&["run", "c.toml", "--dry-run"], dir.path(), "2");
+    assert_eq!(out.status.code(), Some(0), "{}", String::from_utf8_lossy(&out.stderr));
+    let plan = String::from_utf8_lossy(&out.stdout);
+    assert!(plan.contains("6 attack points × 50 trials") && plan.contains("estimate:") && plan.contains("(new)"), "{plan}");
+    assert!(!dir.path().join("results").exists(), "a dry run writes nothing");
+}
+
+#[test]
 fn bad_setup_gives_status_two_with_file_key_and_range() {
     let dir = tempfile::tempdir().unwrap();
     std::fs::write(dir.path().join("setup.toml"), "abort_qber = 0.9\n").unwrap();

@@ -54,6 +54,69 @@ pub struct RunArgs {
     /// the setup's own key_rule gates the exit status; other rules are comparisons).
     #[arg(long)]
     pub fail_on_any_rule: bool,
+    /// Print the plan (points, trials, rules, sampler), an estimate of time and memory and the
+    /// output folder (warnings go to stderr as always), and stop without computing or
+    /// writing anything.
+    #[arg(long)]
+    pub dry_run: bool,
+}
+
+/// The plan of a campaign and a rough estimate of its cost, for `--dry-run`. The rates are
+/// this machine class's measured orders of magnitude (DEVELOPERS.md, "Measured speed"):
+/// about 1 µs per judged trial and rule with the count-level sampler, 10⁸ signals per
+/// second with the per-round sampler, a millisecond per point for the exact evaluation;
+/// memory about 1 kB per trial and rule of the points in flight.
+fn plan(campaign: &Campaign, dir: &std::path::Path, force: bool) -> String {
+    let points = point_count(campaign);
+    let rules = campaign.rules.len();
+    let trials = campaign.trials as f64;
+    let per_trial_s = match campaign.sampler {
+        crate::audit::sample::Sampler::Count => 1e-6 * rules as f64,
+        crate::audit::sample::Sampler::Round => campaign.setup.signals as f64 / 1e8 + 1e-6 * rules as f64,
+    };
+    let cpu_s = points as f64 * (trials * per_trial_s + 1e-3);
+    let threads = rayon::current_num_threads();
+    let memory_mb = threads.min(points) as f64 * trials * rules as f64 * 1e3 / 1e6;
+    let folder = if dir.exists() {
+        if force {
+            "exists; --force replaces it"
+        } else {
+            "exists; the run would refuse without --force"
+        }
+    } else {
+        "new"
+    };
+    format!(
+        "campaign {}: {points} attack points × {} trials, judged under {rules} rule(s) ({}), sampler {}, {} signals per block\n\
+         estimate: {} of CPU time ({} on {threads} threads), about {memory_mb:.0} MB of memory\n\
+         output folder: {} ({folder})\n",
+        campaign.name,
+        campaign.trials,
+        campaign.rules.iter().map(|r| r.name()).collect::<Vec<_>>().join(", "),
+        match campaign.sampler {
+            crate::audit::sample::Sampler::Count => "count",
+            crate::audit::sample::Sampler::Round => "round",
+        },
+        campaign.setup.signals,
+        duration(cpu_s),
+        duration(cpu_s / threads as f64),
+        dir.display()
+    )
+}
+
+/// Seconds as a reader wants them.
+fn duration(seconds: f64) -> String {
+    if seconds < 1.0 {
+        "under a second".into()
+    } else if seconds < 120.0 {
+        format!("{seconds:.0} s")
+    } else if seconds < 7200.0 {
+        format!("{:.0} min", seconds / 60.0)
+    } else if seconds < 2.0 * 86400.0 {
+        format!("{:.1} h", seconds / 3600.0)
+    } else {
+        format!("{:.0} days", seconds / 86400.0)
+    }
 }
 
 /// Runs `qkd-audit run`.
@@ -67,6 +130,10 @@ pub fn cmd_run(a: RunArgs) -> Result<Outcome> {
         note(&format!("warning: {w}"));
     }
     let dir = a.results_dir.join(&campaign.name);
+    if a.dry_run {
+        print(&plan(&campaign, &dir, a.force))?;
+        return Ok(Outcome::Clean);
+    }
     // Every output problem shows now, before the computation; the lock holds until written.
     crate::output::clean_up_on_signals();
     let folder = crate::output::prepare_folder(&dir, a.force)?;
