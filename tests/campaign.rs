@@ -434,6 +434,27 @@ fn a_dry_run_shows_the_plan_and_computes_nothing() {
 }
 
 #[test]
+fn a_six_state_campaign_reports_and_plots_its_own_protocol() {
+    let dir = tempfile::tempdir().unwrap();
+    let text = "name = \"six\"\ntrials = 20\n[setup]\nprotocol = \"six-state\"\nsignals = 100000\nabort_qber = 0.12\n\
+                [[attacks]]\nbuiltin = \"intercept-resend\"\nparams = { basis = \"random-zxy\" }\n";
+    std::fs::write(dir.path().join("c.toml"), text).unwrap();
+    let out = qkd(&["run", "c.toml", "-q"], dir.path(), "2");
+    assert_eq!(out.status.code(), Some(0), "{}", String::from_utf8_lossy(&out.stderr));
+    let folder = dir.path().join("results/six");
+    let svg = std::fs::read_to_string(folder.join("eve_information.svg")).unwrap();
+    assert!(svg.contains("six-state bound") && svg.contains("max of Z, X and Y") && !svg.contains("BB84 bound"));
+    assert!(std::fs::read_to_string(folder.join("summary.md")).unwrap().contains("QBER_Y"));
+    let csv = std::fs::read_to_string(folder.join("attack_vs_bound.csv")).unwrap();
+    let header: Vec<&str> = csv.lines().next().unwrap().split(',').collect();
+    let col = header.iter().position(|h| *h == "mc_qber_y").unwrap();
+    // Fraction 0.5 of full three-basis intercept-resend: QBER_Y = 1/6 (Bruß 1998, halved).
+    let row: Vec<&str> = csv.lines().find(|l| l.contains(",fraction,0.5,")).unwrap().split(',').collect();
+    let y: f64 = row[col].parse().unwrap();
+    assert!((y - 1.0 / 6.0).abs() < 0.02, "{y}");
+}
+
+#[test]
 fn bad_setup_gives_status_two_with_file_key_and_range() {
     let dir = tempfile::tempdir().unwrap();
     std::fs::write(dir.path().join("setup.toml"), "abort_qber = 0.9\n").unwrap();

@@ -68,7 +68,16 @@ fn eve_information(c: &Campaign, results: &[PointResult]) -> Result<String> {
     {
         let root = SVGBackend::with_string(&mut svg, (900, 600)).into_drawing_area();
         root.fill(&WHITE).map_err(plot_err)?;
-        let qmax = results.iter().map(|r| r.exact.qber_z.max(r.exact.qber_x)).fold(0.12_f64, f64::max).min(0.5) * 1.05;
+        // The x axis is the largest error rate over the bases the protocol tests.
+        let six_state = c.setup.protocol == crate::protocol::Protocol::SixState;
+        let qber = |r: &PointResult| {
+            if six_state {
+                r.exact.qber_z.max(r.exact.qber_x).max(r.exact.qber_y)
+            } else {
+                r.exact.qber_z.max(r.exact.qber_x)
+            }
+        };
+        let qmax = results.iter().map(qber).fold(0.12_f64, f64::max).min(0.5) * 1.05;
         let mut chart = ChartBuilder::on(&root)
             .caption(format!("Eve's information vs QBER: {}", c.name), ("sans-serif", 20))
             .margin(15)
@@ -78,21 +87,43 @@ fn eve_information(c: &Campaign, results: &[PointResult]) -> Result<String> {
             .map_err(plot_err)?;
         chart
             .configure_mesh()
-            .x_desc("QBER (max of Z and X), fraction")
+            .x_desc(if six_state { "QBER (max of Z, X and Y), fraction" } else { "QBER (max of Z and X), fraction" })
             .y_desc("Eve's information about a key bit, bits")
             .draw()
             .map_err(plot_err)?;
         let grid: Vec<f64> = (0..=200).map(|i| qmax * i as f64 / 200.0).collect();
-        chart
-            .draw_series(LineSeries::new(grid.iter().map(|&q| (q, binary_entropy(q.min(0.5)))), BLACK.stroke_width(2)))
-            .map_err(plot_err)?
-            .label("h(Q): optimal collective attack (BB84 bound)")
-            .legend(|(x, y)| PathElement::new(vec![(x, y), (x + 20, y)], BLACK.stroke_width(2)));
-        chart
-            .draw_series(LineSeries::new(grid.iter().map(|&q| (q, fggnp_information(q.min(0.5)))), RGBColor(120, 120, 120).stroke_width(1)))
-            .map_err(plot_err)?
-            .label("optimal individual attack (Fuchs et al. 1997)")
-            .legend(|(x, y)| PathElement::new(vec![(x, y), (x + 20, y)], RGBColor(120, 120, 120)));
+        if six_state {
+            // Six-state: Eve's information is at most H(p) − h(Q) with the Pauli weights of
+            // the error rates, here at equal error rates Q in the three bases.
+            let bound = |q: f64| {
+                let w = crate::exact::bounds::six_state_weights(q, q, q);
+                crate::exact::bounds::six_state_entropy(&w, crate::exact::eval::BOUND_SLACK).map_or(f64::NAN, |h| h - binary_entropy(q))
+            };
+            chart
+                .draw_series(LineSeries::new(
+                    grid.iter().filter(|&&q| q <= 2.0 / 3.0).map(|&q| (q, bound(q).min(1.0))),
+                    BLACK.stroke_width(2),
+                ))
+                .map_err(plot_err)?
+                .label("H(p) − h(Q): six-state bound, equal error rates in Z, X, Y (single photons)")
+                .legend(|(x, y)| PathElement::new(vec![(x, y), (x + 20, y)], BLACK.stroke_width(2)));
+        } else {
+            chart
+                .draw_series(LineSeries::new(grid.iter().map(|&q| (q, binary_entropy(q.min(0.5)))), BLACK.stroke_width(2)))
+                .map_err(plot_err)?
+                .label("h(Q): optimal collective attack (BB84 bound, single photons)")
+                .legend(|(x, y)| PathElement::new(vec![(x, y), (x + 20, y)], BLACK.stroke_width(2)));
+        }
+        if !six_state {
+            chart
+                .draw_series(LineSeries::new(
+                    grid.iter().map(|&q| (q, fggnp_information(q.min(0.5)))),
+                    RGBColor(120, 120, 120).stroke_width(1),
+                ))
+                .map_err(plot_err)?
+                .label("optimal individual attack on BB84 (Fuchs et al. 1997)")
+                .legend(|(x, y)| PathElement::new(vec![(x, y), (x + 20, y)], RGBColor(120, 120, 120)));
+        }
         let t = c.setup.abort_qber;
         if t < qmax {
             chart
@@ -105,11 +136,8 @@ fn eve_information(c: &Campaign, results: &[PointResult]) -> Result<String> {
         entries.dedup();
         for (i, e) in entries.iter().enumerate() {
             let color = COLORS[i % COLORS.len()];
-            let pts: Vec<(f64, f64)> = results
-                .iter()
-                .filter(|r| r.entry == *e && r.rule == c.rules[0])
-                .map(|r| (r.exact.qber_z.max(r.exact.qber_x).min(qmax), r.exact.holevo_z))
-                .collect();
+            let pts: Vec<(f64, f64)> =
+                results.iter().filter(|r| r.entry == *e && r.rule == c.rules[0]).map(|r| (qber(r).min(qmax), r.exact.holevo_z)).collect();
             let label = results.iter().find(|r| r.entry == *e).map(|r| r.attack.clone()).unwrap_or_default();
             chart
                 .draw_series(pts.iter().map(|&p| Circle::new(p, 4, color.filled())))
