@@ -33,6 +33,8 @@ pub enum ErrorKind {
 pub struct Error {
     kind: ErrorKind,
     file: Option<PathBuf>,
+    /// 1-based line and column of the key in the file, where known.
+    at: Option<(usize, usize)>,
     key: Option<String>,
     message: String,
 }
@@ -43,7 +45,7 @@ pub type Result<T> = std::result::Result<T, Error>;
 impl Error {
     /// A new error of `kind` with `message`.
     pub fn new(kind: ErrorKind, message: impl Into<String>) -> Self {
-        Error { kind, file: None, key: None, message: message.into() }
+        Error { kind, file: None, at: None, key: None, message: message.into() }
     }
     /// Input error shorthand.
     pub fn input(message: impl Into<String>) -> Self {
@@ -70,6 +72,15 @@ impl Error {
         });
         self
     }
+    /// Attaches the line and column (1-based) of the key in the file (kept if already set).
+    pub fn at(mut self, line: usize, column: usize) -> Self {
+        self.at.get_or_insert((line, column));
+        self
+    }
+    /// The line and column of the key in the file, if known.
+    pub fn location(&self) -> Option<(usize, usize)> {
+        self.at
+    }
     /// The error class.
     pub fn kind(&self) -> &ErrorKind {
         &self.kind
@@ -86,6 +97,10 @@ impl Error {
     pub fn message(&self) -> &str {
         &self.message
     }
+    /// The file at fault, if known.
+    pub fn file(&self) -> Option<&Path> {
+        self.file.as_deref()
+    }
     /// The key at fault, if known.
     pub fn key(&self) -> Option<&str> {
         self.key.as_deref()
@@ -97,8 +112,11 @@ impl fmt::Display for Error {
         if self.kind == ErrorKind::BoundViolation {
             write!(f, "BOUND VIOLATED: ")?;
         }
-        if let Some(file) = &self.file {
-            write!(f, "{}: ", file.display())?;
+        match (&self.file, self.at) {
+            (Some(file), Some((line, column))) => write!(f, "{}:{line}:{column}: ", file.display())?,
+            (Some(file), None) => write!(f, "{}: ", file.display())?,
+            (None, Some((line, column))) => write!(f, "line {line}, column {column}: ")?,
+            (None, None) => {}
         }
         if let Some(key) = &self.key {
             write!(f, "key `{key}`: ")?;

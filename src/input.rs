@@ -30,12 +30,62 @@ pub fn read_text(path: &std::path::Path) -> Result<String> {
 /// Parses TOML text; a syntax error names its line and column (1-based).
 pub fn parse_toml(text: &str) -> Result<toml::Table> {
     text.parse::<toml::Table>().map_err(|e| {
-        let at = e.span().map(|span| {
-            let (line, column) = line_column(text, span.start);
-            format!(" at line {line}, column {column}")
-        });
-        Error::input(format!("not valid TOML{}: {}", at.unwrap_or_default(), e.message().trim()))
+        let err = Error::input(format!("not valid TOML: {}", e.message().trim()));
+        match e.span() {
+            Some(span) => {
+                let (line, column) = line_column(text, span.start);
+                err.at(line, column)
+            }
+            None => err,
+        }
     })
+}
+
+/// Where a dotted key (`abort_qber`, `channel.loss_db`, `attacks[1].steps`) is written in
+/// TOML `text`: the 1-based line and column of its name, found by reading the text's lines
+/// (table headers and `key =` lines). `None` when the key is not written there (a default,
+/// or a key inside an inline table).
+pub fn locate_key(text: &str, dotted: &str) -> Option<(usize, usize)> {
+    let parts: Vec<&str> = dotted.split('.').collect();
+    let (leaf, tables) = parts.split_last()?;
+    let leaf = leaf.split('[').next().unwrap_or(leaf);
+    let want_name: Vec<&str> = tables.iter().map(|t| t.split('[').next().unwrap_or(t)).collect();
+    let want_name = want_name.join(".");
+    // `attacks[1]` means the second `[[attacks]]` header; a plain table is its first.
+    let want_index: usize = tables.last().and_then(|t| t.split_once('[')).map_or(0, |(_, i)| i.trim_end_matches(']').parse().unwrap_or(0));
+    let mut seen: std::collections::BTreeMap<String, usize> = std::collections::BTreeMap::new();
+    let mut in_wanted = tables.is_empty();
+    for (n, line) in text.lines().enumerate() {
+        let trimmed = line.trim_start();
+        if let Some(header) = trimmed.strip_prefix('[') {
+            let name: String =
+                header.trim_start_matches('[').split(']').next().unwrap_or("").split('.').map(str::trim).collect::<Vec<_>>().join(".");
+            let count = seen.entry(name.clone()).or_insert(0);
+            in_wanted = name == want_name && *count == want_index;
+            *count += 1;
+            continue;
+        }
+        if in_wanted {
+            if let Some(rest) = trimmed.strip_prefix(leaf) {
+                if rest.trim_start().starts_with('=') {
+                    return Some((n + 1, line.len() - trimmed.len() + 1));
+                }
+            }
+        }
+    }
+    None
+}
+
+/// Attaches to `e` the line and column of its key in `text`, when the key is written there
+/// and the error is about this text (not about another file it names).
+pub fn locate(e: Error, text: &str) -> Error {
+    if e.file().is_some() {
+        return e;
+    }
+    match e.key().and_then(|k| locate_key(text, k)) {
+        Some((line, column)) => e.at(line, column),
+        None => e,
+    }
 }
 
 /// The 1-based line and column (in characters) of byte offset `at` in `text`.
@@ -101,7 +151,8 @@ mod tests {
     #[test]
     fn syntax_errors_name_line_and_column() {
         let e = parse_toml("a = 1\nb = = 2\n").unwrap_err();
-        assert!(e.message().contains("line 2, column 5"), "{e}");
+        assert_eq!(e.location(), Some((2, 5)), "{e}");
+        assert!(e.with_file("f.toml").to_string().starts_with("f.toml:2:5: not valid TOML"));
         assert_eq!(line_column("xé\nyz", 5), (2, 2));
     }
 
@@ -118,6 +169,18 @@ mod tests {
         let ok = dir.path().join("ok.toml");
         std::fs::write(&ok, "a = 1\n").unwrap();
         assert_eq!(read_text(&ok).unwrap(), "a = 1\n");
+    }
+
+    #[test]
+    fn keys_are_located_in_the_text() {
+        let text = "name = \"x\"\n[setup]\nsignals = 5\n  abort_qber = 0.9\n[[attacks]]\nbuiltin = \"a\"\n[[attacks]]\nsteps = 0\n";
+        assert_eq!(locate_key(text, "name"), Some((1, 1)));
+        assert_eq!(locate_key(text, "setup.abort_qber"), Some((4, 3)));
+        assert_eq!(locate_key(text, "attacks[1].steps"), Some((8, 1)));
+        assert_eq!(locate_key(text, "attacks[0].steps"), None);
+        assert_eq!(locate_key(text, "seed"), None);
+        let e = locate(Error::input_key("setup.abort_qber", "too big"), text).with_file("c.toml");
+        assert_eq!(e.to_string(), "c.toml:4:3: key `setup.abort_qber`: too big");
     }
 
     #[test]

@@ -177,7 +177,7 @@ impl AttackFile {
 /// Reads and parses an attack file; the first problem is returned with the file named.
 pub fn load(path: &Path) -> Result<AttackFile> {
     let text = crate::input::read_text(path)?;
-    parse(&text).map_err(|mut errs| errs.remove(0).with_file(path))
+    parse(&text).map_err(|mut errs| crate::input::locate(errs.remove(0), &text).with_file(path))
 }
 
 /// Checks a file completely: every problem found (parse, parameters, shapes, entries,
@@ -188,12 +188,12 @@ pub fn validate(path: &Path) -> Vec<Error> {
         Err(e) => return vec![e],
     };
     match parse(&text) {
-        Err(errs) => errs.into_iter().map(|e| e.with_file(path)).collect(),
+        Err(errs) => errs.into_iter().map(|e| crate::input::locate(e, &text).with_file(path)).collect(),
         Ok(file) => {
             let mut errs = Vec::new();
             let build = |o: &BTreeMap<String, Value>| file.build(o).map(|_| ());
             if let Err(e) = build(&BTreeMap::new()) {
-                errs.push(e.with_file(path));
+                errs.push(crate::input::locate(e, &text).with_file(path));
             }
             if let (AttackFile::Catalogue(entry), Some(sweep)) = (&file, file.sweep()) {
                 for v in sweep.values() {

@@ -84,7 +84,7 @@ impl Campaign {
     pub fn load(path: &Path) -> Result<Campaign> {
         let text = crate::input::read_text(path)?;
         let base = path.parent().map(Path::to_path_buf).unwrap_or_default();
-        Campaign::parse(&text, &path.display().to_string(), Some(&base)).map_err(|e| e.with_file(path))
+        Campaign::parse(&text, &path.display().to_string(), Some(&base)).map_err(|e| crate::input::locate(e, &text).with_file(path))
     }
 
     /// The default built-in demo campaign.

@@ -108,7 +108,7 @@ impl Setup {
     pub fn load(path: &Path) -> Result<Setup> {
         let text = crate::input::read_text(path)?;
         let table: toml::Table = parse_toml(&text).map_err(|e| e.with_file(path))?;
-        Setup::from_table(&table).map_err(|e| e.with_file(path))
+        Setup::from_table(&table).map_err(|e| crate::input::locate(e, &text).with_file(path))
     }
 
     /// Validates a parsed TOML table; every key is optional and defaults as in
