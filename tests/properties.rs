@@ -83,6 +83,26 @@ fn random_kraus_sets_respect_every_bound() {
 }
 
 #[test]
+fn large_registers_up_to_the_cap_are_validated_and_respect_every_bound() {
+    // Kraus validation and the exact evaluation beyond d_E = 4, up to the kraus-file cap of
+    // 16 (accessible information only up to 8, where the search stays in milliseconds); a
+    // set scaled off completeness by more than the tolerance is refused at every size.
+    let strategy = (any::<u64>(), 5usize..=qkd_audit::attack::file::MAX_EVE_DIM, 1usize..=3);
+    runner(60, 13)
+        .run(&strategy, |(seed, d_e, n_ops)| {
+            let mut rng = rand_chacha::ChaCha8Rng::seed_from_u64(seed);
+            let ch = KrausChannel::random(2, 2 * d_e, n_ops, &mut rng);
+            let ops = ch.operators().to_vec();
+            let attack = Attack::from_kraus("random", d_e, ops.clone(), Tolerance::default()).unwrap();
+            evaluate_both(&attack, d_e <= 8)?;
+            let scaled: Vec<CMat> = ops.iter().map(|k| k * qkd_audit::numeric::linalg::c(1.0 + 1e-6, 0.0)).collect();
+            prop_assert!(Attack::from_kraus("off", d_e, scaled, Tolerance::default()).is_err());
+            Ok(())
+        })
+        .unwrap();
+}
+
+#[test]
 fn near_identity_interactions_respect_every_bound() {
     let strategy = (any::<u64>(), 2usize..=4, 0.0f64..0.3);
     runner(1000, 9)
