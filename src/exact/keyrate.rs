@@ -82,7 +82,9 @@ pub const MU_MIN: f64 = 1e-6;
 /// Whether an optimised μ lies at the top of the searched range (within 0.1 %, the grid
 /// and golden-section resolution being far finer): the rule would prefer brighter pulses.
 pub fn at_search_limit(mu: f64, p: &RateParams) -> bool {
-    mu >= p.mu_max * (1.0 - 1e-3)
+    // The grid and golden-section resolution are far finer than this relative margin.
+    const AT_LIMIT_MARGIN: f64 = 1e-3;
+    mu >= p.mu_max * (1.0 - AT_LIMIT_MARGIN)
 }
 
 /// Vacuum + weak decoy bounds (Ma et al. 2005): Y₁ᴸ and e₁ᵁ from the gains at μ and ν and
