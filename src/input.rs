@@ -101,8 +101,27 @@ pub fn number(v: &toml::Value, key: &str) -> Result<f64> {
     match v {
         toml::Value::Float(x) if x.is_finite() => Ok(*x),
         toml::Value::Integer(i) => Ok(*i as f64),
-        _ => Err(Error::input_key(key, "must be a finite number")),
+        other => Err(Error::input_key(key, format!("must be a finite number, not {}", shown(other)))),
     }
+}
+
+/// A value as the user wrote it, for a message: TOML syntax, shortened, control characters
+/// escaped (it is printed on a terminal).
+pub fn shown(v: &toml::Value) -> String {
+    const SHOWN_MAX_CHARS: usize = 40;
+    let text = v.to_string();
+    let mut out = String::new();
+    for c in text.chars().take(SHOWN_MAX_CHARS) {
+        if c.is_control() {
+            out.extend(c.escape_default());
+        } else {
+            out.push(c);
+        }
+    }
+    if text.chars().count() > SHOWN_MAX_CHARS {
+        out.push('…');
+    }
+    out
 }
 
 /// Longest name (of a setup, an attack) accepted, in characters.
@@ -142,6 +161,56 @@ pub fn check_keys(table: &toml::Table, allowed: &[&str], what: &str) -> Result<(
         Some(e) => Err(e),
         None => Ok(()),
     }
+}
+
+/// The problems of one input file, collected so that a validation reports all of them in one
+/// pass instead of one per round. A parser checks each key independently, keeps the default
+/// for a key it rejects, and goes on; a key whose check depends on another that failed is
+/// skipped rather than reported a second time.
+#[derive(Debug, Default)]
+pub struct Problems(Vec<Error>);
+
+impl Problems {
+    /// An empty collection.
+    pub fn new() -> Self {
+        Problems(Vec::new())
+    }
+    /// Keeps the value of `r`, or records its error and gives `None`.
+    pub fn check<T>(&mut self, r: Result<T>) -> Option<T> {
+        match r {
+            Ok(v) => Some(v),
+            Err(e) => {
+                self.0.push(e);
+                None
+            }
+        }
+    }
+    /// Records one problem.
+    pub fn push(&mut self, e: Error) {
+        self.0.push(e);
+    }
+    /// Records the problems of a nested part (a sub-table, a referenced file), under `key`
+    /// when it is not empty.
+    pub fn nested(&mut self, key: &str, errs: Vec<Error>) {
+        self.0.extend(errs.into_iter().map(|e| if key.is_empty() { e } else { e.with_key(key) }));
+    }
+    /// True when nothing was recorded.
+    pub fn is_empty(&self) -> bool {
+        self.0.is_empty()
+    }
+    /// `value` when nothing was recorded, else every problem in the order found.
+    pub fn finish<T>(self, value: T) -> std::result::Result<T, Vec<Error>> {
+        if self.0.is_empty() {
+            Ok(value)
+        } else {
+            Err(self.0)
+        }
+    }
+}
+
+/// The first of a parser's problems, for callers that stop at one.
+pub fn first(errs: Vec<Error>) -> Error {
+    errs.into_iter().next().unwrap_or_else(|| Error::input("invalid input"))
 }
 
 #[cfg(test)]

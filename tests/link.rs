@@ -189,7 +189,8 @@ fn link_setup_errors_name_the_key() {
     let dir = tempfile::tempdir().unwrap();
     for (text, key) in [
         ("[source]\nkind = \"weak-coherent\"\nintensity = 0.5\ndecoys = [0.6]\ndecoy_probabilities = [0.1]\n", "source.decoys[0]"),
-        ("[channel]\nlength_km = 10\n", "channel.attenuation_db_per_km"),
+        // The missing partner is reported at the key the user wrote, naming what it needs.
+        ("[channel]\nlength_km = 10\n", "key `channel.length_km`: needs attenuation_db_per_km"),
         ("[detector]\nefficiency = 1.5\n", "detector.efficiency"),
         ("key_rule = \"decoy-finite\"\n", "key_rule"),
     ] {

@@ -102,3 +102,45 @@ fn mutated_valid_files_never_panic() {
         })
         .unwrap();
 }
+
+/// `validate` reports every problem of a setup and of a campaign (and the files it names) in
+/// one pass, in reading order, each with file, line, column and key.
+#[test]
+fn validate_reports_every_problem_in_one_pass() {
+    let dir = tempfile::tempdir().unwrap();
+    std::fs::write(
+        dir.path().join("setup.toml"),
+        "signals = 10\nabort_qber = 0.7\ncolour = \"red\"\n[detector]\nefficiency = 1.5\nmisalignment = \"x\"\n",
+    )
+    .unwrap();
+    std::fs::write(
+        dir.path().join("camp.toml"),
+        "name = \"ok\"\ntrials = 0\nsetup = \"setup.toml\"\nrules = [\"nope\"]\n[[attacks]]\nbuiltin = \"no-such\"\n\
+         [[attacks]]\nfile = \"missing.toml\"\n",
+    )
+    .unwrap();
+    let out = std::process::Command::new(env!("CARGO_BIN_EXE_qkd-audit"))
+        .current_dir(dir.path())
+        .args(["validate", "camp.toml"])
+        .output()
+        .unwrap();
+    assert_eq!(out.status.code(), Some(2));
+    let err = String::from_utf8_lossy(&out.stderr);
+    let expected = [
+        "camp.toml:2:1: key `trials`",
+        "camp.toml:4:1: key `rules[0]`",
+        "camp.toml:6:1: key `attacks[0].builtin`",
+        "camp.toml:8:1: key `attacks[1].file`: cannot read `missing.toml`",
+        "setup.toml:1:1: key `signals`",
+        "setup.toml:2:1: key `abort_qber`",
+        "setup.toml:3:1: key `colour`",
+        "setup.toml:5:1: key `detector.efficiency`",
+        "setup.toml:6:1: key `detector.misalignment`: must be a finite number, not \"x\"",
+    ];
+    let lines: Vec<&str> = err.lines().filter(|l| l.starts_with("error: ") && l.contains(".toml:")).collect();
+    assert_eq!(lines.len(), expected.len(), "{err}");
+    for (line, want) in lines.iter().zip(expected) {
+        assert!(line.contains(want), "expected {want:?} in {line:?}\n{err}");
+    }
+    assert!(err.contains("9 problem(s)"), "{err}");
+}

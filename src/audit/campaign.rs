@@ -24,7 +24,7 @@ use crate::audit::rules::KeyRule;
 use crate::audit::sample::Sampler;
 use crate::audit::setup::Setup;
 use crate::error::{Error, Result};
-use crate::input::{check_keys, parse_toml};
+use crate::input::{first, parse_toml, unknown_keys, Problems};
 use std::collections::BTreeMap;
 use std::path::{Path, PathBuf};
 
@@ -80,11 +80,19 @@ pub const DEMO_CAMPAIGNS: &[(&str, &str)] = &[
 ];
 
 impl Campaign {
-    /// Reads a campaign file.
+    /// Reads a campaign file (the first problem; [`Campaign::load_all`] gives all).
     pub fn load(path: &Path) -> Result<Campaign> {
-        let text = crate::input::read_text(path)?;
+        Campaign::load_all(path).map_err(first)
+    }
+
+    /// Reads a campaign file and reports every problem found in it and in the setup and
+    /// attack files it names, each with its file and, where the key is written, its line and
+    /// column.
+    pub fn load_all(path: &Path) -> std::result::Result<Campaign, Vec<Error>> {
+        let text = crate::input::read_text(path).map_err(|e| vec![e])?;
         let base = path.parent().map(Path::to_path_buf).unwrap_or_default();
-        Campaign::parse(&text, &path.display().to_string(), Some(&base)).map_err(|e| crate::input::locate(e, &text).with_file(path))
+        Campaign::parse_all(&text, &path.display().to_string(), Some(&base))
+            .map_err(|errs| errs.into_iter().map(|e| crate::input::locate(e, &text).with_file(path)).collect())
     }
 
     /// The default built-in demo campaign.
@@ -102,78 +110,138 @@ impl Campaign {
     }
 
     /// Parses campaign text; relative paths resolve against `base` (None: no files allowed).
+    /// The first problem; [`Campaign::parse_all`] gives all.
     pub fn parse(text: &str, origin: &str, base: Option<&Path>) -> Result<Campaign> {
-        let t = parse_toml(text)?;
-        check_keys(&t, &["name", "seed", "trials", "sampler", "setup", "rules", "attacks"], "a campaign")?;
+        Campaign::parse_all(text, origin, base).map_err(first)
+    }
+
+    /// Parses campaign text and reports every problem found: each top-level key, the setup
+    /// (inline or the file it names) and each attack entry are checked on their own.
+    pub fn parse_all(text: &str, origin: &str, base: Option<&Path>) -> std::result::Result<Campaign, Vec<Error>> {
+        let t = parse_toml(text).map_err(|e| vec![e])?;
+        let mut p = Problems::new();
+        p.nested("", unknown_keys(&t, &["name", "seed", "trials", "sampler", "setup", "rules", "attacks"], "a campaign"));
         let name = match t.get("name") {
             Some(toml::Value::String(s)) if valid_name(s) => s.clone(),
-            Some(_) => return Err(Error::input_key("name", "must be a non-empty string of letters, digits, '-', '_' or '.'")),
-            None => return Err(Error::input_key("name", "missing: the campaign's name (its output folder)")),
+            Some(_) => {
+                p.push(Error::input_key("name", "must be a non-empty string of letters, digits, '-', '_' or '.'"));
+                String::new()
+            }
+            None => {
+                p.push(Error::input_key("name", "missing: the campaign's name (its output folder)"));
+                String::new()
+            }
         };
         let seed = match t.get("seed") {
             Some(toml::Value::Integer(i)) if *i >= 0 => *i as u64,
             None => 0,
-            _ => return Err(Error::input_key("seed", "must be an integer ≥ 0")),
+            _ => {
+                p.push(Error::input_key("seed", "must be an integer ≥ 0"));
+                0
+            }
         };
         let trials = match t.get("trials") {
             Some(toml::Value::Integer(i)) if (1..=1_000_000).contains(i) => *i as u64,
             None => 200,
-            _ => return Err(Error::input_key("trials", "must be an integer in [1, 1000000]")),
+            _ => {
+                p.push(Error::input_key("trials", "must be an integer in [1, 1000000]"));
+                200
+            }
         };
         let sampler = match t.get("sampler").map(|v| v.as_str()) {
-            None | Some(Some("count")) => Sampler::Count,
-            Some(Some("round")) => Sampler::Round,
-            _ => return Err(Error::input_key("sampler", "must be \"count\" or \"round\"")),
+            None | Some(Some("count")) => Some(Sampler::Count),
+            Some(Some("round")) => Some(Sampler::Round),
+            _ => {
+                p.push(Error::input_key("sampler", "must be \"count\" or \"round\""));
+                None
+            }
         };
         let mut inputs = vec![(origin.to_string(), text.to_string())];
         let setup = match t.get("setup") {
-            Some(toml::Value::Table(s)) => Setup::from_table(s).map_err(|e| e.with_key("setup"))?,
-            Some(toml::Value::String(p)) => {
-                let path = resolve(base, p).map_err(|e| e.with_key("setup"))?;
-                let s = Setup::load(&path)?;
-                inputs.push((path.display().to_string(), crate::input::read_text(&path)?));
-                s
+            Some(toml::Value::Table(s)) => Setup::parse_all(s).map_err(|errs| p.nested("setup", errs)).ok(),
+            Some(toml::Value::String(f)) => match resolve(base, f) {
+                Err(e) => {
+                    p.push(e.with_key("setup"));
+                    None
+                }
+                Ok(path) => match crate::input::read_text(&path) {
+                    Err(e) => {
+                        p.push(unreadable(e, "setup", &path));
+                        None
+                    }
+                    Ok(setup_text) => match Setup::load_all(&path) {
+                        Ok(s) => {
+                            inputs.push((path.display().to_string(), setup_text));
+                            Some(s)
+                        }
+                        Err(errs) => {
+                            p.nested("", errs);
+                            None
+                        }
+                    },
+                },
+            },
+            None => Some(Setup::default()),
+            Some(_) => {
+                p.push(Error::input_key("setup", "must be a file path or a table"));
+                None
             }
-            None => Setup::default(),
-            Some(_) => return Err(Error::input_key("setup", "must be a file path or a table")),
         };
-        let rules = match t.get("rules") {
-            None => vec![setup.key_rule],
+        // The system's own rule is always judged (first), and it alone sets the exit status;
+        // the list adds comparison rules. Whether a rule fits the link is asked only of a
+        // valid setup.
+        let mut rules = setup.iter().map(|s| s.key_rule).collect::<Vec<_>>();
+        match t.get("rules") {
+            None => {}
             Some(toml::Value::Array(a)) if !a.is_empty() => {
-                // The system's own rule is always judged (first), and it alone sets the exit
-                // status; the list adds comparison rules.
-                let mut out = vec![setup.key_rule];
                 for (i, v) in a.iter().enumerate() {
                     let key = format!("rules[{i}]");
-                    let name = v.as_str().ok_or_else(|| Error::input_key(key.clone(), "must be a key-rule name"))?;
-                    let rule: KeyRule = name.parse().map_err(|e: String| Error::input_key(key.clone(), e))?;
-                    setup.check_rule(rule).map_err(|e| e.with_key(key.clone()))?;
-                    if !out.contains(&rule) {
-                        out.push(rule);
+                    let rule = v
+                        .as_str()
+                        .ok_or_else(|| Error::input_key(key.clone(), "must be a key-rule name"))
+                        .and_then(|name| name.parse::<KeyRule>().map_err(|e| Error::input_key(key.clone(), e)));
+                    let Some(rule) = p.check(rule) else { continue };
+                    if let Some(s) = &setup {
+                        if p.check(s.check_rule(rule).map_err(|e| e.with_key(key.clone()))).is_none() {
+                            continue;
+                        }
+                    }
+                    if !rules.contains(&rule) {
+                        rules.push(rule);
                     }
                 }
-                out
             }
-            Some(_) => return Err(Error::input_key("rules", "must be a non-empty list of key-rule names")),
-        };
-        let list = match t.get("attacks") {
-            Some(toml::Value::Array(a)) if !a.is_empty() => a,
-            _ => return Err(Error::input_key("attacks", "must be a non-empty list of [[attacks]] tables")),
-        };
-        let mut attacks = Vec::new();
-        for (i, entry) in list.iter().enumerate() {
-            let key = format!("attacks[{i}]");
-            let table = entry.as_table().ok_or_else(|| Error::input_key(key.clone(), "must be a table"))?;
-            let e = parse_entry(table, base).map_err(|e| e.with_key(key.clone()))?;
-            inputs.push((e.origin.clone(), e.text.clone()));
-            attacks.push(e);
+            Some(_) => p.push(Error::input_key("rules", "must be a non-empty list of key-rule names")),
         }
+        let mut attacks = Vec::new();
+        match t.get("attacks") {
+            Some(toml::Value::Array(list)) if !list.is_empty() => {
+                for (i, entry) in list.iter().enumerate() {
+                    let key = format!("attacks[{i}]");
+                    let Some(table) = entry.as_table() else {
+                        p.push(Error::input_key(key, "must be a table"));
+                        continue;
+                    };
+                    match parse_entry(table, base) {
+                        Ok(e) => {
+                            inputs.push((e.origin.clone(), e.text.clone()));
+                            attacks.push(e);
+                        }
+                        Err(errs) => p.nested(&key, errs),
+                    }
+                }
+            }
+            _ => p.push(Error::input_key("attacks", "must be a non-empty list of [[attacks]] tables")),
+        }
+        let (Some(setup), Some(sampler)) = (setup, sampler) else {
+            return Err(p.finish(()).err().unwrap_or_else(|| vec![Error::input("invalid campaign")]));
+        };
         // The per-round sampler draws every signal: about 10⁸ signals per second per core.
         const ROUND_SAMPLER_MAX_SIGNALS: u64 = 1_000_000_000;
         if sampler == Sampler::Round && setup.signals > ROUND_SAMPLER_MAX_SIGNALS {
             let points: usize = attacks.iter().map(|e| e.points().len()).sum();
             let seconds = setup.signals as f64 * trials as f64 * points as f64 / 1e8;
-            return Err(Error::input_key(
+            p.push(Error::input_key(
                 "sampler",
                 format!(
                     "the per-round sampler draws every one of the {} signals of a block: about {seconds:.1e} CPU seconds for this \
@@ -182,12 +250,11 @@ impl Campaign {
                     setup.signals
                 ),
             ));
-        }
-        if sampler == Sampler::Round && !setup.link.is_ideal_single_photon() {
-            return Err(Error::input_key("sampler", "the per-round sampler supports the ideal single-photon link only; use \"count\""));
+        } else if sampler == Sampler::Round && !setup.link.is_ideal_single_photon() {
+            p.push(Error::input_key("sampler", "the per-round sampler supports the ideal single-photon link only; use \"count\""));
         }
         let warnings = preflight_warnings(&setup, &attacks);
-        Ok(Campaign { name, seed, trials, sampler, setup, rules, attacks, inputs, warnings })
+        p.finish(Campaign { name, seed, trials, sampler, setup, rules, attacks, inputs, warnings })
     }
 }
 
@@ -259,6 +326,12 @@ fn valid_name(s: &str) -> bool {
     !s.is_empty() && s != "." && s != ".." && s.chars().all(|c| c.is_ascii_alphanumeric() || "-_.".contains(c))
 }
 
+/// A file named by `key` that cannot be read: reported at the key that names it (so with the
+/// campaign's line and column), with the path and the reason.
+fn unreadable(e: Error, key: &str, path: &Path) -> Error {
+    Error::input_key(key, format!("cannot read `{}`: {}", path.display(), e.message()))
+}
+
 fn resolve(base: Option<&Path>, p: &str) -> Result<PathBuf> {
     match base {
         Some(b) => Ok(b.join(p)),
@@ -266,40 +339,65 @@ fn resolve(base: Option<&Path>, p: &str) -> Result<PathBuf> {
     }
 }
 
-fn parse_entry(t: &toml::Table, base: Option<&Path>) -> Result<AttackEntry> {
-    check_keys(t, &["builtin", "file", "steps", "from", "to", "params"], "an attack entry")?;
-    let (origin, text) = match (t.get("builtin"), t.get("file")) {
+fn parse_entry(t: &toml::Table, base: Option<&Path>) -> std::result::Result<AttackEntry, Vec<Error>> {
+    let mut p = Problems::new();
+    p.nested("", unknown_keys(t, &["builtin", "file", "steps", "from", "to", "params"], "an attack entry"));
+    let source = match (t.get("builtin"), t.get("file")) {
         (Some(toml::Value::String(name)), None) => {
-            let text = builtin_entry_text(name, "builtin")?.to_string();
-            (format!("builtin:{name}"), text)
+            p.check(builtin_entry_text(name, "builtin").map(|text| (format!("builtin:{name}"), text.to_string())))
         }
-        (None, Some(toml::Value::String(p))) => {
-            let path = resolve(base, p)?;
-            let text = crate::input::read_text(&path)?;
-            (path.display().to_string(), text)
+        (None, Some(toml::Value::String(f))) => {
+            p.check(resolve(base, f).map_err(|e| e.with_key("file")).and_then(|path| match crate::input::read_text(&path) {
+                Ok(text) => Ok((path.display().to_string(), text)),
+                Err(e) => Err(unreadable(e, "file", &path)),
+            }))
         }
-        _ => return Err(Error::input_key("builtin", "give exactly one of `builtin` (a catalogue name) and `file` (a path)")),
+        _ => {
+            p.push(Error::input_key("builtin", "give exactly one of `builtin` (a catalogue name) and `file` (a path)"));
+            None
+        }
     };
-    let file = parse_attack(&text).map_err(|mut errs| errs.remove(0).with_file(&origin))?;
-    let params = match t.get("params") {
-        None => BTreeMap::new(),
-        Some(v) => crate::attack::file::params_table(v)?,
-    };
-    let mut sweep = file.sweep().cloned();
-    for key in ["steps", "from", "to"] {
-        if let Some(v) = t.get(key) {
-            let s = sweep.as_mut().ok_or_else(|| Error::input_key(key, "this attack has no sweep to override"))?;
-            match (key, v) {
-                ("steps", toml::Value::Integer(i)) if (1..=crate::exact::sweep::MAX_SWEEP_STEPS as i64).contains(i) => {
-                    s.steps = *i as usize
-                }
-                ("from", toml::Value::Float(x)) => s.from = *x,
-                ("from", toml::Value::Integer(i)) => s.from = *i as f64,
-                ("to", toml::Value::Float(x)) => s.to = *x,
-                ("to", toml::Value::Integer(i)) => s.to = *i as f64,
-                _ => return Err(Error::input_key(key, "must be a number (steps: an integer in [1, 100000])")),
+    let file = match &source {
+        Some((origin, text)) => match parse_attack(text) {
+            Ok(f) => Some(f),
+            Err(errs) => {
+                p.nested("", errs.into_iter().map(|e| crate::input::locate(e, text).with_file(origin)).collect());
+                None
             }
+        },
+        None => None,
+    };
+    let params = match t.get("params") {
+        None => Some(BTreeMap::new()),
+        Some(v) => p.check(crate::attack::file::params_table(v)),
+    };
+    let mut sweep = file.as_ref().and_then(|f| f.sweep().cloned());
+    for key in ["steps", "from", "to"] {
+        let Some(v) = t.get(key) else { continue };
+        let value = match (key, v) {
+            ("steps", toml::Value::Integer(i)) if (1..=crate::exact::sweep::MAX_SWEEP_STEPS as i64).contains(i) => Some(*i as f64),
+            ("from" | "to", toml::Value::Float(x)) if x.is_finite() => Some(*x),
+            ("from" | "to", toml::Value::Integer(i)) => Some(*i as f64),
+            _ => {
+                p.push(Error::input_key(key, "must be a number (steps: an integer in [1, 100000])"));
+                None
+            }
+        };
+        match (file.as_ref(), sweep.as_mut(), value) {
+            (Some(_), None, _) => p.push(Error::input_key(key, "this attack has no sweep to override")),
+            (_, Some(s), Some(x)) => match key {
+                "steps" => s.steps = x as usize,
+                "from" => s.from = x,
+                _ => s.to = x,
+            },
+            _ => {}
         }
+    }
+    let (Some((origin, text)), Some(file), Some(params)) = (source, file, params) else {
+        return Err(p.finish(()).err().unwrap_or_else(|| vec![Error::input("invalid attack entry")]));
+    };
+    if !p.is_empty() {
+        return p.finish(AttackEntry { label: String::new(), origin, text, file, sweep, params });
     }
     let label = match (&file, t.get("builtin").and_then(|v| v.as_str())) {
         (_, Some(name)) => name.to_string(),
@@ -309,11 +407,15 @@ fn parse_entry(t: &toml::Table, base: Option<&Path>) -> Result<AttackEntry> {
         }
     };
     let entry = AttackEntry { label, origin, text, file, sweep, params };
-    // Build every point once now, so bad values are reported before any work.
+    // Build every point once now, so bad values are reported before any work (the first
+    // failing point: the others fail the same way).
     for (_, overrides) in entry.points() {
-        entry.file.build(&overrides)?;
+        if let Err(e) = entry.file.build(&overrides) {
+            p.push(e);
+            break;
+        }
     }
-    Ok(entry)
+    p.finish(entry)
 }
 
 impl AttackEntry {

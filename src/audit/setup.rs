@@ -14,7 +14,7 @@
 
 use crate::audit::rules::{KeyRule, RuleParams};
 use crate::error::{check_range, Error, Result};
-use crate::input::{check_keys, number, parse_toml};
+use crate::input::{first, number, parse_toml, unknown_keys, Problems};
 use crate::protocol::optical::Link;
 use crate::protocol::Protocol;
 use serde::Serialize;
@@ -104,83 +104,141 @@ const KEYS: &[&str] = &[
 ];
 
 impl Setup {
-    /// Reads and validates a setup file.
+    /// Reads and validates a setup file (the first problem; [`Setup::load_all`] gives all).
     pub fn load(path: &Path) -> Result<Setup> {
-        let text = crate::input::read_text(path)?;
-        let table: toml::Table = parse_toml(&text).map_err(|e| e.with_file(path))?;
-        Setup::from_table(&table).map_err(|e| crate::input::locate(e, &text).with_file(path))
+        Setup::load_all(path).map_err(first)
+    }
+
+    /// Reads and validates a setup file, reporting every problem found, each with the file
+    /// and, where the key is written in it, its line and column.
+    pub fn load_all(path: &Path) -> std::result::Result<Setup, Vec<Error>> {
+        let text = crate::input::read_text(path).map_err(|e| vec![e])?;
+        let table: toml::Table = parse_toml(&text).map_err(|e| vec![e.with_file(path)])?;
+        Setup::parse_all(&table).map_err(|errs| errs.into_iter().map(|e| crate::input::locate(e, &text).with_file(path)).collect())
     }
 
     /// Validates a parsed TOML table; every key is optional and defaults as in
-    /// [`Setup::default`].
+    /// [`Setup::default`]. The first problem; [`Setup::parse_all`] gives all.
     pub fn from_table(t: &toml::Table) -> Result<Setup> {
-        check_keys(t, KEYS, "a setup")?;
+        Setup::parse_all(t).map_err(first)
+    }
+
+    /// Validates a parsed TOML table and reports every problem found: each key is checked
+    /// on its own, so a file with four mistakes gets four errors in one pass.
+    pub fn parse_all(t: &toml::Table) -> std::result::Result<Setup, Vec<Error>> {
+        let mut p = Problems::new();
+        p.nested("", unknown_keys(t, KEYS, "a setup"));
         let mut s = Setup::default();
         if let Some(v) = t.get("name") {
-            s.name = crate::input::name(v, "name")?;
+            if let Some(n) = p.check(crate::input::name(v, "name")) {
+                s.name = n;
+            }
         }
         if let Some(v) = t.get("protocol") {
-            let p = v.as_str().ok_or_else(|| Error::input_key("protocol", "must be a string: bb84 or six-state"))?;
-            s.protocol = p.parse().map_err(|e: String| Error::input_key("protocol", e))?;
+            let parsed = v
+                .as_str()
+                .ok_or_else(|| Error::input_key("protocol", "must be a string: bb84 or six-state"))
+                .and_then(|x| x.parse().map_err(|e: String| Error::input_key("protocol", e)));
+            if let Some(x) = p.check(parsed) {
+                s.protocol = x;
+            }
         }
         if let Some(v) = t.get("signals") {
-            let n = number(v, "signals")?;
-            if n.fract() != 0.0 || !(100.0..=1e15).contains(&n) {
-                return Err(Error::input_key("signals", format!("{n} is not an integer in [100, 1e15]")));
+            let n = number(v, "signals").and_then(|n| {
+                if n.fract() != 0.0 || !(100.0..=1e15).contains(&n) {
+                    return Err(Error::input_key("signals", format!("{n} is not an integer in [100, 1e15]")));
+                }
+                Ok(n as u64)
+            });
+            if let Some(n) = p.check(n) {
+                s.signals = n;
             }
-            s.signals = n as u64;
         }
         if let Some(v) = t.get("basis_z_probability") {
-            let p = number(v, "basis_z_probability")?;
-            if !(p > 0.0 && p < 1.0) {
-                return Err(Error::input_key("basis_z_probability", format!("{p} is outside the open interval (0, 1)")));
+            let x = number(v, "basis_z_probability").and_then(|x| {
+                if !(x > 0.0 && x < 1.0) {
+                    return Err(Error::input_key("basis_z_probability", format!("{x} is outside the open interval (0, 1)")));
+                }
+                Ok(x)
+            });
+            if let Some(x) = p.check(x) {
+                s.basis_z_probability = x;
             }
-            s.basis_z_probability = p;
         }
         match (t.get("test_fraction"), t.get("test_count")) {
-            (Some(_), Some(_)) => return Err(Error::input_key("test_count", "give test_fraction or test_count, not both")),
+            (Some(_), Some(_)) => p.push(Error::input_key("test_count", "give test_fraction or test_count, not both")),
             (Some(v), None) => {
-                let f = number(v, "test_fraction")?;
-                if !(0.0..1.0).contains(&f) {
-                    return Err(Error::input_key("test_fraction", format!("{f} is outside [0, 1)")));
+                let f = number(v, "test_fraction").and_then(|f| {
+                    if !(0.0..1.0).contains(&f) {
+                        return Err(Error::input_key("test_fraction", format!("{f} is outside [0, 1)")));
+                    }
+                    Ok(f)
+                });
+                if let Some(f) = p.check(f) {
+                    s.test_sample = TestSample::Fraction(f);
                 }
-                s.test_sample = TestSample::Fraction(f);
             }
             (None, Some(v)) => {
-                let c = number(v, "test_count")?;
-                if c.fract() != 0.0 || !(0.0..=1e15).contains(&c) {
-                    return Err(Error::input_key("test_count", format!("{c} is not an integer in [0, 1e15]")));
+                let c = number(v, "test_count").and_then(|c| {
+                    if c.fract() != 0.0 || !(0.0..=1e15).contains(&c) {
+                        return Err(Error::input_key("test_count", format!("{c} is not an integer in [0, 1e15]")));
+                    }
+                    Ok(c as u64)
+                });
+                if let Some(c) = p.check(c) {
+                    s.test_sample = TestSample::Count(c);
                 }
-                s.test_sample = TestSample::Count(c as u64);
             }
             (None, None) => {}
         }
         if let Some(v) = t.get("abort_qber") {
-            s.abort_qber = check_range("abort_qber", number(v, "abort_qber")?, 0.0, 0.5)?;
+            if let Some(x) = p.check(number(v, "abort_qber").and_then(|x| check_range("abort_qber", x, 0.0, 0.5))) {
+                s.abort_qber = x;
+            }
         }
         if let Some(v) = t.get("ec_efficiency") {
-            s.ec_efficiency = check_range("ec_efficiency", number(v, "ec_efficiency")?, 1.0, 3.0)?;
+            if let Some(x) = p.check(number(v, "ec_efficiency").and_then(|x| check_range("ec_efficiency", x, 1.0, 3.0))) {
+                s.ec_efficiency = x;
+            }
         }
         for key in ["epsilon_sec", "epsilon_cor"] {
             if let Some(v) = t.get(key) {
-                let e = number(v, key)?;
-                if !(e > 0.0 && e <= 0.1) {
-                    return Err(Error::input_key(key, format!("{e} is outside (0, 0.1]")));
-                }
-                if key == "epsilon_sec" {
-                    s.epsilon_sec = e;
-                } else {
-                    s.epsilon_cor = e;
+                let e = number(v, key).and_then(|e| {
+                    if !(e > 0.0 && e <= 0.1) {
+                        return Err(Error::input_key(key, format!("{e} is outside (0, 0.1]")));
+                    }
+                    Ok(e)
+                });
+                match (key, p.check(e)) {
+                    ("epsilon_sec", Some(e)) => s.epsilon_sec = e,
+                    (_, Some(e)) => s.epsilon_cor = e,
+                    (_, None) => {}
                 }
             }
         }
+        let mut rule_ok = true;
         if let Some(v) = t.get("key_rule") {
-            let r = v.as_str().ok_or_else(|| Error::input_key("key_rule", "must be a string"))?;
-            s.key_rule = r.parse().map_err(|e: String| Error::input_key("key_rule", e))?;
+            let r = v
+                .as_str()
+                .ok_or_else(|| Error::input_key("key_rule", "must be a string"))
+                .and_then(|r| r.parse().map_err(|e: String| Error::input_key("key_rule", e)));
+            match p.check(r) {
+                Some(r) => s.key_rule = r,
+                None => rule_ok = false,
+            }
         }
-        s.link = Link::from_tables(t.get("source"), t.get("channel"), t.get("detector"))?;
-        s.check_rule(s.key_rule).map_err(|e| e.with_key("key_rule"))?;
-        Ok(s)
+        match Link::parse_all(t.get("source"), t.get("channel"), t.get("detector")) {
+            Ok(link) => {
+                s.link = link;
+                // Whether the rule fits the link is only asked of a rule and a link that
+                // are both valid; otherwise the answer would be about defaults.
+                if rule_ok {
+                    p.check(s.check_rule(s.key_rule).map_err(|e| e.with_key("key_rule")));
+                }
+            }
+            Err(errs) => p.nested("", errs),
+        }
+        p.finish(s)
     }
 
     /// Checks that `rule` can run on this setup's link (decoy rules need the decoys they

@@ -1,7 +1,7 @@
 //! The `validate` subcommand: check input files and report the problems found, without
 //! running anything. A file is read as a campaign when it has `attacks`, as an attack file
-//! when it has `operators` or `family`, and as a setup otherwise. Attack files report every
-//! problem in one pass; campaigns and setups report their first problem.
+//! when it has `operators` or `family`, and as a setup otherwise. Every problem of a file
+//! (and of the setup and attack files a campaign names) is reported in one pass.
 
 use super::common::{note, print, Outcome};
 use crate::attack::file as attack_file;
@@ -23,7 +23,9 @@ pub struct ValidateArgs {
 pub fn cmd_validate(a: ValidateArgs) -> Result<Outcome> {
     let mut problems = 0;
     for f in &a.files {
-        let errs = check_file(f);
+        let mut errs = check_file(f);
+        // In reading order: file by file, then line by line (problems without a line last).
+        errs.sort_by_key(|e| (e.file().map(Path::to_path_buf), e.location().is_none(), e.location()));
         if errs.is_empty() {
             print(&format!("ok {}\n", f.display()))?;
         } else {
@@ -50,10 +52,10 @@ fn check_file(path: &Path) -> Vec<Error> {
         Err(e) => return vec![e.with_file(path)],
     };
     if table.contains_key("attacks") {
-        Campaign::load(path).err().into_iter().collect()
+        Campaign::load_all(path).err().unwrap_or_default()
     } else if table.contains_key("operators") || table.contains_key("family") {
         attack_file::validate(path)
     } else {
-        Setup::load(path).err().into_iter().collect()
+        Setup::load_all(path).err().unwrap_or_default()
     }
 }

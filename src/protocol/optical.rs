@@ -9,8 +9,8 @@
 //! overall transmittance (channel × Bob's efficiency) and Y₀ the dark-count probability per
 //! gate. No attack or key-length logic lives here.
 
-use crate::error::{check_range, Error, Result};
-use crate::input::{check_keys, number as num};
+use crate::error::{check_range, Error};
+use crate::input::{number as num, unknown_keys, Problems};
 use serde::Serialize;
 
 /// Error rate of a dark count (random bit).
@@ -182,129 +182,218 @@ impl Link {
         gains(mu, self.transmittance(), self.dark_count_probability, self.misalignment)
     }
 
-    /// Parses the `[source]`, `[channel]` and `[detector]` tables of a setup file.
-    pub fn from_tables(source: Option<&toml::Value>, channel: Option<&toml::Value>, detector: Option<&toml::Value>) -> Result<Link> {
+    /// Parses the `[source]`, `[channel]` and `[detector]` tables of a setup file, reporting
+    /// every problem found (keys named with their table, e.g. `channel.loss_db`).
+    pub fn parse_all(
+        source: Option<&toml::Value>,
+        channel: Option<&toml::Value>,
+        detector: Option<&toml::Value>,
+    ) -> std::result::Result<Link, Vec<Error>> {
+        let mut p = Problems::new();
         let mut link = Link::default();
         if let Some(s) = source {
-            let t = s.as_table().ok_or_else(|| Error::input_key("source", "must be a table"))?;
-            link.source = parse_source(t).map_err(|e| e.with_key("source"))?;
+            match s.as_table() {
+                None => p.push(Error::input_key("source", "must be a table")),
+                Some(t) => match parse_source(t) {
+                    Ok(src) => link.source = src,
+                    Err(errs) => p.nested("source", errs),
+                },
+            }
         }
         if let Some(c) = channel {
-            let t = c.as_table().ok_or_else(|| Error::input_key("channel", "must be a table"))?;
-            allowed(t, &["length_km", "attenuation_db_per_km", "loss_db"]).map_err(|e| e.with_key("channel"))?;
-            match (t.get("loss_db"), t.get("length_km")) {
-                (Some(_), Some(_)) => {
-                    return Err(Error::input_key("channel.loss_db", "give loss_db or length_km (with attenuation_db_per_km), not both"))
-                }
-                (Some(l), None) => link.channel_loss_db = check_range("channel.loss_db", num(l, "channel.loss_db")?, 0.0, 100.0)?,
-                (None, Some(l)) => {
-                    let km = check_range("channel.length_km", num(l, "channel.length_km")?, 0.0, 1000.0)?;
-                    let att = match t.get("attenuation_db_per_km") {
-                        Some(a) => check_range("channel.attenuation_db_per_km", num(a, "channel.attenuation_db_per_km")?, 0.0, 10.0)?,
-                        None => return Err(Error::input_key("channel.attenuation_db_per_km", "missing: needed with length_km (dB/km)")),
-                    };
-                    link.length_km = Some(km);
-                    link.attenuation_db_per_km = Some(att);
-                    link.channel_loss_db = km * att;
-                }
-                (None, None) => {}
+            match c.as_table() {
+                None => p.push(Error::input_key("channel", "must be a table")),
+                Some(t) => parse_channel(t, &mut link, &mut p),
             }
         }
         if let Some(d) = detector {
-            let t = d.as_table().ok_or_else(|| Error::input_key("detector", "must be a table"))?;
-            allowed(t, &["efficiency", "dark_count_probability", "misalignment"]).map_err(|e| e.with_key("detector"))?;
-            if let Some(v) = t.get("efficiency") {
-                let e = num(v, "detector.efficiency")?;
-                if !(e > 0.0 && e <= 1.0) {
-                    return Err(Error::input_key("detector.efficiency", format!("{e} is outside (0, 1]")));
-                }
-                link.detector_efficiency = e;
-            }
-            if let Some(v) = t.get("dark_count_probability") {
-                link.dark_count_probability =
-                    check_range("detector.dark_count_probability", num(v, "detector.dark_count_probability")?, 0.0, 0.1)?;
-            }
-            if let Some(v) = t.get("misalignment") {
-                link.misalignment = check_range("detector.misalignment", num(v, "detector.misalignment")?, 0.0, 0.5)?;
+            match d.as_table() {
+                None => p.push(Error::input_key("detector", "must be a table")),
+                Some(t) => parse_detector(t, &mut link, &mut p),
             }
         }
-        Ok(link)
+        p.finish(link)
     }
 }
 
-fn allowed(t: &toml::Table, keys: &[&str]) -> Result<()> {
-    check_keys(t, keys, "this table")
+fn parse_channel(t: &toml::Table, link: &mut Link, p: &mut Problems) {
+    p.nested("channel", unknown_keys(t, &["length_km", "attenuation_db_per_km", "loss_db"], "this table"));
+    let att = t
+        .get("attenuation_db_per_km")
+        .map(|a| num(a, "channel.attenuation_db_per_km").and_then(|x| check_range("channel.attenuation_db_per_km", x, 0.0, 10.0)));
+    match (t.get("loss_db"), t.get("length_km")) {
+        (Some(_), Some(_)) => {
+            p.push(Error::input_key("channel.loss_db", "give loss_db or length_km (with attenuation_db_per_km), not both"))
+        }
+        (Some(l), None) => {
+            if let Some(x) = p.check(num(l, "channel.loss_db").and_then(|x| check_range("channel.loss_db", x, 0.0, 100.0))) {
+                link.channel_loss_db = x;
+            }
+            // An attenuation beside loss_db does not change this link's loss; it is kept
+            // for commands that sweep distance (`keyrate`).
+            if let Some(a) = att {
+                link.attenuation_db_per_km = p.check(a);
+            }
+        }
+        (None, Some(l)) => {
+            let km = p.check(num(l, "channel.length_km").and_then(|x| check_range("channel.length_km", x, 0.0, 1000.0)));
+            let att = match att {
+                Some(a) => p.check(a),
+                None => {
+                    p.push(Error::input_key("channel.length_km", "needs attenuation_db_per_km (dB/km) beside it"));
+                    None
+                }
+            };
+            if let (Some(km), Some(att)) = (km, att) {
+                link.length_km = Some(km);
+                link.attenuation_db_per_km = Some(att);
+                link.channel_loss_db = km * att;
+            }
+        }
+        (None, None) => {
+            if let Some(a) = att {
+                link.attenuation_db_per_km = p.check(a);
+            }
+        }
+    }
 }
 
-fn parse_source(t: &toml::Table) -> Result<Source> {
-    allowed(t, &["kind", "intensity", "probability", "decoys", "decoy_probabilities"])?;
-    match t.get("kind").and_then(|v| v.as_str()) {
+fn parse_detector(t: &toml::Table, link: &mut Link, p: &mut Problems) {
+    p.nested("detector", unknown_keys(t, &["efficiency", "dark_count_probability", "misalignment"], "this table"));
+    if let Some(v) = t.get("efficiency") {
+        let e = num(v, "detector.efficiency").and_then(|e| {
+            if !(e > 0.0 && e <= 1.0) {
+                return Err(Error::input_key("detector.efficiency", format!("{e} is outside (0, 1]")));
+            }
+            Ok(e)
+        });
+        if let Some(e) = p.check(e) {
+            link.detector_efficiency = e;
+        }
+    }
+    if let Some(v) = t.get("dark_count_probability") {
+        let key = "detector.dark_count_probability";
+        if let Some(x) = p.check(num(v, key).and_then(|x| check_range(key, x, 0.0, 0.1))) {
+            link.dark_count_probability = x;
+        }
+    }
+    if let Some(v) = t.get("misalignment") {
+        let key = "detector.misalignment";
+        if let Some(x) = p.check(num(v, key).and_then(|x| check_range(key, x, 0.0, 0.5))) {
+            link.misalignment = x;
+        }
+    }
+}
+
+/// A list of numbers, each checked by `check`; errors name `key[i]`.
+fn number_list(v: &toml::Value, key: &str, p: &mut Problems, check: impl Fn(f64) -> std::result::Result<f64, String>) -> Option<Vec<f64>> {
+    let Some(a) = v.as_array() else {
+        p.push(Error::input_key(key, "must be a list of numbers"));
+        return None;
+    };
+    let mut out = Vec::new();
+    let mut ok = true;
+    for (i, x) in a.iter().enumerate() {
+        let k = format!("{key}[{i}]");
+        match p.check(num(x, &k).and_then(|x| check(x).map_err(|m| Error::input_key(k.clone(), m)))) {
+            Some(x) => out.push(x),
+            None => ok = false,
+        }
+    }
+    ok.then_some(out)
+}
+
+fn parse_source(t: &toml::Table) -> std::result::Result<Source, Vec<Error>> {
+    let mut p = Problems::new();
+    p.nested("", unknown_keys(t, &["kind", "intensity", "probability", "decoys", "decoy_probabilities"], "this table"));
+    let source = match t.get("kind").and_then(|v| v.as_str()) {
         Some("single-photon") => {
-            if t.len() > 1 {
-                return Err(Error::input_key("kind", "a single-photon source takes no other keys"));
+            for k in
+                t.keys().filter(|k| *k != "kind" && ["intensity", "probability", "decoys", "decoy_probabilities"].contains(&k.as_str()))
+            {
+                p.push(Error::input_key(k.clone(), "a single-photon source takes no other keys"));
             }
-            Ok(Source::SinglePhoton)
+            Some(Source::SinglePhoton)
         }
-        Some("weak-coherent") => {
-            let intensity = match t.get("intensity") {
-                Some(v) => num(v, "intensity")?,
-                None => return Err(Error::input_key("intensity", "missing: the signal's mean photon number per pulse")),
-            };
-            if !(intensity > 0.0 && intensity <= 10.0) {
-                return Err(Error::input_key("intensity", format!("{intensity} is outside (0, 10] photons per pulse")));
-            }
-            let decoys: Vec<f64> = match t.get("decoys") {
-                None => Vec::new(),
-                Some(toml::Value::Array(a)) => a.iter().enumerate().map(|(i, v)| num(v, &format!("decoys[{i}]"))).collect::<Result<_>>()?,
-                Some(_) => return Err(Error::input_key("decoys", "must be a list of at most two intensities")),
-            };
-            if decoys.len() > 2 {
-                return Err(Error::input_key("decoys", "at most two decoy intensities"));
-            }
-            for (i, d) in decoys.iter().enumerate() {
-                if !(*d >= 0.0 && *d < intensity) {
-                    return Err(Error::input_key(format!("decoys[{i}]"), format!("{d} is outside [0, intensity = {intensity})")));
-                }
-            }
-            if decoys.len() == 2 && decoys[0] == decoys[1] {
-                return Err(Error::input_key("decoys", "the two decoy intensities must differ"));
-            }
-            let probs: Vec<f64> = match t.get("decoy_probabilities") {
-                None if decoys.is_empty() => Vec::new(),
-                None => return Err(Error::input_key("decoy_probabilities", "missing: one probability per decoy")),
-                Some(toml::Value::Array(a)) => {
-                    a.iter().enumerate().map(|(i, v)| num(v, &format!("decoy_probabilities[{i}]"))).collect::<Result<_>>()?
-                }
-                Some(_) => return Err(Error::input_key("decoy_probabilities", "must be a list")),
-            };
-            if probs.len() != decoys.len() {
-                return Err(Error::input_key("decoy_probabilities", format!("has {} entries for {} decoys", probs.len(), decoys.len())));
-            }
-            for (i, p) in probs.iter().enumerate() {
-                if !(*p > 0.0 && *p < 1.0) {
-                    return Err(Error::input_key(format!("decoy_probabilities[{i}]"), format!("{p} is outside (0, 1)")));
-                }
-            }
-            let probability = 1.0 - probs.iter().sum::<f64>();
-            if let Some(p) = t.get("probability") {
-                let p = num(p, "probability")?;
-                // The signal probability is implied by the decoys'; a stated value may differ
-                // from 1 − Σ only by decimal rounding of the inputs.
-                const IMPLIED_PROBABILITY_SLACK: f64 = 1e-9;
-                if (p - probability).abs() > IMPLIED_PROBABILITY_SLACK {
-                    return Err(Error::input_key(
-                        "probability",
-                        format!("{p} does not equal 1 minus the decoy probabilities ({probability})"),
-                    ));
-                }
-            }
-            if probability <= 0.0 {
-                return Err(Error::input_key("decoy_probabilities", "sum to 1 or more: nothing is left for the signal"));
-            }
-            Ok(Source::WeakCoherent { intensity, probability, decoys: decoys.into_iter().zip(probs).collect() })
+        Some("weak-coherent") => weak_coherent(t, &mut p),
+        _ => {
+            p.push(Error::input_key("kind", "missing or unknown: single-photon or weak-coherent"));
+            None
         }
-        _ => Err(Error::input_key("kind", "missing or unknown: single-photon or weak-coherent")),
+    };
+    match source {
+        Some(s) if p.is_empty() => Ok(s),
+        _ => p.finish(Source::SinglePhoton),
     }
+}
+
+fn weak_coherent(t: &toml::Table, p: &mut Problems) -> Option<Source> {
+    let intensity = match t.get("intensity") {
+        Some(v) => p.check(num(v, "intensity").and_then(|x| {
+            if !(x > 0.0 && x <= 10.0) {
+                return Err(Error::input_key("intensity", format!("{x} is outside (0, 10] photons per pulse")));
+            }
+            Ok(x)
+        })),
+        None => {
+            p.push(Error::input_key("intensity", "missing: the signal's mean photon number per pulse"));
+            None
+        }
+    };
+    // Decoys are checked against the signal intensity only when that is valid.
+    let below = intensity.unwrap_or(f64::INFINITY);
+    let decoys =
+        match t.get("decoys") {
+            None => Some(Vec::new()),
+            Some(v) => number_list(v, "decoys", p, |d| {
+                if d >= 0.0 && d < below {
+                    Ok(d)
+                } else {
+                    Err(format!("{d} is outside [0, intensity = {below})"))
+                }
+            }),
+        };
+    if let Some(d) = &decoys {
+        if d.len() > 2 {
+            p.push(Error::input_key("decoys", "at most two decoy intensities"));
+        } else if d.len() == 2 && d[0] == d[1] {
+            p.push(Error::input_key("decoys", "the two decoy intensities must differ"));
+        }
+    }
+    let probs = match t.get("decoy_probabilities") {
+        None if decoys.as_ref().is_some_and(|d| d.is_empty()) => Some(Vec::new()),
+        None if decoys.is_some() => {
+            p.push(Error::input_key("decoy_probabilities", "missing: one probability per decoy"));
+            None
+        }
+        None => None,
+        Some(v) => {
+            number_list(v, "decoy_probabilities", p, |x| if x > 0.0 && x < 1.0 { Ok(x) } else { Err(format!("{x} is outside (0, 1)")) })
+        }
+    };
+    let (Some(intensity), Some(decoys), Some(probs)) = (intensity, decoys, probs) else {
+        return None;
+    };
+    if probs.len() != decoys.len() {
+        p.push(Error::input_key("decoy_probabilities", format!("has {} entries for {} decoys", probs.len(), decoys.len())));
+        return None;
+    }
+    let probability = 1.0 - probs.iter().sum::<f64>();
+    if probability <= 0.0 {
+        p.push(Error::input_key("decoy_probabilities", "sum to 1 or more: nothing is left for the signal"));
+        return None;
+    }
+    if let Some(v) = t.get("probability") {
+        // The signal probability is implied by the decoys'; a stated value may differ from
+        // 1 − Σ only by decimal rounding of the inputs.
+        const IMPLIED_PROBABILITY_SLACK: f64 = 1e-9;
+        if let Some(x) = p.check(num(v, "probability")) {
+            if (x - probability).abs() > IMPLIED_PROBABILITY_SLACK {
+                p.push(Error::input_key("probability", format!("{x} does not equal 1 minus the decoy probabilities ({probability})")));
+            }
+        }
+    }
+    Some(Source::WeakCoherent { intensity, probability, decoys: decoys.into_iter().zip(probs).collect() })
 }
 
 /// Expected statistics of one intensity.
