@@ -3,8 +3,8 @@
 //! CSV schema (one row per point): `attack`, `family`, `protocol`, then one column per
 //! family parameter (named `param_<name>`), then every evaluator quantity of
 //! [`crate::exact::eval::QUANTITIES`] under its CSV column (probabilities bare, information
-//! in `_bits`, rates in bits per sifted bit). Numbers are printed with 12 significant digits;
-//! a quantity not computed is an empty cell.
+//! in `_bits`, rates in bits per sifted bit). Numbers are printed by [`fmt_num`] (shortest
+//! round-trip decimal); a quantity not computed is an empty cell.
 
 use crate::attack::file::AttackFile;
 use crate::attack::Value;
@@ -12,18 +12,27 @@ use crate::error::{Error, Result};
 use crate::exact::eval::{evaluate, EvalOptions, Evaluation, QUANTITIES};
 use std::collections::BTreeMap;
 
-/// Formats a number for CSV: 12 significant digits, `NaN` as an empty cell.
+/// Formats a number for CSV: the shortest decimal that parses back to the same `f64`
+/// (Ryū, via the `ryu` crate), `NaN` as an empty cell.
+///
+/// Layout: plain decimal for magnitudes in [1e-5, 1e16) (`0.25`, `1200`, `0.0000125`), and
+/// exponent form outside it (`2.220446049250313e-16`, `1e20`); whole numbers carry no `.0`
+/// and both zeros print `0` (the sign of zero is not kept; `-0.0 == 0.0`). Infinities print
+/// `inf` / `-inf`, which Rust's `f64::from_str` reads back. The one formatter every CSV
+/// writer of the crate uses, so a column never mixes conventions.
 pub fn fmt_num(x: f64) -> String {
     if x.is_nan() {
-        String::new()
-    } else if x == 0.0 {
-        "0".into()
-    } else {
-        let s = format!("{x:.11e}");
-        // Parse back to drop trailing zeros while keeping the value exact at 12 digits.
-        let v: f64 = s.parse().unwrap_or(x);
-        format!("{v}")
+        return String::new();
     }
+    if x == 0.0 {
+        return "0".into();
+    }
+    if x.is_infinite() {
+        return if x > 0.0 { "inf".into() } else { "-inf".into() };
+    }
+    let mut buf = ryu::Buffer::new();
+    let s = buf.format_finite(x);
+    s.strip_suffix(".0").unwrap_or(s).to_string()
 }
 
 /// Most points a sweep evaluates (the campaign files' cap on `steps` too): at the slowest
@@ -89,4 +98,51 @@ pub fn sweep_csv(points: &[SweepPoint]) -> Result<String> {
 
 fn csv_err(e: csv::Error) -> Error {
     Error::new(crate::error::ErrorKind::Io, e.to_string())
+}
+
+#[cfg(test)]
+mod tests {
+    use super::fmt_num;
+    use proptest::prelude::*;
+
+    #[test]
+    fn layout_is_plain_for_ordinary_magnitudes_and_exponent_outside() {
+        assert_eq!(fmt_num(0.0), "0");
+        assert_eq!(fmt_num(-0.0), "0");
+        assert_eq!(fmt_num(1.0), "1");
+        assert_eq!(fmt_num(-1200.0), "-1200");
+        assert_eq!(fmt_num(0.25), "0.25");
+        assert_eq!(fmt_num(0.1 + 0.2), "0.30000000000000004");
+        assert_eq!(fmt_num(1.25e-5), "0.0000125");
+        assert_eq!(fmt_num(f64::EPSILON), "2.220446049250313e-16");
+        assert_eq!(fmt_num(1e20), "1e20");
+        assert_eq!(fmt_num(f64::NAN), "");
+        assert_eq!(fmt_num(f64::INFINITY), "inf");
+        assert_eq!(fmt_num(f64::NEG_INFINITY), "-inf");
+    }
+
+    proptest! {
+        #![proptest_config(ProptestConfig::with_cases(20_000))]
+        /// Every bit pattern: NaN is an empty cell, anything else parses back to the same
+        /// value (zeros compare equal whatever their sign).
+        #[test]
+        fn every_value_round_trips(bits in any::<u64>()) {
+            let x = f64::from_bits(bits);
+            let s = fmt_num(x);
+            if x.is_nan() {
+                prop_assert_eq!(s, "");
+            } else {
+                let back: f64 = s.parse().unwrap();
+                prop_assert_eq!(back, x, "{} printed as {}", x, s);
+            }
+        }
+
+        /// Values from the typical range of probabilities and rates, where bit patterns
+        /// rarely land.
+        #[test]
+        fn probabilities_round_trip(x in 0.0f64..1.0) {
+            let back: f64 = fmt_num(x).parse().unwrap();
+            prop_assert_eq!(back.to_bits(), x.to_bits());
+        }
+    }
 }
