@@ -4,6 +4,7 @@
 //! "Not caught" means the protocol aborted in at most half of the trials; "strongest"
 //! means the largest information of Eve about a key bit, 1 − H(X|E), among those points.
 
+use crate::audit::rules::KeyRule;
 use crate::audit::trial::Verdict;
 use crate::audit::{Campaign, PointResult};
 use std::fmt::Write;
@@ -80,51 +81,105 @@ fn at(r: &PointResult) -> String {
 
 /// One sentence on why a leaking point leaks: which assumption of the rule the attack
 /// breaks, computed from the exact quantities and the sampled blocks.
-fn leak_cause(c: &Campaign, r: &PointResult) -> String {
-    use crate::audit::rules::KeyRule;
+pub fn leak_cause(c: &Campaign, r: &PointResult) -> String {
     let s = &r.stats;
-    let verification = crate::audit::rules::verification_bits(c.setup.epsilon_cor);
-    let multi = s.key_fraction_multi.is_finite() && s.key_fraction_multi > 0.0;
-    if multi && r.rule == KeyRule::NaiveSinglePhoton {
+    cause_sentence(
+        r.rule,
+        &CauseFacts {
+            key_fraction_multi: s.key_fraction_multi,
+            eve_guess_rate: s.eve_guess_rate,
+            mean_excess: s.mean_excess,
+            mean_key_bits: s.mean_key_bits,
+            key_length_mean: s.key_length_mean,
+            mean_capacity: s.mean_capacity,
+            mean_e_x: s.mean_e_x,
+            leak_probability: s.leak_probability,
+            h_x_given_e: r.exact.h_x_given_e,
+            accessible_z: r.exact.accessible_z,
+            holevo_z: r.exact.holevo_z,
+            epsilon_sec: c.setup.epsilon_sec,
+            epsilon_cor: c.setup.epsilon_cor,
+        },
+    )
+}
+
+/// What a cause sentence is computed from: a leaking point's averages over its trials and
+/// the attack's exact quantities.
+#[derive(Clone, Debug)]
+struct CauseFacts {
+    key_fraction_multi: f64,
+    eve_guess_rate: f64,
+    mean_excess: f64,
+    mean_key_bits: f64,
+    key_length_mean: f64,
+    mean_capacity: f64,
+    mean_e_x: f64,
+    leak_probability: f64,
+    h_x_given_e: f64,
+    accessible_z: Option<f64>,
+    holevo_z: f64,
+    epsilon_sec: f64,
+    epsilon_cor: f64,
+}
+
+/// The cause of a leak under `rule`, one sentence per assumption a rule can get wrong: the
+/// single-photon assumption (multi-photon key bits), the missing hash, the missing
+/// finite-size terms of the asymptotic rules, the individual-attack assumption; for a
+/// proven rule a leak contradicts its proof, and the sentence says so.
+fn cause_sentence(rule: KeyRule, f: &CauseFacts) -> String {
+    let verification = crate::audit::rules::verification_bits(f.epsilon_cor);
+    let pa_cost = crate::audit::rules::pa_cost_bits(crate::audit::rules::EpsilonBudget::split(f.epsilon_sec).pa);
+    let multi = f.key_fraction_multi.is_finite() && f.key_fraction_multi > 0.0;
+    // The converse's slack: a leak is an excess above 2 log₂ n (see the verdicts).
+    let slack = 2.0 * f.mean_key_bits.max(2.0).log2();
+    if multi && matches!(rule, KeyRule::NaiveSinglePhoton | KeyRule::Asymptotic | KeyRule::Individual) {
         return format!(
-            "the rule `{}` counts every detection as a single photon; under this attack {} of the key bits came from \
+            "the rule `{rule}` counts every detection as a single photon; under this attack {} of the key bits came from \
              multi-photon pulses, and Eve guesses {} of all key bits",
-            r.rule,
-            pct(s.key_fraction_multi),
-            pct(s.eve_guess_rate)
+            pct(f.key_fraction_multi),
+            pct(f.eve_guess_rate)
         );
     }
-    match r.rule {
-        KeyRule::Asymptotic
-            // No attack (H(X|E) = 1, exact after the evaluator's rounding snap) and an excess
-            // equal to the hash's length within the converse's 2 log₂ n slack.
-            if (s.mean_excess - verification).abs() <= 2.0 * (s.mean_key_bits.max(2.0)).log2() && r.exact.h_x_given_e >= 1.0 =>
-        {
-            format!(
-                "the rule omits the error-verification hash: Eve learns nothing here, and the excess is the {} bits of the hash \
-                 that the rule does not subtract",
-                num(verification)
-            )
-        }
+    match rule {
+        // No attack (H(X|E) = 1, exact after the evaluator's rounding snap) and an excess
+        // equal to the hash's length within the converse's slack.
+        KeyRule::Asymptotic if (f.mean_excess - verification).abs() <= slack && f.h_x_given_e >= 1.0 => format!(
+            "the rule omits the error-verification hash: Eve learns nothing here, and the excess is the {} bits of the hash \
+             that the rule does not subtract",
+            num(verification)
+        ),
         KeyRule::Asymptotic => format!(
             "the rule has no finite-size term: it takes the observed phase error rate ({}) as exact, while the attack leaves \
              H(X|E) = {} bits per key bit, and it subtracts neither a sampling deviation nor the privacy-amplification and \
              verification costs",
-            pct(s.mean_e_x),
-            num(r.exact.h_x_given_e)
+            pct(f.mean_e_x),
+            num(f.h_x_given_e)
         ),
         KeyRule::Individual => format!(
             "the rule assumes Eve measures each signal on its own (accessible information {} bits per key bit), but this \
              attack keeps her quantum memory until the bases are announced: her Holevo information is {} bits per key bit",
-            r.exact.accessible_z.map_or("-".to_string(), num),
-            num(r.exact.holevo_z)
+            f.accessible_z.map_or("-".to_string(), num),
+            num(f.holevo_z)
         ),
-        _ => format!(
-            "the rule extracted ℓ = {} bits on average while this attack leaves only n·H(X|E) − leak_EC = {} bits secret \
-             (H(X|E) = {} bits per key bit)",
-            bits(s.key_length_mean),
-            bits(s.mean_capacity),
-            num(r.exact.h_x_given_e)
+        KeyRule::GllpNoDecoy | KeyRule::DecoyVacuumWeak => format!(
+            "the rule `{rule}` is an asymptotic bound applied to a finite block: it takes the block's observed gains and error \
+             rates as their expectations and subtracts no sampling deviation and no privacy-amplification cost ({} bits at \
+             ε_sec = {:e}); on {} key bits the fluctuation it ignores exceeds its margin, so ℓ = {} bits on average against {} \
+             bits the attack leaves secret",
+            bits(pa_cost),
+            f.epsilon_sec,
+            bits(f.mean_key_bits),
+            bits(f.key_length_mean),
+            bits(f.mean_capacity)
+        ),
+        KeyRule::FiniteUncertainty | KeyRule::GameMinEntropy | KeyRule::DecoyFinite | KeyRule::NaiveSinglePhoton => format!(
+            "no assumption of the rule `{rule}` explains this: it is proven for this setting, with failure probability at most \
+             ε_sec = {:e}, yet the key exceeded what the attack leaves secret (ℓ = {} against {} bits) in {} of the trials. \
+             Treat it as a defect of the rule's implementation, of the attack model or of this tool, and report it",
+            f.epsilon_sec,
+            bits(f.key_length_mean),
+            bits(f.mean_capacity),
+            pct(f.leak_probability)
         ),
     }
 }
@@ -229,7 +284,8 @@ pub fn render(c: &Campaign, results: &[PointResult]) -> String {
             s,
             "{inconclusive} point(s) have inconclusive trials: the key lies between the rigorous achievable bound (AEP) and the attack's \
              capacity. The AEP band is loose at these block sizes; such keys are still covered by the key-length rule's own security \
-             proof when that rule is a proven one (`finite-uncertainty`, `game-min-entropy`, `gllp-no-decoy`, `decoy-finite`).\n"
+             proof when that rule is proven for finite blocks (`finite-uncertainty`, `game-min-entropy`, `decoy-finite`), not when it \
+             is an asymptotic formula (`asymptotic`, `individual`, `gllp-no-decoy`, `decoy-vacuum-weak`).\n"
         );
     }
     let _ = writeln!(
@@ -396,4 +452,66 @@ fn explain_leaks(s: &mut String, c: &Campaign, results: &[PointResult]) {
         );
     }
     let _ = writeln!(s);
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn facts() -> CauseFacts {
+        CauseFacts {
+            key_fraction_multi: 0.0,
+            eve_guess_rate: 0.6,
+            mean_excess: 5000.0,
+            mean_key_bits: 100_000.0,
+            key_length_mean: 40_000.0,
+            mean_capacity: 35_000.0,
+            mean_e_x: 0.03,
+            leak_probability: 0.9,
+            h_x_given_e: 0.8,
+            accessible_z: Some(0.1),
+            holevo_z: 0.2,
+            epsilon_sec: 1e-10,
+            epsilon_cor: 1e-12,
+        }
+    }
+
+    #[test]
+    fn every_rule_gets_a_cause_naming_what_it_gets_wrong() {
+        let f = facts();
+        let expect = [
+            (KeyRule::Asymptotic, "no finite-size term"),
+            (KeyRule::Individual, "measures each signal on its own"),
+            (KeyRule::GllpNoDecoy, "asymptotic bound applied to a finite block"),
+            (KeyRule::DecoyVacuumWeak, "asymptotic bound applied to a finite block"),
+            (KeyRule::FiniteUncertainty, "it is proven for this setting"),
+            (KeyRule::GameMinEntropy, "it is proven for this setting"),
+            (KeyRule::DecoyFinite, "it is proven for this setting"),
+            (KeyRule::NaiveSinglePhoton, "it is proven for this setting"),
+        ];
+        assert_eq!(expect.len(), KeyRule::ALL.len(), "a rule without its cause sentence");
+        for (rule, needle) in expect {
+            let text = cause_sentence(rule, &f);
+            assert!(text.contains(needle), "{rule}: {text}");
+            assert!(!text.contains("NaN"), "{rule}: {text}");
+        }
+        // The privacy-amplification cost the asymptotic rules omit, computed: 2 log₂(1/ε_sec).
+        assert!(cause_sentence(KeyRule::DecoyVacuumWeak, &f).contains("(66 bits at ε_sec = 1e-10)"));
+    }
+
+    #[test]
+    fn multi_photon_key_bits_are_named_for_every_rule_that_assumes_single_photons() {
+        let f = CauseFacts { key_fraction_multi: 0.64, ..facts() };
+        for rule in [KeyRule::NaiveSinglePhoton, KeyRule::Asymptotic, KeyRule::Individual] {
+            let text = cause_sentence(rule, &f);
+            assert!(text.contains("64.0 % of the key bits came from multi-photon pulses"), "{rule}: {text}");
+        }
+    }
+
+    #[test]
+    fn a_leak_without_an_attack_is_the_omitted_hash() {
+        let f = CauseFacts { h_x_given_e: 1.0, mean_excess: 41.0, ..facts() };
+        let text = cause_sentence(KeyRule::Asymptotic, &f);
+        assert!(text.contains("omits the error-verification hash") && text.contains("the 40.863"), "{text}");
+    }
 }
