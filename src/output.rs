@@ -1,8 +1,9 @@
 //! Writing results safely: never overwrite without being asked, never leave a partial file
 //! or folder at a result's name, never let two runs write one folder at once.
 //!
-//! Files ([`write_atomic`]) are written under a temporary name in the same folder and
-//! renamed into place.
+//! Files ([`prepare_file`] before the computation, then [`FileGuard::commit`]; or
+//! [`write_atomic`] in one call) are written under a temporary name in the same folder and
+//! renamed into place, under the same kind of lock as folders.
 //!
 //! Folders go in two steps, so that every output problem shows before a long computation
 //! rather than after it:
@@ -65,24 +66,76 @@ pub fn check_overwrite(path: &Path, force: bool) -> Result<()> {
 }
 
 /// Writes `bytes` to `path` atomically; refuses to replace an existing file unless
-/// `force`.
+/// `force`. For a result computed at some cost, call [`prepare_file`] before the
+/// computation instead, so that output problems show first.
 pub fn write_atomic(path: &Path, bytes: &[u8], force: bool) -> Result<()> {
-    check_overwrite(path, force)?;
+    prepare_file(path, force)?.commit(bytes)
+}
+
+/// Everything checked and held for writing one output file, from before the computation
+/// until it is in place: the file's lock, and its temporary sibling (created, so the folder
+/// is writable and the names fit). Dropping it without [`commit`](Self::commit) removes the
+/// temporary file and releases the lock; a file at the name is untouched.
+#[derive(Debug)]
+pub struct FileGuard {
+    path: PathBuf,
+    temp: PathBuf,
+    file: Option<File>,
+    force: bool,
+    // Declared last: the lock is released after the temporary file is gone.
+    _lock: FolderLock,
+}
+
+/// Checks that the file `path` can be written and takes it for this run; call it before
+/// computing what goes in it. In order: creates the parent folder if needed; checks the
+/// name fits the file system; takes the lock `.<name>.lock` beside it (an error at once if
+/// another run holds it); refuses an existing file without `force`; creates this run's
+/// temporary file `.<name>.tmp-<pid>-<random>` exclusively.
+pub fn prepare_file(path: &Path, force: bool) -> Result<FileGuard> {
     let (parent, name) = split(path)?;
     create_parent(&parent)?;
-    let stem = sibling_stem(&name, name_max(&parent));
-    let (tmp, mut f) = create_unique(&parent, &stem, |p| OpenOptions::new().write(true).create_new(true).open(p))?;
-    let written = f.write_all(bytes).and_then(|()| f.sync_all());
-    drop(f);
-    let result = written.and_then(|()| if force { std::fs::rename(&tmp, path) } else { System.rename_new(&tmp, path) });
-    if let Err(e) = result {
-        let _ = std::fs::remove_file(&tmp);
-        if e.kind() == std::io::ErrorKind::AlreadyExists {
-            return check_overwrite(path, false);
-        }
-        return Err(Error::from(e).with_file(path));
+    let max = name_max(&parent);
+    if name.len() > max {
+        return Err(Error::input(format!(
+            "the file name is {} bytes long and this file system allows at most {max}: choose a shorter name",
+            name.len()
+        ))
+        .with_file(path));
     }
-    Ok(())
+    let stem = sibling_stem(&name, max);
+    let lock = FolderLock::acquire(&parent.join(format!(".{stem}.lock")), path)?;
+    check_overwrite(path, force)?;
+    if path.is_dir() {
+        return Err(Error::input("is a folder; give a file name for this output").with_file(path));
+    }
+    let (temp, file) = create_unique(&parent, &stem, |p| OpenOptions::new().write(true).create_new(true).open(p))?;
+    live_paths().push(temp.clone());
+    Ok(FileGuard { path: path.to_path_buf(), temp, file: Some(file), force, _lock: lock })
+}
+
+impl FileGuard {
+    /// Writes `bytes` and renames the file into place (replacing an existing one only if
+    /// the guard was prepared with `force`).
+    pub fn commit(mut self, bytes: &[u8]) -> Result<()> {
+        let mut f = self.file.take().expect("a guard's file is taken only by commit");
+        let written = f.write_all(bytes).and_then(|()| f.sync_all());
+        drop(f);
+        written.map_err(|e| Error::from(e).with_file(&self.temp))?;
+        let renamed = if self.force { std::fs::rename(&self.temp, &self.path) } else { System.rename_new(&self.temp, &self.path) };
+        match renamed {
+            Ok(()) => Ok(()),
+            Err(e) if e.kind() == std::io::ErrorKind::AlreadyExists => check_overwrite(&self.path, false),
+            Err(e) => Err(Error::from(e).with_file(&self.path)),
+        }
+    }
+}
+
+impl Drop for FileGuard {
+    fn drop(&mut self) {
+        // After a successful rename there is nothing at the temporary name.
+        let _ = std::fs::remove_file(&self.temp);
+        live_paths().retain(|p| p != &self.temp);
+    }
 }
 
 /// Everything checked and held for writing one output folder, from before the computation
@@ -460,7 +513,7 @@ impl FolderLock {
                     return Err(Error::new(
                         ErrorKind::Io,
                         format!(
-                            "another run is writing this output folder (it holds {}); wait for it to finish, or write to another folder",
+                            "another run is writing this output (it holds {}); wait for it to finish, or write elsewhere",
                             path.display()
                         ),
                     )
@@ -557,6 +610,31 @@ pub fn clean_up_on_signals() {
 mod tests {
     use super::*;
     use std::cell::Cell;
+
+    #[test]
+    fn a_prepared_file_is_refused_to_others_and_leaves_nothing_when_dropped() {
+        let dir = tempfile::tempdir().unwrap();
+        let path = dir.path().join("r.csv");
+        let held = prepare_file(&path, false).unwrap();
+        let err = prepare_file(&path, true).unwrap_err();
+        assert!(err.to_string().contains("another run is writing this output"), "{err}");
+        drop(held);
+        assert_eq!(std::fs::read_dir(dir.path()).unwrap().count(), 0);
+        prepare_file(&path, false).unwrap().commit(b"new").unwrap();
+        assert_eq!(std::fs::read(&path).unwrap(), b"new");
+        assert!(prepare_file(&path, false).unwrap_err().to_string().contains("already exists"));
+        // A file that appears at the name during the computation is not replaced.
+        let guard = prepare_file(&dir.path().join("late.csv"), false).unwrap();
+        std::fs::write(dir.path().join("late.csv"), "theirs").unwrap();
+        assert!(guard.commit(b"ours").is_err());
+        assert_eq!(std::fs::read(dir.path().join("late.csv")).unwrap(), b"theirs");
+        let mut left: Vec<String> =
+            std::fs::read_dir(dir.path()).unwrap().map(|e| e.unwrap().file_name().to_string_lossy().into_owned()).collect();
+        left.sort();
+        assert_eq!(left, ["late.csv", "r.csv"]);
+        prepare_file(&path, true).unwrap().commit(b"forced").unwrap();
+        assert_eq!(std::fs::read(&path).unwrap(), b"forced");
+    }
 
     #[test]
     fn refuses_to_overwrite_without_force_and_leaves_no_temp_file() {
@@ -725,7 +803,7 @@ mod tests {
         let dir = root.path().join("small");
         let first = prepare_folder(&dir, false).unwrap();
         let err = prepare_folder(&dir, true).unwrap_err();
-        assert!(err.to_string().contains("another run is writing this output folder"), "{err}");
+        assert!(err.to_string().contains("another run is writing this output"), "{err}");
         assert!(err.to_string().contains(".small.lock"), "{err}");
         // Another name in the same results folder is independent.
         prepare_folder(&root.path().join("other"), false).unwrap().commit(&files("x")).unwrap();

@@ -116,7 +116,7 @@ fn a_second_run_into_a_folder_in_use_is_refused_at_once() {
     let out = finish_soon(qkd(&["run", "c.toml", "-q"], dir.path()));
     let err = text(&out.stderr);
     assert_eq!(out.status.code(), Some(2), "{err}");
-    assert!(err.contains("another run is writing this output folder") && err.contains(".small.lock"), "{err}");
+    assert!(err.contains("another run is writing this output") && err.contains(".small.lock"), "{err}");
     // Even --force does not take a folder in use.
     let out = finish_soon(qkd(&["run", "c.toml", "-q", "--force"], dir.path()));
     assert_eq!(out.status.code(), Some(2), "{}", text(&out.stderr));
@@ -135,7 +135,7 @@ fn hunt_refuses_an_out_dir_in_use_before_searching() {
     let out = finish_soon(qkd(&["hunt", "--objective", "holevo", "--starts", "200", "--iters", "1000", "--out-dir", "h"], dir.path()));
     let err = text(&out.stderr);
     assert_eq!(out.status.code(), Some(2), "{err}");
-    assert!(err.contains("another run is writing this output folder"), "{err}");
+    assert!(err.contains("another run is writing this output"), "{err}");
     drop(held);
 }
 
@@ -252,4 +252,46 @@ fn after_sigkill_the_next_run_reports_the_leftover_and_takes_the_lock() {
     assert_eq!(out.status.code(), Some(0), "{err}");
     assert!(err.contains(&format!("{}: leftover of an interrupted run", left[0])), "{err}");
     assert_eq!(names(&results), [left[0].clone(), "small".to_string()]);
+}
+
+/// Single-file outputs (`sweep`, `keyrate`, `rounds`) are checked and locked before the
+/// computation, like folders: a file in use by another run, an existing file without
+/// `--force` and an unwritable folder are refused at once, and nothing is left behind.
+#[test]
+fn single_file_outputs_are_checked_and_locked_before_computing() {
+    let dir = tempfile::tempdir().unwrap();
+    // A sweep of the cloner entry at the cap of points takes seconds; the checks take
+    // milliseconds.
+    let sweep = ["sweep", "--attack-file", "attacks/universal-cloner.toml", "--steps", "100000", "--output"];
+    std::fs::create_dir(dir.path().join("attacks")).unwrap();
+    std::fs::copy(
+        Path::new(env!("CARGO_MANIFEST_DIR")).join("attacks/universal-cloner.toml"),
+        dir.path().join("attacks/universal-cloner.toml"),
+    )
+    .unwrap();
+    let held = qkd_audit::output::prepare_file(&dir.path().join("s.csv"), false).unwrap();
+    let out = finish_soon(qkd(&[&sweep[..], &["s.csv"]].concat(), dir.path()));
+    let err = text(&out.stderr);
+    assert_eq!(out.status.code(), Some(2), "{err}");
+    assert!(err.contains("another run is writing this output") && err.contains(".s.csv.lock"), "{err}");
+    drop(held);
+    assert_eq!(names(dir.path()), ["attacks"], "the held guard left files behind");
+
+    std::fs::write(dir.path().join("k.csv"), "old").unwrap();
+    let out = finish_soon(qkd(&["keyrate", "--steps", "1000000", "--output", "k.csv"], dir.path()));
+    let err = text(&out.stderr);
+    assert_eq!(out.status.code(), Some(2), "{err}");
+    assert!(err.contains("k.csv: already exists"), "{err}");
+    assert_eq!(std::fs::read_to_string(dir.path().join("k.csv")).unwrap(), "old");
+
+    let out = finish_soon(qkd(&["keyrate", "--steps", "1000000", "--output", "k.csv/inside.csv"], dir.path()));
+    assert_eq!(out.status.code(), Some(2), "{}", text(&out.stderr));
+    assert_eq!(names(dir.path()), ["attacks", "k.csv"]);
+
+    // A small one completes, and leaves exactly its file.
+    let out = qkd(&["sweep", "--attack-file", "attacks/universal-cloner.toml", "--steps", "5", "--output", "ok.csv"], dir.path())
+        .output()
+        .unwrap();
+    assert_eq!(out.status.code(), Some(0), "{}", text(&out.stderr));
+    assert_eq!(names(dir.path()), ["attacks", "k.csv", "ok.csv"]);
 }

@@ -56,9 +56,9 @@ pub fn cmd_keyrate(a: KeyrateArgs) -> Result<Outcome> {
     if a.steps == 0 || a.steps > 1_000_000 {
         return Err(Error::input_key("--steps", format!("{} is outside [1, 1000000]", a.steps)));
     }
-    for o in [&a.output, &a.svg].into_iter().flatten() {
-        crate::output::check_overwrite(o, a.force)?;
-    }
+    // Output problems (an existing file, an unwritable folder, another run) show before the work.
+    let svg_target = a.svg.as_deref().map(|o| crate::output::prepare_file(o, a.force)).transpose()?;
+    let csv_target = a.output.as_deref().map(|o| crate::output::prepare_file(o, a.force)).transpose()?;
     let (link, f_default) = match &a.setup {
         Some(p) => {
             let s = crate::audit::setup::Setup::load(p)?;
@@ -152,12 +152,12 @@ pub fn cmd_keyrate(a: KeyrateArgs) -> Result<Outcome> {
             }
         ));
     }
-    if let Some(svg) = &a.svg {
-        crate::output::write_atomic(svg, crate::audit::report::plots::keyrate_svg(&rows, &rules)?.as_bytes(), a.force)?;
+    if let Some(t) = svg_target {
+        t.commit(crate::audit::report::plots::keyrate_svg(&rows, &rules)?.as_bytes())?;
     }
-    match &a.output {
-        Some(o) => {
-            crate::output::write_atomic(o, csv_text.as_bytes(), a.force)?;
+    match csv_target {
+        Some(t) => {
+            t.commit(csv_text.as_bytes())?;
             write_stdout(&mut std::io::stdout().lock(), &table)?;
         }
         None => {

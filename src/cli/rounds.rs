@@ -36,9 +36,6 @@ pub fn cmd_rounds(a: RoundsArgs) -> Result<Outcome> {
     if a.signals == 0 || a.signals > 1_000_000 {
         return Err(Error::input_key("--signals", format!("{} is outside [1, 1000000]", a.signals)));
     }
-    if let Some(o) = &a.output {
-        crate::output::check_overwrite(o, a.force)?;
-    }
     let setup = match &a.setup {
         Some(p) => {
             let s = Setup::load(p)?;
@@ -56,6 +53,8 @@ pub fn cmd_rounds(a: RoundsArgs) -> Result<Outcome> {
         None => Setup::default(),
     };
     let attack = a.attack.build()?;
+    // Output problems (an existing file, an unwritable folder, another run) show before the work.
+    let target = a.output.as_deref().map(|o| crate::output::prepare_file(o, a.force)).transpose()?;
     let model = SignalModel::new(&attack, setup.protocol, &setup.basis_probabilities());
     let mut rng = trial_rng(a.seed, 0, 0);
     let mut w = csv::Writer::from_writer(Vec::new());
@@ -73,8 +72,8 @@ pub fn cmd_rounds(a: RoundsArgs) -> Result<Outcome> {
         return Err(Error::input(e.to_string()));
     }
     let bytes = w.into_inner().map_err(|e| Error::input(e.to_string()))?;
-    match &a.output {
-        Some(o) => crate::output::write_atomic(o, &bytes, a.force)?,
+    match target {
+        Some(t) => t.commit(&bytes)?,
         None => {
             use std::io::Write;
             let mut out = std::io::stdout().lock();

@@ -30,18 +30,17 @@ pub struct SweepArgs {
 /// Runs `qkd-audit sweep`.
 pub fn cmd_sweep(a: SweepArgs) -> Result<Outcome> {
     let protocol = Protocol::from(a.protocol);
-    if let Some(o) = &a.output {
-        crate::output::check_overwrite(o, a.force)?;
-    }
+    // Output problems (an existing file, an unwritable folder, another run) show before the work.
+    let target = a.output.as_deref().map(|o| crate::output::prepare_file(o, a.force)).transpose()?;
     let file = attack_file::load(&a.attack_file)?;
     let points = crate::exact::sweep::run_sweep(&file, a.steps, &EvalOptions::full(protocol)).map_err(|e| e.with_file(&a.attack_file))?;
     let csv = crate::exact::sweep::sweep_csv(&points)?;
-    match &a.output {
-        Some(o) => {
-            crate::output::write_atomic(o, csv.as_bytes(), a.force)?;
+    match (target, &a.output) {
+        (Some(t), Some(o)) => {
+            t.commit(csv.as_bytes())?;
             note(&format!("wrote {} points to {}", points.len(), o.display()));
         }
-        None => write_stdout(&mut std::io::stdout().lock(), &csv)?,
+        _ => write_stdout(&mut std::io::stdout().lock(), &csv)?,
     }
     Ok(Outcome::Clean)
 }
