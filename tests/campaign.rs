@@ -409,6 +409,27 @@ fn settings_to_look_at_twice_are_flagged_before_the_run() {
 }
 
 #[test]
+fn a_test_sample_too_small_for_epsilon_is_flagged() {
+    // 10⁴ signals, half sifted in Z, 1 % disclosed: about 25 bits, which at ε_sec = 1e-10
+    // pin the error rate only within ±0.689 (Hoeffding); 10 % of 10⁶ signals (25 000 bits)
+    // pin it within ±0.022, below the threshold 0.11.
+    for (signals, fraction, flagged) in [(10_000, 0.01, true), (1_000_000, 0.1, false)] {
+        let dir = tempfile::tempdir().unwrap();
+        let text = format!(
+            "name = \"t\"\ntrials = 2\n[setup]\nsignals = {signals}\ntest_fraction = {fraction}\n[[attacks]]\nbuiltin = \"pauli\"\nsteps = 1\n"
+        );
+        std::fs::write(dir.path().join("c.toml"), text).unwrap();
+        let out = qkd(&["run", "c.toml", "-q", "--dry-run"], dir.path(), "1");
+        assert_eq!(out.status.code(), Some(0), "{}", String::from_utf8_lossy(&out.stderr));
+        let all = format!("{}{}", String::from_utf8_lossy(&out.stdout), String::from_utf8_lossy(&out.stderr));
+        assert_eq!(all.contains("the test sample is too small for ε_sec = 1e-10"), flagged, "{all}");
+        if flagged {
+            assert!(all.contains("about 25 sifted Z bits") && all.contains("±0.689"), "{all}");
+        }
+    }
+}
+
+#[test]
 fn two_entries_with_one_label_keep_both_plots() {
     // Regression: the second entry's abort_leak plot overwrote the first's.
     let dir = tempfile::tempdir().unwrap();

@@ -272,8 +272,9 @@ pub fn expected_sifted_z_bits(setup: &Setup) -> f64 {
 }
 
 /// Settings that are valid but that a reviewer should look at twice: a setup that can never
-/// give a key, an abort threshold above the protocol's zero-rate QBER (with one-way
-/// post-processing at the Shannon limit), and a parameter override that a sweep replaces.
+/// give a key, a test sample too small to estimate the error rate at ε_sec, an abort
+/// threshold above the protocol's zero-rate QBER (with one-way post-processing at the
+/// Shannon limit), and a parameter override that a sweep replaces.
 pub fn preflight_warnings(setup: &Setup, attacks: &[AttackEntry]) -> Vec<String> {
     let mut out = Vec::new();
     let sifted = expected_sifted_z_bits(setup);
@@ -286,6 +287,20 @@ pub fn preflight_warnings(setup: &Setup, attacks: &[AttackEntry]) -> Vec<String>
             approx(sifted),
             approx(key_bits.max(0.0))
         ));
+    }
+    // A test sample of m bits estimates the bit error rate within δ = √(ln(2/ε)/(2m)) except
+    // with probability ε (Hoeffding, JASA 58, 13, 1963); at ε_sec, a δ above the abort
+    // threshold means the sample cannot tell an acceptable error rate from an abort.
+    let m = setup.test_sample.size(sifted.floor().max(0.0) as u64);
+    if m > 0 {
+        let delta = ((2.0 / setup.epsilon_sec).ln() / (2.0 * m as f64)).sqrt();
+        if delta > setup.abort_qber {
+            out.push(format!(
+                "the test sample is too small for ε_sec = {:e}: about {m} sifted Z bits are disclosed per block, and at that \
+                 confidence they estimate the bit error rate only within ±{:.3} (Hoeffding), more than the abort threshold {}",
+                setup.epsilon_sec, delta, setup.abort_qber
+            ));
+        }
     }
     let zero_rate = match setup.protocol {
         crate::protocol::Protocol::Bb84 => crate::exact::bounds::bb84_threshold(1.0),

@@ -88,7 +88,7 @@ fn plan(campaign: &Campaign, dir: &std::path::Path, force: bool) -> String {
     };
     format!(
         "campaign {}: {points} attack points × {} trials, judged under {rules} rule(s) ({}), sampler {}, {} signals per block\n\
-         estimate: {} of CPU time ({} on {threads} threads), about {memory_mb:.0} MB of memory\n\
+         estimate: {} of CPU time ({} on {threads} thread{}), about {memory_mb:.0} MB of memory\n\
          output folder: {} ({folder})\n",
         campaign.name,
         campaign.trials,
@@ -100,6 +100,7 @@ fn plan(campaign: &Campaign, dir: &std::path::Path, force: bool) -> String {
         campaign.setup.signals,
         duration(cpu_s),
         duration(cpu_s / threads as f64),
+        if threads == 1 { "" } else { "s" },
         dir.display()
     )
 }

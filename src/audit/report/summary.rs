@@ -30,8 +30,11 @@ fn link_text(l: &crate::protocol::optical::Link) -> String {
         }
     };
     format!(
-        "{src}, channel loss {:.2} dB, detector efficiency {}, dark counts {:e} per gate, misalignment {}",
-        l.channel_loss_db, l.detector_efficiency, l.dark_count_probability, l.misalignment
+        "{src}, channel loss {:.2} dB, detector efficiency {}, dark counts {} per gate, misalignment {}",
+        l.channel_loss_db,
+        l.detector_efficiency,
+        if l.dark_count_probability == 0.0 { "0".to_string() } else { format!("{:e}", l.dark_count_probability) },
+        l.misalignment
     )
 }
 
