@@ -15,26 +15,26 @@ use std::path::{Path, PathBuf};
 /// One input format: its corpus folder and how it is parsed.
 struct Target {
     name: &'static str,
-    parse: fn(&str) -> Result<(), Error>,
+    parse: fn(&str) -> Result<(), Vec<Error>>,
 }
 
-fn campaign(text: &str) -> Result<(), Error> {
-    Campaign::parse(text, "fuzz", None).map(|_| ())
+fn campaign(text: &str) -> Result<(), Vec<Error>> {
+    Campaign::parse_all(text, "fuzz", None).map(|_| ())
 }
 
-fn setup(text: &str) -> Result<(), Error> {
-    Setup::from_table(&qkd_audit::input::parse_toml(text)?).map(|_| ())
+fn setup(text: &str) -> Result<(), Vec<Error>> {
+    Setup::parse_all(&qkd_audit::input::parse_toml(text).map_err(|e| vec![e])?).map(|_| ())
 }
 
-fn attack(text: &str) -> Result<(), Error> {
-    let file = attack_file::parse(text).map_err(|mut errs| errs.remove(0))?;
-    file.build(&Default::default()).map(|_| ())
+fn attack(text: &str) -> Result<(), Vec<Error>> {
+    let file = attack_file::parse(text)?;
+    file.build(&Default::default()).map(|_| ()).map_err(|e| vec![e])
 }
 
-fn sets(text: &str) -> Result<(), Error> {
+fn sets(text: &str) -> Result<(), Vec<Error>> {
     let given: Vec<String> = text.lines().map(str::to_string).collect();
-    let sets = parse_sets(&given)?;
-    qkd_audit::attack::Attack::builtin("intercept-resend", &sets).map(|_| ())
+    let sets = parse_sets(&given).map_err(|e| vec![e])?;
+    qkd_audit::attack::Attack::builtin("intercept-resend", &sets).map(|_| ()).map_err(|e| vec![e])
 }
 
 const TARGETS: &[Target] = &[
@@ -52,16 +52,22 @@ fn corpus(target: &str) -> Vec<PathBuf> {
     files
 }
 
-/// Parses `text`; a panic or an error that names neither a key nor a location fails.
+/// Parses `text`; a panic, a rejection without any error, or an error that names neither
+/// a key nor a line fails.
 fn exercise(target: &Target, text: &str, origin: &str) {
     let outcome = std::panic::catch_unwind(|| (target.parse)(text));
     match outcome {
         Err(_) => panic!("{} panicked on {origin}:\n{text}", target.name),
-        Ok(Err(e)) => assert!(
-            e.key().is_some() || e.location().is_some() || !e.message().is_empty(),
-            "{}: an error without key, location or message on {origin}: {e:?}",
-            target.name
-        ),
+        Ok(Err(errs)) => {
+            assert!(!errs.is_empty(), "{}: rejected without an error on {origin}", target.name);
+            for e in errs {
+                assert!(
+                    e.key().is_some() || e.location().is_some(),
+                    "{}: an error that names neither a key nor a line on {origin}: {e}\n{text}",
+                    target.name
+                );
+            }
+        }
         Ok(Ok(())) => {}
     }
 }
