@@ -41,6 +41,10 @@ pub struct KeyrateArgs {
     /// Also write an SVG plot of rate against distance.
     #[arg(long, value_name = "FILE")]
     pub svg: Option<PathBuf>,
+    /// Also write a self-contained HTML page: the figure, each rule's maximum distance and the
+    /// table.
+    #[arg(long, value_name = "FILE")]
+    pub html: Option<PathBuf>,
     /// Replace output files that exist.
     #[arg(long)]
     pub force: bool,
@@ -56,7 +60,7 @@ pub fn cmd_keyrate(a: KeyrateArgs) -> Result<Outcome> {
     if a.steps == 0 || a.steps > 1_000_000 {
         return Err(Error::input_key("--steps", format!("{} is outside [1, 1000000]", a.steps)));
     }
-    for o in [&a.output, &a.svg].into_iter().flatten() {
+    for o in [&a.output, &a.svg, &a.html].into_iter().flatten() {
         crate::output::check_overwrite(o, a.force)?;
     }
     let (link, f_default) = match &a.setup {
@@ -152,8 +156,13 @@ pub fn cmd_keyrate(a: KeyrateArgs) -> Result<Outcome> {
             }
         ));
     }
+    let figure = crate::audit::report::plots::keyrate_figure(&rows, &rules);
     if let Some(svg) = &a.svg {
-        crate::output::write_atomic(svg, crate::audit::report::plots::keyrate_svg(&rows, &rules)?.as_bytes(), a.force)?;
+        crate::output::write_atomic(svg, figure.svg.as_bytes(), a.force)?;
+    }
+    if let Some(html) = &a.html {
+        let page = crate::audit::report::html::keyrate_page(&figure, &table, &csv_text)?;
+        crate::output::write_atomic(html, page.as_bytes(), a.force)?;
     }
     match &a.output {
         Some(o) => {

@@ -79,8 +79,9 @@ fn at(r: &PointResult) -> String {
 }
 
 /// One sentence on why a leaking point leaks: which assumption of the rule the attack
-/// breaks, computed from the exact quantities and the sampled blocks.
-fn leak_cause(c: &Campaign, r: &PointResult) -> String {
+/// breaks, computed from the exact quantities and the sampled blocks. The CSV's `leak_cause`
+/// column and the HTML report carry the same sentence.
+pub fn leak_cause(c: &Campaign, r: &PointResult) -> String {
     use crate::audit::rules::KeyRule;
     let s = &r.stats;
     let verification = crate::audit::rules::verification_bits(c.setup.epsilon_cor);
