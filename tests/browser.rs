@@ -123,19 +123,24 @@ fn the_demo_report_reads_in_a_real_browser_at_a4_width() {
     // The decoy demo, few trials, with a setup name that must be shown as text.
     let demo = std::fs::read_to_string(concat!(env!("CARGO_MANIFEST_DIR"), "/campaigns/demo-decoy.toml")).unwrap();
     let hostile = "saltmarsh <script>document.title='owned'</script> link";
-    let text = demo.replace("trials = 200", "trials = 20").replace("name = \"saltmarsh-quarryhill-decoy-link\"", &format!("name = \"{hostile}\""));
+    let text =
+        demo.replace("trials = 200", "trials = 20").replace("name = \"saltmarsh-quarryhill-decoy-link\"", &format!("name = \"{hostile}\""));
     assert_ne!(text, demo);
     std::fs::write(work.join("demo.toml"), text).unwrap();
     let out = Command::new(env!("CARGO_BIN_EXE_qkd-audit")).args(["run", "demo.toml", "-q"]).current_dir(work).output().unwrap();
     assert_eq!(out.status.code(), Some(0), "{}", String::from_utf8_lossy(&out.stderr));
     let folder = work.join("results/saltmarsh-quarryhill-decoy");
     let report = folder.join("report.html");
-    let figures = std::fs::read_dir(&folder).unwrap().filter(|e| e.as_ref().unwrap().path().extension().is_some_and(|x| x == "svg")).count();
+    let figures =
+        std::fs::read_dir(&folder).unwrap().filter(|e| e.as_ref().unwrap().path().extension().is_some_and(|x| x == "svg")).count();
 
     // The detectors work: a probe page with a console message and a network request trips both.
     let probe = work.join("probe.html");
-    std::fs::write(&probe, "<!DOCTYPE html><p>probe</p><img src=\"http://127.0.0.1:9/probe.png\"><script>console.error('probe-message')</script>")
-        .unwrap();
+    std::fs::write(
+        &probe,
+        "<!DOCTYPE html><p>probe</p><img src=\"http://127.0.0.1:9/probe.png\"><script>console.error('probe-message')</script>",
+    )
+    .unwrap();
     let p = browse(&probe, &["--virtual-time-budget=2000".into(), "--dump-dom".into()], work, "probe");
     assert!(console_lines(&p).iter().any(|l| l.contains("probe-message")), "console detector is blind: {}", p.stderr);
     assert!(page_requests(&p).iter().any(|u| u.contains("127.0.0.1:9/probe.png")), "network detector is blind");
@@ -172,9 +177,13 @@ fn the_demo_report_reads_in_a_real_browser_at_a4_width() {
     let page = std::fs::read_to_string(&report).unwrap().replace("</body>", &format!("{probe_script}</body>"));
     std::fs::write(&measured, page).unwrap();
     let m = browse(&measured, &["--virtual-time-budget=3000".into(), "--dump-dom".into(), "--hide-scrollbars".into()], work, "measure");
-    let line = m.stdout.split("<pre id=\"measure\">").nth(1).and_then(|s| s.split("</pre>").next()).expect("measurement in the DOM").to_string();
+    let line =
+        m.stdout.split("<pre id=\"measure\">").nth(1).and_then(|s| s.split("</pre>").next()).expect("measurement in the DOM").to_string();
     let get = |k: &str| -> i64 {
-        line.split(' ').find_map(|kv| kv.strip_prefix(&format!("{k}="))).and_then(|v| v.parse().ok()).unwrap_or_else(|| panic!("{k} in {line}"))
+        line.split(' ')
+            .find_map(|kv| kv.strip_prefix(&format!("{k}=")))
+            .and_then(|v| v.parse().ok())
+            .unwrap_or_else(|| panic!("{k} in {line}"))
     };
     eprintln!("measured at A4 width: {line}");
     assert_eq!(get("inner"), i64::from(A4_WIDTH_PX), "{line}");

@@ -136,7 +136,9 @@ fn the_page_matrix_agrees_with_the_summary() {
 #[test]
 fn figures_answer_one_question_each_and_show_what_the_issue_asked() {
     let dir = tempfile::tempdir().unwrap();
-    let text = std::fs::read_to_string(concat!(env!("CARGO_MANIFEST_DIR"), "/campaigns/demo-decoy.toml")).unwrap().replace("trials = 200", "trials = 20");
+    let text = std::fs::read_to_string(concat!(env!("CARGO_MANIFEST_DIR"), "/campaigns/demo-decoy.toml"))
+        .unwrap()
+        .replace("trials = 200", "trials = 20");
     std::fs::write(dir.path().join("d.toml"), text).unwrap();
     let out = qkd(&["run", "d.toml", "-q"], dir.path());
     assert_eq!(out.status.code(), Some(0), "{}", String::from_utf8_lossy(&out.stderr));
@@ -204,7 +206,8 @@ fn compare_reports_leaks_gained_and_lost_with_its_exit_status() {
     // Missing or unrelated folders: exit 2.
     assert_eq!(qkd(&["compare", a, "nowhere"], dir.path()).status.code(), Some(2));
     let other = dir.path().join("other.toml");
-    std::fs::write(&other, "name = \"other\"\ntrials = 5\n[setup]\nsignals = 20000\n[[attacks]]\nbuiltin = \"pauli\"\nsteps = 2\n").unwrap();
+    std::fs::write(&other, "name = \"other\"\ntrials = 5\n[setup]\nsignals = 20000\n[[attacks]]\nbuiltin = \"pauli\"\nsteps = 2\n")
+        .unwrap();
     assert_eq!(qkd(&["run", "other.toml", "-q"], dir.path()).status.code(), Some(0));
     let unrelated = qkd(&["compare", a, "results/other"], dir.path());
     assert_eq!(unrelated.status.code(), Some(2));

@@ -168,7 +168,9 @@ impl Comparison {
     }
 
     fn describe(r: &Row) -> String {
-        let s = |x: &Option<Side>| x.as_ref().map_or("absent".to_string(), |s| format!("{} ({} bits, `{}`)", s.verdict, bits(s.key_length_mean_bits), s.rule));
+        let s = |x: &Option<Side>| {
+            x.as_ref().map_or("absent".to_string(), |s| format!("{} ({} bits, `{}`)", s.verdict, bits(s.key_length_mean_bits), s.rule))
+        };
         format!("{} [{}]: A {} → B {}", r.point, r.role, s(&r.a), s(&r.b))
     }
 
@@ -280,7 +282,9 @@ impl Comparison {
         );
         for r in &self.rows {
             let cell = |x: &Option<Side>| {
-                x.as_ref().map_or("–".to_string(), |s| format!("{} <code>{}</code>, {} bits", esc(&s.verdict), esc(&s.rule), bits(s.key_length_mean_bits)))
+                x.as_ref().map_or("–".to_string(), |s| {
+                    format!("{} <code>{}</code>, {} bits", esc(&s.verdict), esc(&s.rule), bits(s.key_length_mean_bits))
+                })
             };
             let delta = match (&r.a, &r.b) {
                 (Some(a), Some(b)) => bits(b.key_length_mean_bits - a.key_length_mean_bits),

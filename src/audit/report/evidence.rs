@@ -260,12 +260,8 @@ impl Evidence {
     pub fn parse(csv: &str, manifest: &str, csv_origin: &str, manifest_origin: &str) -> Result<Evidence> {
         let manifest = Record::parse(manifest, manifest_origin)?;
         let mut reader = csv::Reader::from_reader(csv.as_bytes());
-        let header: Vec<String> = reader
-            .headers()
-            .map_err(|e| Error::input(format!("{csv_origin}: {e}")))?
-            .iter()
-            .map(str::to_string)
-            .collect();
+        let header: Vec<String> =
+            reader.headers().map_err(|e| Error::input(format!("{csv_origin}: {e}")))?.iter().map(str::to_string).collect();
         let col = |name: &str| {
             header.iter().position(|h| h == name).ok_or_else(|| {
                 Error::input(format!("{csv_origin}:1: column `{name}` is missing (written by another version? rerun the campaign)"))
@@ -330,7 +326,10 @@ impl Evidence {
                 family: text(1),
                 entry: integer(2)? as usize,
                 point: integer(3)?,
-                params: params.iter().filter_map(|(i, p)| rec.get(*i).filter(|v| !v.is_empty()).map(|v| (p.clone(), v.to_string()))).collect(),
+                params: params
+                    .iter()
+                    .filter_map(|(i, p)| rec.get(*i).filter(|v| !v.is_empty()).map(|v| (p.clone(), v.to_string())))
+                    .collect(),
                 sweep_param: text(4),
                 sweep_value: if sweep.is_nan() { None } else { Some(sweep) },
                 protocol: text(6),
@@ -359,8 +358,11 @@ impl Evidence {
             if groups.iter().any(|g| g.entry == r.entry) {
                 continue;
             }
-            let varying = |k: &str| rows.iter().filter(|o| o.entry == r.entry).any(|o| o.params.iter().find(|p| p.0 == k) != r.params.iter().find(|p| p.0 == k));
-            let fixed: Vec<String> = r.params.iter().filter(|(k, _)| *k != r.sweep_param && !varying(k)).map(|(k, v)| format!("{k}={v}")).collect();
+            let varying = |k: &str| {
+                rows.iter().filter(|o| o.entry == r.entry).any(|o| o.params.iter().find(|p| p.0 == k) != r.params.iter().find(|p| p.0 == k))
+            };
+            let fixed: Vec<String> =
+                r.params.iter().filter(|(k, _)| *k != r.sweep_param && !varying(k)).map(|(k, v)| format!("{k}={v}")).collect();
             let mut stem = sanitize(&r.attack);
             if groups.iter().any(|g| g.stem == stem) {
                 stem = format!("{stem}_entry{}", r.entry);

@@ -273,7 +273,8 @@ pub fn render(ev: &Evidence, figures: &[Figure], csv_sha256: &str) -> String {
     } else {
         s.push_str("<ul class=\"leaks\">\n");
         for l in &leaks {
-            let cause = if l.worst.leak_cause.is_empty() { "not recorded in this folder's table".to_string() } else { l.worst.leak_cause.clone() };
+            let cause =
+                if l.worst.leak_cause.is_empty() { "not recorded in this folder's table".to_string() } else { l.worst.leak_cause.clone() };
             let _ = writeln!(
                 s,
                 "<li><b>{} under <code>{}</code>{}</b>: leaks at {} of its {} points. First leaking point {}: the key exceeds what the \
@@ -341,7 +342,8 @@ fn tables_html(ev: &Evidence) -> String {
          (all columns there). Bits are per block; capacity and excess are means over the trials that did not abort.</p>\n",
     );
     for g in &ev.groups {
-        let _ = writeln!(s, "<h3>{}{}</h3>", esc(&g.attack), if g.fixed.is_empty() { String::new() } else { format!(" ({})", esc(&g.fixed)) });
+        let _ =
+            writeln!(s, "<h3>{}{}</h3>", esc(&g.attack), if g.fixed.is_empty() { String::new() } else { format!(" ({})", esc(&g.fixed)) });
         let p = if g.sweep_param.is_empty() { "point".to_string() } else { g.sweep_param.clone() };
         let _ = write!(
             s,
@@ -425,25 +427,6 @@ pub fn shell_words(args: &[String]) -> String {
         .join(" ")
 }
 
-#[cfg(test)]
-mod tests {
-    use super::*;
-
-    #[test]
-    fn utc_dates_match_known_instants() {
-        // 2000-03-01 00:00:00 UTC = 951868800 s; 2026-12-02 09:00:00 UTC = 1796202000 s
-        // (independently: 20 789 days after 1970-01-01, times 86 400, plus 9 h).
-        assert_eq!(utc(951_868_800), "2000-03-01 00:00:00 UTC");
-        assert_eq!(utc(0), "1970-01-01 00:00:00 UTC");
-        assert_eq!(utc(1_796_202_000), "2026-12-02 09:00:00 UTC");
-    }
-
-    #[test]
-    fn shell_words_quote_what_needs_it() {
-        assert_eq!(shell_words(&["run".into(), "my file.toml".into(), "it's".into()]), "run 'my file.toml' 'it'\\''s'");
-    }
-}
-
 /// A table of CSV text as HTML (every cell escaped; numeric-looking cells right-aligned).
 pub fn csv_table_html(csv_text: &str) -> crate::error::Result<String> {
     let mut reader = csv::ReaderBuilder::new().has_headers(false).from_reader(csv_text.as_bytes());
@@ -502,9 +485,19 @@ pub fn hunt_page(csv_text: &str, origin: &str, slack: f64) -> crate::error::Resu
     let (class, headline) = if violations.is_empty() {
         ("verdict", format!("No bound violated: at every target the best {} found stays at or below the proven bound.", name))
     } else {
-        ("verdict fail", format!("BOUND VIOLATED at Q = {}: keep the attack files as regression fixtures.", violations.iter().map(|q| short(*q)).collect::<Vec<_>>().join(", ")))
+        (
+            "verdict fail",
+            format!(
+                "BOUND VIOLATED at Q = {}: keep the attack files as regression fixtures.",
+                violations.iter().map(|q| short(*q)).collect::<Vec<_>>().join(", ")
+            ),
+        )
     };
-    let _ = writeln!(s, "<section id=\"verdict\"><div class=\"{class}\" id=\"overall-verdict\"><p class=\"headline\">{}</p></div></section>", esc(&headline));
+    let _ = writeln!(
+        s,
+        "<section id=\"verdict\"><div class=\"{class}\" id=\"overall-verdict\"><p class=\"headline\">{}</p></div></section>",
+        esc(&headline)
+    );
     s.push_str("<section id=\"figures\"><h2>Figure</h2>\n");
     s.push_str(&figures_html(std::slice::from_ref(&figure), 1));
     s.push_str("</section>\n<section id=\"tables\"><h2>Table</h2>\n<p class=\"meta\">From <code>hunt.csv</code>.</p>\n");
@@ -520,8 +513,10 @@ pub fn keyrate_page(figure: &Figure, distances_text: &str, csv_text: &str) -> cr
     let mut s = page_start("qkd-audit key rate against distance");
     s.push_str("<header><h1>Key rate against distance</h1></header>\n<section id=\"distances\"><h2>Maximum distance per rule</h2>\n<pre>");
     s.push_str(&esc(distances_text));
-    s.push_str("</pre>\n<p class=\"meta\"><code>naive-single-photon</code> is not a secure rule: it counts every detection as a single photon, \
-                so photon-number splitting reads the multi-photon pulses; its distance is not a secure distance.</p></section>\n");
+    s.push_str(
+        "</pre>\n<p class=\"meta\"><code>naive-single-photon</code> is not a secure rule: it counts every detection as a single photon, \
+                so photon-number splitting reads the multi-photon pulses; its distance is not a secure distance.</p></section>\n",
+    );
     s.push_str("<section id=\"figures\"><h2>Figure</h2>\n");
     s.push_str(&figures_html(std::slice::from_ref(figure), 1));
     s.push_str("</section>\n<section id=\"tables\" class=\"tables\"><h2>Table</h2>\n");
@@ -530,4 +525,23 @@ pub fn keyrate_page(figure: &Figure, distances_text: &str, csv_text: &str) -> cr
     s.push_str(&caution());
     s.push_str(PAGE_END);
     Ok(s)
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn utc_dates_match_known_instants() {
+        // 2000-03-01 00:00:00 UTC = 951868800 s; 2026-12-02 09:00:00 UTC = 1796202000 s
+        // (independently: 20 789 days after 1970-01-01, times 86 400, plus 9 h).
+        assert_eq!(utc(951_868_800), "2000-03-01 00:00:00 UTC");
+        assert_eq!(utc(0), "1970-01-01 00:00:00 UTC");
+        assert_eq!(utc(1_796_202_000), "2026-12-02 09:00:00 UTC");
+    }
+
+    #[test]
+    fn shell_words_quote_what_needs_it() {
+        assert_eq!(shell_words(&["run".into(), "my file.toml".into(), "it's".into()]), "run 'my file.toml' 'it'\\''s'");
+    }
 }

@@ -212,8 +212,7 @@ impl Manifest {
 impl Record {
     /// Parses `manifest.json` text; `origin` names the file in errors.
     pub fn parse(text: &str, origin: &str) -> crate::error::Result<Record> {
-        serde_json::from_str(text).map_err(|e| {
-            crate::error::Error::input(format!("{origin}:{}:{}: not a qkd-audit manifest: {e}", e.line(), e.column()))
-        })
+        serde_json::from_str(text)
+            .map_err(|e| crate::error::Error::input(format!("{origin}:{}:{}: not a qkd-audit manifest: {e}", e.line(), e.column())))
     }
 }

@@ -102,7 +102,10 @@ fn key_length(ev: &Evidence, g: &Group) -> Figure {
         LegendEntry { key: Key::Fill(LEAK_FILL), label: "leaks: ℓ above the capacity".into() },
         LegendEntry { key: Key::Line { color: INK, dash: "", width: 2.0 }, label: "capacity (what the attack leaves secret)".into() },
         LegendEntry { key: Key::Line { color: INK, dash: DASHES[1], width: 1.5 }, label: "achievable bound".into() },
-        LegendEntry { key: Key::MarkerBar { shape: Shape::Circle, color: PALETTE[0] }, label: "key length ℓ: mean, bar 5–95 % of trials".into() },
+        LegendEntry {
+            key: Key::MarkerBar { shape: Shape::Circle, color: PALETTE[0] },
+            label: "key length ℓ: mean, bar 5–95 % of trials".into(),
+        },
         LegendEntry { key: Key::Marker { shape: Shape::Diamond, color: PALETTE[3] }, label: "leaking point".into() },
         LegendEntry { key: Key::Marker { shape: Shape::Cross, color: PALETTE[5] }, label: "no key (aborted or ℓ = 0)".into() },
     ];
@@ -126,19 +129,32 @@ fn key_length(ev: &Evidence, g: &Group) -> Figure {
             .max(1.0)
             * 1.12;
         let p = Panel::new(area, (xr.0, xr.1, false), (0.0, ymax, false));
-        // Bands over the points with a capacity (a point where every trial aborted has none),
-        // extended to the panel's edges.
-        let mut band_pts: Vec<(f64, f64, f64)> =
-            pts.iter().filter(|r| r.mean_capacity.is_finite() && r.mean_achievable.is_finite()).map(|r| (x_of(r), r.mean_achievable, r.mean_capacity)).collect();
-        p.band(&mut svg, &[xr.0, xr.1], &[0.0, 0.0], &[ymax, ymax], LEAK_FILL);
+        // Bands over the points with a capacity (a point where every trial aborted has none):
+        // from the panel's edge where the first or last point has one, else ending at the last
+        // point that has one, so that an aborted stretch stays unshaded.
+        let mut band_pts: Vec<(f64, f64, f64)> = pts
+            .iter()
+            .filter(|r| r.mean_capacity.is_finite() && r.mean_achievable.is_finite())
+            .map(|r| (x_of(r), r.mean_achievable, r.mean_capacity))
+            .collect();
         if !band_pts.is_empty() {
-            band_pts.insert(0, (xr.0, band_pts[0].1, band_pts[0].2));
+            if pts.first().is_some_and(|r| r.mean_capacity.is_finite()) {
+                band_pts.insert(0, (xr.0, band_pts[0].1, band_pts[0].2));
+            }
             let last = *band_pts.last().expect("non-empty");
-            band_pts.push((xr.1, last.1, last.2));
+            if pts.last().is_some_and(|r| r.mean_capacity.is_finite()) {
+                band_pts.push((xr.1, last.1, last.2));
+            }
+            if band_pts.len() == 1 {
+                let half = 0.02 * (xr.1 - xr.0);
+                band_pts = vec![(last.0 - half, last.1, last.2), (last.0 + half, last.1, last.2)];
+            }
             let bx: Vec<f64> = band_pts.iter().map(|b| b.0).collect();
             let ach: Vec<f64> = band_pts.iter().map(|b| b.1.max(0.0)).collect();
             let cap: Vec<f64> = band_pts.iter().map(|b| b.2.max(0.0)).collect();
             let zero = vec![0.0; bx.len()];
+            let top = vec![ymax; bx.len()];
+            p.band(&mut svg, &bx, &zero, &top, LEAK_FILL);
             p.band(&mut svg, &bx, &zero, &cap, BAND_FILL);
             p.band(&mut svg, &bx, &zero, &ach, SECURE_FILL);
             let line = |v: &[f64]| bx.iter().zip(v).map(|(&x, &y)| p.at(x, y)).collect::<Vec<_>>();
@@ -170,7 +186,7 @@ fn key_length(ev: &Evidence, g: &Group) -> Figure {
             svg.label_in(area, px, ly, &text);
             first_leaks.push(format!("under `{rule}` from {} (+{} bits)", first.at(), bits(first.mean_excess)));
         }
-        if let Some(nk) = pts.iter().find(|r| !(r.key_length.0 > 0.0)) {
+        if let Some(nk) = pts.iter().find(|r| r.key_length.0.is_nan() || r.key_length.0 <= 0.0) {
             let (px, py) = p.at(x_of(nk), 0.0);
             let text = if nk.abort.0 >= 0.5 {
                 format!("no key from {}: aborted in {}", short(x_of(nk)), super::evidence::pct(nk.abort.0))
@@ -187,7 +203,11 @@ fn key_length(ev: &Evidence, g: &Group) -> Figure {
          over the trials (bars: 5 % to 95 % of trials), the solid line is the capacity (no privacy amplification can extract more \
          against this attack), the dashed line the achievable bound. A marker in the orange region leaks. {}",
         g.attack,
-        if first_leaks.is_empty() { "No rule leaks against this attack.".to_string() } else { format!("First leaks: {}.", first_leaks.join("; ")) }
+        if first_leaks.is_empty() {
+            "No rule leaks against this attack.".to_string()
+        } else {
+            format!("First leaks: {}.", first_leaks.join("; "))
+        }
     );
     Figure { file: format!("key_length_{}.svg", g.stem), title, caption, svg }
 }
@@ -198,12 +218,23 @@ fn abort_leak(ev: &Evidence, g: &Group) -> Figure {
     let title = format!("Abort and leak probability: {}", attack_title(g));
     let mut svg = Svg::new(WIDTH, 0.0, &title, "");
     svg.text(12.0, 22.0, &title, FONT + 2.0, Anchor::Start, true);
-    let mut legend = vec![LegendEntry { key: Key::MarkerBar { shape: SHAPES[1], color: PALETTE[0] }, label: "abort probability (all rules)".into() }];
+    let mut legend =
+        vec![LegendEntry { key: Key::MarkerBar { shape: SHAPES[1], color: PALETTE[0] }, label: "abort probability (all rules)".into() }];
     for (i, rule) in rules.iter().enumerate() {
-        legend.push(LegendEntry { key: Key::MarkerBar { shape: SHAPES[(i + 2) % 6], color: PALETTE[(i + 1) % 6] }, label: format!("leak probability, {rule}") });
+        legend.push(LegendEntry {
+            key: Key::MarkerBar { shape: SHAPES[(i + 2) % 6], color: PALETTE[(i + 1) % 6] },
+            label: format!("leak probability, {rule}"),
+        });
     }
     let top = svg.legend(12.0, 46.0, WIDTH - 12.0, &legend);
-    svg.text(12.0, top, "bars: 95 % Clopper–Pearson interval over the trials; series offset sideways so that none hides another", FONT - 2.0, Anchor::Start, false);
+    svg.text(
+        12.0,
+        top,
+        "bars: 95 % Clopper–Pearson interval over the trials; series offset sideways so that none hides another",
+        FONT - 2.0,
+        Anchor::Start,
+        false,
+    );
     let area = (80.0, top + 30.0, WIDTH - 110.0, 260.0);
     let base = ev.points(g.entry, &rules[0]);
     let xs: Vec<f64> = base.iter().map(|r| x_of(r)).collect();
@@ -242,7 +273,8 @@ fn eve_information(ev: &Evidence) -> Figure {
     let six_state = ev.protocol() == "six-state";
     let abort = ev.manifest.setup.iter().find(|v| v.key == "abort_qber").and_then(|v| v.value.parse::<f64>().ok());
     let rule0 = ev.rules()[0].clone();
-    let qmax = ev.rows.iter().map(Row::qber_max).filter(|q| q.is_finite()).fold(0.12_f64, f64::max).max(abort.unwrap_or(0.0)).min(0.5) * 1.05;
+    let qmax =
+        ev.rows.iter().map(Row::qber_max).filter(|q| q.is_finite()).fold(0.12_f64, f64::max).max(abort.unwrap_or(0.0)).min(0.5) * 1.05;
     let title = format!("Eve's information against QBER: {}", ev.campaign());
     let mut svg = Svg::new(WIDTH, 0.0, &title, "");
     svg.text(12.0, 22.0, &title, FONT + 2.0, Anchor::Start, true);
@@ -261,7 +293,10 @@ fn eve_information(ev: &Evidence) -> Figure {
     if abort.is_some() {
         legend.push(LegendEntry { key: Key::Line { color: PALETTE[3], dash: DASHES[1], width: 1.5 }, label: "abort threshold".into() });
     }
-    legend.push(LegendEntry { key: Key::Marker { shape: Shape::Circle, color: PALETTE[0] }, label: "single-photon attack: Holevo information".into() });
+    legend.push(LegendEntry {
+        key: Key::Marker { shape: Shape::Circle, color: PALETTE[0] },
+        label: "single-photon attack: Holevo information".into(),
+    });
     if ev.groups.iter().any(|g| g.link_level) {
         legend.push(LegendEntry {
             key: Key::Marker { shape: Shape::Square, color: PALETTE[1] },
@@ -276,7 +311,8 @@ fn eve_information(ev: &Evidence) -> Figure {
     let bound = |q: f64| {
         if six_state {
             let w = crate::exact::bounds::six_state_weights(q, q, q);
-            crate::exact::bounds::six_state_entropy(&w, crate::exact::eval::BOUND_SLACK).map_or(f64::NAN, |h| (h - binary_entropy(q)).min(1.0))
+            crate::exact::bounds::six_state_entropy(&w, crate::exact::eval::BOUND_SLACK)
+                .map_or(f64::NAN, |h| (h - binary_entropy(q)).min(1.0))
         } else {
             binary_entropy(q.min(0.5))
         }
@@ -285,9 +321,12 @@ fn eve_information(ev: &Evidence) -> Figure {
         let (col, row) = (i % cols, i / cols);
         let area = (col as f64 * panel_w + 80.0, top + row as f64 * (panel_h + 78.0), panel_w - 95.0, panel_h);
         let p = Panel::new(area, (0.0, qmax, false), (0.0, 1.0, false));
+        // A panel title that would run past the panel keeps the attack's label only.
+        let full = attack_title(g);
+        let title = if full.chars().count() as f64 * 8.6 > area.2 { g.attack.clone() } else { full };
         p.frame(
             &mut svg,
-            &attack_title(g),
+            &title,
             if six_state { "QBER (max of Z, X and Y), fraction" } else { "QBER (max of Z and X), fraction" },
             "bits per key bit",
         );
@@ -383,8 +422,9 @@ pub fn keyrate_figure(rows: &[crate::exact::keyrate::RateRow], rules: &[crate::e
                 svg.marker(SHAPES[i % 6], q.0, q.1, 4.5, color);
             }
         }
-        if let (Some(w), Some(last)) = (insecure, pts.last()) {
-            svg.label(last.0.min(area.0 + area.2 - 4.0), last.1 - 10.0, &format!("{}: {w}", rule.name()), Anchor::End);
+        // The warning beside the curve, above it at a third of its length.
+        if let (Some(w), Some(at)) = (insecure, pts.get(pts.len() / 3)) {
+            svg.label_in(area, at.0, at.1 - 14.0, &format!("{}: {w}", rule.name()));
         }
     }
     let height = area.1 + area.3 + 50.0;

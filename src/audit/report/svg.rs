@@ -211,9 +211,23 @@ impl Svg {
     pub fn marker(&mut self, shape: Shape, x: f64, y: f64, r: f64, color: &str) {
         let b = &mut self.buf;
         let _ = match shape {
-            Shape::Circle => writeln!(b, "<circle cx=\"{}\" cy=\"{}\" r=\"{}\" fill=\"{color}\" stroke=\"#ffffff\" stroke-width=\"0.8\"/>", f(x), f(y), f(r)),
-            Shape::Halo => writeln!(b, "<circle cx=\"{}\" cy=\"{}\" r=\"{}\" fill=\"none\" stroke=\"{color}\" stroke-width=\"2\"/>", f(x), f(y), f(r)),
-            Shape::Ring => writeln!(b, "<circle cx=\"{}\" cy=\"{}\" r=\"{}\" fill=\"#ffffff\" stroke=\"{color}\" stroke-width=\"2\"/>", f(x), f(y), f(r)),
+            Shape::Circle => writeln!(
+                b,
+                "<circle cx=\"{}\" cy=\"{}\" r=\"{}\" fill=\"{color}\" stroke=\"#ffffff\" stroke-width=\"0.8\"/>",
+                f(x),
+                f(y),
+                f(r)
+            ),
+            Shape::Halo => {
+                writeln!(b, "<circle cx=\"{}\" cy=\"{}\" r=\"{}\" fill=\"none\" stroke=\"{color}\" stroke-width=\"2\"/>", f(x), f(y), f(r))
+            }
+            Shape::Ring => writeln!(
+                b,
+                "<circle cx=\"{}\" cy=\"{}\" r=\"{}\" fill=\"#ffffff\" stroke=\"{color}\" stroke-width=\"2\"/>",
+                f(x),
+                f(y),
+                f(r)
+            ),
             Shape::Square => writeln!(
                 b,
                 "<rect x=\"{}\" y=\"{}\" width=\"{}\" height=\"{}\" fill=\"{color}\" stroke=\"#ffffff\" stroke-width=\"0.8\"/>",
@@ -395,7 +409,11 @@ pub struct Axis {
 impl Axis {
     /// Pixel of a data value (clamped a little outside the range so marks stay near it).
     pub fn px(&self, v: f64) -> f64 {
-        let t = if self.log { (v.log10() - self.lo.log10()) / (self.hi.log10() - self.lo.log10()) } else { (v - self.lo) / (self.hi - self.lo) };
+        let t = if self.log {
+            (v.log10() - self.lo.log10()) / (self.hi.log10() - self.lo.log10())
+        } else {
+            (v - self.lo) / (self.hi - self.lo)
+        };
         let t = if t.is_finite() { t.clamp(-0.02, 1.02) } else { f64::NAN };
         self.p0 + t * (self.p1 - self.p0)
     }
