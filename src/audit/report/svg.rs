@@ -434,7 +434,9 @@ impl Axis {
         let step = [1.0, 2.0, 2.5, 5.0, 10.0].iter().map(|m| m * mag).find(|s| span / s <= n as f64).unwrap_or(10.0 * mag);
         let first = (self.lo / step).ceil() as i64;
         let last = (self.hi / step + 1e-9).floor() as i64;
-        (first..=last).map(|k| k as f64 * step).collect()
+        // Rounded to the step's decimals, so that 3 × 0.025 reads 0.075, not 0.07500000000000001.
+        let decimals = (2 - step.log10().floor() as i32).max(0) as usize;
+        (first..=last).map(|k| format!("{:.*}", decimals, k as f64 * step).parse().unwrap_or(k as f64 * step)).collect()
     }
 }
 
@@ -453,7 +455,7 @@ pub fn tick_label(v: f64, log: bool) -> String {
     } else {
         (v, "")
     };
-    let s = format!("{x:.3}");
+    let s = format!("{x:.6}");
     let s = s.trim_end_matches('0').trim_end_matches('.');
     let s = if s == "-0" { "0" } else { s };
     format!("{}{suffix}", s.replace('-', "−"))
