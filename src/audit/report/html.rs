@@ -239,15 +239,15 @@ pub fn render(ev: &Evidence, figures: &[Figure], csv_sha256: &str) -> String {
     let mut s = page_start(&format!("qkd-audit evidence report: {name}"));
     let _ = write!(
         s,
-        "<header><h1>Audit evidence: <span id=\"campaign-name\">{}</span></h1>\n<p class=\"meta\">qkd-audit {} · run started {} · \
-         {} trials per attack point · seed {}</p>\n<nav><a href=\"#verdict\">Verdict</a>\
+        "<header><h1>Audit evidence: <span id=\"campaign-name\">{}</span></h1>\n<p class=\"meta\">qkd-audit {} · \
+         {} trials per attack point · seed {}</p>\n<p class=\"meta run\">run started {}</p>\n<nav><a href=\"#verdict\">Verdict</a>\
          <a href=\"#leaks\">Leaks</a><a href=\"#system\">System</a><a href=\"#figures\">Figures</a><a href=\"#tables\">Tables</a><a href=\"#provenance\">Provenance</a>\
          <a href=\"#caution\">Caution</a></nav>\n<p id=\"system-line\"><b>System under test:</b> {}</p></header>\n",
         esc(&name),
         esc(&m.version),
-        utc(m.started_unix_s),
         m.trials,
         m.seed,
+        utc(m.started_unix_s),
         system_line(ev)
     );
     // Verdict and matrix.
@@ -388,8 +388,11 @@ fn tables_html(ev: &Evidence) -> String {
 fn provenance_html(ev: &Evidence, csv_sha256: &str) -> String {
     let m = &ev.manifest;
     let mut s = String::from("<section id=\"provenance\" class=\"provenance\"><h2>Provenance</h2>\n<table class=\"provenance\"><tbody>\n");
+    // Rows that differ between runs of the same inputs carry the class `run` (one line each),
+    // so that a comparison of two pages can leave them out (`grep -v 'class="run'`).
     let mut row = |k: &str, v: String| {
-        let _ = writeln!(s, "<tr><th scope=\"row\">{}</th><td>{}</td></tr>", esc(k), v);
+        let class = if matches!(k, "started" | "elapsed") { " class=\"run\"" } else { "" };
+        let _ = writeln!(s, "<tr{class}><th scope=\"row\">{}</th><td>{}</td></tr>", esc(k), v);
     };
     row("tool", format!("{} {}", esc(&m.tool), esc(&m.version)));
     row("command line", format!("<code>{}</code>", esc(&shell_words(&m.command_line))));
