@@ -231,4 +231,10 @@ fn keyrate_and_hunt_runs_get_their_pages() {
     let rebuilt = qkd(&["report", "h"], dir.path());
     assert_eq!(rebuilt.status.code(), Some(0));
     assert!(read(&dir.path().join("h/report.html")) == page);
+    let game = qkd(&["hunt", "--objective", "game", "--rounds", "1", "--starts", "2", "--out-dir", "g"], dir.path());
+    assert!(game.status.success(), "{}", String::from_utf8_lossy(&game.stderr));
+    let page = read(&dir.path().join("g/report.html"));
+    assert!(page.contains("No bound violated") && page.contains("value_probability"));
+    assert_eq!(qkd(&["report", "g"], dir.path()).status.code(), Some(0));
+    assert!(read(&dir.path().join("g/report.html")) == page);
 }

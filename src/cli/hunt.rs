@@ -106,7 +106,12 @@ pub fn cmd_hunt(a: HuntArgs) -> Result<Outcome> {
             fmt(r.bound),
             fmt(r.bound - r.value)
         );
-        folder.commit(&[("game.csv".to_string(), csv_text), ("strategy.toml".to_string(), strategy_toml(&r))])?;
+        let page = crate::audit::report::html::game_page(&csv_text, "game.csv", BOUND_SLACK)?;
+        folder.commit(&[
+            ("game.csv".to_string(), csv_text),
+            ("strategy.toml".to_string(), strategy_toml(&r)),
+            (crate::audit::report::REPORT_FILE.to_string(), page),
+        ])?;
         note(&format!("wrote {}", dir.display()));
         write_stdout(&mut std::io::stdout().lock(), &text)?;
         if exceeded {

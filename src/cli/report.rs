@@ -1,5 +1,6 @@
 //! The `report` subcommand: rebuilds `report.html` of a results folder from what the folder
-//! holds (`attack_vs_bound.csv` and `manifest.json` of a campaign, or `hunt.csv` of a hunt).
+//! holds (`attack_vs_bound.csv` and `manifest.json` of a campaign, `hunt.csv` or `game.csv` of a
+//! hunt).
 
 use super::common::{note, print, Outcome};
 use crate::audit::report::{evidence, html, rebuild, REPORT_FILE};
@@ -45,9 +46,12 @@ pub fn cmd_report(a: ReportArgs) -> Result<Outcome> {
     } else if dir.join("hunt.csv").is_file() {
         let csv = read("hunt.csv").map_err(|e| Error::from(e).with_file(dir.join("hunt.csv")))?;
         html::hunt_page(&csv, &dir.join("hunt.csv").display().to_string(), crate::exact::eval::BOUND_SLACK)?.1
+    } else if dir.join("game.csv").is_file() {
+        let csv = read("game.csv").map_err(|e| Error::from(e).with_file(dir.join("game.csv")))?;
+        html::game_page(&csv, &dir.join("game.csv").display().to_string(), crate::exact::eval::BOUND_SLACK)?
     } else {
         return Err(Error::input(format!(
-            "{}: not a results folder: it holds neither {} (a campaign run) nor hunt.csv (a hunt)",
+            "{}: not a results folder: it holds none of {} (a campaign run), hunt.csv or game.csv (a hunt)",
             dir.display(),
             evidence::CSV_FILE
         )));

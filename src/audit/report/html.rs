@@ -214,7 +214,15 @@ pub fn matrix_html(ev: &Evidence) -> String {
                     );
                 }
                 Some(c) => {
-                    let _ = write!(s, "<td class=\"{}\">{}</td>", verdict_class(c.verdict), c.verdict);
+                    // Where the key stops (the protocol aborts, or the rule gives none).
+                    let stop = ev
+                        .points(g.entry, r)
+                        .into_iter()
+                        .find(|p| p.key_length.0.is_nan() || p.key_length.0 <= 0.0)
+                        .filter(|_| !matches!(c.verdict, Verdict::NoKey | Verdict::Aborted))
+                        .map(|p| format!("<br><small>no key from {}</small>", esc(&p.at())))
+                        .unwrap_or_default();
+                    let _ = write!(s, "<td class=\"{}\">{}{stop}</td>", verdict_class(c.verdict), c.verdict);
                 }
                 None => s.push_str("<td>–</td>"),
             }
@@ -547,4 +555,41 @@ mod tests {
     fn shell_words_quote_what_needs_it() {
         assert_eq!(shell_words(&["run".into(), "my file.toml".into(), "it's".into()]), "run 'my file.toml' 'it'\\''s'");
     }
+}
+
+/// The page of a multi-round game hunt, from its `game.csv`: the verdict on the bound and
+/// the table (one row: nothing to plot).
+pub fn game_page(csv_text: &str, origin: &str, slack: f64) -> crate::error::Result<String> {
+    let mut reader = csv::Reader::from_reader(csv_text.as_bytes());
+    let header: Vec<String> =
+        reader.headers().map_err(|e| crate::error::Error::input(format!("{origin}: {e}")))?.iter().map(str::to_string).collect();
+    let col = |n: &str| {
+        header.iter().position(|h| h == n).ok_or_else(|| crate::error::Error::input(format!("{origin}:1: column `{n}` is missing")))
+    };
+    let (value, bound, rounds) = (col("value_probability")?, col("bound_probability")?, col("rounds")?);
+    let mut violated = false;
+    let mut n = String::new();
+    for rec in reader.records() {
+        let rec = rec.map_err(|e| crate::error::Error::input(format!("{origin}: {e}")))?;
+        let num = |i: usize| rec.get(i).and_then(|t| t.parse::<f64>().ok()).unwrap_or(f64::NAN);
+        violated |= num(value) > num(bound) + slack;
+        n = rec.get(rounds).unwrap_or("").to_string();
+    }
+    let mut s = page_start(&format!("qkd-audit guessing-game hunt: {n} round(s)"));
+    let _ = writeln!(s, "<header><h1>Guessing-game hunt, {} round(s)</h1></header>", esc(&n));
+    let (class, headline) = if violated {
+        ("verdict fail", "BOUND VIOLATED: the best strategy found wins more often than (1/2 + 1/(2√2))ⁿ allows.")
+    } else {
+        ("verdict", "No bound violated: the best strategy found stays at or below (1/2 + 1/(2√2))ⁿ.")
+    };
+    let _ = writeln!(
+        s,
+        "<section id=\"verdict\"><div class=\"{class}\" id=\"overall-verdict\"><p class=\"headline\">{headline}</p></div></section>"
+    );
+    s.push_str("<section id=\"tables\"><h2>Table</h2>\n<p class=\"meta\">From <code>game.csv</code>; the strategy is in <code>strategy.toml</code>.</p>\n");
+    s.push_str(&csv_table_html(csv_text)?);
+    s.push_str("</section>\n");
+    s.push_str(&caution());
+    s.push_str(PAGE_END);
+    Ok(s)
 }

@@ -142,6 +142,15 @@ fn num(x: f64) -> String {
     crate::exact::sweep::fmt_num(x)
 }
 
+/// A small number in scientific notation as a setup file writes it (`1e-10`), zero as `0`.
+fn sci(x: f64) -> String {
+    if x == 0.0 {
+        "0".into()
+    } else {
+        format!("{x:e}")
+    }
+}
+
 /// Every value of the system under test with its unit, in the README's order.
 pub fn setup_values(s: &crate::audit::setup::Setup) -> Vec<SetupValue> {
     use crate::audit::setup::TestSample;
@@ -158,8 +167,8 @@ pub fn setup_values(s: &crate::audit::setup::Setup) -> Vec<SetupValue> {
         },
         v("abort_qber", num(s.abort_qber), "error rate"),
         v("ec_efficiency", num(s.ec_efficiency), "– (f)"),
-        v("epsilon_sec", format!("{:e}", s.epsilon_sec), "–"),
-        v("epsilon_cor", format!("{:e}", s.epsilon_cor), "–"),
+        v("epsilon_sec", sci(s.epsilon_sec), "–"),
+        v("epsilon_cor", sci(s.epsilon_cor), "–"),
         v("key_rule", s.key_rule.to_string(), "–"),
     ];
     let l = &s.link;
@@ -184,7 +193,7 @@ pub fn setup_values(s: &crate::audit::setup::Setup) -> Vec<SetupValue> {
     }
     out.push(v("channel.loss_db", num(l.channel_loss_db), "dB"));
     out.push(v("detector.efficiency", num(l.detector_efficiency), "probability"));
-    out.push(v("detector.dark_count_probability", format!("{:e}", l.dark_count_probability), "per gate"));
+    out.push(v("detector.dark_count_probability", sci(l.dark_count_probability), "per gate"));
     out.push(v("detector.misalignment", num(l.misalignment), "probability"));
     out
 }
