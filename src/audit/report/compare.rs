@@ -117,8 +117,15 @@ impl Comparison {
         let ka = keyed(a);
         let kb = keyed(b);
         let mut rows = Vec::new();
+        // Each row of B matches at most one row of A (two entries with one label and the
+        // same parameters match in order).
+        let mut used = vec![false; kb.len()];
         for (k, ra) in &ka {
-            let rb = kb.iter().find(|(kk, _)| kk == k).map(|(_, r)| *r);
+            let found = kb.iter().enumerate().position(|(i, (kk, _))| !used[i] && kk == k);
+            let rb = found.map(|i| {
+                used[i] = true;
+                kb[i].1
+            });
             let change = match rb {
                 None => Change::OnlyInA,
                 Some(rb) => match (ra.verdict == Verdict::Leak, rb.verdict == Verdict::Leak) {
@@ -140,8 +147,8 @@ impl Comparison {
                 ),
             ));
         }
-        for (k, rb) in &kb {
-            if !ka.iter().any(|(kk, _)| kk == k) {
+        for (i, (k, rb)) in kb.iter().enumerate() {
+            if !used[i] {
                 let change = if rb.verdict == Verdict::Leak { Change::LeakGained } else { Change::OnlyInB };
                 rows.push(Row { point: k.0.clone(), role: k.1.clone(), a: None, b: Some(side(rb)), change });
             }

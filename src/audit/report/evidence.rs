@@ -519,3 +519,49 @@ impl Evidence {
         }
     }
 }
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    const HEADER: &str = "attack,family,entry,point,param_fraction,sweep_param,sweep_value,protocol,key_rule,trials,qber_z,qber_x,qber_y,\
+        holevo_z_bits,h_x_given_e_bits,mean_key_bits_n,abort_probability,abort_ci_low,abort_ci_high,key_length_mean_bits,\
+        key_length_q05_bits,key_length_q95_bits,leak_probability,leak_ci_low,leak_ci_high,mean_excess_bits,mean_capacity_bits,\
+        mean_achievable_bits,leak_cause,verdict,note";
+    const ROW: &str = "ir,intercept-resend,0,0,0.5,fraction,0.5,bb84,individual,10,0.125,0.125,,0.2,0.8,1000,0,0,0.3,500,400,600,\
+        1,0.7,1,120,380,300,\"the rule assumes, wrongly\",leak,";
+
+    fn csv(row: &str) -> String {
+        format!("{HEADER}\n{row}\n")
+    }
+
+    #[test]
+    fn a_row_reads_back_with_its_verdict_cause_and_empty_cells_as_missing() {
+        let ev = Evidence::parse(&csv(ROW), "{}", "t.csv", "m.json").unwrap();
+        let r = &ev.rows[0];
+        assert_eq!(r.verdict, Verdict::Leak);
+        assert_eq!(r.leak_cause, "the rule assumes, wrongly");
+        assert!(r.qber[2].is_nan() && r.qber_max() == 0.125);
+        assert_eq!(r.params, vec![("fraction".to_string(), "0.5".to_string())]);
+        assert_eq!(ev.overall(), Overall::SystemLeaks);
+        let leaks = ev.leaks();
+        assert_eq!((leaks.len(), leaks[0].first.mean_excess), (1, 120.0));
+        assert!(ev.headline().0.starts_with("NOT SECURE"));
+        assert_eq!(r.excess_share(), "24.0 % of the key");
+    }
+
+    #[test]
+    fn bad_tables_are_refused_naming_file_line_and_column() {
+        let bad = ROW.replacen(",0,0,0.3,", ",0,zero,0.3,", 1);
+        let e = Evidence::parse(&csv(&bad), "{}", "t.csv", "m.json").unwrap_err().to_string();
+        assert!(e.contains("t.csv:2") && e.contains("abort_ci_low") && e.contains("zero"), "{e}");
+        let e = Evidence::parse(&csv(&ROW.replace(",leak,", ",lek,")), "{}", "t.csv", "m.json").unwrap_err().to_string();
+        assert!(e.contains("`lek` is not a verdict"), "{e}");
+        let e = Evidence::parse(&HEADER.replace(",leak_cause", ""), "{}", "t.csv", "m.json").unwrap_err().to_string();
+        assert!(e.contains("column `leak_cause` is missing"), "{e}");
+        let e = Evidence::parse(&format!("{HEADER}\n"), "{}", "t.csv", "m.json").unwrap_err().to_string();
+        assert!(e.contains("no rows"), "{e}");
+        let e = Evidence::parse(&csv(ROW), "{not json", "t.csv", "m.json").unwrap_err().to_string();
+        assert!(e.contains("m.json:1:"), "{e}");
+    }
+}

@@ -453,7 +453,10 @@ pub fn hunt_figure(points: &[HuntPoint], objective: &str, unit: &str) -> Figure 
     let mut svg = Svg::new(WIDTH, 0.0, &title, "");
     svg.text(12.0, 22.0, &title, FONT + 2.0, Anchor::Start, true);
     let legend = [
-        LegendEntry { key: Key::Line { color: INK, dash: "", width: 2.0 }, label: "proven bound (no attack may exceed it)".into() },
+        LegendEntry {
+            key: Key::Marker { shape: Shape::Ring, color: INK },
+            label: "proven bound at the target (no attack may exceed it)".into(),
+        },
         LegendEntry { key: Key::Marker { shape: Shape::Circle, color: PALETTE[0] }, label: "best attack found".into() },
     ];
     let top = svg.legend(12.0, 46.0, WIDTH - 12.0, &legend) + 14.0;
@@ -463,18 +466,17 @@ pub fn hunt_figure(points: &[HuntPoint], objective: &str, unit: &str) -> Figure 
     let area = (90.0, top, WIDTH - 120.0, 280.0);
     let p = Panel::new(area, (xr.0, xr.1, false), (0.0, ymax, false));
     p.frame(&mut svg, "", "target QBER Q (every basis), fraction", unit);
-    let bound: Vec<(f64, f64)> = points.iter().map(|h| p.at(h.q, h.bound)).collect();
-    svg.polyline(&bound, INK, 2.0, "");
+    // Both at the targets only: the bound is known there, and nothing is drawn between.
     for h in points {
         let (x, y) = p.at(h.q, h.bound);
-        svg.marker(Shape::Ring, x, y, 5.0, INK);
+        svg.marker(Shape::Ring, x, y, 7.0, INK);
         let (x, y) = p.at(h.q, h.value);
         svg.marker(Shape::Circle, x, y, 4.5, PALETTE[0]);
     }
     let height = area.1 + area.3 + 50.0;
     let svg = svg.finish_at(height, "Best value found per target QBER beside the proven bound.");
     let caption = "Does the search come close to the proven bound, and never above it? Each filled marker is the best attack found at \
-                   that target; the ringed line is the bound. A marker above the line is a bound violation (reported loudly)."
+                   that target; the ring around it is the proven bound there. A marker above its ring is a bound violation (reported loudly)."
         .to_string();
     Figure { file: "hunt.svg".into(), title, caption, svg }
 }
