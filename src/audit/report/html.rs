@@ -538,25 +538,6 @@ pub fn keyrate_page(figure: &Figure, distances_text: &str, csv_text: &str) -> cr
     Ok(s)
 }
 
-#[cfg(test)]
-mod tests {
-    use super::*;
-
-    #[test]
-    fn utc_dates_match_known_instants() {
-        // 2000-03-01 00:00:00 UTC = 951868800 s; 2026-12-02 09:00:00 UTC = 1796202000 s
-        // (independently: 20 789 days after 1970-01-01, times 86 400, plus 9 h).
-        assert_eq!(utc(951_868_800), "2000-03-01 00:00:00 UTC");
-        assert_eq!(utc(0), "1970-01-01 00:00:00 UTC");
-        assert_eq!(utc(1_796_202_000), "2026-12-02 09:00:00 UTC");
-    }
-
-    #[test]
-    fn shell_words_quote_what_needs_it() {
-        assert_eq!(shell_words(&["run".into(), "my file.toml".into(), "it's".into()]), "run 'my file.toml' 'it'\\''s'");
-    }
-}
-
 /// The page of a multi-round game hunt, from its `game.csv`: the verdict on the bound and
 /// the table (one row: nothing to plot).
 pub fn game_page(csv_text: &str, origin: &str, slack: f64) -> crate::error::Result<String> {
@@ -592,4 +573,23 @@ pub fn game_page(csv_text: &str, origin: &str, slack: f64) -> crate::error::Resu
     s.push_str(&caution());
     s.push_str(PAGE_END);
     Ok(s)
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn utc_dates_match_known_instants() {
+        // 2000-03-01 00:00:00 UTC = 951868800 s; 2026-12-02 09:00:00 UTC = 1796202000 s
+        // (independently: 20 789 days after 1970-01-01, times 86 400, plus 9 h).
+        assert_eq!(utc(951_868_800), "2000-03-01 00:00:00 UTC");
+        assert_eq!(utc(0), "1970-01-01 00:00:00 UTC");
+        assert_eq!(utc(1_796_202_000), "2026-12-02 09:00:00 UTC");
+    }
+
+    #[test]
+    fn shell_words_quote_what_needs_it() {
+        assert_eq!(shell_words(&["run".into(), "my file.toml".into(), "it's".into()]), "run 'my file.toml' 'it'\\''s'");
+    }
 }
