@@ -238,3 +238,21 @@ fn keyrate_and_hunt_runs_get_their_pages() {
     assert_eq!(qkd(&["report", "g"], dir.path()).status.code(), Some(0));
     assert!(read(&dir.path().join("g/report.html")) == page);
 }
+
+#[test]
+fn the_page_depends_on_the_thread_count_only_in_its_run_lines() {
+    let dir = tempfile::tempdir().unwrap();
+    let file = dir.path().join("c.toml");
+    std::fs::write(&file, CAMPAIGN.replace("NAME", "t").replace("RULE", "individual").replace("SETUP", "lab")).unwrap();
+    let page = |threads: &str, out: &str| {
+        let o = qkd(&["run", "c.toml", "-q", "--threads", threads, "--results-dir", out], dir.path());
+        assert_eq!(o.status.code(), Some(1));
+        // The command line differs by the arguments themselves; every other line must not.
+        read(&dir.path().join(out).join("t/report.html"))
+            .lines()
+            .filter(|l| !l.contains("class=\"run") && !l.contains(">command line<"))
+            .collect::<Vec<_>>()
+            .join("\n")
+    };
+    assert!(page("1", "one") == page("2", "two"), "the page differs between thread counts");
+}
