@@ -37,17 +37,17 @@ pub fn cmd_report(a: ReportArgs) -> Result<Outcome> {
     if a.output.is_some() {
         crate::output::check_overwrite(&target, force)?;
     }
-    let read = |name: &str| std::fs::read_to_string(dir.join(name));
+    let read = |name: &str| evidence::read_folder_file(dir, name);
     let page = if dir.join(evidence::CSV_FILE).is_file() {
-        let csv = read(evidence::CSV_FILE).map_err(|e| Error::from(e).with_file(dir.join(evidence::CSV_FILE)))?;
-        let manifest = read(evidence::MANIFEST_FILE).map_err(|e| Error::from(e).with_file(dir.join(evidence::MANIFEST_FILE)))?;
+        let csv = read(evidence::CSV_FILE)?;
+        let manifest = read(evidence::MANIFEST_FILE)?;
         let origin = |n: &str| dir.join(n).display().to_string();
         rebuild(&csv, &manifest, &origin(evidence::CSV_FILE), &origin(evidence::MANIFEST_FILE))?.1
     } else if dir.join("hunt.csv").is_file() {
-        let csv = read("hunt.csv").map_err(|e| Error::from(e).with_file(dir.join("hunt.csv")))?;
+        let csv = read("hunt.csv")?;
         html::hunt_page(&csv, &dir.join("hunt.csv").display().to_string(), crate::exact::eval::BOUND_SLACK)?.1
     } else if dir.join("game.csv").is_file() {
-        let csv = read("game.csv").map_err(|e| Error::from(e).with_file(dir.join("game.csv")))?;
+        let csv = read("game.csv")?;
         html::game_page(&csv, &dir.join("game.csv").display().to_string(), crate::exact::eval::BOUND_SLACK)?
     } else {
         return Err(Error::input(format!(

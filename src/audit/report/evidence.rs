@@ -233,6 +233,25 @@ fn verdict_named(s: &str) -> Option<Verdict> {
     [Verdict::Aborted, Verdict::NoKey, Verdict::Secure, Verdict::Inconclusive, Verdict::Leak].into_iter().find(|v| v.name() == s)
 }
 
+/// Largest results-folder file read back, bytes. A folder's own outputs are not capped like
+/// user input (4 MiB): the largest campaign table (100 000 sweep steps per entry, several
+/// entries and rules, about 700 bytes a row) runs to hundreds of megabytes; beyond this
+/// size the page could not be opened in a browser either.
+pub const MAX_RESULTS_FILE_BYTES: u64 = 1 << 30;
+
+/// Reads one file of a results folder: a regular file of at most [`MAX_RESULTS_FILE_BYTES`].
+pub fn read_folder_file(folder: &Path, name: &str) -> Result<String> {
+    let p = folder.join(name);
+    let meta = std::fs::metadata(&p).map_err(|e| Error::from(e).with_file(&p))?;
+    if !meta.is_file() {
+        return Err(Error::input(format!("{name} is not a regular file")).with_file(&p));
+    }
+    if meta.len() > MAX_RESULTS_FILE_BYTES {
+        return Err(Error::input(format!("{name} is larger than {} MiB", MAX_RESULTS_FILE_BYTES >> 20)).with_file(&p));
+    }
+    std::fs::read_to_string(&p).map_err(|e| Error::from(e).with_file(&p))
+}
+
 /// The CSV and manifest file names of a results folder.
 pub const CSV_FILE: &str = "attack_vs_bound.csv";
 /// See [`CSV_FILE`].
@@ -244,12 +263,9 @@ impl Evidence {
         if !folder.is_dir() {
             return Err(Error::input(format!("{}: not a results folder (no such directory)", folder.display())));
         }
-        // The folder's own outputs: read whole (a large campaign's table may exceed the input
-        // cap of user files), but only regular files.
         let read = |name: &str| {
-            let p = folder.join(name);
-            let text = if p.is_file() { std::fs::read_to_string(&p).ok() } else { None };
-            text.ok_or_else(|| Error::input(format!("{}: not a campaign results folder: cannot read {name}", folder.display())))
+            read_folder_file(folder, name)
+                .map_err(|e| Error::input(format!("{}: not a campaign results folder: {}", folder.display(), e.message())))
         };
         let csv = read(CSV_FILE)?;
         let manifest = read(MANIFEST_FILE)?;

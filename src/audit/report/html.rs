@@ -44,7 +44,6 @@ table.matrix td.secure { background: var(--secure); }
 table.matrix td.inconclusive { background: var(--band); }
 table.matrix td.no-key, table.matrix td.aborted { font-style: italic; }
 table.matrix th.system { border-bottom: 3px solid var(--blue); }
-table.setup { columns: 2; }
 table.points td.num, table.points th.num { text-align: right; font-variant-numeric: tabular-nums; }
 tr.leak td { background: var(--leak); }
 .setup-grid { display: grid; grid-template-columns: repeat(auto-fill, minmax(16rem, 1fr)); gap: 0 1rem; font-size: 0.85rem; margin: 0.3rem 0 0.6rem; }

@@ -201,7 +201,7 @@ fn key_length(ev: &Evidence, g: &Group) -> Figure {
     let caption = format!(
         "Where do the key-length rules stay inside what {} leaves secret? Each panel is one rule: markers are the mean key length \
          over the trials (bars: 5 % to 95 % of trials), the solid line is the capacity (no privacy amplification can extract more \
-         against this attack), the dashed line the achievable bound. A marker in the orange region leaks. {}",
+         against this attack), the dashed line the achievable bound. A marker in the region above the capacity (orange) leaks. {}",
         g.attack,
         if first_leaks.is_empty() {
             "No rule leaks against this attack.".to_string()
