@@ -26,8 +26,9 @@ pub const SECURE_FILL: &str = "#dce9f5";
 pub const BAND_FILL: &str = "#ececec";
 /// Fill of the region that leaks (above the capacity).
 pub const LEAK_FILL: &str = "#f8dcb4";
-/// Base font size, px of the figure's own width; figures are 760 px wide, so at A4 width
-/// (about 650 px of printable width) text is about 11 pt.
+/// Base font size, px of the figure's own width. Figures are 760 px wide; on A4 with the
+/// page's 14 mm margins (182 mm ≈ 688 CSS px of printable width) they scale by about 0.9, so
+/// labels print at about 9.5 pt and tick labels (2 px smaller) at about 8 pt.
 pub const FONT: f64 = 14.0;
 
 /// Marker shapes, one per series.
