@@ -11,10 +11,12 @@
 use std::fmt::Write;
 
 /// The tool's palette: six hues that stay apart under the common colour-vision
-/// deficiencies (blue against orange/brown, never red against green) and whose lightness
-/// differs, so that greyscale prints keep them apart too; every series also gets its own
-/// marker shape and dash pattern. Chosen for this tool (common practice for colour-blind
-/// safe palettes: vary lightness, pair blue with orange).
+/// deficiencies (blues against orange and brown, never red against green), in two
+/// lightness groups (dark: #1d4e89, #7a3b12, #404040; light: #e08e0b, #5d9cd3, #9a6fb0)
+/// so that the pairs a figure shows side by side (points against points, a threshold
+/// against a bound) differ in lightness too. What keeps every series apart in greyscale is
+/// its own marker shape and, for lines, dash pattern. Chosen for this tool (common practice
+/// for colour-blind safe palettes: vary lightness, pair blue with orange).
 pub const PALETTE: [&str; 6] = ["#1d4e89", "#e08e0b", "#5d9cd3", "#7a3b12", "#9a6fb0", "#404040"];
 /// Text and axes.
 pub const INK: &str = "#1a1a1a";
