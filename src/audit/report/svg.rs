@@ -22,12 +22,14 @@ pub const PALETTE: [&str; 6] = ["#1d4e89", "#e08e0b", "#5d9cd3", "#7a3b12", "#9a
 pub const INK: &str = "#1a1a1a";
 /// Grid lines.
 pub const GRID: &str = "#d9d9d9";
+// The three regions of the key-length figure step down in lightness (CIE L* about 95, 86
+// and 78), so that they stay apart in greyscale too.
 /// Fill of the region a rule may use safely (below the achievable bound).
-pub const SECURE_FILL: &str = "#dce9f5";
+pub const SECURE_FILL: &str = "#e6f0fa";
 /// Fill of the inconclusive band (between the achievable bound and the capacity).
-pub const BAND_FILL: &str = "#ececec";
+pub const BAND_FILL: &str = "#d6d6d6";
 /// Fill of the region that leaks (above the capacity).
-pub const LEAK_FILL: &str = "#f8dcb4";
+pub const LEAK_FILL: &str = "#f3b766";
 /// Base font size, px of the figure's own width. Figures are 760 px wide; on A4 with the
 /// page's 14 mm margins (182 mm ≈ 688 CSS px of printable width) they scale by about 0.9, so
 /// labels print at about 9.5 pt and tick labels (2 px smaller) at about 8 pt.
