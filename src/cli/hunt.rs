@@ -53,8 +53,8 @@ pub struct HuntArgs {
     /// Dimension of E's system in the game setting.
     #[arg(long, default_value_t = 2)]
     pub dim_e: usize,
-    /// Output folder for hunt.csv and the best attack per target as kraus files
-    /// (default: results/hunt-OBJECTIVE-PROTOCOL).
+    /// Output folder for hunt.csv, its figure hunt.svg, the page report.html and the best
+    /// attack per target as kraus files (default: results/hunt-OBJECTIVE-PROTOCOL).
     #[arg(long, value_name = "DIR")]
     pub out_dir: Option<PathBuf>,
     /// Replace the output folder if it exists.
@@ -106,7 +106,12 @@ pub fn cmd_hunt(a: HuntArgs) -> Result<Outcome> {
             fmt(r.bound),
             fmt(r.bound - r.value)
         );
-        folder.commit(&[("game.csv".to_string(), csv_text), ("strategy.toml".to_string(), strategy_toml(&r))])?;
+        let page = crate::audit::report::html::game_page(&csv_text, "game.csv", BOUND_SLACK)?;
+        folder.commit(&[
+            ("game.csv".to_string(), csv_text),
+            ("strategy.toml".to_string(), strategy_toml(&r)),
+            (crate::audit::report::REPORT_FILE.to_string(), page),
+        ])?;
         note(&format!("wrote {}", dir.display()));
         write_stdout(&mut std::io::stdout().lock(), &text)?;
         if exceeded {
@@ -212,6 +217,10 @@ pub fn cmd_hunt(a: HuntArgs) -> Result<Outcome> {
     }
     let csv_text = String::from_utf8(w.into_inner().map_err(|e| Error::input(e.to_string()))?).expect("csv is UTF-8");
     files.push(("hunt.csv".to_string(), csv_text.clone()));
+    // The page and its figure, from the table just written (as `qkd-audit report` rebuilds it).
+    let (figure, page) = crate::audit::report::html::hunt_page(&csv_text, "hunt.csv", BOUND_SLACK)?;
+    files.push((figure.file, figure.svg));
+    files.push((crate::audit::report::REPORT_FILE.to_string(), page));
     folder.commit(&files)?;
     write_stdout(&mut std::io::stdout().lock(), &csv_text)?;
     note(&format!("wrote {}", dir.display()));

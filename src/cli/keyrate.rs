@@ -41,6 +41,10 @@ pub struct KeyrateArgs {
     /// Also write an SVG plot of rate against distance.
     #[arg(long, value_name = "FILE")]
     pub svg: Option<PathBuf>,
+    /// Also write a self-contained HTML page: the figure, each rule's maximum distance and the
+    /// table.
+    #[arg(long, value_name = "FILE")]
+    pub html: Option<PathBuf>,
     /// Replace output files that exist.
     #[arg(long)]
     pub force: bool,
@@ -59,6 +63,7 @@ pub fn cmd_keyrate(a: KeyrateArgs) -> Result<Outcome> {
     // Output problems (an existing file, an unwritable folder, another run) show before the work.
     let svg_target = a.svg.as_deref().map(|o| crate::output::prepare_file(o, a.force)).transpose()?;
     let csv_target = a.output.as_deref().map(|o| crate::output::prepare_file(o, a.force)).transpose()?;
+    let html_target = a.html.as_deref().map(|o| crate::output::prepare_file(o, a.force)).transpose()?;
     let (link, f_default) = match &a.setup {
         Some(p) => {
             let s = crate::audit::setup::Setup::load(p)?;
@@ -152,8 +157,13 @@ pub fn cmd_keyrate(a: KeyrateArgs) -> Result<Outcome> {
             }
         ));
     }
+    let figure = crate::audit::report::plots::keyrate_figure(&rows, &rules);
     if let Some(t) = svg_target {
-        t.commit(crate::audit::report::plots::keyrate_svg(&rows, &rules)?.as_bytes())?;
+        t.commit(figure.svg.as_bytes())?;
+    }
+    if let Some(t) = html_target {
+        let page = crate::audit::report::html::keyrate_page(&figure, &table, &csv_text)?;
+        t.commit(page.as_bytes())?;
     }
     match csv_target {
         Some(t) => {

@@ -12,6 +12,8 @@ pub mod run;
 pub mod rounds;
 pub mod keyrate;
 pub mod hunt;
+pub mod report;
+pub mod compare;
 
 pub use common::Outcome;
 
@@ -50,6 +52,12 @@ pub enum Command {
     Keyrate(keyrate::KeyrateArgs),
     /// Search numerically for the strongest attack, to test how tight each bound is.
     Hunt(hunt::HuntArgs),
+    /// Rebuild a results folder's self-contained HTML evidence report (report.html) from its
+    /// table and manifest.
+    Report(report::ReportArgs),
+    /// Compare two results folders: verdict changes, leaks gained or lost, key length per
+    /// point (exit 1 when B leaks where A did not).
+    Compare(compare::CompareArgs),
 }
 
 /// Runs the parsed command.
@@ -63,5 +71,7 @@ pub fn run(cli: Cli) -> Result<Outcome> {
         Command::Rounds(a) => rounds::cmd_rounds(a),
         Command::Keyrate(a) => keyrate::cmd_keyrate(a),
         Command::Hunt(a) => hunt::cmd_hunt(a),
+        Command::Report(a) => report::cmd_report(a),
+        Command::Compare(a) => compare::cmd_compare(a),
     }
 }

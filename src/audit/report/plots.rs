@@ -1,241 +1,482 @@
-//! SVG plots (plotters):
-//! - `eve_information.svg`: Eve's Holevo information about a key bit against the QBER for
-//!   every attack point, with the bound curves h(Q) (the most a collective attack can learn
-//!   at symmetric QBER Q while the BB84 bound holds) and 1 − h(½ + √(Q(1−Q))) (the optimal
-//!   individual attack, Fuchs et al. 1997), and the abort threshold;
-//! - `abort_leak_<attack>.svg`: abort and leak probability (with 95 % intervals) against
-//!   the swept parameter, one file per swept attack.
+//! The report's figures, as SVG (drawn with [`super::svg`]), each with the caption that says
+//! what to look at. One figure per question:
+//! - `key_length_<attack>.svg`: key length against attack strength, one panel per rule, over
+//!   three shaded regions (below the achievable bound: secure; between it and the capacity,
+//!   what the attack leaves secret: inconclusive; above the capacity: leaks), the first
+//!   leaking point ringed and labelled with its excess, points without key marked ×;
+//! - `abort_leak_<attack>.svg`: abort probability and each rule's leak probability against
+//!   the swept parameter, markers at measured points only, 95 % Clopper–Pearson intervals as
+//!   error bars, series staggered sideways so none hides another, legend above the data;
+//! - `eve_information.svg`: Eve's information against QBER, one panel per attack with the
+//!   protocol's bounds labelled for what they cover (single photons); link-level points
+//!   (Eve's exact knowledge of a fraction of the key) drawn as open squares and flagged;
+//! - `keyrate_svg`: key rate against distance, rules not secure under photon-number
+//!   splitting dashed and labelled so;
+//! - `hunt_svg`: a hunt's best value against its target QBER with the proven bound.
+//!
+//! Every number comes from the folder's evidence (or the keyrate and hunt rows); the bound
+//! curves are the exact formulas of `exact::bounds`.
 
-use crate::audit::{Campaign, PointResult};
-use crate::error::{Error, ErrorKind, Result};
+use super::evidence::{bits, short, Evidence, Group, Row};
+use super::svg::{Anchor, Key, LegendEntry, Panel, Shape, Svg, BAND_FILL, DASHES, FONT, INK, LEAK_FILL, PALETTE, SECURE_FILL, SHAPES};
+use crate::audit::trial::Verdict;
+use crate::error::Result;
 use crate::exact::bounds::fggnp_information;
 use crate::quantum::measures::binary_entropy;
-use plotters::prelude::*;
 
-const COLORS: [RGBColor; 8] = [
-    RGBColor(31, 119, 180),
-    RGBColor(255, 127, 14),
-    RGBColor(44, 160, 44),
-    RGBColor(214, 39, 40),
-    RGBColor(148, 103, 189),
-    RGBColor(140, 86, 75),
-    RGBColor(227, 119, 194),
-    RGBColor(127, 127, 127),
-];
-
-/// The legend box every plot uses, at `position`.
-fn draw_legend<'a, CT: plotters::coord::CoordTranslate>(
-    chart: &mut ChartContext<'a, SVGBackend<'a>, CT>,
-    position: SeriesLabelPosition,
-) -> Result<()> {
-    chart.configure_series_labels().position(position).background_style(WHITE.mix(0.9)).border_style(BLACK).draw().map_err(plot_err)
+/// A figure: its file name, a title, the caption that says what to look at, and the SVG.
+#[derive(Clone, Debug)]
+pub struct Figure {
+    /// File name in the results folder.
+    pub file: String,
+    /// Title.
+    pub title: String,
+    /// What to look at.
+    pub caption: String,
+    /// SVG text.
+    pub svg: String,
 }
 
-fn plot_err<E: std::fmt::Debug>(e: E) -> Error {
-    Error::new(ErrorKind::Io, format!("plot: {e:?}"))
-}
+/// Figure width, px: fits the A4 page's printable width when scaled to it.
+const WIDTH: f64 = 760.0;
 
-/// Renders all plots as (file name, SVG text).
-pub fn render(c: &Campaign, results: &[PointResult]) -> Result<Vec<(String, String)>> {
-    let mut out = vec![("eve_information.svg".to_string(), eve_information(c, results)?)];
-    let mut groups: Vec<(usize, crate::audit::rules::KeyRule)> = results.iter().map(|r| (r.entry, r.rule)).collect();
-    groups.dedup();
-    for (e, rule) in groups {
-        let pts: Vec<&PointResult> = results.iter().filter(|r| r.entry == e && r.rule == rule && r.swept.is_some()).collect();
-        if pts.len() >= 2 {
-            let mut name = if c.rules.len() > 1 {
-                format!("abort_leak_{}_{}", sanitize(&pts[0].attack), rule.name())
-            } else {
-                format!("abort_leak_{}", sanitize(&pts[0].attack))
-            };
-            // Two entries with one label (or labels equal after sanitising) must not share a
-            // file: the later one gets its entry number.
-            if out.iter().any(|(n, _)| *n == format!("{name}.svg")) {
-                name = format!("{name}_entry{e}");
-            }
-            out.push((format!("{name}.svg"), abort_leak(&pts)?));
+/// Every figure of a campaign folder, in reading order: Eve's information, then per attack
+/// the key length and (when swept) the abort and leak probability.
+pub fn render(ev: &Evidence) -> Result<Vec<Figure>> {
+    let mut out = vec![eve_information(ev)];
+    for g in &ev.groups {
+        out.push(key_length(ev, g));
+        let swept = ev.points(g.entry, &ev.rules()[0]).iter().filter(|r| r.sweep_value.is_some()).count();
+        if swept >= 2 {
+            out.push(abort_leak(ev, g));
         }
     }
     Ok(out)
 }
 
-fn sanitize(s: &str) -> String {
-    s.chars().map(|c| if c.is_ascii_alphanumeric() || c == '-' || c == '_' { c } else { '_' }).collect()
+fn x_of(r: &Row) -> f64 {
+    r.sweep_value.unwrap_or(r.point as f64)
 }
 
-fn eve_information(c: &Campaign, results: &[PointResult]) -> Result<String> {
-    let mut svg = String::new();
-    {
-        let root = SVGBackend::with_string(&mut svg, (900, 600)).into_drawing_area();
-        root.fill(&WHITE).map_err(plot_err)?;
-        // The x axis is the largest error rate over the bases the protocol tests.
-        let six_state = c.setup.protocol == crate::protocol::Protocol::SixState;
-        let qber = |r: &PointResult| {
-            if six_state {
-                r.exact.qber_z.max(r.exact.qber_x).max(r.exact.qber_y)
-            } else {
-                r.exact.qber_z.max(r.exact.qber_x)
-            }
-        };
-        let qmax = results.iter().map(qber).fold(0.12_f64, f64::max).min(0.5) * 1.05;
-        let mut chart = ChartBuilder::on(&root)
-            .caption(format!("Eve's information vs QBER: {}", c.name), ("sans-serif", 20))
-            .margin(15)
-            .x_label_area_size(45)
-            .y_label_area_size(60)
-            .build_cartesian_2d(0.0..qmax, 0.0..1.0)
-            .map_err(plot_err)?;
-        chart
-            .configure_mesh()
-            .x_desc(if six_state { "QBER (max of Z, X and Y), fraction" } else { "QBER (max of Z and X), fraction" })
-            .y_desc("Eve's information about a key bit, bits")
-            .draw()
-            .map_err(plot_err)?;
-        let grid: Vec<f64> = (0..=200).map(|i| qmax * i as f64 / 200.0).collect();
-        if six_state {
-            // Six-state: Eve's information is at most H(p) − h(Q) with the Pauli weights of
-            // the error rates, here at equal error rates Q in the three bases.
-            let bound = |q: f64| {
-                let w = crate::exact::bounds::six_state_weights(q, q, q);
-                crate::exact::bounds::six_state_entropy(&w, crate::exact::eval::BOUND_SLACK).map_or(f64::NAN, |h| h - binary_entropy(q))
-            };
-            chart
-                .draw_series(LineSeries::new(
-                    grid.iter().filter(|&&q| q <= 2.0 / 3.0).map(|&q| (q, bound(q).min(1.0))),
-                    BLACK.stroke_width(2),
-                ))
-                .map_err(plot_err)?
-                .label("H(p) − h(Q): six-state bound, equal error rates in Z, X, Y (single photons)")
-                .legend(|(x, y)| PathElement::new(vec![(x, y), (x + 20, y)], BLACK.stroke_width(2)));
-        } else {
-            chart
-                .draw_series(LineSeries::new(grid.iter().map(|&q| (q, binary_entropy(q.min(0.5)))), BLACK.stroke_width(2)))
-                .map_err(plot_err)?
-                .label("h(Q): optimal collective attack (BB84 bound, single photons)")
-                .legend(|(x, y)| PathElement::new(vec![(x, y), (x + 20, y)], BLACK.stroke_width(2)));
-        }
-        if !six_state {
-            chart
-                .draw_series(LineSeries::new(
-                    grid.iter().map(|&q| (q, fggnp_information(q.min(0.5)))),
-                    RGBColor(120, 120, 120).stroke_width(1),
-                ))
-                .map_err(plot_err)?
-                .label("optimal individual attack on BB84 (Fuchs et al. 1997)")
-                .legend(|(x, y)| PathElement::new(vec![(x, y), (x + 20, y)], RGBColor(120, 120, 120)));
-        }
-        let t = c.setup.abort_qber;
-        if t < qmax {
-            chart
-                .draw_series(LineSeries::new(vec![(t, 0.0), (t, 1.0)], RED.mix(0.5)))
-                .map_err(plot_err)?
-                .label("abort threshold")
-                .legend(|(x, y)| PathElement::new(vec![(x, y), (x + 20, y)], RED.mix(0.5)));
-        }
-        let mut entries: Vec<usize> = results.iter().map(|r| r.entry).collect();
-        entries.dedup();
-        for (i, e) in entries.iter().enumerate() {
-            let color = COLORS[i % COLORS.len()];
-            let pts: Vec<(f64, f64)> =
-                results.iter().filter(|r| r.entry == *e && r.rule == c.rules[0]).map(|r| (qber(r).min(qmax), r.exact.holevo_z)).collect();
-            let label = results.iter().find(|r| r.entry == *e).map(|r| r.attack.clone()).unwrap_or_default();
-            chart
-                .draw_series(pts.iter().map(|&p| Circle::new(p, 4, color.filled())))
-                .map_err(plot_err)?
-                .label(label)
-                .legend(move |(x, y)| Circle::new((x + 10, y), 4, color.filled()));
-        }
-        draw_legend(&mut chart, SeriesLabelPosition::UpperLeft)?;
-        root.present().map_err(plot_err)?;
-    }
-    Ok(svg)
-}
-
-fn abort_leak(pts: &[&PointResult]) -> Result<String> {
-    let (param, _) = pts[0].swept.clone().expect("swept points");
-    let xs: Vec<f64> = pts.iter().map(|r| r.swept.as_ref().map_or(0.0, |s| s.1)).collect();
+fn x_range(xs: &[f64]) -> (f64, f64) {
     let (lo, hi) = xs.iter().fold((f64::INFINITY, f64::NEG_INFINITY), |(a, b), &x| (a.min(x), b.max(x)));
-    let span = if hi > lo { hi - lo } else { 1.0 };
-    let mut svg = String::new();
-    {
-        let root = SVGBackend::with_string(&mut svg, (800, 500)).into_drawing_area();
-        root.fill(&WHITE).map_err(plot_err)?;
-        let mut chart = ChartBuilder::on(&root)
-            .caption(format!("{} ({}): abort and leak probability", pts[0].attack, pts[0].rule), ("sans-serif", 20))
-            .margin(15)
-            .x_label_area_size(45)
-            .y_label_area_size(60)
-            .build_cartesian_2d((lo - 0.02 * span)..(hi + 0.02 * span), -0.02..1.02)
-            .map_err(plot_err)?;
-        chart.configure_mesh().x_desc(param.as_str()).y_desc("probability").draw().map_err(plot_err)?;
-        for (name, color, get) in [
-            (
-                "abort probability",
-                COLORS[0],
-                (|r: &PointResult| (r.stats.abort_probability, r.stats.abort_ci)) as fn(&PointResult) -> (f64, (f64, f64)),
-            ),
-            ("leak probability", COLORS[3], |r: &PointResult| (r.stats.leak_probability, r.stats.leak_ci)),
-        ] {
-            let series: Vec<(f64, f64, (f64, f64))> = pts
-                .iter()
-                .zip(&xs)
-                .map(|(r, &x)| {
-                    let (p, ci) = get(r);
-                    (x, p, ci)
-                })
-                .collect();
-            chart
-                .draw_series(LineSeries::new(series.iter().map(|&(x, p, _)| (x, p)), color.stroke_width(2)))
-                .map_err(plot_err)?
-                .label(name)
-                .legend(move |(x, y)| PathElement::new(vec![(x, y), (x + 20, y)], color.stroke_width(2)));
-            chart
-                .draw_series(series.iter().map(|&(x, _, (a, b))| PathElement::new(vec![(x, a), (x, b)], color.mix(0.6))))
-                .map_err(plot_err)?;
-        }
-        draw_legend(&mut chart, SeriesLabelPosition::MiddleRight)?;
-        root.present().map_err(plot_err)?;
+    if !(lo.is_finite() && hi.is_finite()) {
+        (0.0, 1.0)
+    } else if hi > lo {
+        let pad = 0.04 * (hi - lo);
+        (lo - pad, hi + pad)
+    } else {
+        (lo - 0.5, hi + 0.5)
     }
-    Ok(svg)
 }
 
-/// Key rate per pulse (log scale, positive rates only) against distance, one line per rule.
+fn x_title(g: &Group) -> String {
+    if g.sweep_param.is_empty() {
+        "attack point".into()
+    } else {
+        format!("{} (attack strength)", g.sweep_param)
+    }
+}
+
+fn attack_title(g: &Group) -> String {
+    if g.fixed.is_empty() {
+        g.attack.clone()
+    } else {
+        format!("{} ({})", g.attack, g.fixed)
+    }
+}
+
+/// Key length against attack strength, one panel per rule.
+fn key_length(ev: &Evidence, g: &Group) -> Figure {
+    let rules = ev.rules();
+    let system = ev.system_rule();
+    let cols = if rules.len() >= 2 { 2 } else { 1 };
+    let panel_w = (WIDTH - 20.0) / cols as f64;
+    let panel_h = 230.0;
+    let title = format!("Key length against attack strength: {}", attack_title(g));
+    let mut svg = Svg::new(WIDTH, 0.0, &title, "");
+    svg.text(12.0, 22.0, &title, FONT + 2.0, Anchor::Start, true);
+    let legend = [
+        LegendEntry { key: Key::Fill(SECURE_FILL), label: "secure: ℓ ≤ achievable bound".into() },
+        LegendEntry { key: Key::Fill(BAND_FILL), label: "inconclusive".into() },
+        LegendEntry { key: Key::Fill(LEAK_FILL), label: "leaks: ℓ above the capacity".into() },
+        LegendEntry { key: Key::Line { color: INK, dash: "", width: 2.0 }, label: "capacity (what the attack leaves secret)".into() },
+        LegendEntry { key: Key::Line { color: INK, dash: DASHES[1], width: 1.5 }, label: "achievable bound".into() },
+        LegendEntry {
+            key: Key::MarkerBar { shape: Shape::Circle, color: PALETTE[0] },
+            label: "key length ℓ: mean, bar 5–95 % of trials".into(),
+        },
+        LegendEntry { key: Key::Marker { shape: Shape::Diamond, color: PALETTE[3] }, label: "leaking point".into() },
+        LegendEntry { key: Key::Marker { shape: Shape::Cross, color: PALETTE[5] }, label: "no key (aborted or ℓ = 0)".into() },
+    ];
+    let top = svg.legend(12.0, 46.0, WIDTH - 12.0, &legend) + 22.0;
+    let rows_n = rules.len().div_ceil(cols);
+    let mut first_leaks = Vec::new();
+    for (i, rule) in rules.iter().enumerate() {
+        let pts = ev.points(g.entry, rule);
+        if pts.is_empty() {
+            continue;
+        }
+        let (col, row) = (i % cols, i / cols);
+        let area = (col as f64 * panel_w + 80.0, top + row as f64 * (panel_h + 82.0), panel_w - 95.0, panel_h);
+        let xs: Vec<f64> = pts.iter().map(|r| x_of(r)).collect();
+        let xr = x_range(&xs);
+        let ymax = pts
+            .iter()
+            .flat_map(|r| [r.key_length.2, r.mean_capacity, r.mean_achievable, r.key_length.0])
+            .filter(|v| v.is_finite())
+            .fold(0.0_f64, f64::max)
+            .max(1.0)
+            * 1.12;
+        let p = Panel::new(area, (xr.0, xr.1, false), (0.0, ymax, false));
+        // Bands over the points with a capacity (a point where every trial aborted has none):
+        // from the panel's edge where the first or last point has one, else ending at the last
+        // point that has one, so that an aborted stretch stays unshaded.
+        let mut band_pts: Vec<(f64, f64, f64)> = pts
+            .iter()
+            .filter(|r| r.mean_capacity.is_finite() && r.mean_achievable.is_finite())
+            .map(|r| (x_of(r), r.mean_achievable, r.mean_capacity))
+            .collect();
+        if !band_pts.is_empty() {
+            if pts.first().is_some_and(|r| r.mean_capacity.is_finite()) {
+                band_pts.insert(0, (xr.0, band_pts[0].1, band_pts[0].2));
+            }
+            let last = *band_pts.last().expect("non-empty");
+            if pts.last().is_some_and(|r| r.mean_capacity.is_finite()) {
+                band_pts.push((xr.1, last.1, last.2));
+            }
+            if band_pts.len() == 1 {
+                let half = 0.02 * (xr.1 - xr.0);
+                band_pts = vec![(last.0 - half, last.1, last.2), (last.0 + half, last.1, last.2)];
+            }
+            let bx: Vec<f64> = band_pts.iter().map(|b| b.0).collect();
+            let ach: Vec<f64> = band_pts.iter().map(|b| b.1.max(0.0)).collect();
+            let cap: Vec<f64> = band_pts.iter().map(|b| b.2.max(0.0)).collect();
+            let zero = vec![0.0; bx.len()];
+            let top = vec![ymax; bx.len()];
+            p.band(&mut svg, &bx, &zero, &top, LEAK_FILL);
+            p.band(&mut svg, &bx, &zero, &cap, BAND_FILL);
+            p.band(&mut svg, &bx, &zero, &ach, SECURE_FILL);
+            let line = |v: &[f64]| bx.iter().zip(v).map(|(&x, &y)| p.at(x, y)).collect::<Vec<_>>();
+            svg.polyline(&line(&cap), INK, 2.0, "");
+            svg.polyline(&line(&ach), INK, 1.5, DASHES[1]);
+        }
+        let cell = ev.cell(g.entry, rule).map(|c| c.verdict.to_string()).unwrap_or_default();
+        let panel_title = format!("{rule}{}: {cell}", if *rule == system { " (system's rule)" } else { "" });
+        p.frame(&mut svg, &panel_title, &x_title(g), "key bits per block");
+        for r in &pts {
+            let x = x_of(r);
+            let (px, _) = p.at(x, 0.0);
+            if r.key_length.0 <= 0.0 || r.key_length.0.is_nan() {
+                svg.marker(Shape::Cross, px, p.y.px(0.0), 5.0, PALETTE[5]);
+                continue;
+            }
+            svg.error_bar(px, p.y.px(r.key_length.1), p.y.px(r.key_length.2), PALETTE[0]);
+            if r.verdict == Verdict::Leak {
+                svg.marker(Shape::Diamond, px, p.y.px(r.key_length.0), 6.0, PALETTE[3]);
+            } else {
+                svg.marker(Shape::Circle, px, p.y.px(r.key_length.0), 4.5, PALETTE[0]);
+            }
+        }
+        if let Some(first) = pts.iter().find(|r| r.verdict == Verdict::Leak) {
+            let (px, py) = p.at(x_of(first), first.key_length.0);
+            svg.marker(Shape::Halo, px, py, 10.0, INK);
+            let text = format!("first leak: +{} bits ({})", bits(first.mean_excess), first.excess_share());
+            let ly = if py < area.1 + 40.0 { py + 30.0 } else { py - 16.0 };
+            svg.label_in(area, px, ly, &text);
+            first_leaks.push(format!("under `{rule}` from {} (+{} bits)", first.at(), bits(first.mean_excess)));
+        }
+        if let Some(nk) = pts.iter().find(|r| r.key_length.0.is_nan() || r.key_length.0 <= 0.0) {
+            let (px, py) = p.at(x_of(nk), 0.0);
+            let text = if nk.abort.0 >= 0.5 {
+                format!("no key from {}: aborted in {}", short(x_of(nk)), super::evidence::pct(nk.abort.0))
+            } else {
+                format!("no key from {}: the rule gives ℓ = 0", short(x_of(nk)))
+            };
+            svg.label_in(area, px, py - 14.0, &text);
+        }
+    }
+    let height = top + rows_n as f64 * (panel_h + 82.0);
+    let svg = svg.finish_at(height, &format!("Key length per block against {} for every rule.", x_title(g)));
+    let caption = format!(
+        "Where do the key-length rules stay inside what {} leaves secret? Each panel is one rule: markers are the mean key length \
+         over the trials (bars: 5 % to 95 % of trials), the solid line is the capacity (no privacy amplification can extract more \
+         against this attack), the dashed line the achievable bound. A marker in the region above the capacity (orange) leaks. {}",
+        g.attack,
+        if first_leaks.is_empty() {
+            "No rule leaks against this attack.".to_string()
+        } else {
+            format!("First leaks: {}.", first_leaks.join("; "))
+        }
+    );
+    Figure { file: format!("key_length_{}.svg", g.stem), title, caption, svg }
+}
+
+/// Abort and leak probability against the swept parameter.
+fn abort_leak(ev: &Evidence, g: &Group) -> Figure {
+    let rules = ev.rules();
+    let title = format!("Abort and leak probability: {}", attack_title(g));
+    let mut svg = Svg::new(WIDTH, 0.0, &title, "");
+    svg.text(12.0, 22.0, &title, FONT + 2.0, Anchor::Start, true);
+    let mut legend =
+        vec![LegendEntry { key: Key::MarkerBar { shape: SHAPES[1], color: PALETTE[0] }, label: "abort probability (all rules)".into() }];
+    for (i, rule) in rules.iter().enumerate() {
+        legend.push(LegendEntry {
+            key: Key::MarkerBar { shape: SHAPES[(i + 2) % 6], color: PALETTE[(i + 1) % 6] },
+            label: format!("leak probability, {rule}"),
+        });
+    }
+    let top = svg.legend(12.0, 46.0, WIDTH - 12.0, &legend);
+    svg.text(
+        12.0,
+        top,
+        "bars: 95 % Clopper–Pearson interval over the trials; series offset sideways so that none hides another",
+        FONT - 2.0,
+        Anchor::Start,
+        false,
+    );
+    let area = (80.0, top + 30.0, WIDTH - 110.0, 260.0);
+    let base = ev.points(g.entry, &rules[0]);
+    let xs: Vec<f64> = base.iter().map(|r| x_of(r)).collect();
+    let xr = x_range(&xs);
+    let p = Panel::new(area, (xr.0, xr.1, false), (-0.03, 1.03, false));
+    p.frame(&mut svg, "", &x_title(g), "probability");
+    let series = rules.len() + 1;
+    let step = (xr.1 - xr.0) * 0.012;
+    let offset = |k: usize| (k as f64 - (series - 1) as f64 / 2.0) * step;
+    for r in &base {
+        let x = p.x.px(x_of(r) + offset(0));
+        svg.error_bar(x, p.y.px(r.abort.1), p.y.px(r.abort.2), PALETTE[0]);
+        svg.marker(SHAPES[1], x, p.y.px(r.abort.0), 4.5, PALETTE[0]);
+    }
+    for (i, rule) in rules.iter().enumerate() {
+        let color = PALETTE[(i + 1) % 6];
+        for r in ev.points(g.entry, rule) {
+            let x = p.x.px(x_of(r) + offset(i + 1));
+            svg.error_bar(x, p.y.px(r.leak.1), p.y.px(r.leak.2), color);
+            svg.marker(SHAPES[(i + 2) % 6], x, p.y.px(r.leak.0), 4.5, color);
+        }
+    }
+    let height = area.1 + area.3 + 50.0;
+    let svg = svg.finish_at(height, "Abort and leak probability with 95 % intervals at each measured point.");
+    let caption = format!(
+        "How often does the protocol catch {} (abort), and how often does a rule extract a key that leaks? Markers are measured \
+         points only (no interpolation between sweep values); bars are 95 % Clopper–Pearson intervals over the trials. A rule is \
+         safe against this attack where its leak probability stays at 0 or where the abort probability reaches 1 first.",
+        g.attack
+    );
+    Figure { file: format!("abort_leak_{}.svg", g.stem), title, caption, svg }
+}
+
+/// Eve's information against QBER, one panel per attack.
+fn eve_information(ev: &Evidence) -> Figure {
+    let six_state = ev.protocol() == "six-state";
+    let abort = ev.manifest.setup.iter().find(|v| v.key == "abort_qber").and_then(|v| v.value.parse::<f64>().ok());
+    let rule0 = ev.rules()[0].clone();
+    let qmax =
+        ev.rows.iter().map(Row::qber_max).filter(|q| q.is_finite()).fold(0.12_f64, f64::max).max(abort.unwrap_or(0.0)).min(0.5) * 1.05;
+    let title = format!("Eve's information against QBER: {}", ev.campaign());
+    let mut svg = Svg::new(WIDTH, 0.0, &title, "");
+    svg.text(12.0, 22.0, &title, FONT + 2.0, Anchor::Start, true);
+    let bound_label = if six_state {
+        "H(p) − h(Q): six-state bound, equal error rates in Z, X, Y; covers single-photon attacks only"
+    } else {
+        "h(Q): BB84 bound on any attack on single photons (optimal collective attack)"
+    };
+    let mut legend = vec![LegendEntry { key: Key::Line { color: INK, dash: "", width: 2.0 }, label: bound_label.into() }];
+    if !six_state {
+        legend.push(LegendEntry {
+            key: Key::Line { color: PALETTE[2], dash: DASHES[2], width: 2.0 },
+            label: "optimal individual attack on BB84 (Fuchs et al. 1997)".into(),
+        });
+    }
+    if abort.is_some() {
+        legend.push(LegendEntry { key: Key::Line { color: PALETTE[3], dash: DASHES[1], width: 1.5 }, label: "abort threshold".into() });
+    }
+    legend.push(LegendEntry {
+        key: Key::Marker { shape: Shape::Circle, color: PALETTE[0] },
+        label: "single-photon attack: Holevo information".into(),
+    });
+    if ev.groups.iter().any(|g| g.link_level) {
+        legend.push(LegendEntry {
+            key: Key::Marker { shape: Shape::Square, color: PALETTE[1] },
+            label: "link-level attack: fraction of key bits Eve knows exactly (not bounded by the curves)".into(),
+        });
+    }
+    let top = svg.legend(12.0, 46.0, WIDTH - 12.0, &legend) + 22.0;
+    let cols = if ev.groups.len() >= 2 { 2 } else { 1 };
+    let panel_w = (WIDTH - 20.0) / cols as f64;
+    let panel_h = 200.0;
+    let grid: Vec<f64> = (0..=160).map(|i| qmax * i as f64 / 160.0).collect();
+    let bound = |q: f64| {
+        if six_state {
+            let w = crate::exact::bounds::six_state_weights(q, q, q);
+            crate::exact::bounds::six_state_entropy(&w, crate::exact::eval::BOUND_SLACK)
+                .map_or(f64::NAN, |h| (h - binary_entropy(q)).min(1.0))
+        } else {
+            binary_entropy(q.min(0.5))
+        }
+    };
+    for (i, g) in ev.groups.iter().enumerate() {
+        let (col, row) = (i % cols, i / cols);
+        let area = (col as f64 * panel_w + 80.0, top + row as f64 * (panel_h + 78.0), panel_w - 95.0, panel_h);
+        let p = Panel::new(area, (0.0, qmax, false), (0.0, 1.0, false));
+        // A panel title that would run past the panel keeps the attack's label only.
+        let full = attack_title(g);
+        let title = if full.chars().count() as f64 * 8.6 > area.2 { g.attack.clone() } else { full };
+        p.frame(
+            &mut svg,
+            &title,
+            if six_state { "QBER (max of Z, X and Y), fraction" } else { "QBER (max of Z and X), fraction" },
+            "bits per key bit",
+        );
+        let curve: Vec<(f64, f64)> = grid.iter().filter(|&&q| !six_state || q <= 2.0 / 3.0).map(|&q| p.at(q, bound(q))).collect();
+        svg.polyline(&curve, INK, 2.0, "");
+        if !six_state {
+            let ind: Vec<(f64, f64)> = grid.iter().map(|&q| p.at(q, fggnp_information(q.min(0.5)))).collect();
+            svg.polyline(&ind, PALETTE[2], 2.0, DASHES[2]);
+        }
+        if let Some(t) = abort.filter(|t| *t <= qmax) {
+            svg.line(p.at(t, 0.0), p.at(t, 1.0), PALETTE[3], 1.5, DASHES[1]);
+        }
+        for r in ev.points(g.entry, &rule0) {
+            let (x, y) = p.at(r.qber_max(), r.holevo_z);
+            if g.link_level {
+                svg.marker(Shape::Square, x, y, 4.5, PALETTE[1]);
+            } else {
+                svg.marker(Shape::Circle, x, y, 4.5, PALETTE[0]);
+            }
+        }
+        if g.link_level {
+            svg.label(area.0 + area.2 - 6.0, area.1 + area.3 - 8.0, "link-level: not bounded by the curve", Anchor::End);
+        }
+    }
+    let rows_n = ev.groups.len().div_ceil(cols);
+    let height = top + rows_n as f64 * (panel_h + 78.0);
+    let svg = svg.finish_at(height, "Eve's information about a key bit against the QBER for every attack, beside the bounds.");
+    let caption = format!(
+        "Does any attack learn more than the protocol's bound allows at its error rate? One panel per attack, so that no series \
+         hides another. The solid curve is {} and bounds attacks on single photons only. Single-photon attacks (filled circles) must \
+         lie on or below it; link-level attacks (open squares: photon-number splitting, beam splitting) may lie above it, because \
+         Eve reads multi-photon or tapped pulses without causing errors, which is why decoy-state rules exist.{}",
+        if six_state { "the six-state bound H(p) − h(Q)" } else { "h(Q), the BB84 bound" },
+        abort.map_or(String::new(), |t| format!(" The dashed vertical line is the abort threshold, QBER {}.", short(t)))
+    );
+    Figure { file: "eve_information.svg".into(), title, caption, svg }
+}
+
+/// Why a key-rate rule is not secure, if it is not.
+pub fn rate_rule_warning(rule: crate::exact::keyrate::RateRule) -> Option<&'static str> {
+    match rule {
+        crate::exact::keyrate::RateRule::NaiveSinglePhoton => Some("not secure under photon-number splitting"),
+        _ => None,
+    }
+}
+
+/// Key rate per pulse (log scale, positive rates only) against distance, one line per rule;
+/// rules that are not secure dashed and labelled.
 pub fn keyrate_svg(rows: &[crate::exact::keyrate::RateRow], rules: &[crate::exact::keyrate::RateRule]) -> Result<String> {
+    Ok(keyrate_figure(rows, rules).svg)
+}
+
+/// The key-rate figure with its caption.
+pub fn keyrate_figure(rows: &[crate::exact::keyrate::RateRow], rules: &[crate::exact::keyrate::RateRule]) -> Figure {
     let pos: Vec<&crate::exact::keyrate::RateRow> = rows.iter().filter(|r| r.rate_bits_per_pulse > 0.0).collect();
     let xmax = rows.iter().map(|r| r.distance_km).fold(1.0_f64, f64::max);
+    let xmin = rows.iter().map(|r| r.distance_km).fold(xmax, f64::min).min(xmax - 1e-9);
     // Lowest rate the logarithmic axis shows, bits per pulse: below, a curve has ended.
     const RATE_AXIS_FLOOR: f64 = 1e-12;
     let ymin = pos.iter().map(|r| r.rate_bits_per_pulse).fold(1.0_f64, f64::min).max(RATE_AXIS_FLOOR);
     let ymax = pos.iter().map(|r| r.rate_bits_per_pulse).fold(ymin * 10.0, f64::max);
-    let mut svg = String::new();
-    {
-        let root = SVGBackend::with_string(&mut svg, (900, 600)).into_drawing_area();
-        root.fill(&WHITE).map_err(plot_err)?;
-        let mut chart = ChartBuilder::on(&root)
-            .caption("Key rate per pulse against distance", ("sans-serif", 20))
-            .margin(15)
-            .x_label_area_size(45)
-            .y_label_area_size(70)
-            .build_cartesian_2d(0.0..xmax, (ymin..ymax).log_scale())
-            .map_err(plot_err)?;
-        chart
-            .configure_mesh()
-            .x_desc("fibre length, km")
-            .y_desc("key rate, bits per pulse")
-            .y_label_formatter(&|y| format!("{y:.0e}"))
-            .draw()
-            .map_err(plot_err)?;
-        for (i, rule) in rules.iter().enumerate() {
-            let color = COLORS[i % COLORS.len()];
-            let pts: Vec<(f64, f64)> = pos.iter().filter(|r| r.rule == *rule).map(|r| (r.distance_km, r.rate_bits_per_pulse)).collect();
-            chart
-                .draw_series(LineSeries::new(pts, color.stroke_width(2)))
-                .map_err(plot_err)?
-                .label(rule.name())
-                .legend(move |(x, y)| PathElement::new(vec![(x, y), (x + 20, y)], color.stroke_width(2)));
+    let (ylo, yhi) = (10f64.powf(ymin.log10().floor()), 10f64.powf(ymax.log10().ceil()));
+    let title = "Key rate per pulse against distance".to_string();
+    let mut svg = Svg::new(WIDTH, 0.0, &title, "");
+    svg.text(12.0, 22.0, &title, FONT + 2.0, Anchor::Start, true);
+    let legend: Vec<LegendEntry> = rules
+        .iter()
+        .enumerate()
+        .map(|(i, rule)| {
+            let insecure = rate_rule_warning(*rule);
+            LegendEntry {
+                key: Key::Line { color: PALETTE[i % 6], dash: if insecure.is_some() { DASHES[1] } else { "" }, width: 2.5 },
+                label: match insecure {
+                    Some(w) => format!("{} ({w})", rule.name()),
+                    None => rule.name().to_string(),
+                },
+            }
+        })
+        .collect();
+    let top = svg.legend(12.0, 46.0, WIDTH - 12.0, &legend) + 14.0;
+    let area = (90.0, top, WIDTH - 120.0, 330.0);
+    let p = Panel::new(area, (xmin, xmax, false), (ylo, yhi, true));
+    p.frame(&mut svg, "", "fibre length, km", "key rate, bits per pulse");
+    for (i, rule) in rules.iter().enumerate() {
+        let color = PALETTE[i % 6];
+        let insecure = rate_rule_warning(*rule);
+        let pts: Vec<(f64, f64)> = pos.iter().filter(|r| r.rule == *rule).map(|r| p.at(r.distance_km, r.rate_bits_per_pulse)).collect();
+        svg.polyline(&pts, color, 2.5, if insecure.is_some() { DASHES[1] } else { "" });
+        // A few markers per curve, so that the rules stay apart in greyscale.
+        let every = (pts.len() / 8).max(1);
+        for (k, q) in pts.iter().enumerate() {
+            if k % every == (i * every / rules.len().max(1)) % every {
+                svg.marker(SHAPES[i % 6], q.0, q.1, 4.5, color);
+            }
         }
-        draw_legend(&mut chart, SeriesLabelPosition::UpperRight)?;
-        root.present().map_err(plot_err)?;
+        // The warning beside the curve, above it at a third of its length.
+        if let (Some(w), Some(at)) = (insecure, pts.get(pts.len() / 3)) {
+            svg.label_in(area, at.0, at.1 - 14.0, &format!("{}: {w}", rule.name()));
+        }
     }
-    Ok(svg)
+    let height = area.1 + area.3 + 50.0;
+    let svg = svg.finish_at(height, "Asymptotic key rate per pulse against fibre length, one curve per rule.");
+    let caption = "How far does each rule give key? Where a curve ends, the rule gives no key. A dashed curve is a rule that is not \
+                   secure: it counts every detection as a single photon, so photon-number splitting reads the multi-photon pulses, and \
+                   its apparent reach is not a secure distance."
+        .to_string();
+    Figure { file: "keyrate.svg".into(), title, caption, svg }
+}
+
+/// One hunt target: the best value found and the proven bound there.
+#[derive(Clone, Debug)]
+pub struct HuntPoint {
+    /// Target QBER.
+    pub q: f64,
+    /// Best value found.
+    pub value: f64,
+    /// Proven bound.
+    pub bound: f64,
+}
+
+/// A hunt's best values against the bound.
+pub fn hunt_figure(points: &[HuntPoint], objective: &str, unit: &str) -> Figure {
+    let title = format!("Hunt for the strongest attack: {objective}");
+    let mut svg = Svg::new(WIDTH, 0.0, &title, "");
+    svg.text(12.0, 22.0, &title, FONT + 2.0, Anchor::Start, true);
+    let legend = [
+        LegendEntry {
+            key: Key::Marker { shape: Shape::Ring, color: INK },
+            label: "proven bound at the target (no attack may exceed it)".into(),
+        },
+        LegendEntry { key: Key::Marker { shape: Shape::Circle, color: PALETTE[0] }, label: "best attack found".into() },
+    ];
+    let top = svg.legend(12.0, 46.0, WIDTH - 12.0, &legend) + 14.0;
+    let qs: Vec<f64> = points.iter().map(|p| p.q).collect();
+    let xr = x_range(&qs);
+    let ymax = points.iter().flat_map(|p| [p.value, p.bound]).filter(|v| v.is_finite()).fold(0.0_f64, f64::max).max(1e-3) * 1.1;
+    let area = (90.0, top, WIDTH - 120.0, 280.0);
+    let p = Panel::new(area, (xr.0, xr.1, false), (0.0, ymax, false));
+    p.frame(&mut svg, "", "target QBER Q (every basis), fraction", unit);
+    // Both at the targets only: the bound is known there, and nothing is drawn between.
+    for h in points {
+        let (x, y) = p.at(h.q, h.bound);
+        svg.marker(Shape::Ring, x, y, 7.0, INK);
+        let (x, y) = p.at(h.q, h.value);
+        svg.marker(Shape::Circle, x, y, 4.5, PALETTE[0]);
+    }
+    let height = area.1 + area.3 + 50.0;
+    let svg = svg.finish_at(height, "Best value found per target QBER beside the proven bound.");
+    let caption = "Does the search come close to the proven bound, and never above it? Each filled marker is the best attack found at \
+                   that target; the ring around it is the proven bound there. A marker above its ring is a bound violation (reported loudly)."
+        .to_string();
+    Figure { file: "hunt.svg".into(), title, caption, svg }
 }

@@ -83,7 +83,8 @@ fn at(r: &PointResult) -> String {
 }
 
 /// One sentence on why a leaking point leaks: which assumption of the rule the attack
-/// breaks, computed from the exact quantities and the sampled blocks.
+/// breaks, computed from the exact quantities and the sampled blocks. The CSV's `leak_cause`
+/// column and the HTML report carry the same sentence.
 pub fn leak_cause(c: &Campaign, r: &PointResult) -> String {
     let s = &r.stats;
     cause_sentence(

@@ -3,6 +3,7 @@
 //! | column | meaning |
 //! |---|---|
 //! | campaign, attack, family | names |
+//! | entry | index of the attack's entry in the campaign, from 0 (the points of one entry share it) |
 //! | point | index of the point in the campaign (its random-stream key) |
 //! | `param_<name>` | one column per attack parameter over all rows (e.g. `param_fraction`, `param_kind`), empty where an attack has no such parameter |
 //! | sweep_param, sweep_value | the swept parameter and its value (empty if none) |
@@ -22,6 +23,7 @@
 //! | leak_probability, leak_ci_low, leak_ci_high | trials with ℓ > capacity + 2 log₂ n |
 //! | mean_excess_bits | mean ℓ − capacity over trials with a key |
 //! | mean_capacity_bits, mean_achievable_bits | means over trials that did not abort |
+//! | leak_cause | for a leaking row, one sentence on which assumption of the rule the attack breaks (empty otherwise) |
 //! | verdict | the point's verdict: leak, inconclusive, secure, no-key (no trial gave a key) or aborted (every trial aborted) |
 //! | note | remarks, e.g. an attack that cannot match the honest gain |
 //!
@@ -31,6 +33,7 @@
 //! fraction); Y-basis, game and qubit-bound columns are empty.
 
 use crate::attack::Value;
+use crate::audit::trial::Verdict;
 use crate::audit::{Campaign, PointResult};
 use crate::error::{Error, ErrorKind, Result};
 use crate::exact::eval::Quantity;
@@ -43,7 +46,7 @@ struct Column {
 }
 
 /// The columns before the attack parameters.
-const LEADING: usize = 4;
+const LEADING: usize = 5;
 
 /// A column of the evaluator's quantities, under the quantity's own CSV column name.
 macro_rules! exact {
@@ -63,6 +66,7 @@ const COLUMNS: &[Column] = &[
     column!("campaign", |c, _r| c.name.clone()),
     column!("attack", |_c, r| r.attack.clone()),
     column!("family", |_c, r| r.family.clone()),
+    column!("entry", |_c, r| r.entry.to_string()),
     column!("point", |_c, r| r.index.to_string()),
     column!("sweep_param", |_c, r| r.swept.as_ref().map_or(String::new(), |(p, _)| p.clone())),
     column!("sweep_value", |_c, r| r.swept.as_ref().map_or(String::new(), |(_, v)| fmt_num(*v))),
@@ -103,6 +107,7 @@ const COLUMNS: &[Column] = &[
     column!("mean_excess_bits", |_c, r| fmt_num(r.stats.mean_excess)),
     column!("mean_capacity_bits", |_c, r| fmt_num(r.stats.mean_capacity)),
     column!("mean_achievable_bits", |_c, r| fmt_num(r.stats.mean_achievable)),
+    column!("leak_cause", |c, r| if r.stats.verdict == Verdict::Leak { super::summary::leak_cause(c, r) } else { String::new() }),
     column!("verdict", |_c, r| r.stats.verdict.to_string()),
     column!("note", |_c, r| r.note.clone()),
 ];

@@ -1,0 +1,258 @@
+//! The evidence report: `report.html` in every results folder, its rebuild by
+//! `qkd-audit report`, the redesigned figures, `compare`, and the hunt and key-rate pages.
+//! Tiny campaigns (tens of trials) keep these fast.
+
+use qkd_audit::audit::report::evidence::Evidence;
+use std::path::{Path, PathBuf};
+use std::process::{Command, Output};
+
+fn qkd(args: &[&str], dir: &Path) -> Output {
+    Command::new(env!("CARGO_BIN_EXE_qkd-audit")).args(args).current_dir(dir).env("RAYON_NUM_THREADS", "2").output().unwrap()
+}
+
+/// A small single-photon campaign judged under `RULE` (the system's) and finite-uncertainty.
+const CAMPAIGN: &str = r#"
+name = "NAME"
+seed = 3
+trials = 30
+rules = ["finite-uncertainty"]
+[setup]
+name = "SETUP"
+signals = 20000
+test_fraction = 0.05
+abort_qber = 0.11
+key_rule = "RULE"
+[[attacks]]
+builtin = "phase-covariant-cloner"
+steps = 3
+to = 0.04
+[[attacks]]
+builtin = "intercept-resend"
+steps = 3
+"#;
+
+/// A name a reviewer's page must show as text, never run.
+const HOSTILE: &str = "lab <script>alert('x')</script> & \"co\"";
+
+fn campaign(dir: &Path, name: &str, rule: &str) -> (PathBuf, Output) {
+    let file = dir.join(format!("{name}.toml"));
+    let text = CAMPAIGN.replace("NAME", name).replace("RULE", rule).replace("SETUP", &HOSTILE.replace('"', "\\\""));
+    std::fs::write(&file, text).unwrap();
+    let out = qkd(&["run", file.to_str().unwrap(), "-q", "--results-dir", "results"], dir);
+    (dir.join("results").join(name), out)
+}
+
+fn read(p: &Path) -> String {
+    std::fs::read_to_string(p).unwrap_or_else(|e| panic!("{}: {e}", p.display()))
+}
+
+fn svg_files(folder: &Path) -> Vec<PathBuf> {
+    let mut v: Vec<PathBuf> =
+        std::fs::read_dir(folder).unwrap().map(|e| e.unwrap().path()).filter(|p| p.extension().is_some_and(|x| x == "svg")).collect();
+    v.sort();
+    v
+}
+
+#[test]
+fn every_run_writes_a_self_contained_page_that_rebuilds_byte_for_byte() {
+    let dir = tempfile::tempdir().unwrap();
+    let (folder, out) = campaign(dir.path(), "leaky", "individual");
+    assert_eq!(out.status.code(), Some(1), "{}", String::from_utf8_lossy(&out.stderr));
+    let page = read(&folder.join("report.html"));
+    // The answer first: the verdict and the matrix come before the figures.
+    let verdict = page.find("id=\"overall-verdict\"").expect("verdict");
+    let matrix = page.find("id=\"verdict-matrix\"").expect("matrix");
+    assert!(verdict < matrix && matrix < page.find("id=\"figures\"").unwrap());
+    assert!(page.contains("NOT SECURE: the system&#39;s rule <code>individual</code> leaks key"), "headline");
+    // No external resource and no script: the only URL is the SVG namespace.
+    let lower = page.to_lowercase();
+    assert!(!lower.contains("<script"), "a script element or an unescaped name");
+    for needle in [" src=", "<link", "url(", "@import", "https:"] {
+        assert!(!lower.contains(needle), "external resource marker {needle}");
+    }
+    assert_eq!(lower.matches("http:").count(), lower.matches("http://www.w3.org/2000/svg").count());
+    assert!(page.contains("lab &lt;script&gt;alert(&#39;x&#39;)&lt;/script&gt; &amp; &quot;co&quot;"), "escaped setup name");
+    assert!(page.contains("@media print") && page.contains("@page { size: A4"));
+    // Every figure of the folder is in the page, verbatim, and captioned.
+    let svgs = svg_files(&folder);
+    assert!(svgs.len() >= 5, "{svgs:?}");
+    assert_eq!(page.matches("<figure ").count(), svgs.len());
+    for s in &svgs {
+        assert!(page.contains(read(s).as_str()), "{} not embedded", s.display());
+    }
+    // The system under test with units, and the provenance.
+    for needle in ["abort_qber", "error rate", "signals per block", "SHA-256", "seed", "command line", "Caution"] {
+        assert!(page.contains(needle), "{needle}");
+    }
+    // The leak's cause is the summary's sentence, carried by the CSV.
+    let csv = read(&folder.join("attack_vs_bound.csv"));
+    let ev = Evidence::load(&folder).unwrap();
+    let leak = ev.leaks().into_iter().next().expect("a leak");
+    assert!(!leak.worst.leak_cause.is_empty());
+    assert!(read(&folder.join("summary.md")).contains(&leak.worst.leak_cause), "summary and CSV share the cause sentence");
+    assert!(csv.lines().next().unwrap().contains(",entry,point,") && csv.contains("leak_cause"));
+    // The rebuild gives the same bytes, in place, without --force (a derived file).
+    std::fs::remove_file(folder.join("report.html")).unwrap();
+    let rebuilt = qkd(&["report", folder.to_str().unwrap()], dir.path());
+    assert_eq!(rebuilt.status.code(), Some(0), "{}", String::from_utf8_lossy(&rebuilt.stderr));
+    assert!(read(&folder.join("report.html")) == page, "rebuild differs");
+    let again = qkd(&["report", folder.to_str().unwrap()], dir.path());
+    assert_eq!(again.status.code(), Some(0));
+    // Elsewhere, an existing file is a user's: --force to replace it.
+    std::fs::write(dir.path().join("mine.html"), "keep").unwrap();
+    let refused = qkd(&["report", folder.to_str().unwrap(), "-o", "mine.html"], dir.path());
+    assert_eq!(refused.status.code(), Some(2));
+    assert_eq!(read(&dir.path().join("mine.html")), "keep");
+    let forced = qkd(&["report", folder.to_str().unwrap(), "-o", "mine.html", "--force"], dir.path());
+    assert_eq!(forced.status.code(), Some(0));
+    assert!(read(&dir.path().join("mine.html")) == page);
+    // Not a results folder: exit 2, naming it.
+    let missing = qkd(&["report", "nowhere"], dir.path());
+    assert_eq!(missing.status.code(), Some(2));
+    assert!(String::from_utf8_lossy(&missing.stderr).contains("nowhere"));
+    std::fs::create_dir(dir.path().join("empty")).unwrap();
+    assert_eq!(qkd(&["report", "empty"], dir.path()).status.code(), Some(2));
+}
+
+#[test]
+fn the_page_matrix_agrees_with_the_summary() {
+    let dir = tempfile::tempdir().unwrap();
+    let (folder, _) = campaign(dir.path(), "m", "individual");
+    let ev = Evidence::load(&folder).unwrap();
+    let summary = read(&folder.join("summary.md"));
+    let rules = ev.rules();
+    assert_eq!(rules, ["individual", "finite-uncertainty"]);
+    for g in &ev.groups {
+        let line = summary.lines().find(|l| l.starts_with(&format!("| {} |", g.attack))).expect("matrix line");
+        let cells: Vec<&str> = line.split(" | ").skip(1).collect();
+        for (rule, cell) in rules.iter().zip(cells) {
+            let v = ev.cell(g.entry, rule).unwrap().verdict;
+            let md = if cell.starts_with("**LEAK**") { "leak" } else { cell.trim_end_matches(" |").trim() };
+            assert_eq!(v.name(), md, "{} under {rule}", g.attack);
+        }
+    }
+}
+
+#[test]
+fn figures_answer_one_question_each_and_show_what_the_issue_asked() {
+    let dir = tempfile::tempdir().unwrap();
+    let text = std::fs::read_to_string(concat!(env!("CARGO_MANIFEST_DIR"), "/campaigns/demo-decoy.toml"))
+        .unwrap()
+        .replace("trials = 200", "trials = 20");
+    std::fs::write(dir.path().join("d.toml"), text).unwrap();
+    let out = qkd(&["run", "d.toml", "-q"], dir.path());
+    assert_eq!(out.status.code(), Some(0), "{}", String::from_utf8_lossy(&out.stderr));
+    let folder = dir.path().join("results/saltmarsh-quarryhill-decoy");
+    // One abort/leak figure and one key-length figure per attack (all rules in each), not one per (attack, rule).
+    let names: Vec<String> = svg_files(&folder).iter().map(|p| p.file_name().unwrap().to_string_lossy().into_owned()).collect();
+    assert_eq!(names.len(), 7, "{names:?}");
+    // Key length: the capacity and achievable bands, the first leak labelled with its excess.
+    let kl = read(&folder.join("key_length_photon-number-splitting.svg"));
+    assert!(kl.contains("<polygon points") && kl.contains("capacity (what the attack leaves secret)") && kl.contains("achievable bound"));
+    assert!(kl.contains("first leak: +") && kl.contains("no key from"), "first leak and no-key labels");
+    // Abort/leak: markers at measured points only (no connecting lines), labelled intervals.
+    let al = read(&folder.join("abort_leak_photon-number-splitting.svg"));
+    assert!(!al.contains("<polyline"), "no interpolation between sweep points");
+    assert!(al.contains("95 % Clopper–Pearson interval") && al.contains("leak probability, naive-single-photon"));
+    // Eve's information: link-level points distinct and the bound labelled for single photons.
+    let eve = read(&folder.join("eve_information.svg"));
+    assert!(eve.contains("single photons") && eve.contains("link-level attack: fraction of key bits Eve knows exactly"));
+    assert!(eve.contains("link-level: not bounded by the curve"));
+    // The tool's own palette: none of the previous default plotting palette's colours.
+    for s in svg_files(&folder) {
+        let t = read(&s);
+        for old in ["#1F77B4", "#FF7F0E", "#D62728", "rgb(31,119,180)", "#1f77b4", "#d62728"] {
+            assert!(!t.contains(old), "{}: {old}", s.display());
+        }
+    }
+}
+
+#[test]
+fn compare_reports_leaks_gained_and_lost_with_its_exit_status() {
+    let dir = tempfile::tempdir().unwrap();
+    let (safe, out) = campaign(dir.path(), "before", "finite-uncertainty");
+    assert_eq!(out.status.code(), Some(0), "{}", String::from_utf8_lossy(&out.stderr));
+    let (leaky, _) = campaign(dir.path(), "after", "individual");
+    let (a, b) = (safe.to_str().unwrap(), leaky.to_str().unwrap());
+    // Gained: B leaks where A did not.
+    let gained = qkd(&["compare", a, b], dir.path());
+    assert_eq!(gained.status.code(), Some(1), "{}", String::from_utf8_lossy(&gained.stderr));
+    let text = String::from_utf8_lossy(&gained.stdout);
+    let count = |t: &str, title: &str| -> usize {
+        t.lines().find(|l| l.starts_with(title)).and_then(|l| l.rsplit(": ").next()).unwrap().parse().unwrap()
+    };
+    assert!(count(&text, "leaks gained") > 0 && count(&text, "leaks lost") == 0, "{text}");
+    assert!(text.contains("`finite-uncertainty`) → B leak"), "{text}");
+    // Lost: the other way round, exit 0.
+    let lost = qkd(&["compare", b, a], dir.path());
+    assert_eq!(lost.status.code(), Some(0));
+    let text = String::from_utf8_lossy(&lost.stdout);
+    assert!(count(&text, "leaks lost") > 0 && count(&text, "leaks gained") == 0, "{text}");
+    // Same folder: nothing changes.
+    let same = qkd(&["compare", a, a, "--csv"], dir.path());
+    assert_eq!(same.status.code(), Some(0));
+    let csv = String::from_utf8_lossy(&same.stdout);
+    assert!(csv.starts_with("point,role,change,rule_a,rule_b,verdict_a,verdict_b,key_length_mean_a_bits"));
+    assert!(csv.lines().skip(1).all(|l| l.contains(",same,")), "{csv}");
+    // CSV and JSON carry the gained rows; the HTML page escapes names and is refused on overwrite without --force.
+    let csv = String::from_utf8_lossy(&qkd(&["compare", a, b, "--csv"], dir.path()).stdout).into_owned();
+    assert!(csv.contains(",leak-gained,"));
+    let json: serde_json::Value = serde_json::from_slice(&qkd(&["compare", a, b, "--json"], dir.path()).stdout).unwrap();
+    assert!(json["rows"].as_array().unwrap().iter().any(|r| r["change"] == "leak-gained"));
+    assert_eq!(qkd(&["compare", a, b, "--html", "cmp.html"], dir.path()).status.code(), Some(1));
+    let page = read(&dir.path().join("cmp.html"));
+    assert!(page.contains("B leaks where A did not") && !page.to_lowercase().contains("<script"));
+    assert_eq!(qkd(&["compare", a, b, "--html", "cmp.html"], dir.path()).status.code(), Some(2));
+    // Missing or unrelated folders: exit 2.
+    assert_eq!(qkd(&["compare", a, "nowhere"], dir.path()).status.code(), Some(2));
+    let other = dir.path().join("other.toml");
+    std::fs::write(&other, "name = \"other\"\ntrials = 5\n[setup]\nsignals = 20000\n[[attacks]]\nbuiltin = \"pauli\"\nsteps = 2\n")
+        .unwrap();
+    assert_eq!(qkd(&["run", "other.toml", "-q"], dir.path()).status.code(), Some(0));
+    let unrelated = qkd(&["compare", a, "results/other"], dir.path());
+    assert_eq!(unrelated.status.code(), Some(2));
+    assert!(String::from_utf8_lossy(&unrelated.stderr).contains("share no attack point"));
+}
+
+#[test]
+fn keyrate_and_hunt_runs_get_their_pages() {
+    let dir = tempfile::tempdir().unwrap();
+    let out = qkd(&["keyrate", "--steps", "21", "-o", "k.csv", "--svg", "k.svg", "--html", "k.html"], dir.path());
+    assert_eq!(out.status.code(), Some(0), "{}", String::from_utf8_lossy(&out.stderr));
+    let page = read(&dir.path().join("k.html"));
+    let svg = read(&dir.path().join("k.svg"));
+    assert!(page.contains(svg.as_str()) && page.contains("decoy-vacuum-weak") && page.contains("maximum distance per rule"));
+    assert!(svg.contains("naive-single-photon (not secure under photon-number splitting)"));
+    assert!(svg.contains("stroke-dasharray"), "the insecure rule is dashed");
+    let hunt = qkd(&["hunt", "--objective", "holevo", "--q", "0.05", "--starts", "2", "--iters", "10", "--out-dir", "h"], dir.path());
+    assert!(hunt.status.success(), "{}", String::from_utf8_lossy(&hunt.stderr));
+    let page = read(&dir.path().join("h/report.html"));
+    assert!(page.contains("No bound violated") && page.contains(read(&dir.path().join("h/hunt.svg")).as_str()));
+    let rebuilt = qkd(&["report", "h"], dir.path());
+    assert_eq!(rebuilt.status.code(), Some(0));
+    assert!(read(&dir.path().join("h/report.html")) == page);
+    let game = qkd(&["hunt", "--objective", "game", "--rounds", "1", "--starts", "2", "--out-dir", "g"], dir.path());
+    assert!(game.status.success(), "{}", String::from_utf8_lossy(&game.stderr));
+    let page = read(&dir.path().join("g/report.html"));
+    assert!(page.contains("No bound violated") && page.contains("value_probability"));
+    assert_eq!(qkd(&["report", "g"], dir.path()).status.code(), Some(0));
+    assert!(read(&dir.path().join("g/report.html")) == page);
+}
+
+#[test]
+fn the_page_depends_on_the_thread_count_only_in_its_run_lines() {
+    let dir = tempfile::tempdir().unwrap();
+    let file = dir.path().join("c.toml");
+    std::fs::write(&file, CAMPAIGN.replace("NAME", "t").replace("RULE", "individual").replace("SETUP", "lab")).unwrap();
+    let page = |threads: &str, out: &str| {
+        let o = qkd(&["run", "c.toml", "-q", "--threads", threads, "--results-dir", out], dir.path());
+        assert_eq!(o.status.code(), Some(1));
+        // The command line differs by the arguments themselves; every other line must not.
+        read(&dir.path().join(out).join("t/report.html"))
+            .lines()
+            .filter(|l| !l.contains("class=\"run") && !l.contains(">command line<"))
+            .collect::<Vec<_>>()
+            .join("\n")
+    };
+    assert!(page("1", "one") == page("2", "two"), "the page differs between thread counts");
+}
