@@ -298,3 +298,17 @@ fn device_attacks_need_a_campaign_and_run_in_one() {
     assert!(leak(KeyRule::FiniteUncertainty), "the demo's flaw-blind rule must leak");
     assert!(!leak(KeyRule::MismatchAware), "the demo's mismatch-aware rule must not");
 }
+
+#[test]
+fn eval_evaluates_a_device_attack_against_the_detector_it_is_given() {
+    let bin = env!("CARGO_BIN_EXE_qkd-audit");
+    let out = std::process::Command::new(bin).args(["eval", "--attack", "faked-state", "--mismatch", "0.2", "--json"]).output().unwrap();
+    assert_eq!(out.status.code(), Some(0), "{}", String::from_utf8_lossy(&out.stderr));
+    let v: serde_json::Value = serde_json::from_slice(&out.stdout).unwrap();
+    // 2η/(1 + 3η) at η = 0.2, and the detection ratio (1 + 3η)/4 (derived in exact::device).
+    assert!((v["qber_z"].as_f64().unwrap() - 0.25).abs() < CLOSED_FORM_TOL);
+    assert!((v["detection_ratio"].as_f64().unwrap() - 0.4).abs() < CLOSED_FORM_TOL);
+    let bad = std::process::Command::new(bin).args(["eval", "--attack", "time-shift", "--mismatch", "1.5"]).output().unwrap();
+    assert_eq!(bad.status.code(), Some(2));
+    assert!(String::from_utf8_lossy(&bad.stderr).contains("--mismatch"));
+}
