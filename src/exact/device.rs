@@ -86,9 +86,12 @@ pub struct DevicePoint {
     pub note: String,
 }
 
-/// Eve's unnormalised states `σ[x][b]` and the alarm probabilities `alarm[x]` for Alice's
-/// basis `alice` and Bob's basis `bob`.
-fn conditional(attack: &DeviceAttack, flaws: &DetectorFlaws, alice: Basis, bob: Basis) -> ([[CMat; 2]; 2], [f64; 2]) {
+/// Eve's unnormalised states `σ[x][b]` and the alarm probabilities `alarm[x]` for one pair
+/// of Alice's and Bob's bases.
+type PairStates = ([[CMat; 2]; 2], [f64; 2]);
+
+/// The [`PairStates`] for Alice's basis `alice` and Bob's basis `bob`.
+fn conditional(attack: &DeviceAttack, flaws: &DetectorFlaws, alice: Basis, bob: Basis) -> PairStates {
     let d = attack.eve_dim;
     let clicks = [flaws.click_operator(bob, 0).transpose(), flaws.click_operator(bob, 1).transpose()];
     let alarm_op = flaws.alarm_operator().transpose();
@@ -124,8 +127,7 @@ pub fn evaluate_device(
 ) -> Result<DevicePoint> {
     let label = &attack.label;
     let all = Basis::ALL;
-    let states: Vec<Vec<([[CMat; 2]; 2], [f64; 2])>> =
-        all.iter().map(|&a| all.iter().map(|&b| conditional(attack, flaws, a, b)).collect()).collect();
+    let states: Vec<Vec<PairStates>> = all.iter().map(|&a| all.iter().map(|&b| conditional(attack, flaws, a, b)).collect()).collect();
     let detect = |a: usize, b: usize| -> f64 {
         let (sig, _) = &states[a][b];
         0.5 * sig.iter().flatten().map(|s| s.trace().re).sum::<f64>()
@@ -144,7 +146,8 @@ pub fn evaluate_device(
     let mut sifted = Vec::new();
     for (i, basis) in all.iter().enumerate() {
         let p = detect(i, i);
-        if !(p > MIN_SIFTED_DETECTION) && *basis == Basis::Y && protocol == Protocol::Bb84 {
+        let undetected = p.is_nan() || p <= MIN_SIFTED_DETECTION;
+        if undetected && *basis == Basis::Y && protocol == Protocol::Bb84 {
             // BB84 never uses Y; an attack that never clicks Bob's Y measurement leaves the
             // Y columns without meaning, reported as for a fair coin (documented above).
             let half = CMat::identity(attack.eve_dim, attack.eve_dim) * c(1.0 / attack.eve_dim as f64, 0.0);
@@ -160,7 +163,7 @@ pub fn evaluate_device(
             });
             continue;
         }
-        if !(p > MIN_SIFTED_DETECTION) {
+        if undetected {
             return Err(Error::input(format!(
                 "attack `{label}`: Bob never detects a sifted {} round under this attack and device; nothing to judge",
                 basis.name()
