@@ -312,3 +312,32 @@ fn eval_evaluates_a_device_attack_against_the_detector_it_is_given() {
     assert_eq!(bad.status.code(), Some(2));
     assert!(String::from_utf8_lossy(&bad.stderr).contains("--mismatch"));
 }
+
+#[test]
+fn six_state_setups_evaluate_device_attacks_and_keep_the_closed_forms_in_z() {
+    // A flawed detector need not act as a qubit channel: the six-state QBERs of the faked
+    // states have no Pauli weights, and the evaluation falls back to the BB84 bound instead
+    // of failing. The Z-basis closed forms are those of BB84 (Eve measures in Z or X).
+    let probs = [0.5, 0.25, 0.25];
+    for eta in [0.7, 0.1] {
+        for family in ["time-shift", "faked-state", "detector-blinding"] {
+            let flaws = DetectorFlaws { mismatch: eta, blinding_catch: 0.5, ..DetectorFlaws::default() };
+            let p =
+                evaluate_device(&device_attack(family, 1.0), &flaws, Protocol::SixState, &probs, &EvalOptions::fast(Protocol::SixState))
+                    .unwrap();
+            if family == "time-shift" {
+                assert!((p.evaluation.h_x_given_e - binary_entropy(1.0 / (1.0 + eta))).abs() < CLOSED_FORM_TOL);
+            }
+            assert!(p.evaluation.bound_rate.is_finite() && p.model.cells.len() == 3);
+            assert_eq!(p.note.contains("never detects a sifted Y"), family == "detector-blinding", "{family}: {}", p.note);
+        }
+    }
+    // Blinding with the six-state bases reaches Bob's Y measurement too.
+    let mut given = BTreeMap::new();
+    given.insert("bases".to_string(), Value::Text("zxy".into()));
+    let zxy = DeviceAttack::builtin("detector-blinding", &given).unwrap();
+    let flaws = DetectorFlaws { blinding_catch: 0.0, ..DetectorFlaws::default() };
+    let p = evaluate_device(&zxy, &flaws, Protocol::SixState, &probs, &EvalOptions::fast(Protocol::SixState)).unwrap();
+    assert!(!p.note.contains("never detects"), "{}", p.note);
+    assert!(p.evaluation.qber_y.abs() < CLOSED_FORM_TOL && p.evaluation.h_x_given_e.abs() < CLOSED_FORM_TOL);
+}

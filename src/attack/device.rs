@@ -15,12 +15,13 @@
 //!   opposite bit in the opposite basis, timed so that the detector of the opposite bit is
 //!   the suppressed one; she remembers (β, b).
 //! - `detector-blinding` (Lydersen et al., Nat. Photonics 4, 686, 2010): on a `fraction` of
-//!   the detection periods Eve blinds Bob's detectors, measures in Z or X at random and
+//!   the detection periods Eve blinds Bob's detectors, measures in Z or X (`bases = "zx"`) or
+//!   in Z, X or Y (`"zxy"`, against the six-state protocol) at random and
 //!   sends the bright trigger of her result, which clicks Bob's detector of her bit when he
 //!   measures in her basis and nothing otherwise; she remembers (β, b).
 //!
 //! Eve's register: index 0 = signal passed at the nominal time; `time-shift`: 1 = early,
-//! 2 = late; the others: `1 + 2β + b` = measured in basis β (0 Z, 1 X) with result b.
+//! 2 = late; the others: `1 + 2β + b` = measured in basis β (0 Z, 1 X, 2 Y) with result b.
 
 use super::{resolve, Family, ParamKind, ParamSet, ParamSpec, Value};
 use crate::error::{Error, Result};
@@ -147,6 +148,19 @@ impl Family for FakedState {
     }
 }
 
+const BLINDING_PARAMS: &[ParamSpec] = &[
+    ParamSpec {
+        name: "fraction",
+        kind: ParamKind::Number { lo: 0.0, hi: 1.0 },
+        help: "fraction of the detection periods Eve blinds (default 1)",
+    },
+    ParamSpec {
+        name: "bases",
+        kind: ParamKind::Choice(&["zx", "zxy"]),
+        help: "Eve's measurement bases, each equally likely: zx (BB84's) or zxy (the six-state protocol's) (default zx)",
+    },
+];
+
 impl Family for DetectorBlinding {
     fn name(&self) -> &'static str {
         "detector-blinding"
@@ -155,18 +169,23 @@ impl Family for DetectorBlinding {
         "blind the detectors on a fraction of the periods and click them with bright triggers (needs [detector] blinding_catch < 1)"
     }
     fn params(&self) -> &'static [ParamSpec] {
-        FRACTION
+        BLINDING_PARAMS
     }
-    fn default_value(&self, _name: &str, _earlier: &ParamSet) -> Value {
-        Value::Num(1.0)
+    fn default_value(&self, name: &str, _earlier: &ParamSet) -> Value {
+        match name {
+            "fraction" => Value::Num(1.0),
+            _ => Value::Text("zx".into()),
+        }
     }
     fn kraus(&self, p: &ParamSet) -> (usize, Vec<CMat>) {
         let f = p.num("fraction");
-        let d_e = 5;
+        let bases: &[Basis] = if p.text("bases") == "zxy" { &Basis::ALL } else { &EVE_BASES };
+        let d_e = 1 + 2 * bases.len();
+        let w = f / bases.len() as f64;
         let mut ops = vec![pass(d_e, f)];
-        for (bi, beta) in EVE_BASES.iter().enumerate() {
+        for (bi, beta) in bases.iter().enumerate() {
             for b in 0..2 {
-                ops.push(measure_and_send(d_e, 1 + 2 * bi + b, 0.5 * f, &beta.ket(b), Out::Trigger(trigger_index(*beta, b))));
+                ops.push(measure_and_send(d_e, 1 + 2 * bi + b, w, &beta.ket(b), Out::Trigger(trigger_index(*beta, b))));
             }
         }
         (d_e, ops)

@@ -15,14 +15,17 @@
 //! - `holevo_θ = S(τ₀ + τ₁) − Σ_x p_x S(τ_x / p_x)`, `h_x_given_e = h(p₀) − holevo_z`,
 //!   `p_guess_θ = ½(1 + ‖τ₀ − τ₁‖₁)`, accessible information of the same ensemble;
 //! - the game value with `s_x = ½ σ(θ, θ, x, x) / P_θ`: `½(Tr s₀ + Tr s₁ + ‖s₀ − s₁‖₁)`;
-//! - rates and `margin` exactly as [`crate::exact::eval`] defines them. The proven
+//! - rates and `margin` exactly as [`crate::exact::eval`] defines them, except that under
+//!   the six-state protocol QBERs without Pauli weights (a flawed detector need not act as
+//!   a qubit channel) get the BB84 bound, which six-state data satisfy too. The proven
 //!   inequalities of that module are *not* checked: they assume ideal detectors, and a
 //!   negative `margin` here is the finding (the flaw breaks the uncertainty relation the
 //!   flaw-blind rules rest on), not a numerical failure.
 //!
-//! Under BB84 an attack may never click Bob's Y measurement (Eve's triggers are Z or X);
-//! the Y columns, which BB84 does not use, then read as for a fair coin (QBER ½, no
-//! information). Any other basis without detections is an error.
+//! An attack may never click Bob's Y measurement (blinding with Z and X triggers only); the
+//! Y columns then read as for a fair coin (QBER ½, no information) and the point's note says
+//! so: BB84 does not use Y, and a six-state system sees no sifted Y detections at all. Any
+//! other basis without detections is an error.
 //!
 //! The campaign's [`SignalModel`] is the distribution of one *detected* round: basis pair
 //! (α, β) with weight `p_α p_β P(click | α, β)` and the cells conditioned on a click, with
@@ -144,12 +147,14 @@ pub fn evaluate_device(
         joint: [[f64; 2]; 2],
     }
     let mut sifted = Vec::new();
+    let mut y_undetected = false;
     for (i, basis) in all.iter().enumerate() {
         let p = detect(i, i);
         let undetected = p.is_nan() || p <= MIN_SIFTED_DETECTION;
-        if undetected && *basis == Basis::Y && protocol == Protocol::Bb84 {
-            // BB84 never uses Y; an attack that never clicks Bob's Y measurement leaves the
-            // Y columns without meaning, reported as for a fair coin (documented above).
+        if undetected && *basis == Basis::Y {
+            // An attack that never clicks Bob's Y measurement leaves the Y columns without
+            // meaning, reported as for a fair coin (documented above).
+            y_undetected = true;
             let half = CMat::identity(attack.eve_dim, attack.eve_dim) * c(1.0 / attack.eve_dim as f64, 0.0);
             sifted.push(Sifted {
                 qber: 0.5,
@@ -195,12 +200,15 @@ pub fn evaluate_device(
     let hz = binary_entropy(z.qber);
     let hx = binary_entropy(x.qber);
     let weights = six_state_weights(x.qber, y.qber, z.qber);
+    // A flawed detector need not act as a qubit channel, so the six-state QBERs may have no
+    // Pauli weights; the BB84 bound (which six-state data also satisfy) is reported then.
+    let qubit_like = weights.iter().all(|w| *w >= -BOUND_SLACK);
     let (bound_rate, margin) = match protocol {
-        Protocol::Bb84 => (1.0 - hx - hz, z.h_x_given_e - (1.0 - hx)),
-        Protocol::SixState => {
+        Protocol::SixState if qubit_like => {
             let h = six_state_entropy(&weights, BOUND_SLACK)?;
             (1.0 - h, z.h_x_given_e - (1.0 - h + hz))
         }
+        _ => (1.0 - hx - hz, z.h_x_given_e - (1.0 - hx)),
     };
     let (accessible_z, accessible_x, accessible_converged, accessible_gap) = match &opts.accessible {
         Some(acc) => {
@@ -289,6 +297,9 @@ pub fn evaluate_device(
             p_click,
             -10.0 * p_click.log10()
         ));
+    }
+    if y_undetected {
+        note.push("Bob never detects a sifted Y round (the Y columns read as a fair coin)".to_string());
     }
     if alarm_odds > 0.0 {
         note.push(format!("the blinding monitor fires {alarm_odds:.3e} times per detected signal; any alarm aborts the block"));

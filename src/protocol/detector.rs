@@ -132,6 +132,17 @@ impl DetectorFlaws {
         *self == DetectorFlaws::default()
     }
 
+    /// One line for reports, e.g. `detector efficiency mismatch 0.25 (no random swapping),
+    /// blinding monitor catch probability 1`.
+    pub fn describe(&self) -> String {
+        format!(
+            "detector efficiency mismatch {} ({}), blinding monitor catch probability {}",
+            self.mismatch,
+            if self.random_swap { "random bit-assignment swapping" } else { "no random swapping" },
+            self.blinding_catch
+        )
+    }
+
     /// Relative efficiencies (η₀, η₁) of the two detectors at arrival time `t`.
     pub fn efficiencies(&self, t: Timing) -> [f64; 2] {
         match t {

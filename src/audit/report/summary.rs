@@ -28,8 +28,9 @@ fn link_text(l: &crate::protocol::optical::Link) -> String {
             )
         }
     };
+    let flaws = if l.flaws.is_ideal() { String::new() } else { format!(", {}", l.flaws.describe()) };
     format!(
-        "{src}, channel loss {:.2} dB, detector efficiency {}, dark counts {:e} per gate, misalignment {}",
+        "{src}, channel loss {:.2} dB, detector efficiency {}, dark counts {:e} per gate, misalignment {}{flaws}",
         l.channel_loss_db, l.detector_efficiency, l.dark_count_probability, l.misalignment
     )
 }
