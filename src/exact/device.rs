@@ -293,7 +293,7 @@ pub fn evaluate_device(
     let mut note = Vec::new();
     if p_click < 1.0 - ROUNDING_SLACK {
         note.push(format!(
-            "Bob detects {:.4} of the signals the honest device would; Eve hides this with a line at least {:.2} dB less lossy",
+            "Bob detects {:.4} of the signals the honest device would; Eve can hide this only on a line losing at least {:.2} dB, which she replaces by a less lossy one (signals count detected rounds)",
             p_click,
             -10.0 * p_click.log10()
         ));
