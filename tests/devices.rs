@@ -341,3 +341,41 @@ fn six_state_setups_evaluate_device_attacks_and_keep_the_closed_forms_in_z() {
     assert!(!p.note.contains("never detects"), "{}", p.note);
     assert!(p.evaluation.qber_y.abs() < CLOSED_FORM_TOL && p.evaluation.h_x_given_e.abs() < CLOSED_FORM_TOL);
 }
+
+#[test]
+fn both_samplers_draw_detected_rounds_and_alarms_at_the_model_rates() {
+    // A device model describes detected rounds: basis pairs weighted by Bob's click
+    // probability (`pair_weight`), and a block aborted by the monitor with probability
+    // 1 − (1 + odds)^−N (here about 0.93 for blinding). Both samplers must draw both.
+    let mut setup = mismatched_setup(0.3, KeyRule::FiniteUncertainty, 20_000);
+    setup.basis_z_probability = 0.8;
+    setup.link.flaws.blinding_catch = 2e-4;
+    let ts = |z: u64| setup.test_sample.size(z);
+    for family in ["faked-state", "detector-blinding"] {
+        let p = evaluate_device(
+            &device_attack(family, 0.5),
+            &setup.link.flaws,
+            setup.protocol,
+            &setup.basis_probabilities(),
+            &EvalOptions::fast(setup.protocol),
+        )
+        .unwrap();
+        let want_z = setup.signals as f64 * p.model.pair_weight(0, 0);
+        let want_alarm = 1.0 - (-(setup.signals as f64) * p.alarm_odds.ln_1p()).exp();
+        for sampler in [Sampler::Count, Sampler::Round] {
+            let trials = 300;
+            let (mut z, mut alarms) = (0.0, 0.0);
+            for t in 0..trials {
+                let c = sample_block(sampler, &p.model, setup.signals, &ts, &mut trial_rng(5, 0, t));
+                z += c.sifted[0] as f64;
+                alarms += f64::from(u8::from(c.alarm));
+            }
+            let (z, alarms) = (z / trials as f64, alarms / trials as f64);
+            // Five standard errors of the means.
+            let se_z = (want_z * (1.0 - want_z / setup.signals as f64) / trials as f64).sqrt();
+            assert!((z - want_z).abs() < 5.0 * se_z, "{family} {sampler:?}: sifted Z {z} vs {want_z}");
+            let se_a = (want_alarm * (1.0 - want_alarm) / trials as f64).sqrt().max(1e-9);
+            assert!((alarms - want_alarm).abs() <= 5.0 * se_a, "{family} {sampler:?}: alarms {alarms} vs {want_alarm}");
+        }
+    }
+}
