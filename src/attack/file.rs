@@ -97,7 +97,7 @@ impl AttackFile {
             AttackFile::Catalogue(e) if self.is_device_attack() => Err(Error::input_key(
                 "family",
                 format!(
-                    "`{}` attacks Bob's detection device: use it in a campaign, whose setup describes the detector ([detector] mismatch, blinding_catch)",
+                    "`{}` attacks Bob's detection device: use it in a campaign, whose setup describes the detector ([detector] mismatch, blinding_catch), or in `eval` with --mismatch, --blinding-catch",
                     e.family
                 ),
             )),
