@@ -13,8 +13,8 @@ fn bench_eval(c: &mut Criterion) {
     group.throughput(Throughput::Elements(1));
     for (name, text) in builtin_catalogue() {
         let file = parse(text).expect("built-in entry parses");
-        if file.is_pulse_attack() {
-            continue;
+        if file.is_pulse_attack() || file.is_device_attack() {
+            continue; // link attacks have no single-photon evaluation; device attacks: below
         }
         let attack = file.attack(&BTreeMap::new()).expect("built-in entry builds");
         let label = name.trim_end_matches(".toml");
@@ -30,6 +30,29 @@ fn bench_eval(c: &mut Criterion) {
                 let a = file.attack(&BTreeMap::new()).unwrap();
                 evaluate(black_box(&a), &EvalOptions::fast(Protocol::Bb84)).unwrap()
             })
+        });
+    }
+    group.finish();
+}
+
+/// The device attacks against a flawed detector (η = 0.2, weak monitor), with accessible
+/// information, as `eval` and a campaign point compute them.
+fn bench_device(c: &mut Criterion) {
+    use qkd_audit::attack::AnyAttack;
+    use qkd_audit::exact::device::evaluate_device;
+    use qkd_audit::protocol::detector::DetectorFlaws;
+    let mut group = c.benchmark_group("device");
+    group.throughput(Throughput::Elements(1));
+    let flaws = DetectorFlaws { mismatch: 0.2, random_swap: false, blinding_catch: 0.01 };
+    for (name, text) in builtin_catalogue() {
+        let file = parse(text).expect("built-in entry parses");
+        if !file.is_device_attack() {
+            continue;
+        }
+        let Ok(AnyAttack::Device(attack)) = file.build(&BTreeMap::new()) else { panic!("built-in device entry builds") };
+        let label = name.trim_end_matches(".toml");
+        group.bench_function(format!("{label}/with-accessible"), |b| {
+            b.iter(|| evaluate_device(black_box(&attack), &flaws, Protocol::Bb84, &[0.5, 0.5], &EvalOptions::full(Protocol::Bb84)).unwrap())
         });
     }
     group.finish();
@@ -89,6 +112,6 @@ fn bench_accessible_search(c: &mut Criterion) {
 criterion_group! {
     name = benches;
     config = Criterion::default().sample_size(20).measurement_time(std::time::Duration::from_secs(2)).warm_up_time(std::time::Duration::from_millis(500));
-    targets = bench_eval, bench_qubit_pair, bench_accessible_search
+    targets = bench_eval, bench_device, bench_qubit_pair, bench_accessible_search
 }
 criterion_main!(benches);

@@ -28,6 +28,7 @@ fn link(loss_db: f64, mu: f64) -> Link {
         detector_efficiency: 0.1,
         dark_count_probability: 1e-6,
         misalignment: 0.015,
+        ..Link::default()
     }
 }
 

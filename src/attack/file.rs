@@ -94,6 +94,13 @@ impl AttackFile {
     /// file has no parameters, so overrides are an error).
     pub fn attack(&self, overrides: &BTreeMap<String, Value>) -> Result<Attack> {
         match self {
+            AttackFile::Catalogue(e) if self.is_device_attack() => Err(Error::input_key(
+                "family",
+                format!(
+                    "`{}` attacks Bob's detection device: use it in a campaign, whose setup describes the detector ([detector] mismatch, blinding_catch), or in `eval` with --mismatch, --blinding-catch",
+                    e.family
+                ),
+            )),
             AttackFile::Catalogue(e) if self.is_pulse_attack() => Err(Error::input_key(
                 "family",
                 format!(
@@ -124,6 +131,16 @@ impl AttackFile {
     pub fn build(&self, overrides: &BTreeMap<String, Value>) -> Result<AnyAttack> {
         if self.is_pulse_attack() {
             self.pulse_attack(overrides).map(AnyAttack::Pulse)
+        } else if let (AttackFile::Catalogue(e), true) = (self, self.is_device_attack()) {
+            let mut params = e.params.clone();
+            params.extend(overrides.iter().map(|(k, v)| (k.clone(), v.clone())));
+            super::device::DeviceAttack::builtin(&e.family, &params).map(AnyAttack::Device).map_err(|err| {
+                if err.key().is_some() && err.key() != Some("family") {
+                    err.with_key("params")
+                } else {
+                    err
+                }
+            })
         } else {
             self.attack(overrides).map(AnyAttack::Qubit)
         }
@@ -133,6 +150,12 @@ impl AttackFile {
     /// splitting), which acts on weak-coherent pulses rather than qubits.
     pub fn is_pulse_attack(&self) -> bool {
         matches!(self, AttackFile::Catalogue(e) if super::pulse::PULSE_FAMILIES.iter().any(|(n, _)| *n == e.family))
+    }
+
+    /// True for a catalogue entry of a device family (time shift, faked states, blinding),
+    /// which acts on Bob's detection device ([`super::device`]).
+    pub fn is_device_attack(&self) -> bool {
+        matches!(self, AttackFile::Catalogue(e) if super::device::device_family(&e.family).is_some())
     }
 
     /// The link-level attack of a link catalogue entry, with `overrides` applied.
@@ -231,8 +254,9 @@ fn parse_catalogue(t: &toml::Table) -> Result<AttackFile> {
         }
     };
     let is_link = super::pulse::PULSE_FAMILIES.iter().any(|(n, _)| *n == family);
+    let qubit_or_device = |name: &str| super::device::device_family(name).map_or_else(|| super::family(name), Ok);
     if !is_link {
-        super::family(&family)?;
+        qubit_or_device(&family)?;
     }
     let description = match t.get("description") {
         Some(toml::Value::String(s)) => s.clone(),
@@ -254,7 +278,7 @@ fn parse_catalogue(t: &toml::Table) -> Result<AttackFile> {
         }
     }
     if let (Some(s), false) = (&sweep, is_link) {
-        let fam = super::family(&family)?;
+        let fam = qubit_or_device(&family)?;
         match fam.params().iter().find(|p| p.name == s.param) {
             Some(p) if matches!(p.kind, super::ParamKind::Number { .. }) => {}
             Some(_) => return Err(Error::input_key("sweep.param", format!("`{}` is not a numeric parameter", s.param))),
@@ -431,6 +455,9 @@ pub fn builtin_catalogue() -> &'static [(&'static str, &'static str)] {
         ("pauli.toml", include_str!("../../attacks/pauli.toml")),
         ("photon-number-splitting.toml", include_str!("../../attacks/photon-number-splitting.toml")),
         ("beam-splitting.toml", include_str!("../../attacks/beam-splitting.toml")),
+        ("time-shift.toml", include_str!("../../attacks/time-shift.toml")),
+        ("faked-state.toml", include_str!("../../attacks/faked-state.toml")),
+        ("detector-blinding.toml", include_str!("../../attacks/detector-blinding.toml")),
     ]
 }
 

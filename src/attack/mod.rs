@@ -4,11 +4,13 @@
 //! by Kraus operators of shape (2·d_E) × 2 in tensor order B first (output row index
 //! `b·d_E + e`). Eve holds E only, never the Kraus index: whatever she must remember (a
 //! flag, her basis, her outcome) lives in E. Built-in families implement [`Family`] and
-//! are listed in [`FAMILIES`]; user-defined attacks arrive as `kraus` files (see [`mod@file`])
+//! are listed in [`FAMILIES`]; attacks on Bob's detection device ([`device`]) map into his
+//! extended input space instead of his qubit and are listed in [`device::DEVICE_FAMILIES`]; user-defined attacks arrive as `kraus` files (see [`mod@file`])
 //! and become the same [`Attack`] value, so every consumer serves both alike. This module
 //! knows nothing about bounds or evaluation.
 
 pub mod cloner;
+pub mod device;
 pub mod entangling_probe;
 pub mod file;
 pub mod intercept_resend;
@@ -115,6 +117,8 @@ pub enum AnyAttack {
     Qubit(Attack),
     /// An attack on the pulses of an optical link.
     Pulse(pulse::PulseAttack),
+    /// An attack on Bob's detection device (single photons into his extended input space).
+    Device(device::DeviceAttack),
 }
 
 /// A built-in attack family.
@@ -145,6 +149,8 @@ pub fn family(name: &str) -> Result<&'static dyn Family> {
         let names: Vec<&str> = FAMILIES.iter().map(|f| f.name()).collect();
         let hint = if name == "kraus" {
             "; a kraus attack is read from a file (--attack-file)"
+        } else if device::device_family(name).is_some() {
+            "; this attacks Bob's detection device: use it in a campaign, whose setup describes the detector"
         } else if pulse::PULSE_FAMILIES.iter().any(|(n, _)| *n == name) {
             "; this is a link-level attack: use it in a campaign, whose setup describes the link (source, channel, detector)"
         } else {

@@ -77,6 +77,7 @@ pub struct Campaign {
 pub const DEMO_CAMPAIGNS: &[(&str, &str)] = &[
     ("decoy", include_str!("../../campaigns/demo-decoy.toml")),
     ("single-photon", include_str!("../../campaigns/demo-single-photon.toml")),
+    ("detector-mismatch", include_str!("../../campaigns/demo-detector-mismatch.toml")),
 ];
 
 impl Campaign {

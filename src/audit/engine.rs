@@ -10,6 +10,7 @@ use super::sample::sample_block;
 use super::{stats, trial};
 use crate::attack::{AnyAttack, Value};
 use crate::error::Result;
+use crate::exact::device::evaluate_device;
 use crate::exact::eval::{evaluate, EvalOptions, Evaluation};
 use crate::exact::pulses::{pulse_evaluation, PulseModel};
 use crate::exact::signal::SignalModel;
@@ -81,6 +82,17 @@ pub fn run(c: &Campaign, progress: &(dyn Fn() + Sync)) -> Result<Vec<PointResult
                         PointModel::Pulse(model),
                         note,
                     )
+                }
+                AnyAttack::Device(attack) => {
+                    let link = &c.setup.link;
+                    if !matches!(link.source, crate::protocol::optical::Source::SinglePhoton)
+                        || link.dark_count_probability != 0.0
+                        || link.misalignment != 0.0
+                    {
+                        return Err(crate::exact::device::unsupported_link(&attack.label));
+                    }
+                    let point = evaluate_device(&attack, &link.flaws, c.setup.protocol, &basis_prob, &eval_opts)?;
+                    (attack.family.clone(), attack.params.0.clone(), point.evaluation, PointModel::Qubit(point.model), point.note)
                 }
                 AnyAttack::Qubit(attack) if link_model => {
                     let qubit = evaluate(&attack, &EvalOptions::fast(c.setup.protocol))?;

@@ -270,6 +270,8 @@ impl Setup {
             ec_efficiency: self.ec_efficiency,
             epsilon_sec: self.epsilon_sec,
             epsilon_cor: self.epsilon_cor,
+            mismatch: self.link.flaws.effective_mismatch(),
+            blinding_catch: self.link.flaws.blinding_catch,
         }
     }
 

@@ -106,7 +106,7 @@ pub fn judge(counts: &BlockCounts, rule: KeyRule, params: &RuleParams, h_x_given
     let stats = BlockStats { n, k, m, e_z: rate(counts.test_z_errors, m), e_x: rate(counts.errors[1], k), intensities: counts.intensities };
     let e_y = rate(counts.errors[2], counts.sifted[2]);
     let exceeds = |e: f64| !e.is_nan() && e > params.abort_qber;
-    let aborted = n == 0 || k == 0 || exceeds(stats.e_x) || exceeds(stats.e_z) || exceeds(e_y);
+    let aborted = counts.alarm || n == 0 || k == 0 || exceeds(stats.e_x) || exceeds(stats.e_z) || exceeds(e_y);
     let leak_ec = ec_leak_bits(&stats, params);
     // Weak-coherent links: Eve's actual knowledge, summed over the photon-number classes of
     // the sampled key bits; otherwise n·H(X|E).

@@ -15,6 +15,8 @@ pub enum DemoArg {
     Decoy,
     /// The single-photon attack catalogue.
     SinglePhoton,
+    /// Mismatched detectors under time-shift and faked-state attacks.
+    DetectorMismatch,
 }
 
 impl DemoArg {
@@ -23,6 +25,7 @@ impl DemoArg {
         match self {
             DemoArg::Decoy => "decoy",
             DemoArg::SinglePhoton => "single-photon",
+            DemoArg::DetectorMismatch => "detector-mismatch",
         }
     }
 }
@@ -35,7 +38,9 @@ pub struct RunArgs {
     pub campaign: Option<PathBuf>,
     /// Which built-in demo to run without a campaign file: decoy (weak pulses with decoys,
     /// photon-number splitting and beam splitting against four rules; the default) or
-    /// single-photon (the single-photon attack catalogue against the finite-key rule).
+    /// single-photon (the single-photon attack catalogue against the finite-key rule) or
+    /// detector-mismatch (detectors with an efficiency mismatch under time-shift and
+    /// faked-state attacks, judged by the flaw-blind finite-key rule and by mismatch-aware).
     #[arg(long, value_enum, value_name = "NAME")]
     pub demo: Option<DemoArg>,
     /// Folder that receives `<campaign name>/`.

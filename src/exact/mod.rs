@@ -3,7 +3,8 @@
 //! threshold table ([`thresholds`]), parameter sweeps ([`sweep`]), asymptotic key rates of
 //! optical links ([`keyrate`]), and the exact distributions the Monte Carlo samplers draw
 //! from: one signal under a single-photon attack ([`signal`]) and one pulse per kind of
-//! pulse on an optical link ([`pulses`]).
+//! pulse on an optical link ([`pulses`]); attacks on Bob's detection device, conditioned on
+//! his clicks ([`device`]).
 
 pub mod bounds;
 pub mod eval;
@@ -12,3 +13,4 @@ pub mod sweep;
 pub mod keyrate;
 pub mod signal;
 pub mod pulses;
+pub mod device;

@@ -23,6 +23,12 @@ pub struct SignalModel {
     /// `cells[a][b_basis][cell(x, b, g)]`: probability of the cell given Alice's basis `a`
     /// and Bob's basis `b_basis`. Each row sums to 1.
     pub cells: Vec<Vec<[f64; 8]>>,
+    /// Device attacks ([`crate::exact::device`]): Bob's click probability per basis pair
+    /// `[a][b]`; the model then describes one *detected* round and basis pairs are weighted
+    /// by it. `None`: every signal is detected (the single-photon model).
+    pub detection: Option<Vec<Vec<f64>>>,
+    /// Monitor alarms per detected round (0: none; see [`crate::exact::device`]).
+    pub alarm_odds: f64,
 }
 
 impl SignalModel {
@@ -72,12 +78,26 @@ impl SignalModel {
                 }
             }
         }
-        SignalModel { bases, basis_prob: basis_prob.to_vec(), cells }
+        SignalModel { bases, basis_prob: basis_prob.to_vec(), cells, detection: None, alarm_odds: 0.0 }
     }
 
     /// Probability that a round is sifted in basis `i` (both chose it).
     pub fn sifted_probability(&self, i: usize) -> f64 {
-        self.basis_prob[i] * self.basis_prob[i]
+        self.pair_weight(i, i)
+    }
+
+    /// Probability that a round has Alice's basis `a` and Bob's basis `b`: `p_a p_b`, or,
+    /// for a model of detected rounds, `p_a p_b P(click | a, b) / P(click)`.
+    pub fn pair_weight(&self, a: usize, b: usize) -> f64 {
+        match &self.detection {
+            None => self.basis_prob[a] * self.basis_prob[b],
+            Some(d) => {
+                let n = self.basis_prob.len();
+                let total: f64 =
+                    (0..n).flat_map(|i| (0..n).map(move |j| (i, j))).map(|(i, j)| self.basis_prob[i] * self.basis_prob[j] * d[i][j]).sum();
+                self.basis_prob[a] * self.basis_prob[b] * d[a][b] / total
+            }
+        }
     }
 
     /// Exact error rate of sifted rounds in basis `i`.

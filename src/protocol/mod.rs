@@ -2,8 +2,10 @@
 //!
 //! BB84 uses Z = {|0>, |1>} and X = {|+>, |->}; the six-state protocol adds
 //! Y = {(|0> + i|1>)/√2, (|0> − i|1>)/√2}. The key basis is Z and Alice's bit is uniform.
-//! This module only names states; attacks and evaluation live elsewhere.
+//! This module only names states; attacks and evaluation live elsewhere. `detector` models
+//! Bob's detection device with its implementation flaws as a POVM; `optical` the link.
 
+pub mod detector;
 pub mod optical;
 
 use crate::numeric::linalg::{c, CVec};

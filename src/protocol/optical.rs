@@ -11,6 +11,7 @@
 
 use crate::error::{check_range, Error};
 use crate::input::{number as num, unknown_keys, Problems};
+use crate::protocol::detector::DetectorFlaws;
 use serde::Serialize;
 
 /// Error rate of a dark count (random bit).
@@ -111,6 +112,10 @@ pub struct Link {
     pub dark_count_probability: f64,
     /// Misalignment error e_d: probability that a photon hits the wrong detector.
     pub misalignment: f64,
+    /// Implementation flaws of Bob's detectors (efficiency mismatch, blinding) and their
+    /// countermeasures; the ideal device by default. Only the device attacks read them.
+    #[serde(skip_serializing_if = "DetectorFlaws::is_ideal")]
+    pub flaws: DetectorFlaws,
 }
 
 impl Default for Link {
@@ -123,6 +128,7 @@ impl Default for Link {
             detector_efficiency: 1.0,
             dark_count_probability: 0.0,
             misalignment: 0.0,
+            flaws: DetectorFlaws::default(),
         }
     }
 }
@@ -141,6 +147,7 @@ impl Link {
             detector_efficiency: 0.045,
             dark_count_probability: 1.7e-6,
             misalignment: 0.033,
+            flaws: DetectorFlaws::default(),
         }
     }
 
@@ -259,7 +266,10 @@ fn parse_channel(t: &toml::Table, link: &mut Link, p: &mut Problems) {
 }
 
 fn parse_detector(t: &toml::Table, link: &mut Link, p: &mut Problems) {
-    p.nested("detector", unknown_keys(t, &["efficiency", "dark_count_probability", "misalignment"], "this table"));
+    let mut keys = vec!["efficiency", "dark_count_probability", "misalignment"];
+    keys.extend_from_slice(crate::protocol::detector::KEYS);
+    p.nested("detector", unknown_keys(t, &keys, "this table"));
+    link.flaws = DetectorFlaws::parse(t, p);
     if let Some(v) = t.get("efficiency") {
         let e = num(v, "detector.efficiency").and_then(|e| {
             if !(e > 0.0 && e <= 1.0) {

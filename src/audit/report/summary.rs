@@ -29,8 +29,9 @@ fn link_text(l: &crate::protocol::optical::Link) -> String {
             )
         }
     };
+    let flaws = if l.flaws.is_ideal() { String::new() } else { format!(", {}", l.flaws.describe()) };
     format!(
-        "{src}, channel loss {:.2} dB, detector efficiency {}, dark counts {} per gate, misalignment {}",
+        "{src}, channel loss {:.2} dB, detector efficiency {}, dark counts {} per gate, misalignment {}{flaws}",
         l.channel_loss_db,
         l.detector_efficiency,
         if l.dark_count_probability == 0.0 { "0".to_string() } else { format!("{:e}", l.dark_count_probability) },
@@ -176,7 +177,12 @@ fn cause_sentence(rule: KeyRule, f: &CauseFacts) -> String {
             bits(f.key_length_mean),
             bits(f.mean_capacity)
         ),
-        KeyRule::FiniteUncertainty | KeyRule::GameMinEntropy | KeyRule::DecoyFinite | KeyRule::NaiveSinglePhoton => format!(
+        KeyRule::FiniteUncertainty
+        | KeyRule::GameMinEntropy
+        | KeyRule::DecoyFinite
+        | KeyRule::NaiveSinglePhoton
+        | KeyRule::MismatchAware
+        | KeyRule::BlindingAware => format!(
             "no assumption of the rule `{rule}` explains this: it is proven for this setting, with failure probability at most \
              ε_sec = {:e}, yet the key exceeded what the attack leaves secret (ℓ = {} against {} bits) in {} of the trials. \
              Treat it as a defect of the rule's implementation, of the attack model or of this tool, and report it",
@@ -288,7 +294,8 @@ pub fn render(c: &Campaign, results: &[PointResult]) -> String {
             s,
             "{inconclusive} point(s) have inconclusive trials: the key lies between the rigorous achievable bound (AEP) and the attack's \
              capacity. The AEP band is loose at these block sizes; such keys are still covered by the key-length rule's own security \
-             proof when that rule is proven for finite blocks (`finite-uncertainty`, `game-min-entropy`, `decoy-finite`), not when it \
+             proof when that rule is proven for finite blocks (`finite-uncertainty`, `game-min-entropy`, `decoy-finite`, \
+             `mismatch-aware`, `blinding-aware`), not when it \
              is an asymptotic formula (`asymptotic`, `individual`, `gllp-no-decoy`, `decoy-vacuum-weak`).\n"
         );
     }
@@ -492,6 +499,8 @@ mod tests {
             (KeyRule::GameMinEntropy, "it is proven for this setting"),
             (KeyRule::DecoyFinite, "it is proven for this setting"),
             (KeyRule::NaiveSinglePhoton, "it is proven for this setting"),
+            (KeyRule::MismatchAware, "it is proven for this setting"),
+            (KeyRule::BlindingAware, "it is proven for this setting"),
         ];
         assert_eq!(expect.len(), KeyRule::ALL.len(), "a rule without its cause sentence");
         for (rule, needle) in expect {

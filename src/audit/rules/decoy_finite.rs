@@ -504,7 +504,14 @@ mod tests {
             ..Link::default()
         };
         let obs = expected_block(&link, 1e8);
-        let params = RuleParams { abort_qber: 0.05, ec_efficiency: 1.16, epsilon_sec: 1e-10, epsilon_cor: 1e-12 };
+        let params = RuleParams {
+            abort_qber: 0.05,
+            ec_efficiency: 1.16,
+            epsilon_sec: 1e-10,
+            epsilon_cor: 1e-12,
+            mismatch: 1.0,
+            blinding_catch: 1.0,
+        };
         let e = estimate(&obs, &obs.intensities.unwrap(), &params).unwrap();
         assert_eq!(obs.intensities.unwrap().x_errors, [0; 3]);
         assert_eq!(e.v_x1, 0.0);
@@ -553,7 +560,14 @@ mod tests {
         };
         let signals = 1e10;
         let obs = expected_block(&link, signals);
-        let params = RuleParams { abort_qber: 0.05, ec_efficiency: 1.16, epsilon_sec: 1e-10, epsilon_cor: 1e-12 };
+        let params = RuleParams {
+            abort_qber: 0.05,
+            ec_efficiency: 1.16,
+            epsilon_sec: 1e-10,
+            epsilon_cor: 1e-12,
+            mismatch: 1.0,
+            blinding_catch: 1.0,
+        };
         let e = estimate(&obs, &obs.intensities.unwrap(), &params).unwrap();
         let (eta, y0) = (link.transmittance(), link.dark_count_probability);
         let y1 = y0 + eta - y0 * eta;

@@ -41,7 +41,8 @@ mod tests {
         // REFERENCES.md §8 [N; formula M?]: n = 1e6, k = 1e5, Q = 0.01, ε_sec = 1e-10,
         // ε_cor = 1e-12, f = 1.1: with ln(4/ε_sec) (our budget ε_smooth = ε_sec/4),
         // μ = 0.0163871 and ℓ = 735 084.0.
-        let params = RuleParams { abort_qber: 0.01, ec_efficiency: 1.1, epsilon_sec: 1e-10, epsilon_cor: 1e-12 };
+        let params =
+            RuleParams { abort_qber: 0.01, ec_efficiency: 1.1, epsilon_sec: 1e-10, epsilon_cor: 1e-12, mismatch: 1.0, blinding_catch: 1.0 };
         let obs = BlockStats { n: 1_000_000, k: 100_000, m: 1, e_z: 0.01, e_x: 0.01, intensities: None };
         assert_abs_diff_eq!(sampling_deviation(obs.n, obs.k, 1e-10 / 4.0), 0.0163871, epsilon = 1e-7);
         let l = length(&obs, &params);

@@ -14,10 +14,12 @@
 //! Commun. 3, 634, 2012).
 
 pub mod asymptotic;
+pub mod blinding_aware;
 pub mod decoy_finite;
 pub mod finite_uncertainty;
 pub mod game_min_entropy;
 pub mod individual;
+pub mod mismatch_aware;
 pub mod weak_pulse;
 
 use crate::quantum::measures::binary_entropy_capped;
@@ -45,11 +47,15 @@ pub enum KeyRule {
     DecoyVacuumWeak,
     /// Finite-key decoy-state rule with Hoeffding bounds (three intensities).
     DecoyFinite,
+    /// Finite-uncertainty with the clicks that detector efficiency mismatch may bias tagged.
+    MismatchAware,
+    /// Finite-uncertainty with the blinded periods a monitor may miss tagged.
+    BlindingAware,
 }
 
 impl KeyRule {
     /// All rules.
-    pub const ALL: [KeyRule; 8] = [
+    pub const ALL: [KeyRule; 10] = [
         KeyRule::FiniteUncertainty,
         KeyRule::Asymptotic,
         KeyRule::Individual,
@@ -58,6 +64,8 @@ impl KeyRule {
         KeyRule::GllpNoDecoy,
         KeyRule::DecoyVacuumWeak,
         KeyRule::DecoyFinite,
+        KeyRule::MismatchAware,
+        KeyRule::BlindingAware,
     ];
 
     /// Whether the rule reads decoy statistics.
@@ -85,6 +93,8 @@ impl KeyRule {
             KeyRule::GllpNoDecoy => "gllp-no-decoy",
             KeyRule::DecoyVacuumWeak => "decoy-vacuum-weak",
             KeyRule::DecoyFinite => "decoy-finite",
+            KeyRule::MismatchAware => "mismatch-aware",
+            KeyRule::BlindingAware => "blinding-aware",
         }
     }
 
@@ -99,6 +109,8 @@ impl KeyRule {
             KeyRule::GllpNoDecoy => weak_pulse::gllp_no_decoy(obs, params),
             KeyRule::DecoyVacuumWeak => weak_pulse::decoy_vacuum_weak(obs, params),
             KeyRule::DecoyFinite => decoy_finite::length(obs, params),
+            KeyRule::MismatchAware => mismatch_aware::length(obs, params),
+            KeyRule::BlindingAware => blinding_aware::length(obs, params),
         }
     }
 }
@@ -130,6 +142,12 @@ pub struct RuleParams {
     pub epsilon_sec: f64,
     /// Correctness parameter ε_cor.
     pub epsilon_cor: f64,
+    /// The detector's claimed efficiency mismatch ratio η ∈ (0, 1] (1: none, or random
+    /// swapping), read by `mismatch-aware` only.
+    pub mismatch: f64,
+    /// The claimed probability that the monitor notices a blinded detection period
+    /// (1: not blindable), read by `blinding-aware` only.
+    pub blinding_catch: f64,
 }
 
 /// What a block showed, as the post-processing sees it.

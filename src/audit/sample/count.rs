@@ -67,6 +67,7 @@ pub fn sample(model: &SignalModel, signals: u64, test_size: &dyn Fn(u64) -> u64,
     for i in 1..nb {
         out.errors[i] = binomial(out.sifted[i], model.qber(i), rng);
     }
+    out.alarm = super::monitor_alarm(model.alarm_odds, signals, rng);
     out
 }
 

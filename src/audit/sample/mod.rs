@@ -43,6 +43,9 @@ pub struct BlockCounts {
     pub key_classes: Option<[u64; 3]>,
     /// Weak-coherent links: Σ over the sampled key bits of H(X|E) of their class, bits.
     pub key_entropy_bits: Option<f64>,
+    /// Device attacks: the blinding monitor fired during the block (the block aborts).
+    #[serde(skip_serializing_if = "std::ops::Not::not")]
+    pub alarm: bool,
 }
 
 impl BlockCounts {
@@ -58,6 +61,18 @@ impl BlockCounts {
     pub fn eve_correct_key(&self) -> u64 {
         self.key[1] + self.key[3]
     }
+}
+
+/// Whether the monitor fires during a block of `rounds` detected rounds when it fires
+/// `odds` times per detected round on average (alarms and clicks as competing events of a
+/// detection period: no alarm before the last click with probability `(1 + odds)^−rounds`).
+/// Draws nothing when `odds` is 0, so models without a monitor keep their random streams.
+pub fn monitor_alarm(odds: f64, rounds: u64, rng: &mut ChaCha8Rng) -> bool {
+    if odds <= 0.0 {
+        return false;
+    }
+    let quiet = (-(rounds as f64) * odds.ln_1p()).exp();
+    rand::Rng::gen::<f64>(rng) >= quiet
 }
 
 /// Which block sampler to use.

@@ -40,6 +40,7 @@ pub struct RoundSampler {
     /// For each column: (alice basis, bob basis, cell).
     meaning: Vec<(u8, u8, u8)>,
     bases: Vec<&'static str>,
+    alarm_odds: f64,
 }
 
 impl RoundSampler {
@@ -51,7 +52,7 @@ impl RoundSampler {
         for a in 0..nb {
             for b in 0..nb {
                 for c in 0..8 {
-                    weights.push(model.basis_prob[a] * model.basis_prob[b] * model.cells[a][b][c]);
+                    weights.push(model.pair_weight(a, b) * model.cells[a][b][c]);
                     meaning.push((a as u8, b as u8, c as u8));
                 }
             }
@@ -74,7 +75,7 @@ impl RoundSampler {
         // Leftovers have probability 1 up to rounding.
         let threshold = prob.iter().map(|&p| if p >= 1.0 { u64::MAX } else { (p * 18_446_744_073_709_551_616.0) as u64 }).collect();
         let bases = model.bases.iter().map(|b| b.name()).collect();
-        RoundSampler { threshold, alias, meaning, bases }
+        RoundSampler { threshold, alias, meaning, bases, alarm_odds: model.alarm_odds }
     }
 
     #[inline]
@@ -153,6 +154,7 @@ impl RoundSampler {
                 f(r);
             }
         }
+        out.alarm = super::monitor_alarm(self.alarm_odds, signals, rng);
         out
     }
 }
