@@ -3,7 +3,7 @@
 use super::common::{note, print, Outcome};
 use crate::audit::report::manifest::{sha256_hex, InputHash, Manifest};
 use crate::audit::trial::Verdict;
-use crate::audit::{point_count, run, Campaign};
+use crate::audit::{point_count, Campaign};
 use crate::error::{Error, Result};
 use std::io::IsTerminal;
 use std::path::PathBuf;
@@ -165,7 +165,7 @@ pub fn cmd_run(a: RunArgs) -> Result<Outcome> {
             b.inc(1);
         }
     };
-    let results = pool.install(|| run(&campaign, &tick))?;
+    let (results, logs) = pool.install(|| crate::audit::engine::run_logged(&campaign, &tick))?;
     if let Some(b) = &bar {
         b.finish_and_clear();
     }
@@ -181,9 +181,17 @@ pub fn cmd_run(a: RunArgs) -> Result<Outcome> {
         started_unix_s: started.duration_since(std::time::UNIX_EPOCH).map(|d| d.as_secs()).unwrap_or(0),
         elapsed_s: clock.elapsed().as_secs_f64(),
         threads: pool.current_num_threads(),
+        rule_programs: campaign
+            .rules
+            .iter()
+            .filter_map(|r| match r {
+                crate::audit::rules::Rule::Program(p) => Some(p.provenance()),
+                _ => None,
+            })
+            .collect(),
     };
-    crate::audit::report::write_folder(folder, &campaign, &results, &manifest)?;
-    let system_rule = campaign.setup.key_rule;
+    crate::audit::report::write_folder_with(folder, &campaign, &results, &manifest, &logs)?;
+    let system_rule = campaign.setup.key_rule.clone();
     let leaks = results.iter().filter(|r| r.stats.verdict == Verdict::Leak).count();
     let gating = results.iter().filter(|r| r.stats.verdict == Verdict::Leak && (a.fail_on_any_rule || r.rule == system_rule)).count();
     if !a.quiet {

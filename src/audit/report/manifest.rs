@@ -4,6 +4,10 @@
 //! `trials`, `sampler`, `inputs` (each input's origin and SHA-256 of its text; built-in
 //! entries are named `builtin:<name>`), `started_unix_s`, `elapsed_s`, `threads`. Only
 //! `started_unix_s`, `elapsed_s` and `threads` vary between runs with the same inputs.
+//! Rule files are inputs like attack files; a campaign with rule programs adds
+//! `rule_programs`: per program its `rule`, `rule_file`, `command`, `working_dir`, `files`
+//! (every file the command names, the program found on PATH included, with its SHA-256) and
+//! `version_output` (what `<command> --version` printed, or null).
 
 use serde::Serialize;
 use sha2::{Digest, Sha256};
@@ -42,6 +46,10 @@ pub struct Manifest {
     pub elapsed_s: f64,
     /// Worker threads used.
     pub threads: usize,
+    /// Rule programs run (command, SHA-256 of the files it names, `--version` output);
+    /// left out when there are none.
+    #[serde(skip_serializing_if = "Vec::is_empty")]
+    pub rule_programs: Vec<crate::audit::rules::program::Provenance>,
 }
 
 /// Hex SHA-256 of a text.

@@ -38,7 +38,7 @@ fn plot_err<E: std::fmt::Debug>(e: E) -> Error {
 /// Renders all plots as (file name, SVG text).
 pub fn render(c: &Campaign, results: &[PointResult]) -> Result<Vec<(String, String)>> {
     let mut out = vec![("eve_information.svg".to_string(), eve_information(c, results)?)];
-    let mut groups: Vec<(usize, crate::audit::rules::KeyRule)> = results.iter().map(|r| (r.entry, r.rule)).collect();
+    let mut groups: Vec<(usize, crate::audit::rules::Rule)> = results.iter().map(|r| (r.entry, r.rule.clone())).collect();
     groups.dedup();
     for (e, rule) in groups {
         let pts: Vec<&PointResult> = results.iter().filter(|r| r.entry == e && r.rule == rule && r.swept.is_some()).collect();

@@ -94,8 +94,8 @@ fn leak_cause(c: &Campaign, r: &PointResult) -> String {
             pct(s.eve_guess_rate)
         );
     }
-    match r.rule {
-        KeyRule::Asymptotic
+    match r.rule.builtin() {
+        Some(KeyRule::Asymptotic)
             // No attack (H(X|E) = 1, exact after the evaluator's rounding snap) and an excess
             // equal to the hash's length within the converse's 2 log₂ n slack.
             if (s.mean_excess - verification).abs() <= 2.0 * (s.mean_key_bits.max(2.0)).log2() && r.exact.h_x_given_e >= 1.0 =>
@@ -106,14 +106,14 @@ fn leak_cause(c: &Campaign, r: &PointResult) -> String {
                 num(verification)
             )
         }
-        KeyRule::Asymptotic => format!(
+        Some(KeyRule::Asymptotic) => format!(
             "the rule has no finite-size term: it takes the observed phase error rate ({}) as exact, while the attack leaves \
              H(X|E) = {} bits per key bit, and it subtracts neither a sampling deviation nor the privacy-amplification and \
              verification costs",
             pct(s.mean_e_x),
             num(r.exact.h_x_given_e)
         ),
-        KeyRule::Individual => format!(
+        Some(KeyRule::Individual) => format!(
             "the rule assumes Eve measures each signal on its own (accessible information {} bits per key bit), but this \
              attack keeps her quantum memory until the bases are announced: her Holevo information is {} bits per key bit",
             r.exact.accessible_z.map_or("-".to_string(), num),
@@ -236,7 +236,7 @@ pub fn render(c: &Campaign, results: &[PointResult]) -> String {
         s,
         "Verdicts per trial: `aborted`, `no-key`, `secure` (ℓ ≤ achievable), `inconclusive`, `leak` (ℓ > capacity + 2 log₂ n).\n"
     );
-    let mut groups: Vec<(usize, crate::audit::rules::KeyRule)> = results.iter().map(|r| (r.entry, r.rule)).collect();
+    let mut groups: Vec<(usize, crate::audit::rules::Rule)> = results.iter().map(|r| (r.entry, r.rule.clone())).collect();
     groups.dedup();
     for (e, rule) in groups {
         let pts: Vec<&PointResult> = results.iter().filter(|r| r.entry == e && r.rule == rule).collect();
@@ -353,8 +353,8 @@ fn matrix(s: &mut String, c: &Campaign, results: &[PointResult]) {
 /// For every leaking (attack, rule) pair: the excess at the first leaking point and at the
 /// worst, in bits and as a share of the key, and the cause.
 fn explain_leaks(s: &mut String, c: &Campaign, results: &[PointResult]) {
-    let mut pairs: Vec<(usize, crate::audit::rules::KeyRule)> =
-        results.iter().filter(|r| r.stats.verdict == Verdict::Leak).map(|r| (r.entry, r.rule)).collect();
+    let mut pairs: Vec<(usize, crate::audit::rules::Rule)> =
+        results.iter().filter(|r| r.stats.verdict == Verdict::Leak).map(|r| (r.entry, r.rule.clone())).collect();
     pairs.dedup();
     if pairs.is_empty() {
         return;
