@@ -4,15 +4,17 @@
 //! ```toml
 //! name = "vendor-finite"                 # shown in tables as file:<name>
 //! description = "the vendor's formula"   # optional
+//! key_length = "n * (1 - h(abort_qber + mu)) - leak_ec - pa"   # bits, floored
+//! abort_if = "e_x > 0.1 || e_z > 0.1"    # optional; default: the setup's abort_qber
 //! [[let]]                                # optional named intermediates, in order;
 //! name = "mu"                            # each may use the ones before it
 //! value = "serfling(n, k, eps_sec / 4)"
 //! [[let]]
 //! name = "pa"
 //! value = "2 * log2(1 / eps_sec)"
-//! key_length = "n * (1 - h(abort_qber + mu)) - leak_ec - pa"   # bits, floored
-//! abort_if = "e_x > 0.1 || e_z > 0.1"    # optional; default: the setup's abort_qber
 //! ```
+//! (TOML puts every key after a `[[let]]` header into that entry, so the top-level keys
+//! come first.)
 //!
 //! Expressions: numbers, the variables of [`super::block_vars::VARIABLES`], the `let`
 //! names, `+ - * / % ^`, comparisons `< <= > >= == !=`, `&& || !` (true is 1, false 0)
@@ -293,7 +295,10 @@ fn compile(node: &Node, text: &str, names: &dyn Fn(&str) -> Option<usize>, depth
         return Err(plain(format!("the expression is nested deeper than {MAX_DEPTH} levels")));
     }
     let kids = node.children();
-    let child = |i: usize| compile(&kids[i], text, names, depth + 1);
+    let child = |i: usize| match kids.get(i) {
+        Some(k) => compile(k, text, names, depth + 1),
+        None => Err(ExprProblem { message: format!("`{}` is missing an operand", node.operator()), at: None }),
+    };
     let bin = |op: Bin| -> std::result::Result<Expr, ExprProblem> { Ok(Expr::Bin(Bin2(op, Box::new(child(0)?), Box::new(child(1)?)))) };
     match node.operator() {
         Operator::RootNode => match kids.len() {
@@ -342,7 +347,9 @@ fn compile(node: &Node, text: &str, names: &dyn Fn(&str) -> Option<usize>, depth
                 });
             };
             // The argument is one expression or a tuple of them (maybe in a root node).
-            let mut arg = &kids[0];
+            let Some(mut arg) = kids.first() else {
+                return Err(ExprProblem { message: format!("`{identifier}` needs its arguments in parentheses"), at: find_word(text, identifier) });
+            };
             while matches!(arg.operator(), Operator::RootNode) && arg.children().len() == 1 {
                 arg = &arg.children()[0];
             }
@@ -470,7 +477,14 @@ impl FormulaRule {
                         p.push(Error::input_key(key, "must be a table with `name` and `value`"));
                         continue;
                     };
-                    p.nested(&key, crate::input::unknown_keys(table, &["name", "value"], "a [[let]] entry"));
+                    for e in crate::input::unknown_keys(table, &["name", "value"], "a [[let]] entry") {
+                        let hint = if matches!(e.key(), Some("key_length" | "abort_if" | "description")) {
+                            "; TOML puts every key after a [[let]] header into that entry: write key_length and abort_if above the first [[let]]"
+                        } else {
+                            ""
+                        };
+                        p.push(Error::input_key(format!("{key}.{}", e.key().unwrap_or("")), format!("{}{hint}", e.message())));
+                    }
                     let lname = match table.get("name").and_then(|v| v.as_str()) {
                         Some(s) if valid_let_name(s) => {
                             if block_vars::slot(s).is_some() || let_names.iter().any(|n| n == s) {
@@ -628,7 +642,8 @@ mod tests {
             ("key_length = \"min(n)\"", "takes 2 argument"),
             ("key_length = \"n; k\"", "`;`"),
             ("key_length = 5", "string"),
-            ("key_length = \"n +\"", "not a valid expression"),
+            ("key_length = \"n +\"", "missing an operand"),
+            ("key_length = \"(n\"", "valid expression"),
         ] {
             let errs = FormulaRule::parse(&format!("name = \"x\"\n{bad}\n"), "r.toml").unwrap_err();
             assert!(errs[0].to_string().contains(what), "{bad}: {}", errs[0]);

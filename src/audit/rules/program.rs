@@ -442,11 +442,16 @@ pub struct Session {
     log: ProgramLog,
 }
 
-/// A double as JSON: shortest round-trip decimal, `null` for NaN (JSON has no NaN).
+/// A double as JSON: an integer when it is one, else the shortest decimal that reads back
+/// as the same double; `null` for NaN (JSON has no NaN), ±1e999 for ±∞.
 fn push_number(out: &mut String, x: f64) {
     use std::fmt::Write;
-    if x.is_finite() {
-        let _ = write!(out, "{x}");
+    if x.is_finite() && x.fract() == 0.0 && x.abs() < 1e15 {
+        // Counts as integers.
+        let _ = write!(out, "{}", x as i64);
+    } else if x.is_finite() {
+        // Shortest round-trip decimal, with an exponent for very small or large values.
+        let _ = write!(out, "{x:?}");
     } else if x.is_nan() {
         out.push_str("null");
     } else if x > 0.0 {
