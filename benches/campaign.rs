@@ -81,7 +81,8 @@ fn link_vs_single_photon(c: &mut Criterion) {
     let setup = campaign.setup.clone();
     let lm = PulseModel::new(&setup.link, Some(&PulseAttack::PhotonNumberSplitting { fraction: 0.5 }), &setup.basis_probabilities());
     let sp = SignalModel::new(&cloner(), Protocol::Bb84, &setup.basis_probabilities());
-    let sp_setup = Setup { key_rule: qkd_audit::audit::rules::KeyRule::FiniteUncertainty.into(), link: Default::default(), ..setup.clone() };
+    let sp_setup =
+        Setup { key_rule: qkd_audit::audit::rules::KeyRule::FiniteUncertainty.into(), link: Default::default(), ..setup.clone() };
     let trials = 20_000u64;
     let mut group = c.benchmark_group("trials per second, link vs single photon (2 threads)");
     group.throughput(Throughput::Elements(trials));

@@ -82,8 +82,16 @@ fn main() {
             let key_bits = match mode.as_str() {
                 "zero" => 0,
                 _ => {
-                    let obs = BlockStats { n: b.n, k: b.k, m: b.m, e_z: b.e_z.unwrap_or(f64::NAN), e_x: b.e_x.unwrap_or(f64::NAN), ..Default::default() };
-                    let params = RuleParams { abort_qber: b.abort_qber, ec_efficiency: b.f, epsilon_sec: b.eps_sec, epsilon_cor: b.eps_cor };
+                    let obs = BlockStats {
+                        n: b.n,
+                        k: b.k,
+                        m: b.m,
+                        e_z: b.e_z.unwrap_or(f64::NAN),
+                        e_x: b.e_x.unwrap_or(f64::NAN),
+                        ..Default::default()
+                    };
+                    let params =
+                        RuleParams { abort_qber: b.abort_qber, ec_efficiency: b.f, epsilon_sec: b.eps_sec, epsilon_cor: b.eps_cor };
                     KeyRule::FiniteUncertainty.length(&obs, &params).length
                 }
             };

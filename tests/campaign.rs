@@ -35,8 +35,13 @@ fn verdicts(a: &Attack, setup: &Setup, trials: u64, seed: u64) -> Vec<Verdict> {
     (0..trials)
         .map(|t| {
             let mut rng = trial_rng(seed, 0, t);
-            judge(&sample_block(Sampler::Count, &model, setup.signals, &ts, &mut rng), setup.key_rule.clone(), &setup.rule_params(), e.h_x_given_e)
-                .verdict
+            judge(
+                &sample_block(Sampler::Count, &model, setup.signals, &ts, &mut rng),
+                setup.key_rule.clone(),
+                &setup.rule_params(),
+                e.h_x_given_e,
+            )
+            .verdict
         })
         .collect()
 }

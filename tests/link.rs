@@ -77,7 +77,9 @@ fn verdicts(attack: PulseAttack, setup: &Setup, trials: u64, seed: u64) -> Vec<V
     let h = model.h_x_given_e();
     let ts = |z: u64| setup.test_sample.size(z);
     (0..trials)
-        .map(|t| judge(&sample(&model, setup.signals, &ts, &mut trial_rng(seed, 0, t)), setup.key_rule.clone(), &setup.rule_params(), h).verdict)
+        .map(|t| {
+            judge(&sample(&model, setup.signals, &ts, &mut trial_rng(seed, 0, t)), setup.key_rule.clone(), &setup.rule_params(), h).verdict
+        })
         .collect()
 }
 

@@ -127,7 +127,8 @@ fn run_double(dir: &Path, mode: &str, timeout_s: f64, extra: &[&str]) -> Output 
     let mut command = vec![double().display().to_string(), "--mode".into(), mode.into(), "--at".into(), "3".into()];
     command.extend(extra.iter().map(|s| s.to_string()));
     let command: Vec<String> = command.iter().map(|a| format!("{a:?}")).collect();
-    std::fs::write(dir.join("double.toml"), format!("name = \"double\"\ncommand = [{}]\ntimeout_s = {timeout_s}\n", command.join(", "))).unwrap();
+    std::fs::write(dir.join("double.toml"), format!("name = \"double\"\ncommand = [{}]\ntimeout_s = {timeout_s}\n", command.join(", ")))
+        .unwrap();
     std::fs::write(dir.join("c.toml"), campaign_text(&["file:double.toml".into()], 100_000, 8)).unwrap();
     qkd(&["run", "c.toml", "--results-dir", "out", "--force", "--quiet"], dir)
 }

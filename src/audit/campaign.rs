@@ -220,7 +220,10 @@ impl Campaign {
                     match rules.iter().find(|r| **r == rule) {
                         Some(r) if r.origin() != rule.origin() => p.push(Error::input_key(
                             key,
-                            format!("a second rule named `{rule}` (from {}); rule files need names of their own", rule.origin().unwrap_or("-")),
+                            format!(
+                                "a second rule named `{rule}` (from {}); rule files need names of their own",
+                                rule.origin().unwrap_or("-")
+                            ),
                         )),
                         Some(_) => {}
                         None => rules.push(rule),

@@ -196,7 +196,9 @@ fn run_point(c: &Campaign, p: &Prepared, sessions: &mut [Option<Session>]) -> Re
                     let mut given = session.ask(&asked)?.into_iter();
                     blocks
                         .iter()
-                        .map(|(_, s)| (!trial::is_empty(s)).then(|| given.next().map(|a| RuleAnswer { abort: a.abort, length: a.length })).flatten())
+                        .map(|(_, s)| {
+                            (!trial::is_empty(s)).then(|| given.next().map(|a| RuleAnswer { abort: a.abort, length: a.length })).flatten()
+                        })
                         .collect()
                 }
                 _ => blocks

@@ -116,7 +116,8 @@ impl Setup {
         let text = crate::input::read_text(path).map_err(|e| vec![e])?;
         let table: toml::Table = parse_toml(&text).map_err(|e| vec![e.with_file(path)])?;
         let base = path.parent().map(Path::to_path_buf).unwrap_or_default();
-        Setup::parse_all_in(&table, Some(&base)).map_err(|errs| errs.into_iter().map(|e| crate::input::locate(e, &text).with_file(path)).collect())
+        Setup::parse_all_in(&table, Some(&base))
+            .map_err(|errs| errs.into_iter().map(|e| crate::input::locate(e, &text).with_file(path)).collect())
     }
 
     /// Validates a parsed TOML table; every key is optional and defaults as in

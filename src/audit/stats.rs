@@ -196,8 +196,10 @@ impl Tally {
         let leaks = self.count(Verdict::Leak);
         let frac = |k: u64| if t == 0 { f64::NAN } else { k as f64 / t as f64 };
         let class = |k: u64| if self.class_total == 0 { f64::NAN } else { k as f64 / self.class_total as f64 };
-        let present: Vec<Verdict> =
-            [Verdict::Aborted, Verdict::NoKey, Verdict::Secure, Verdict::Inconclusive, Verdict::Leak].into_iter().filter(|v| self.count(*v) > 0).collect();
+        let present: Vec<Verdict> = [Verdict::Aborted, Verdict::NoKey, Verdict::Secure, Verdict::Inconclusive, Verdict::Leak]
+            .into_iter()
+            .filter(|v| self.count(*v) > 0)
+            .collect();
         self.lengths.sort_unstable();
         PointStats {
             trials: t,

@@ -133,7 +133,7 @@ pub fn threshold_aborts(stats: &BlockStats, params: &RuleParams) -> bool {
     exceeds(stats.e_x) || exceeds(stats.e_z) || exceeds(stats.e_y)
 }
 
-/// Post-processes a block with `rule` (a [`KeyRule`] or a [`Rule`]) and judges the key
+/// Post-processes a block with `rule` (a [`crate::audit::rules::KeyRule`] or a [`Rule`]) and judges the key
 /// against the attack's `h_x_given_e`. For a built-in rule or a formula; a formula's NaN
 /// and a rule program (asked in batches by the engine) are programmer errors here.
 #[track_caller]
@@ -153,7 +153,13 @@ pub fn judge(counts: &BlockCounts, rule: impl Into<Rule>, params: &RuleParams, h
 /// Judges a block given the rule's `answer` (`None` for an empty block, which no rule is
 /// asked about): it aborts if empty, or if the rule says so, or, when the rule leaves the
 /// decision to the setup, if an observed error rate exceeds the threshold.
-pub fn judge_answer(counts: &BlockCounts, stats: BlockStats, answer: Option<RuleAnswer>, params: &RuleParams, h_x_given_e: f64) -> TrialOutcome {
+pub fn judge_answer(
+    counts: &BlockCounts,
+    stats: BlockStats,
+    answer: Option<RuleAnswer>,
+    params: &RuleParams,
+    h_x_given_e: f64,
+) -> TrialOutcome {
     let n = stats.n;
     let e_y = stats.e_y;
     let aborted = match answer {

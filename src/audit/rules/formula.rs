@@ -348,7 +348,10 @@ fn compile(node: &Node, text: &str, names: &dyn Fn(&str) -> Option<usize>, depth
             };
             // The argument is one expression or a tuple of them (maybe in a root node).
             let Some(mut arg) = kids.first() else {
-                return Err(ExprProblem { message: format!("`{identifier}` needs its arguments in parentheses"), at: find_word(text, identifier) });
+                return Err(ExprProblem {
+                    message: format!("`{identifier}` needs its arguments in parentheses"),
+                    at: find_word(text, identifier),
+                });
             };
             while matches!(arg.operator(), Operator::RootNode) && arg.children().len() == 1 {
                 arg = &arg.children()[0];
@@ -360,7 +363,12 @@ fn compile(node: &Node, text: &str, names: &dyn Fn(&str) -> Option<usize>, depth
             };
             if args.len() != FUNCTIONS[f].arity {
                 return Err(ExprProblem {
-                    message: format!("`{identifier}` takes {} argument(s), not {}: {}", FUNCTIONS[f].arity, args.len(), FUNCTIONS[f].meaning),
+                    message: format!(
+                        "`{identifier}` takes {} argument(s), not {}: {}",
+                        FUNCTIONS[f].arity,
+                        args.len(),
+                        FUNCTIONS[f].meaning
+                    ),
                     at: find_word(text, identifier),
                 });
             }
@@ -504,7 +512,9 @@ impl FormulaRule {
                     };
                     let value = match table.get("value").and_then(|v| v.as_str()) {
                         Some(s) => {
-                            let known = |n: &str| block_vars::slot(n).or_else(|| let_names.iter().position(|l| l == n).map(|j| block_vars::COUNT + j));
+                            let known = |n: &str| {
+                                block_vars::slot(n).or_else(|| let_names.iter().position(|l| l == n).map(|j| block_vars::COUNT + j))
+                            };
                             match parse_expr(s, &known) {
                                 Ok(e) => Some(e),
                                 Err(problem) => {
@@ -557,13 +567,24 @@ impl FormulaRule {
         slots_used(&key_length, &mut used);
         abort_if.iter().for_each(|e| slots_used(e, &mut used));
         lets.iter().for_each(|(_, e)| slots_used(e, &mut used));
-        let intensities_read = used.iter().filter_map(|&s| (s < block_vars::COUNT).then(|| block_vars::intensity_of(s)).flatten()).max().unwrap_or(0);
-        p.finish(FormulaRule { name, description, origin: origin.to_string(), text: text.to_string(), lets, key_length, abort_if, intensities_read })
+        let intensities_read =
+            used.iter().filter_map(|&s| (s < block_vars::COUNT).then(|| block_vars::intensity_of(s)).flatten()).max().unwrap_or(0);
+        p.finish(FormulaRule {
+            name,
+            description,
+            origin: origin.to_string(),
+            text: text.to_string(),
+            lets,
+            key_length,
+            abort_if,
+            intensities_read,
+        })
     }
 
     /// Reads a rule file's text with every problem located in it and named by `origin`.
     pub fn parse(text: &str, origin: &str) -> std::result::Result<FormulaRule, Vec<Error>> {
-        FormulaRule::parse_all(text, origin).map_err(|errs| errs.into_iter().map(|e| crate::input::locate(e, text).with_file(origin)).collect())
+        FormulaRule::parse_all(text, origin)
+            .map_err(|errs| errs.into_iter().map(|e| crate::input::locate(e, text).with_file(origin)).collect())
     }
 
     /// Evaluates the rule on one block.
@@ -656,7 +677,9 @@ mod tests {
     fn the_written_out_finite_uncertainty_rule_gives_the_built_in_numbers_bit_for_bit() {
         let rule = FormulaRule::parse(FINITE_UNCERTAINTY_EXAMPLE, "finite-uncertainty.toml").unwrap();
         assert!(rule.abort_if.is_some());
-        for (n, k, m, ez, ex) in [(1_000_000, 100_000, 1, 0.01, 0.01), (5_000, 700, 80, 0.02, 0.03), (90, 12, 0, f64::NAN, 0.0), (10, 1, 1, 0.0, 0.0)] {
+        for (n, k, m, ez, ex) in
+            [(1_000_000, 100_000, 1, 0.01, 0.01), (5_000, 700, 80, 0.02, 0.03), (90, 12, 0, f64::NAN, 0.0), (10, 1, 1, 0.0, 0.0)]
+        {
             let obs = BlockStats { n, k, m, e_z: ez, e_x: ex, ..Default::default() };
             let built_in = finite_uncertainty::length(&obs, &params()).raw_bits;
             assert_eq!(rule.eval(&obs, &params()).raw_bits.to_bits(), built_in.to_bits(), "n={n} k={k}");

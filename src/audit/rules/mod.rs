@@ -162,9 +162,10 @@ pub fn resolve_rule(name: &str, base: Option<&std::path::Path>) -> std::result::
             }
             None => Err(vec![Error::input(format!("`{name}`: a built-in campaign cannot refer to files"))]),
         },
-        None => name.parse::<KeyRule>().map(Rule::Builtin).map_err(|e| {
-            vec![Error::input(format!("{e}, or a rule file as \"{FILE_PREFIX}<path>\""))]
-        }),
+        None => name
+            .parse::<KeyRule>()
+            .map(Rule::Builtin)
+            .map_err(|e| vec![Error::input(format!("{e}, or a rule file as \"{FILE_PREFIX}<path>\""))]),
     }
 }
 
@@ -177,7 +178,10 @@ pub fn rule_name(v: &toml::Value, key: &str) -> crate::error::Result<String> {
         return Err(crate::error::Error::input_key(key, format!("`{s}`: a rule's name is made of letters, digits, '-', '_' and '.'")));
     }
     if KeyRule::ALL.iter().any(|r| r.name() == s) {
-        return Err(crate::error::Error::input_key(key, format!("`{s}` is the name of a built-in rule; give the rule file a name of its own")));
+        return Err(crate::error::Error::input_key(
+            key,
+            format!("`{s}` is the name of a built-in rule; give the rule file a name of its own"),
+        ));
     }
     Ok(s)
 }

@@ -186,7 +186,9 @@ impl ProgramRule {
         };
         let description = t.get("description").and_then(|v| v.as_str()).unwrap_or_default().to_string();
         let command: Vec<String> = match t.get("command") {
-            Some(toml::Value::Array(a)) if !a.is_empty() && a.iter().all(|v| v.as_str().is_some_and(|s| !s.is_empty() && !s.contains('\0'))) => {
+            Some(toml::Value::Array(a))
+                if !a.is_empty() && a.iter().all(|v| v.as_str().is_some_and(|s| !s.is_empty() && !s.contains('\0'))) =>
+            {
                 a.iter().filter_map(|v| v.as_str().map(str::to_string)).collect()
             }
             _ => {
@@ -324,7 +326,12 @@ impl ProgramRule {
         let mut child = self.spawn(&[], Stdio::piped()).map_err(|e| {
             Error::new(
                 ErrorKind::Io,
-                format!("rule program `{}` (rule file {}): cannot start `{}`: {e}", self.command_line(), self.origin, self.program().display()),
+                format!(
+                    "rule program `{}` (rule file {}): cannot start `{}`: {e}",
+                    self.command_line(),
+                    self.origin,
+                    self.program().display()
+                ),
             )
         })?;
         let stdin = child.stdin.take().expect("piped stdin");
@@ -466,7 +473,11 @@ fn push_number(out: &mut String, x: f64) {
 pub fn request(rule: &str, batch: u64, blocks: &[(TrialId, &BlockStats, &RuleParams)]) -> String {
     use std::fmt::Write;
     let mut s = String::with_capacity(64 + blocks.len() * 700);
-    let _ = write!(s, "{{\"version\":{PROTOCOL_VERSION},\"type\":\"batch\",\"rule\":{},\"batch\":{batch},\"blocks\":[", serde_json::Value::from(rule));
+    let _ = write!(
+        s,
+        "{{\"version\":{PROTOCOL_VERSION},\"type\":\"batch\",\"rule\":{},\"batch\":{batch},\"blocks\":[",
+        serde_json::Value::from(rule)
+    );
     for (i, (id, obs, params)) in blocks.iter().enumerate() {
         if i > 0 {
             s.push(',');
@@ -474,8 +485,8 @@ pub fn request(rule: &str, batch: u64, blocks: &[(TrialId, &BlockStats, &RulePar
         let _ = write!(s, "{{\"point\":{},\"trial\":{}", id.point, id.trial);
         let values = block_vars::values(obs, params);
         let present = obs.intensities.map_or(0, |l| l.count);
-        for (v, x) in VARIABLES.iter().zip(values) {
-            if block_vars::intensity_of(block_vars::slot(v.name).unwrap_or(0)).is_some_and(|i| i > present) {
+        for (slot, (v, x)) in VARIABLES.iter().zip(values).enumerate() {
+            if block_vars::intensity_of(slot).is_some_and(|i| i > present) {
                 continue;
             }
             let _ = write!(s, ",\"{}\":", v.name);
@@ -515,7 +526,9 @@ impl Session {
                 }
                 Ok(Line::Failed(e)) => return Err(self.fail(&format!("its output could not be read: {e}"), Some(*id))),
                 Err(RecvTimeoutError::Timeout) => {
-                    return Err(self.fail(&format!("did not answer within the batch timeout of {} s", self.timeout.as_secs_f64()), Some(*id)))
+                    return Err(
+                        self.fail(&format!("did not answer within the batch timeout of {} s", self.timeout.as_secs_f64()), Some(*id))
+                    )
                 }
             };
             self.keep_tail(&line);
@@ -567,7 +580,7 @@ impl Session {
             ));
         }
         let key_bits = match obj.get("key_bits").and_then(|k| k.as_f64()) {
-            Some(x) if x.is_finite() && x >= 0.0 && x < 1.8e19 => x.floor() as u64,
+            Some(x) if (0.0..u64::MAX as f64).contains(&x) => x.floor() as u64,
             Some(x) => return Err(format!("answered key_bits = {x}; key_bits must be a finite number ≥ 0")),
             None => return Err("answered without a numeric key_bits".into()),
         };
@@ -647,7 +660,11 @@ impl Session {
         match wait_with_grace(&mut self.child) {
             Some(s) if s.success() => {}
             other => {
-                let what = format!("exited with {} {}", other.map_or("no status (killed after the grace time)".into(), |s| s.to_string()), last(&self));
+                let what = format!(
+                    "exited with {} {}",
+                    other.map_or("no status (killed after the grace time)".into(), |s| s.to_string()),
+                    last(&self)
+                );
                 return Err(self.fail(&what, after));
             }
         }
