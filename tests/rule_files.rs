@@ -197,3 +197,32 @@ fn the_readme_documents_every_variable_and_function() {
     let spec = std::fs::read_to_string(repo().join("docs/rule-programs.md")).unwrap();
     assert!(spec.contains("\"version\": 1") && spec.contains("key_bits") && spec.contains("error"));
 }
+
+#[test]
+fn a_nan_key_length_stops_the_run_naming_rule_and_trial() {
+    let dir = tempfile::tempdir().unwrap();
+    std::fs::write(dir.path().join("nan.toml"), "name = \"nan-rule\"\nkey_length = \"n / (k - k) * 0\"\n").unwrap();
+    std::fs::write(dir.path().join("c.toml"), campaign_text(&["file:nan.toml".into()], 100_000, 4)).unwrap();
+    let out = qkd(&["run", "c.toml", "--results-dir", "out", "--quiet"], dir.path());
+    let err = String::from_utf8_lossy(&out.stderr);
+    assert_eq!(out.status.code(), Some(2), "{err}");
+    assert!(err.contains("nan.toml") && err.contains("key_length is NaN") && err.contains("point 0 trial 0"), "{err}");
+    assert!(!dir.path().join("out/rules-test").exists());
+}
+
+#[test]
+fn a_rule_may_take_the_abort_decision_from_the_setup() {
+    // abort_if = "0" never aborts, a program answering abort = true always does; without
+    // either, the setup's threshold decides (the built-in rule aborts some blocks here).
+    let dir = tempfile::tempdir().unwrap();
+    std::fs::write(dir.path().join("never.toml"), "name = \"never-aborts\"\nkey_length = \"0\"\nabort_if = \"0\"\n").unwrap();
+    let script = "import sys, json\nfor line in sys.stdin:\n    for b in json.loads(line)['blocks']:\n        print(json.dumps({'point': b['point'], 'trial': b['trial'], 'key_bits': 5, 'abort': True}))\n    sys.stdout.flush()\n";
+    std::fs::write(dir.path().join("always.py"), script).unwrap();
+    std::fs::write(dir.path().join("always.toml"), "name = \"always-aborts\"\ncommand = [\"python3\", \"always.py\"]\n").unwrap();
+    let c = load(dir.path(), &campaign_text(&["file:never.toml".into(), "file:always.toml".into()], 100_000, 20));
+    let results = engine::run(&c, &|| {}).unwrap();
+    let aborts = |rule: &str| results.iter().filter(|r| r.rule.name() == rule).map(|r| r.stats.abort_probability).collect::<Vec<f64>>();
+    assert!(aborts("finite-uncertainty").iter().any(|&p| p > 0.0 && p < 1.0));
+    assert!(aborts("never-aborts").iter().all(|&p| p == 0.0));
+    assert!(aborts("always-aborts").iter().all(|&p| p == 1.0));
+}

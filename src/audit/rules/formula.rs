@@ -417,8 +417,8 @@ pub struct FormulaRule {
 /// What a formula gives for one block.
 #[derive(Clone, Copy, Debug, PartialEq)]
 pub struct FormulaValue {
-    /// `abort_if`'s verdict, when the rule has one.
-    pub abort: Option<bool>,
+    /// `abort_if`'s value, when the rule has one: nonzero aborts (NaN is the caller's error).
+    pub abort: Option<f64>,
     /// The key length's value in bits before flooring (NaN is the caller's error).
     pub raw_bits: f64,
 }
@@ -594,17 +594,7 @@ impl FormulaRule {
         for (i, (_, e)) in self.lets.iter().enumerate() {
             slots[block_vars::COUNT + i] = e.eval(&slots);
         }
-        FormulaValue { abort: self.abort_if.as_ref().map(|e| e.eval(&slots)).map(|x| x != 0.0), raw_bits: self.key_length.eval(&slots) }
-    }
-
-    /// Whether the `abort_if` value of a block is NaN (an error, like a NaN length).
-    pub fn abort_is_nan(&self, obs: &BlockStats, params: &RuleParams) -> bool {
-        let mut slots = [f64::NAN; block_vars::COUNT + MAX_LETS];
-        slots[..block_vars::COUNT].copy_from_slice(&block_vars::values(obs, params));
-        for (i, (_, e)) in self.lets.iter().enumerate() {
-            slots[block_vars::COUNT + i] = e.eval(&slots);
-        }
-        self.abort_if.as_ref().is_some_and(|e| e.eval(&slots).is_nan())
+        FormulaValue { abort: self.abort_if.as_ref().map(|e| e.eval(&slots)), raw_bits: self.key_length.eval(&slots) }
     }
 }
 

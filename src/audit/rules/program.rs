@@ -681,3 +681,36 @@ impl Drop for Session {
         }
     }
 }
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn requests_carry_every_variable_exactly_and_leave_out_absent_intensities() {
+        let obs = BlockStats { signals: 10, n: 7, k: 3, m: 2, e_z: 0.1 + 0.2, e_x: f64::NAN, key_errors: 1, ..Default::default() };
+        let params = RuleParams { abort_qber: 0.05, ec_efficiency: 1.16, epsilon_sec: 1e-10, epsilon_cor: 1e-300 };
+        let line = request("r", 4, &[(TrialId { point: 2, trial: 9 }, &obs, &params)]);
+        assert!(line.ends_with("]}\n") && !line[..line.len() - 1].contains('\n'));
+        let v: serde_json::Value = serde_json::from_str(&line).unwrap();
+        assert_eq!(v["version"], PROTOCOL_VERSION);
+        assert_eq!(v["batch"], 4);
+        let b = &v["blocks"][0];
+        assert_eq!((b["point"].as_u64(), b["trial"].as_u64(), b["n"].as_u64()), (Some(2), Some(9), Some(7)));
+        // Doubles read back bit for bit; a rate without data is null.
+        assert_eq!(b["e_z"].as_f64().unwrap().to_bits(), (0.1f64 + 0.2).to_bits());
+        assert_eq!(b["eps_cor"].as_f64(), Some(1e-300));
+        assert_eq!(b["leak_ec"].as_f64().unwrap().to_bits(), super::super::ec_leak_bits(&obs, &params).to_bits());
+        assert!(b["e_x"].is_null());
+        assert!(b.get("mu1").is_none(), "a single-photon block has no per-intensity fields");
+        assert_eq!(b.as_object().unwrap().len(), 2 + VARIABLES.len() - 27);
+    }
+
+    #[test]
+    fn bad_program_files_are_reported_key_by_key() {
+        let t: toml::Table = "name = \"a b\"\ncommand = []\ntimeout_s = 0\ncolour = 1\n".parse().unwrap();
+        let errs = ProgramRule::from_table(&t, "p.toml", Path::new("."), "").unwrap_err();
+        let keys: Vec<&str> = errs.iter().filter_map(|e| e.key()).collect();
+        assert_eq!(keys, ["colour", "name", "command", "timeout_s"]);
+    }
+}

@@ -76,14 +76,15 @@ impl Rule {
             Rule::Builtin(r) => Ok(RuleAnswer { abort: None, length: if threshold_aborts { 0 } else { r.length(obs, params).length } }),
             Rule::Formula(f) => {
                 let v = f.eval(obs, params);
-                if f.abort_is_nan(obs, params) {
+                if v.abort.is_some_and(f64::is_nan) {
                     return Err(format!("rule file `{}`: abort_if is NaN", f.origin));
                 }
-                let aborted = v.abort.unwrap_or(threshold_aborts);
+                let abort = v.abort.map(|x| x != 0.0);
+                let aborted = abort.unwrap_or(threshold_aborts);
                 if v.raw_bits.is_nan() && !aborted {
                     return Err(format!("rule file `{}`: key_length is NaN", f.origin));
                 }
-                Ok(RuleAnswer { abort: v.abort, length: super::KeyLength::floor_bits(v.raw_bits) })
+                Ok(RuleAnswer { abort, length: super::KeyLength::floor_bits(v.raw_bits) })
             }
             Rule::Program(p) => Err(format!("rule program `{}` is asked in batches, not per block", p.name)),
         }
