@@ -65,7 +65,8 @@ pub struct RunArgs {
 /// this machine class's measured orders of magnitude (DEVELOPERS.md, "Measured speed"):
 /// about 1 µs per judged trial and rule with the count-level sampler, 10⁸ signals per
 /// second with the per-round sampler, a millisecond per point for the exact evaluation;
-/// memory about 1 kB per trial and rule of the points in flight.
+/// memory about 1 kB per block and rule of a chunk of trials, plus 8 bytes per trial and
+/// rule, for each point in flight. Rule programs are not timed (their speed is theirs).
 fn plan(campaign: &Campaign, dir: &std::path::Path, force: bool) -> String {
     let points = point_count(campaign);
     let rules = campaign.rules.len();
@@ -76,7 +77,10 @@ fn plan(campaign: &Campaign, dir: &std::path::Path, force: bool) -> String {
     };
     let cpu_s = points as f64 * (trials * per_trial_s + 1e-3);
     let threads = rayon::current_num_threads();
-    let memory_mb = threads.min(points) as f64 * trials * rules as f64 * 1e3 / 1e6;
+    // Per point in flight: a chunk of sampled and judged blocks (about 1 kB each per rule)
+    // and 8 bytes per trial and rule for the key-length quantiles.
+    let chunk = trials.min(crate::audit::engine::CHUNK_TRIALS as f64);
+    let memory_mb = threads.min(points) as f64 * rules as f64 * (chunk * 1e3 + trials * 8.0) / 1e6;
     let folder = if dir.exists() {
         if force {
             "exists; --force replaces it"

@@ -638,10 +638,11 @@ impl Session {
     /// Closes the program's input and waits for it to exit: it must write nothing more and
     /// exit with status 0. Gives its stderr and notes for the log file.
     pub fn finish(mut self) -> Result<ProgramLog> {
+        // Closing the channel ends the writer thread, which closes the program's input. It is
+        // not joined: a program that stopped reading would keep it blocked in a write until
+        // the program is gone.
         self.to_child = None;
-        if let Some(w) = self.writer.take() {
-            let _ = w.join();
-        }
+        self.writer = None;
         let after = None;
         let last = |s: &Session| format!("after the last batch ({} batches)", s.batch);
         match self.lines.recv_timeout(Duration::from_secs(EXIT_GRACE_S)) {
