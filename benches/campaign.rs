@@ -37,7 +37,7 @@ fn count_level(c: &mut Criterion) {
                     .map(|t| {
                         let mut rng = trial_rng(1, 0, t);
                         let counts = sample_block(Sampler::Count, &model, setup.signals, &ts, &mut rng);
-                        judge(&counts, setup.key_rule, &setup.rule_params(), 0.8).length
+                        judge(&counts, setup.key_rule.clone(), &setup.rule_params(), 0.8).length
                     })
                     .sum::<u64>()
             })
@@ -81,7 +81,8 @@ fn link_vs_single_photon(c: &mut Criterion) {
     let setup = campaign.setup.clone();
     let lm = PulseModel::new(&setup.link, Some(&PulseAttack::PhotonNumberSplitting { fraction: 0.5 }), &setup.basis_probabilities());
     let sp = SignalModel::new(&cloner(), Protocol::Bb84, &setup.basis_probabilities());
-    let sp_setup = Setup { key_rule: qkd_audit::audit::rules::KeyRule::FiniteUncertainty, link: Default::default(), ..setup.clone() };
+    let sp_setup =
+        Setup { key_rule: qkd_audit::audit::rules::KeyRule::FiniteUncertainty.into(), link: Default::default(), ..setup.clone() };
     let trials = 20_000u64;
     let mut group = c.benchmark_group("trials per second, link vs single photon (2 threads)");
     group.throughput(Throughput::Elements(trials));
@@ -93,7 +94,7 @@ fn link_vs_single_photon(c: &mut Criterion) {
                 .map(|t| {
                     judge(
                         &qkd_audit::audit::sample::pulses::sample(&lm, setup.signals, &ts, &mut trial_rng(3, 0, t)),
-                        setup.key_rule,
+                        setup.key_rule.clone(),
                         &setup.rule_params(),
                         0.5,
                     )
@@ -109,7 +110,7 @@ fn link_vs_single_photon(c: &mut Criterion) {
                 .map(|t| {
                     judge(
                         &sample_block(Sampler::Count, &sp, setup.signals, &ts, &mut trial_rng(3, 0, t)),
-                        sp_setup.key_rule,
+                        sp_setup.key_rule.clone(),
                         &sp_setup.rule_params(),
                         0.8,
                     )

@@ -35,8 +35,13 @@ fn verdicts(a: &Attack, setup: &Setup, trials: u64, seed: u64) -> Vec<Verdict> {
     (0..trials)
         .map(|t| {
             let mut rng = trial_rng(seed, 0, t);
-            judge(&sample_block(Sampler::Count, &model, setup.signals, &ts, &mut rng), setup.key_rule, &setup.rule_params(), e.h_x_given_e)
-                .verdict
+            judge(
+                &sample_block(Sampler::Count, &model, setup.signals, &ts, &mut rng),
+                setup.key_rule.clone(),
+                &setup.rule_params(),
+                e.h_x_given_e,
+            )
+            .verdict
         })
         .collect()
 }
@@ -167,7 +172,7 @@ fn proven_rules_never_leak_over_random_attacks_block_sizes_and_seeds() {
                 basis_z_probability: rng.gen_range(0.5..0.95),
                 test_sample: TestSample::Fraction(rng.gen_range(0.0..0.2)),
                 abort_qber: rng.gen_range(0.01..0.12),
-                key_rule: rule,
+                key_rule: rule.into(),
                 ..Setup::default()
             };
             let v = verdicts(&a, &setup, 20, case);
@@ -189,7 +194,7 @@ fn asymptotic_rule_leaks_on_small_blocks_under_the_optimal_collective_attack() {
         basis_z_probability: 0.5,
         test_sample: TestSample::Fraction(0.05),
         abort_qber: 0.11,
-        key_rule: KeyRule::Asymptotic,
+        key_rule: KeyRule::Asymptotic.into(),
         ..Setup::default()
     };
     let v = verdicts(&cloner(0.03), &setup, 400, 3);
@@ -199,7 +204,7 @@ fn asymptotic_rule_leaks_on_small_blocks_under_the_optimal_collective_attack() {
 
 #[test]
 fn individual_rule_leaks_under_the_phase_covariant_cloner_at_five_percent() {
-    let setup = Setup { signals: 1_000_000, key_rule: KeyRule::Individual, abort_qber: 0.11, ..Setup::default() };
+    let setup = Setup { signals: 1_000_000, key_rule: KeyRule::Individual.into(), abort_qber: 0.11, ..Setup::default() };
     let v = verdicts(&cloner(0.05), &setup, 100, 4);
     let leaks = v.iter().filter(|x| **x == Verdict::Leak).count();
     assert!(leaks >= 95, "only {leaks} of 100 trials leaked");

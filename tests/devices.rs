@@ -151,13 +151,13 @@ fn device_verdicts(family: &str, fraction: f64, setup: &Setup, trials: u64, seed
         .map(|t| {
             let mut rng = trial_rng(seed, 0, t);
             let counts = sample_block(Sampler::Count, &p.model, setup.signals, &ts, &mut rng);
-            judge(&counts, setup.key_rule, &setup.rule_params(), p.evaluation.h_x_given_e).verdict
+            judge(&counts, setup.key_rule.clone(), &setup.rule_params(), p.evaluation.h_x_given_e).verdict
         })
         .collect()
 }
 
 fn mismatched_setup(eta: f64, rule: KeyRule, signals: u64) -> Setup {
-    let mut s = Setup { signals, abort_qber: 0.05, test_sample: TestSample::Fraction(0.1), key_rule: rule, ..Setup::default() };
+    let mut s = Setup { signals, abort_qber: 0.05, test_sample: TestSample::Fraction(0.1), key_rule: rule.into(), ..Setup::default() };
     s.link.flaws.mismatch = eta;
     s
 }
@@ -190,7 +190,7 @@ fn expected_counts(setup: &Setup) -> BlockStats {
     let m = setup.test_sample.size(sifted_z as u64);
     let n = sifted_z as u64 - m;
     let k = (setup.signals as f64 * (1.0 - p) * (1.0 - p)) as u64;
-    BlockStats { n, k, m, e_z: 0.0, e_x: 0.0, intensities: None }
+    BlockStats { n, k, m, e_z: 0.0, e_x: 0.0, intensities: None, ..Default::default() }
 }
 
 #[test]
@@ -227,7 +227,7 @@ fn the_flaw_blind_rule_leaks_under_faked_states_below_the_abort_threshold_mismat
     let run = |eta: f64, rule: KeyRule| {
         let mut s = setup.clone();
         s.link.flaws.mismatch = eta;
-        s.key_rule = rule;
+        s.key_rule = rule.into();
         device_verdicts("faked-state", 1.0, &s, 20, 9)
     };
     let low = run(0.5 * eta_abort, KeyRule::FiniteUncertainty);

@@ -67,7 +67,7 @@ fn setup(rule: KeyRule, loss_db: f64, signals: u64) -> Setup {
         basis_z_probability: 0.7,
         test_sample: TestSample::Fraction(0.05),
         abort_qber: 0.05,
-        key_rule: rule,
+        key_rule: rule.into(),
         link: link(loss_db, 0.5),
         ..Setup::default()
     }
@@ -78,7 +78,9 @@ fn verdicts(attack: PulseAttack, setup: &Setup, trials: u64, seed: u64) -> Vec<V
     let h = model.h_x_given_e();
     let ts = |z: u64| setup.test_sample.size(z);
     (0..trials)
-        .map(|t| judge(&sample(&model, setup.signals, &ts, &mut trial_rng(seed, 0, t)), setup.key_rule, &setup.rule_params(), h).verdict)
+        .map(|t| {
+            judge(&sample(&model, setup.signals, &ts, &mut trial_rng(seed, 0, t)), setup.key_rule.clone(), &setup.rule_params(), h).verdict
+        })
         .collect()
 }
 
@@ -255,7 +257,7 @@ fn single_photon_attacks_on_weak_pulses_match_the_gain_and_never_break_decoy_rul
             for t in 0..10 {
                 let c = sample(&model, s.signals, &ts, &mut trial_rng(8, i, t));
                 assert_ne!(
-                    judge(&c, s.key_rule, &s.rule_params(), model.h_x_given_e()).verdict,
+                    judge(&c, s.key_rule.clone(), &s.rule_params(), model.h_x_given_e()).verdict,
                     Verdict::Leak,
                     "{rule} leaked at fraction {p}"
                 );
@@ -292,6 +294,7 @@ fn finite_decoy_rule_approaches_the_asymptotic_decoy_bound_for_huge_blocks() {
         e_z: f64::NAN,
         e_x: model.error_rate(0),
         intensities: Some(obs),
+        ..Default::default()
     };
     let finite = KeyRule::DecoyFinite.length(&stats, &s.rule_params()).raw_bits / stats.n as f64;
     let asymptotic = KeyRule::DecoyVacuumWeak.length(&stats, &s.rule_params()).raw_bits / stats.n as f64;
@@ -346,7 +349,7 @@ fn proven_rules_never_leak_on_a_lossy_single_photon_link() {
                 let ts = |z: u64| s.test_sample.size(z);
                 for t in 0..8 {
                     let c = sample(&model, s.signals, &ts, &mut trial_rng(seed, which as u64, t));
-                    let v = judge(&c, s.key_rule, &s.rule_params(), model.h_x_given_e()).verdict;
+                    let v = judge(&c, s.key_rule.clone(), &s.rule_params(), model.h_x_given_e()).verdict;
                     prop_assert!(v != Verdict::Leak, "{rule} leaked: attack {which}, x = {x}, {loss} dB");
                     counter.borrow_mut()[i] += usize::from(matches!(v, Verdict::Secure | Verdict::Inconclusive));
                 }
@@ -365,7 +368,7 @@ fn full_intercept_resend_on_a_lossy_single_photon_link_is_caught() {
     let ts = |z: u64| s.test_sample.size(z);
     for t in 0..10 {
         let c = sample(&model, s.signals, &ts, &mut trial_rng(3, 0, t));
-        assert_eq!(judge(&c, s.key_rule, &s.rule_params(), model.h_x_given_e()).verdict, Verdict::Aborted);
+        assert_eq!(judge(&c, s.key_rule.clone(), &s.rule_params(), model.h_x_given_e()).verdict, Verdict::Aborted);
     }
 }
 

@@ -8,8 +8,11 @@
 //! trials = 200                 # Monte Carlo trials per attack point, 1..=1e6
 //! sampler = "count"            # count (default) | round
 //! setup = "setup.toml"         # a setup file (relative to this file), or an inline [setup] table
-//! rules = ["decoy-vacuum-weak", "naive-single-photon"]  # optional: comparison rules judged on
-//!                              # the same blocks, besides the setup's own key_rule (always judged)
+//! rules = ["decoy-vacuum-weak", "file:rules/vendor.toml"]  # optional: comparison rules judged
+//!                              # on the same blocks, besides the setup's own key_rule (always
+//!                              # judged): built-in names, or rule files (formula or program,
+//!                              # `audit::rules::formula` / `audit::rules::program`) relative to
+//!                              # this file
 //! [[attacks]]
 //! builtin = "intercept-resend" # an entry of the built-in catalogue, or
 //! # file = "attacks/x.toml"    # a catalogue entry or kraus file (relative to this file)
@@ -20,7 +23,7 @@
 
 use crate::attack::file::{builtin_entry_text, parse as parse_attack, AttackFile, Sweep};
 use crate::attack::Value;
-use crate::audit::rules::KeyRule;
+use crate::audit::rules::Rule;
 use crate::audit::sample::Sampler;
 use crate::audit::setup::Setup;
 use crate::error::{Error, Result};
@@ -63,7 +66,7 @@ pub struct Campaign {
     pub setup: Setup,
     /// Key-length rules judged on the same blocks: the setup's `key_rule` first, then the
     /// campaign's comparison `rules` not already listed.
-    pub rules: Vec<KeyRule>,
+    pub rules: Vec<Rule>,
     /// Attacks.
     pub attacks: Vec<AttackEntry>,
     /// Inputs and their texts, for the manifest: (origin, text).
@@ -159,7 +162,7 @@ impl Campaign {
         };
         let mut inputs = vec![(origin.to_string(), text.to_string())];
         let setup = match t.get("setup") {
-            Some(toml::Value::Table(s)) => Setup::parse_all(s).map_err(|errs| p.nested("setup", errs)).ok(),
+            Some(toml::Value::Table(s)) => Setup::parse_all_in(s, base).map_err(|errs| p.nested("setup", errs)).ok(),
             Some(toml::Value::String(f)) => match resolve(base, f) {
                 Err(e) => {
                     p.push(e.with_key("setup"));
@@ -191,28 +194,47 @@ impl Campaign {
         // The system's own rule is always judged (first), and it alone sets the exit status;
         // the list adds comparison rules. Whether a rule fits the link is asked only of a
         // valid setup.
-        let mut rules = setup.iter().map(|s| s.key_rule).collect::<Vec<_>>();
+        let mut rules = setup.iter().map(|s| s.key_rule.clone()).collect::<Vec<_>>();
         match t.get("rules") {
             None => {}
             Some(toml::Value::Array(a)) if !a.is_empty() => {
                 for (i, v) in a.iter().enumerate() {
                     let key = format!("rules[{i}]");
-                    let rule = v
-                        .as_str()
-                        .ok_or_else(|| Error::input_key(key.clone(), "must be a key-rule name"))
-                        .and_then(|name| name.parse::<KeyRule>().map_err(|e| Error::input_key(key.clone(), e)));
-                    let Some(rule) = p.check(rule) else { continue };
+                    let rule = match v.as_str() {
+                        None => Err(vec![Error::input("must be a key-rule name or \"file:<path>\"")]),
+                        Some(name) => crate::audit::rules::resolve_rule(name, base),
+                    };
+                    let rule = match rule {
+                        Ok(r) => r,
+                        Err(errs) => {
+                            p.nested(&key, errs);
+                            continue;
+                        }
+                    };
                     if let Some(s) = &setup {
-                        if p.check(s.check_rule(rule).map_err(|e| e.with_key(key.clone()))).is_none() {
+                        if p.check(s.check_rule(&rule).map_err(|e| e.with_key(key.clone()))).is_none() {
                             continue;
                         }
                     }
-                    if !rules.contains(&rule) {
-                        rules.push(rule);
+                    // Rules are told apart by name: the same file twice is one rule, two
+                    // files of one name are a mistake.
+                    match rules.iter().find(|r| **r == rule) {
+                        Some(r) if r.origin() != rule.origin() => p.push(Error::input_key(
+                            key,
+                            format!(
+                                "a second rule named `{rule}` (from {}); rule files need names of their own",
+                                rule.origin().unwrap_or("-")
+                            ),
+                        )),
+                        Some(_) => {}
+                        None => rules.push(rule),
                     }
                 }
             }
-            Some(_) => p.push(Error::input_key("rules", "must be a non-empty list of key-rule names")),
+            Some(_) => p.push(Error::input_key("rules", "must be a non-empty list of key-rule names or \"file:<path>\" rule files")),
+        }
+        for (origin, text) in rules.iter().filter_map(|r| r.file()) {
+            inputs.push((origin.to_string(), text.to_string()));
         }
         let mut attacks = Vec::new();
         match t.get("attacks") {

@@ -2,14 +2,20 @@
 //! are computed once; then every trial draws a block from its own random stream
 //! ([`crate::numeric::rng::trial_rng`] with the point's index and the trial's index),
 //! post-processes it and is judged under every rule of the campaign ([`super::trial`]).
-//! Trials are collected in order, so output bytes do not depend on threads.
+//! Trials run in chunks of [`CHUNK_TRIALS`]: a chunk is sampled in parallel, then every rule
+//! answers for the whole chunk (built-in rules and formulas block by block in parallel, a
+//! rule program in one batch round trip), then the blocks are judged and fed to the point's
+//! [`stats::Tally`] in trial order, so output bytes do not depend on threads. With a rule
+//! program the points run one after another (the program sees point, then trial order);
+//! otherwise points run in parallel too.
 
-use super::campaign::Campaign;
-use super::rules::KeyRule;
-use super::sample::sample_block;
+use super::campaign::{AttackEntry, Campaign};
+use super::rules::program::{ProgramLog, Session, TrialId};
+use super::rules::{BlockStats, Rule, RuleAnswer, RuleParams};
+use super::sample::{sample_block, BlockCounts};
 use super::{stats, trial};
 use crate::attack::{AnyAttack, Value};
-use crate::error::Result;
+use crate::error::{Error, ErrorKind, Result};
 use crate::exact::device::evaluate_device;
 use crate::exact::eval::{evaluate, EvalOptions, Evaluation};
 use crate::exact::pulses::{pulse_evaluation, PulseModel};
@@ -33,7 +39,7 @@ pub struct PointResult {
     /// The swept parameter and its value, if any.
     pub swept: Option<(String, f64)>,
     /// The key-length rule judged.
-    pub rule: KeyRule,
+    pub rule: Rule,
     /// The evaluator's exact quantities. For link-level attacks Eve's knowledge is
     /// classical (she knows a fraction of the key bits exactly), and the fields are filled
     /// accordingly (see [`pulse_evaluation`]).
@@ -52,8 +58,32 @@ enum PointModel {
     Pulse(PulseModel),
 }
 
+/// Trials of one point sampled and judged together: the batch a rule program gets in one
+/// round trip, and the bound on per-point memory (besides 8 bytes per trial and rule for
+/// the exact key-length quantiles, see [`stats::Tally`]).
+pub const CHUNK_TRIALS: u64 = 4096;
+
+/// One point with its exact quantities and the model to sample, computed once.
+struct Prepared<'a> {
+    index: usize,
+    entry: usize,
+    attack_entry: &'a AttackEntry,
+    swept: Option<(String, f64)>,
+    family: String,
+    params: Vec<(String, Value)>,
+    exact: Evaluation,
+    model: PointModel,
+    note: String,
+}
+
 /// Runs the campaign; `progress` is called once per finished point.
 pub fn run(c: &Campaign, progress: &(dyn Fn() + Sync)) -> Result<Vec<PointResult>> {
+    run_logged(c, progress).map(|(results, _)| results)
+}
+
+/// Runs the campaign and gives, besides the results, the log of every rule program (its
+/// stderr and notes) for the results folder.
+pub fn run_logged(c: &Campaign, progress: &(dyn Fn() + Sync)) -> Result<(Vec<PointResult>, Vec<ProgramLog>)> {
     let mut jobs = Vec::new();
     for (ei, entry) in c.attacks.iter().enumerate() {
         for (swept, overrides) in entry.points() {
@@ -62,8 +92,7 @@ pub fn run(c: &Campaign, progress: &(dyn Fn() + Sync)) -> Result<Vec<PointResult
     }
     let eval_opts = EvalOptions::full(c.setup.protocol);
     let basis_prob = c.setup.basis_probabilities();
-    let rule_params = c.setup.rule_params();
-    let per_point: Vec<Vec<PointResult>> = jobs
+    let prepared: Vec<Prepared> = jobs
         .par_iter()
         .enumerate()
         .map(|(index, (ei, entry, swept, overrides))| {
@@ -107,50 +136,126 @@ pub fn run(c: &Campaign, progress: &(dyn Fn() + Sync)) -> Result<Vec<PointResult
                     (attack.family.clone(), attack.params.0.clone(), exact, PointModel::Qubit(model), String::new())
                 }
             };
-            let setup = &c.setup;
-            let test_size = |z: u64| setup.test_sample.size(z);
-            let trials: Vec<Vec<trial::TrialOutcome>> = (0..c.trials)
-                .into_par_iter()
-                .map(|t| {
-                    let mut rng = trial_rng(c.seed, index as u64, t);
-                    let counts = match &model {
-                        PointModel::Qubit(m) => sample_block(c.sampler, m, setup.signals, &test_size, &mut rng),
-                        PointModel::Pulse(m) => crate::audit::sample::pulses::sample(m, setup.signals, &test_size, &mut rng),
-                    };
-                    c.rules.iter().map(|&rule| trial::judge(&counts, rule, &rule_params, exact.h_x_given_e)).collect()
-                })
-                .collect();
-            progress();
-            let exact_eve_guess = match &model {
-                PointModel::Qubit(m) => m.eve_guess_rate(0),
-                PointModel::Pulse(_) => exact.p_guess_z,
-            };
-            Ok(c.rules
-                .iter()
-                .enumerate()
-                .map(|(ri, rule)| {
-                    let outcomes: Vec<trial::TrialOutcome> = trials.iter().map(|v| v[ri].clone()).collect();
-                    PointResult {
-                        entry: *ei,
-                        index: index as u64,
-                        attack: entry.label.clone(),
-                        family: family.clone(),
-                        params: params.clone(),
-                        swept: swept.clone(),
-                        rule: *rule,
-                        exact: exact.clone(),
-                        exact_eve_guess,
-                        note: note.clone(),
-                        stats: stats::summarize(&outcomes),
-                    }
-                })
-                .collect())
+            Ok(Prepared { index, entry: *ei, attack_entry: entry, swept: swept.clone(), family, params, exact, model, note })
         })
         .collect::<Result<_>>()?;
+    let has_program = c.rules.iter().any(|r| matches!(r, Rule::Program(_)));
+    let (per_point, logs): (Vec<Vec<PointResult>>, Vec<ProgramLog>) = if has_program {
+        // A program is asked in one deterministic order (point, then trial): points run
+        // one after the other, each point's trials in parallel.
+        let mut sessions: Vec<Option<Session>> =
+            c.rules.iter().map(|r| if let Rule::Program(p) = r { p.start().map(Some) } else { Ok(None) }).collect::<Result<_>>()?;
+        let results = prepared
+            .iter()
+            .map(|p| {
+                let r = run_point(c, p, &mut sessions);
+                progress();
+                r
+            })
+            .collect::<Result<Vec<_>>>()?;
+        let logs = sessions.into_iter().flatten().map(Session::finish).collect::<Result<Vec<_>>>()?;
+        (results, logs)
+    } else {
+        let results = prepared
+            .par_iter()
+            .map(|p| {
+                let r = run_point(c, p, &mut Vec::new());
+                progress();
+                r
+            })
+            .collect::<Result<Vec<_>>>()?;
+        (results, Vec::new())
+    };
     // Rule-major order within each entry keeps each attack's sweep together per rule.
     let mut out: Vec<PointResult> = per_point.into_iter().flatten().collect();
     out.sort_by_key(|r| (r.entry, c.rules.iter().position(|x| *x == r.rule).unwrap_or(0), r.index));
-    Ok(out)
+    Ok((out, logs))
+}
+
+/// Samples and judges every trial of one point, chunk by chunk, under every rule;
+/// `sessions[i]` is the running program of rule i, if it is one.
+fn run_point(c: &Campaign, p: &Prepared, sessions: &mut [Option<Session>]) -> Result<Vec<PointResult>> {
+    let setup = &c.setup;
+    let rule_params = setup.rule_params();
+    let test_size = |z: u64| setup.test_sample.size(z);
+    let h = p.exact.h_x_given_e;
+    let mut tallies: Vec<stats::Tally> = c.rules.iter().map(|_| stats::Tally::with_capacity(c.trials)).collect();
+    let mut start = 0;
+    while start < c.trials {
+        let end = (start + CHUNK_TRIALS).min(c.trials);
+        let blocks: Vec<(BlockCounts, BlockStats)> = (start..end)
+            .into_par_iter()
+            .map(|t| {
+                let mut rng = trial_rng(c.seed, p.index as u64, t);
+                let counts = match &p.model {
+                    PointModel::Qubit(m) => sample_block(c.sampler, m, setup.signals, &test_size, &mut rng),
+                    PointModel::Pulse(m) => crate::audit::sample::pulses::sample(m, setup.signals, &test_size, &mut rng),
+                };
+                let stats = trial::block_stats(&counts);
+                (counts, stats)
+            })
+            .collect();
+        let id = |i: usize| TrialId { point: p.index as u64, trial: start + i as u64 };
+        for (ri, rule) in c.rules.iter().enumerate() {
+            let answers: Vec<Option<RuleAnswer>> = match (rule, sessions.get_mut(ri).and_then(Option::as_mut)) {
+                (Rule::Program(_), Some(session)) => {
+                    let asked: Vec<(TrialId, &BlockStats, &RuleParams)> = blocks
+                        .iter()
+                        .enumerate()
+                        .filter(|(_, (_, s))| !trial::is_empty(s))
+                        .map(|(i, (_, s))| (id(i), s, &rule_params))
+                        .collect();
+                    let mut given = session.ask(&asked)?.into_iter();
+                    blocks
+                        .iter()
+                        .map(|(_, s)| {
+                            (!trial::is_empty(s)).then(|| given.next().map(|a| RuleAnswer { abort: a.abort, length: a.length })).flatten()
+                        })
+                        .collect()
+                }
+                _ => blocks
+                    .par_iter()
+                    .enumerate()
+                    .map(|(i, (_, s))| {
+                        if trial::is_empty(s) {
+                            return Ok(None);
+                        }
+                        rule.answer(s, &rule_params, trial::threshold_aborts(s, &rule_params))
+                            .map(Some)
+                            .map_err(|m| Error::new(ErrorKind::NotANumber, format!("{m}, at {} ({})", id(i), p.attack_entry.label)))
+                    })
+                    .collect::<Result<_>>()?,
+            };
+            let outcomes: Vec<trial::TrialOutcome> = blocks
+                .par_iter()
+                .zip(answers)
+                .map(|((counts, s), answer)| trial::judge_answer(counts, *s, answer, &rule_params, h))
+                .collect();
+            outcomes.iter().for_each(|o| tallies[ri].add(o));
+        }
+        start = end;
+    }
+    let exact_eve_guess = match &p.model {
+        PointModel::Qubit(m) => m.eve_guess_rate(0),
+        PointModel::Pulse(_) => p.exact.p_guess_z,
+    };
+    Ok(c.rules
+        .iter()
+        .zip(tallies)
+        .map(|(rule, tally)| PointResult {
+            entry: p.entry,
+            index: p.index as u64,
+            attack: p.attack_entry.label.clone(),
+            family: p.family.clone(),
+            params: p.params.clone(),
+            swept: p.swept.clone(),
+            rule: rule.clone(),
+            exact: p.exact.clone(),
+            exact_eve_guess,
+            note: p.note.clone(),
+            stats: tally.finish(),
+        })
+        .collect())
 }
 
 /// Number of points a campaign will run.

@@ -12,7 +12,7 @@
 //! optional `name`, and the link tables `[source]`, `[channel]`, `[detector]` of
 //! [`crate::protocol::optical`].
 
-use crate::audit::rules::{KeyRule, RuleParams};
+use crate::audit::rules::{KeyRule, Rule, RuleParams};
 use crate::error::{check_range, Error, Result};
 use crate::input::{first, number, parse_toml, unknown_keys, Problems};
 use crate::protocol::optical::Link;
@@ -62,8 +62,9 @@ pub struct Setup {
     pub epsilon_sec: f64,
     /// Correctness parameter ε_cor.
     pub epsilon_cor: f64,
-    /// The key-length rule the system uses.
-    pub key_rule: KeyRule,
+    /// The key-length rule the system uses: a built-in rule, or a rule file
+    /// (`key_rule = "file:<path>"`, relative to the setup file).
+    pub key_rule: Rule,
     /// The optical link (default: ideal single photons, no loss, perfect detectors).
     pub link: Link,
 }
@@ -80,7 +81,7 @@ impl Default for Setup {
             ec_efficiency: 1.16,
             epsilon_sec: 1e-10,
             epsilon_cor: 1e-12,
-            key_rule: KeyRule::FiniteUncertainty,
+            key_rule: Rule::Builtin(KeyRule::FiniteUncertainty),
             link: Link::default(),
         }
     }
@@ -114,7 +115,9 @@ impl Setup {
     pub fn load_all(path: &Path) -> std::result::Result<Setup, Vec<Error>> {
         let text = crate::input::read_text(path).map_err(|e| vec![e])?;
         let table: toml::Table = parse_toml(&text).map_err(|e| vec![e.with_file(path)])?;
-        Setup::parse_all(&table).map_err(|errs| errs.into_iter().map(|e| crate::input::locate(e, &text).with_file(path)).collect())
+        let base = path.parent().map(Path::to_path_buf).unwrap_or_default();
+        Setup::parse_all_in(&table, Some(&base))
+            .map_err(|errs| errs.into_iter().map(|e| crate::input::locate(e, &text).with_file(path)).collect())
     }
 
     /// Validates a parsed TOML table; every key is optional and defaults as in
@@ -126,6 +129,12 @@ impl Setup {
     /// Validates a parsed TOML table and reports every problem found: each key is checked
     /// on its own, so a file with four mistakes gets four errors in one pass.
     pub fn parse_all(t: &toml::Table) -> std::result::Result<Setup, Vec<Error>> {
+        Setup::parse_all_in(t, None)
+    }
+
+    /// As [`Setup::parse_all`], with a rule file named by `key_rule = "file:<path>"` read
+    /// relative to `base` (`None`: rule files are not allowed).
+    pub fn parse_all_in(t: &toml::Table, base: Option<&Path>) -> std::result::Result<Setup, Vec<Error>> {
         let mut p = Problems::new();
         p.nested("", unknown_keys(t, KEYS, "a setup"));
         let mut s = Setup::default();
@@ -218,13 +227,16 @@ impl Setup {
         }
         let mut rule_ok = true;
         if let Some(v) = t.get("key_rule") {
-            let r = v
-                .as_str()
-                .ok_or_else(|| Error::input_key("key_rule", "must be a string"))
-                .and_then(|r| r.parse().map_err(|e: String| Error::input_key("key_rule", e)));
-            match p.check(r) {
-                Some(r) => s.key_rule = r,
-                None => rule_ok = false,
+            let r = match v.as_str() {
+                None => Err(vec![Error::input("must be a string")]),
+                Some(r) => crate::audit::rules::resolve_rule(r, base),
+            };
+            match r {
+                Ok(r) => s.key_rule = r,
+                Err(errs) => {
+                    p.nested("key_rule", errs);
+                    rule_ok = false;
+                }
             }
         }
         match Link::parse_all(t.get("source"), t.get("channel"), t.get("detector")) {
@@ -233,7 +245,7 @@ impl Setup {
                 // Whether the rule fits the link is only asked of a rule and a link that
                 // are both valid; otherwise the answer would be about defaults.
                 if rule_ok {
-                    p.check(s.check_rule(s.key_rule).map_err(|e| e.with_key("key_rule")));
+                    p.check(s.check_rule(&s.key_rule).map_err(|e| e.with_key("key_rule")));
                 }
             }
             Err(errs) => p.nested("", errs),
@@ -241,9 +253,29 @@ impl Setup {
         p.finish(s)
     }
 
-    /// Checks that `rule` can run on this setup's link (decoy rules need the decoys they
-    /// read).
-    pub fn check_rule(&self, rule: KeyRule) -> Result<()> {
+    /// Checks that `rule` can run on this setup's link: decoy rules need the decoys they
+    /// read, and a rule file must not read intensities the link does not have.
+    pub fn check_rule(&self, rule: &Rule) -> Result<()> {
+        match rule {
+            Rule::Builtin(r) => self.check_key_rule(*r),
+            Rule::Formula(f) => {
+                let have = self.link.source.intensities().len();
+                if f.intensities_read > have {
+                    return Err(Error::input(format!(
+                        "rule file `{}` reads variables of intensity {}, but the link has {have} intensit{} ([source])",
+                        f.origin,
+                        f.intensities_read,
+                        if have == 1 { "y" } else { "ies" }
+                    )));
+                }
+                Ok(())
+            }
+            Rule::Program(_) => Ok(()),
+        }
+    }
+
+    /// Checks that the built-in `rule` can run on this setup's link.
+    pub fn check_key_rule(&self, rule: KeyRule) -> Result<()> {
         let ints = self.link.source.intensities();
         if rule.needs_weak_coherent_source() && ints.len() < rule.intensities_needed() {
             return Err(Error::input(format!(
@@ -319,5 +351,6 @@ mod tests {
         assert_eq!(s.test_sample.size(500), 500);
         assert_eq!(s.basis_probabilities().len(), 3);
         assert_eq!(s.key_rule, KeyRule::Asymptotic);
+        assert!(parse("key_rule = \"file:x.toml\"").unwrap_err().message().contains("cannot refer to files"));
     }
 }

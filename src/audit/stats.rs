@@ -1,6 +1,6 @@
 //! Per-point statistics over trials: Clopper–Pearson intervals, key-length quantiles,
-//! verdict fractions. Tallies are reduced in trial order, so sums do not depend on the
-//! number of threads.
+//! verdict fractions. Trials are fed to a [`Tally`] in trial order, so sums do not depend
+//! on the number of threads, and per point only the key lengths are kept.
 
 use super::trial::{TrialOutcome, Verdict};
 use serde::Serialize;
@@ -98,33 +98,134 @@ pub struct PointStats {
     pub verdict: Verdict,
 }
 
-fn mean(xs: impl Iterator<Item = f64>) -> f64 {
-    let (mut s, mut n) = (0.0, 0usize);
-    for x in xs.filter(|x| x.is_finite()) {
-        s += x;
-        n += 1;
+/// A running mean over the finite values fed to it, summed in the order fed.
+#[derive(Clone, Copy, Debug, Default)]
+struct Mean {
+    sum: f64,
+    count: u64,
+}
+
+impl Mean {
+    fn add(&mut self, x: f64) {
+        if x.is_finite() {
+            self.sum += x;
+            self.count += 1;
+        }
     }
-    if n == 0 {
-        f64::NAN
-    } else {
-        s / n as f64
+    fn value(&self) -> f64 {
+        if self.count == 0 {
+            f64::NAN
+        } else {
+            self.sum / self.count as f64
+        }
     }
 }
 
-/// Share of photon-number class `c` among all key bits (NaN without class counts).
-fn class_fraction(trials: &[TrialOutcome], c: usize) -> f64 {
-    let mut total = 0u64;
-    let mut in_class = 0u64;
-    for t in trials {
-        if let Some(k) = t.key_classes {
-            total += k.iter().sum::<u64>();
-            in_class += k[c];
+/// The running summary of one point under one rule: trials are fed in trial order (chunk by
+/// chunk), and only the key lengths are kept (8 bytes per trial, for the exact quantiles);
+/// everything else is a count or a sum, so memory does not grow with the trials otherwise.
+/// Sums are taken in trial order, so they do not depend on the number of threads.
+#[derive(Clone, Debug, Default)]
+pub struct Tally {
+    verdicts: [u64; 5],
+    lengths: Vec<u64>,
+    key_length: Mean,
+    excess: Mean,
+    capacity: Mean,
+    achievable: Mean,
+    key_bits_mean: Mean,
+    e_z: Mean,
+    e_x: Mean,
+    e_y: Mean,
+    key_bits: u64,
+    eve: u64,
+    class_total: u64,
+    class_single: u64,
+    class_multi: u64,
+}
+
+fn verdict_index(v: Verdict) -> usize {
+    match v {
+        Verdict::Aborted => 0,
+        Verdict::NoKey => 1,
+        Verdict::Secure => 2,
+        Verdict::Inconclusive => 3,
+        Verdict::Leak => 4,
+    }
+}
+
+impl Tally {
+    /// An empty tally with room for `trials` key lengths.
+    pub fn with_capacity(trials: u64) -> Tally {
+        Tally { lengths: Vec::with_capacity(trials.min(1 << 24) as usize), ..Tally::default() }
+    }
+
+    /// Adds the next trial (in trial order).
+    pub fn add(&mut self, o: &TrialOutcome) {
+        self.verdicts[verdict_index(o.verdict)] += 1;
+        self.lengths.push(o.length);
+        self.key_length.add(o.length as f64);
+        if o.length > 0 {
+            self.excess.add(o.excess);
+        }
+        if !o.aborted {
+            self.capacity.add(o.capacity);
+            self.achievable.add(o.achievable);
+        }
+        self.key_bits_mean.add(o.stats.n as f64);
+        self.e_z.add(o.stats.e_z);
+        self.e_x.add(o.stats.e_x);
+        self.e_y.add(o.e_y);
+        self.key_bits += o.stats.n;
+        self.eve += o.eve_correct_key;
+        if let Some(k) = o.key_classes {
+            self.class_total += k.iter().sum::<u64>();
+            self.class_single += k[1];
+            self.class_multi += k[2];
         }
     }
-    if total == 0 {
-        f64::NAN
-    } else {
-        in_class as f64 / total as f64
+
+    fn count(&self, v: Verdict) -> u64 {
+        self.verdicts[verdict_index(v)]
+    }
+
+    /// The point's summary.
+    pub fn finish(mut self) -> PointStats {
+        let t = self.lengths.len() as u64;
+        let aborted = self.count(Verdict::Aborted);
+        let leaks = self.count(Verdict::Leak);
+        let frac = |k: u64| if t == 0 { f64::NAN } else { k as f64 / t as f64 };
+        let class = |k: u64| if self.class_total == 0 { f64::NAN } else { k as f64 / self.class_total as f64 };
+        let present: Vec<Verdict> = [Verdict::Aborted, Verdict::NoKey, Verdict::Secure, Verdict::Inconclusive, Verdict::Leak]
+            .into_iter()
+            .filter(|v| self.count(*v) > 0)
+            .collect();
+        self.lengths.sort_unstable();
+        PointStats {
+            trials: t,
+            abort_probability: frac(aborted),
+            abort_ci: clopper_pearson(aborted, t),
+            leak_probability: frac(leaks),
+            leak_ci: clopper_pearson(leaks, t),
+            secure_fraction: frac(self.count(Verdict::Secure)),
+            inconclusive_fraction: frac(self.count(Verdict::Inconclusive)),
+            no_key_fraction: frac(self.count(Verdict::NoKey)),
+            key_length_mean: self.key_length.value(),
+            key_length_q05: quantile_sorted(&self.lengths, 0.05),
+            key_length_q95: quantile_sorted(&self.lengths, 0.95),
+            mean_excess: self.excess.value(),
+            mean_capacity: self.capacity.value(),
+            mean_achievable: self.achievable.value(),
+            mean_key_bits: self.key_bits_mean.value(),
+            mean_e_z: self.e_z.value(),
+            mean_e_x: self.e_x.value(),
+            mean_e_y: self.e_y.value(),
+            eve_guess_rate: if self.key_bits == 0 { f64::NAN } else { self.eve as f64 / self.key_bits as f64 },
+            key_fraction_single: class(self.class_single),
+            key_fraction_multi: class(self.class_multi),
+            // Which verdicts occurred is all the point's verdict depends on.
+            verdict: point_verdict(present.iter().copied()),
+        }
     }
 }
 
@@ -147,43 +248,11 @@ pub fn point_verdict(trials: impl Iterator<Item = Verdict> + Clone) -> Verdict {
     }
 }
 
-/// Summarises trials (in trial order).
+/// Summarises trials (in trial order); the same as feeding them to a [`Tally`].
 pub fn summarize(trials: &[TrialOutcome]) -> PointStats {
-    let t = trials.len() as u64;
-    let count = |v: Verdict| trials.iter().filter(|o| o.verdict == v).count() as u64;
-    let aborted = count(Verdict::Aborted);
-    let leaks = count(Verdict::Leak);
-    let frac = |k: u64| if t == 0 { f64::NAN } else { k as f64 / t as f64 };
-    let mut lengths: Vec<u64> = trials.iter().map(|o| o.length).collect();
-    lengths.sort_unstable();
-    let passed = || trials.iter().filter(|o| !o.aborted);
-    let key_bits: u64 = trials.iter().map(|o| o.stats.n).sum();
-    let eve: u64 = trials.iter().map(|o| o.eve_correct_key).sum();
-    let verdict = point_verdict(trials.iter().map(|o| o.verdict));
-    PointStats {
-        trials: t,
-        abort_probability: frac(aborted),
-        abort_ci: clopper_pearson(aborted, t),
-        leak_probability: frac(leaks),
-        leak_ci: clopper_pearson(leaks, t),
-        secure_fraction: frac(count(Verdict::Secure)),
-        inconclusive_fraction: frac(count(Verdict::Inconclusive)),
-        no_key_fraction: frac(count(Verdict::NoKey)),
-        key_length_mean: mean(trials.iter().map(|o| o.length as f64)),
-        key_length_q05: quantile_sorted(&lengths, 0.05),
-        key_length_q95: quantile_sorted(&lengths, 0.95),
-        mean_excess: mean(trials.iter().filter(|o| o.length > 0).map(|o| o.excess)),
-        mean_capacity: mean(passed().map(|o| o.capacity)),
-        mean_achievable: mean(passed().map(|o| o.achievable)),
-        mean_key_bits: mean(trials.iter().map(|o| o.stats.n as f64)),
-        mean_e_z: mean(trials.iter().map(|o| o.stats.e_z)),
-        mean_e_x: mean(trials.iter().map(|o| o.stats.e_x)),
-        mean_e_y: mean(trials.iter().map(|o| o.e_y)),
-        eve_guess_rate: if key_bits == 0 { f64::NAN } else { eve as f64 / key_bits as f64 },
-        key_fraction_single: class_fraction(trials, 1),
-        key_fraction_multi: class_fraction(trials, 2),
-        verdict,
-    }
+    let mut tally = Tally::with_capacity(trials.len() as u64);
+    trials.iter().for_each(|o| tally.add(o));
+    tally.finish()
 }
 
 #[cfg(test)]

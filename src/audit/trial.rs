@@ -17,7 +17,7 @@
 //! `inconclusive` otherwise (the AEP band is loose, so honest keys from a proven rule often
 //! land here; they remain covered by the rule's own security proof).
 
-use crate::audit::rules::{aep_min_entropy, ec_leak_bits, pa_cost_bits, BlockStats, EpsilonBudget, KeyRule, RuleParams};
+use crate::audit::rules::{aep_min_entropy, ec_leak_bits, pa_cost_bits, BlockStats, EpsilonBudget, Rule, RuleAnswer, RuleParams};
 use crate::audit::sample::BlockCounts;
 use serde::Serialize;
 
@@ -98,22 +98,87 @@ fn rate(errors: u64, total: u64) -> f64 {
     }
 }
 
-/// Post-processes a block with `rule` and judges the key against the attack's `h_x_given_e`.
-pub fn judge(counts: &BlockCounts, rule: KeyRule, params: &RuleParams, h_x_given_e: f64) -> TrialOutcome {
+/// What the post-processing sees of a block (and, in `key_errors`, what error correction
+/// learns).
+pub fn block_stats(counts: &BlockCounts) -> BlockStats {
     let n = counts.key_bits();
     let m = counts.test_z;
     let k = counts.sifted[1];
-    let stats = BlockStats { n, k, m, e_z: rate(counts.test_z_errors, m), e_x: rate(counts.errors[1], k), intensities: counts.intensities };
-    let e_y = rate(counts.errors[2], counts.sifted[2]);
+    BlockStats {
+        signals: counts.signals,
+        n,
+        k,
+        m,
+        e_z: rate(counts.test_z_errors, m),
+        e_x: rate(counts.errors[1], k),
+        m_errors: counts.test_z_errors,
+        k_errors: counts.errors[1],
+        sifted_y: counts.sifted[2],
+        y_errors: counts.errors[2],
+        e_y: rate(counts.errors[2], counts.sifted[2]),
+        key_errors: counts.key_errors(),
+        intensities: counts.intensities,
+    }
+}
+
+/// A block with no key bits or no X bits to estimate the phase error from aborts before
+/// any rule is asked.
+pub fn is_empty(stats: &BlockStats) -> bool {
+    stats.n == 0 || stats.k == 0
+}
+
+/// The setup's abort test: an observed error rate (Z sample, X, Y) above `abort_qber`.
+pub fn threshold_aborts(stats: &BlockStats, params: &RuleParams) -> bool {
     let exceeds = |e: f64| !e.is_nan() && e > params.abort_qber;
-    let aborted = counts.alarm || n == 0 || k == 0 || exceeds(stats.e_x) || exceeds(stats.e_z) || exceeds(e_y);
+    exceeds(stats.e_x) || exceeds(stats.e_z) || exceeds(stats.e_y)
+}
+
+/// Post-processes a block with `rule` (a [`crate::audit::rules::KeyRule`] or a [`Rule`]) and judges the key
+/// against the attack's `h_x_given_e`. For a built-in rule or a formula; a formula's NaN
+/// and a rule program (asked in batches by the engine) are programmer errors here.
+#[track_caller]
+pub fn judge(counts: &BlockCounts, rule: impl Into<Rule>, params: &RuleParams, h_x_given_e: f64) -> TrialOutcome {
+    let stats = block_stats(counts);
+    let answer = (!is_empty(&stats)).then(|| {
+        let threshold = threshold_aborts(&stats, params);
+        match rule.into() {
+            // The built-in rules are not asked about blocks the threshold aborts.
+            Rule::Builtin(r) => RuleAnswer { abort: None, length: if threshold { 0 } else { r.length(&stats, params).length } },
+            other => other.answer(&stats, params, threshold).unwrap_or_else(|e| panic!("{e}")),
+        }
+    });
+    judge_answer(counts, stats, answer, params, h_x_given_e)
+}
+
+/// Judges a block given the rule's `answer` (`None` for an empty block, which no rule is
+/// asked about): it aborts if empty, or if the rule says so, or, when the rule leaves the
+/// decision to the setup, if an observed error rate exceeds the threshold.
+pub fn judge_answer(
+    counts: &BlockCounts,
+    stats: BlockStats,
+    answer: Option<RuleAnswer>,
+    params: &RuleParams,
+    h_x_given_e: f64,
+) -> TrialOutcome {
+    let n = stats.n;
+    let e_y = stats.e_y;
+    // A monitor alarm (a detector flaw's countermeasure) aborts the block whatever the rule
+    // says.
+    let aborted = counts.alarm
+        || match answer {
+            None => true,
+            Some(a) => a.abort.unwrap_or_else(|| threshold_aborts(&stats, params)),
+        };
     let leak_ec = ec_leak_bits(&stats, params);
     // Weak-coherent links: Eve's actual knowledge, summed over the photon-number classes of
     // the sampled key bits; otherwise n·H(X|E).
     let capacity = counts.key_entropy_bits.unwrap_or(n as f64 * h_x_given_e) - leak_ec;
     let budget = EpsilonBudget::split(params.epsilon_sec);
     let achievable = aep_min_entropy(n, h_x_given_e, budget.smooth).map_or(f64::NEG_INFINITY, |h| h - leak_ec - pa_cost_bits(budget.pa));
-    let length = if aborted { 0 } else { rule.length(&stats, params).length };
+    let length = match answer {
+        Some(a) if !aborted => a.length,
+        _ => 0,
+    };
     let verdict = if aborted {
         Verdict::Aborted
     } else if length == 0 {

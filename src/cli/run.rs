@@ -3,7 +3,7 @@
 use super::common::{note, print, Outcome};
 use crate::audit::report::manifest::{sha256_hex, InputHash, Manifest};
 use crate::audit::trial::Verdict;
-use crate::audit::{point_count, run, Campaign};
+use crate::audit::{point_count, Campaign};
 use crate::error::{Error, Result};
 use std::io::IsTerminal;
 use std::path::PathBuf;
@@ -70,7 +70,8 @@ pub struct RunArgs {
 /// this machine class's measured orders of magnitude (DEVELOPERS.md, "Measured speed"):
 /// about 1 µs per judged trial and rule with the count-level sampler, 10⁸ signals per
 /// second with the per-round sampler, a millisecond per point for the exact evaluation;
-/// memory about 1 kB per trial and rule of the points in flight.
+/// memory about 1 kB per block and rule of a chunk of trials, plus 8 bytes per trial and
+/// rule, for each point in flight. Rule programs are not timed (their speed is theirs).
 fn plan(campaign: &Campaign, dir: &std::path::Path, force: bool) -> String {
     let points = point_count(campaign);
     let rules = campaign.rules.len();
@@ -81,7 +82,10 @@ fn plan(campaign: &Campaign, dir: &std::path::Path, force: bool) -> String {
     };
     let cpu_s = points as f64 * (trials * per_trial_s + 1e-3);
     let threads = rayon::current_num_threads();
-    let memory_mb = threads.min(points) as f64 * trials * rules as f64 * 1e3 / 1e6;
+    // Per point in flight: a chunk of sampled and judged blocks (about 1 kB each per rule)
+    // and 8 bytes per trial and rule for the key-length quantiles.
+    let chunk = trials.min(crate::audit::engine::CHUNK_TRIALS as f64);
+    let memory_mb = threads.min(points) as f64 * rules as f64 * (chunk * 1e3 + trials * 8.0) / 1e6;
     let folder = if dir.exists() {
         if force {
             "exists; --force replaces it"
@@ -171,7 +175,7 @@ pub fn cmd_run(a: RunArgs) -> Result<Outcome> {
             b.inc(1);
         }
     };
-    let results = pool.install(|| run(&campaign, &tick))?;
+    let (results, logs) = pool.install(|| crate::audit::engine::run_logged(&campaign, &tick))?;
     if let Some(b) = &bar {
         b.finish_and_clear();
     }
@@ -187,9 +191,17 @@ pub fn cmd_run(a: RunArgs) -> Result<Outcome> {
         started_unix_s: started.duration_since(std::time::UNIX_EPOCH).map(|d| d.as_secs()).unwrap_or(0),
         elapsed_s: clock.elapsed().as_secs_f64(),
         threads: pool.current_num_threads(),
+        rule_programs: campaign
+            .rules
+            .iter()
+            .filter_map(|r| match r {
+                crate::audit::rules::Rule::Program(p) => Some(p.provenance()),
+                _ => None,
+            })
+            .collect(),
     };
-    crate::audit::report::write_folder(folder, &campaign, &results, &manifest)?;
-    let system_rule = campaign.setup.key_rule;
+    crate::audit::report::write_folder_with(folder, &campaign, &results, &manifest, &logs)?;
+    let system_rule = campaign.setup.key_rule.clone();
     let leaks = results.iter().filter(|r| r.stats.verdict == Verdict::Leak).count();
     let gating = results.iter().filter(|r| r.stats.verdict == Verdict::Leak && (a.fail_on_any_rule || r.rule == system_rule)).count();
     if !a.quiet {

@@ -7,6 +7,10 @@
 //! `unit`), `protocol`, `system_rule` (the setup's own key-length rule), `rules` (every rule
 //! judged, the system's first) and `warnings` (found before the run). Only `started_unix_s`,
 //! `elapsed_s` and `threads` vary between runs with the same inputs.
+//! Rule files are inputs like attack files; a campaign with rule programs adds
+//! `rule_programs`: per program its `rule`, `rule_file`, `command`, `working_dir`, `files`
+//! (every file the command names, the program found on PATH included, with its SHA-256) and
+//! `version_output` (what `<command> --version` printed, or null).
 //!
 //! [`Record`] reads a manifest back (for `qkd-audit report` and `compare`); every key the
 //! report adds is optional there, so a folder written before them still reads.
@@ -48,6 +52,10 @@ pub struct Manifest {
     pub elapsed_s: f64,
     /// Worker threads used.
     pub threads: usize,
+    /// Rule programs run (command, SHA-256 of the files it names, `--version` output);
+    /// left out when there are none.
+    #[serde(skip_serializing_if = "Vec::is_empty")]
+    pub rule_programs: Vec<crate::audit::rules::program::Provenance>,
 }
 
 /// One value of the system under test, as the report prints it.

@@ -41,11 +41,24 @@ pub fn rebuild(csv: &str, manifest: &str, csv_origin: &str, manifest_origin: &st
 
 /// Writes the campaign's output folder (e.g. `results/<name>`), prepared as `folder`.
 pub fn write_folder(folder: FolderGuard, campaign: &Campaign, results: &[PointResult], manifest: &manifest::Manifest) -> Result<()> {
+    write_folder_with(folder, campaign, results, manifest, &[])
+}
+
+/// As [`write_folder`], with the logs of the campaign's rule programs
+/// (`rule-program-<name>.log`: the program's stderr and the notes of its answers).
+pub fn write_folder_with(
+    folder: FolderGuard,
+    campaign: &Campaign,
+    results: &[PointResult],
+    manifest: &manifest::Manifest,
+    logs: &[crate::audit::rules::program::ProgramLog],
+) -> Result<()> {
     let csv = table::render(campaign, results)?;
     let manifest_json = manifest.to_json_with(campaign);
     let (figures, page) = rebuild(&csv, &manifest_json, evidence::CSV_FILE, evidence::MANIFEST_FILE)?;
     let mut files = vec![(evidence::CSV_FILE.to_string(), csv), ("summary.md".to_string(), summary::render(campaign, results))];
     files.extend(figures.into_iter().map(|f| (f.file, f.svg)));
+    files.extend(logs.iter().map(|l| (l.file_name(), l.render())));
     files.push((evidence::MANIFEST_FILE.to_string(), manifest_json));
     files.push((REPORT_FILE.to_string(), page));
     folder.commit(&files)

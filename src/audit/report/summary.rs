@@ -88,8 +88,22 @@ fn at(r: &PointResult) -> String {
 /// column and the HTML report carry the same sentence.
 pub fn leak_cause(c: &Campaign, r: &PointResult) -> String {
     let s = &r.stats;
+    let Some(rule) = r.rule.builtin() else {
+        // A rule file or program: its assumptions are the system's own, so the sentence
+        // states what it extracted against what the attack leaves.
+        return format!(
+            "the system's rule `{}` extracted ℓ = {} bits on average while this attack leaves only n·H(X|E) − leak_EC = {} \
+             bits secret (H(X|E) = {} bits per key bit); its formula or program takes more than the attack leaves, in {} of \
+             the trials",
+            r.rule,
+            bits(s.key_length_mean),
+            bits(s.mean_capacity),
+            num(r.exact.h_x_given_e),
+            pct(s.leak_probability)
+        );
+    };
     cause_sentence(
-        r.rule,
+        rule,
         &CauseFacts {
             key_fraction_multi: s.key_fraction_multi,
             eve_guess_rate: s.eve_guess_rate,
@@ -303,7 +317,7 @@ pub fn render(c: &Campaign, results: &[PointResult]) -> String {
         s,
         "Verdicts per trial: `aborted`, `no-key`, `secure` (ℓ ≤ achievable), `inconclusive`, `leak` (ℓ > capacity + 2 log₂ n).\n"
     );
-    let mut groups: Vec<(usize, crate::audit::rules::KeyRule)> = results.iter().map(|r| (r.entry, r.rule)).collect();
+    let mut groups: Vec<(usize, crate::audit::rules::Rule)> = results.iter().map(|r| (r.entry, r.rule.clone())).collect();
     groups.dedup();
     for (e, rule) in groups {
         let pts: Vec<&PointResult> = results.iter().filter(|r| r.entry == e && r.rule == rule).collect();
@@ -420,8 +434,8 @@ fn matrix(s: &mut String, c: &Campaign, results: &[PointResult]) {
 /// For every leaking (attack, rule) pair: the excess at the first leaking point and at the
 /// worst, in bits and as a share of the key, and the cause.
 fn explain_leaks(s: &mut String, c: &Campaign, results: &[PointResult]) {
-    let mut pairs: Vec<(usize, crate::audit::rules::KeyRule)> =
-        results.iter().filter(|r| r.stats.verdict == Verdict::Leak).map(|r| (r.entry, r.rule)).collect();
+    let mut pairs: Vec<(usize, crate::audit::rules::Rule)> =
+        results.iter().filter(|r| r.stats.verdict == Verdict::Leak).map(|r| (r.entry, r.rule.clone())).collect();
     pairs.dedup();
     if pairs.is_empty() {
         return;

@@ -93,7 +93,7 @@ mod tests {
 
     #[test]
     fn the_ideal_monitor_gives_finite_uncertainty_and_a_weaker_one_less() {
-        let obs = BlockStats { n: 1_000_000, k: 100_000, m: 1, e_z: 0.01, e_x: 0.01, intensities: None };
+        let obs = BlockStats { n: 1_000_000, k: 100_000, m: 1, e_z: 0.01, e_x: 0.01, intensities: None, ..Default::default() };
         let full = finite_uncertainty::length(&obs, &params(1.0)).raw_bits;
         assert_eq!(length(&obs, &params(1.0)).raw_bits, full);
         let weak = length(&obs, &params(1e-3)).raw_bits;

@@ -483,7 +483,15 @@ mod tests {
             obs.x_errors[k] = (obs.x_detections[k] as f64 * det.error_rate(1)) as u64;
         }
         let m = obs.z_detections[0] / 20;
-        BlockStats { n: obs.z_detections[0] - m, k: obs.x_detections[0], m, e_z: 0.0, e_x: 0.0, intensities: Some(obs) }
+        BlockStats {
+            n: obs.z_detections[0] - m,
+            k: obs.x_detections[0],
+            m,
+            e_z: 0.0,
+            e_x: 0.0,
+            intensities: Some(obs),
+            ..Default::default()
+        }
     }
 
     /// The closed form this module used before (after Lim et al. 2014; REFERENCES.md §9):

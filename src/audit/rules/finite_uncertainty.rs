@@ -43,7 +43,7 @@ mod tests {
         // μ = 0.0163871 and ℓ = 735 084.0.
         let params =
             RuleParams { abort_qber: 0.01, ec_efficiency: 1.1, epsilon_sec: 1e-10, epsilon_cor: 1e-12, mismatch: 1.0, blinding_catch: 1.0 };
-        let obs = BlockStats { n: 1_000_000, k: 100_000, m: 1, e_z: 0.01, e_x: 0.01, intensities: None };
+        let obs = BlockStats { n: 1_000_000, k: 100_000, m: 1, e_z: 0.01, e_x: 0.01, intensities: None, ..Default::default() };
         assert_abs_diff_eq!(sampling_deviation(obs.n, obs.k, 1e-10 / 4.0), 0.0163871, epsilon = 1e-7);
         let l = length(&obs, &params);
         assert_abs_diff_eq!(l.raw_bits, 735_084.0, epsilon = 0.5);

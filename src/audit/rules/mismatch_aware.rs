@@ -107,7 +107,7 @@ mod tests {
 
     #[test]
     fn without_mismatch_it_is_the_finite_uncertainty_rule() {
-        let obs = BlockStats { n: 1_000_000, k: 100_000, m: 1, e_z: 0.01, e_x: 0.01, intensities: None };
+        let obs = BlockStats { n: 1_000_000, k: 100_000, m: 1, e_z: 0.01, e_x: 0.01, intensities: None, ..Default::default() };
         assert_eq!(length(&obs, &params(1.0)).raw_bits, finite_uncertainty::length(&obs, &params(1.0)).raw_bits);
     }
 
@@ -115,7 +115,7 @@ mod tests {
     fn regression_value_recomputed_by_hand() {
         // [N] recomputed step by step from the module doc: n = 10⁶, k = 10⁵, Q_tol = 0.05,
         // η = 0.9, ε_sec = 10⁻¹⁰ (ε_smooth = 2.5·10⁻¹¹), f = 1.1, e_Z = 0.01, ε_cor = 10⁻¹².
-        let obs = BlockStats { n: 1_000_000, k: 100_000, m: 1, e_z: 0.01, e_x: 0.01, intensities: None };
+        let obs = BlockStats { n: 1_000_000, k: 100_000, m: 1, e_z: 0.01, e_x: 0.01, intensities: None, ..Default::default() };
         let p = params(0.9);
         let eps = 2.5e-11_f64;
         let dev = |c: f64| (c * (3.0 / (eps * eps)).ln() / 2.0).sqrt();
@@ -135,7 +135,7 @@ mod tests {
 
     #[test]
     fn the_key_shrinks_with_the_mismatch() {
-        let obs = BlockStats { n: 1_000_000, k: 100_000, m: 1, e_z: 0.0, e_x: 0.0, intensities: None };
+        let obs = BlockStats { n: 1_000_000, k: 100_000, m: 1, e_z: 0.0, e_x: 0.0, intensities: None, ..Default::default() };
         let mut last = f64::INFINITY;
         for eta in [1.0, 0.95, 0.8, 0.5, 0.2, 0.05] {
             let l = length(&obs, &params(eta)).raw_bits;

@@ -21,6 +21,12 @@ pub mod game_min_entropy;
 pub mod individual;
 pub mod mismatch_aware;
 pub mod weak_pulse;
+pub mod block_vars;
+pub mod formula;
+pub mod program;
+pub mod rule;
+
+pub use rule::{Rule, RuleAnswer};
 
 use crate::quantum::measures::binary_entropy_capped;
 use serde::Serialize;
@@ -131,6 +137,67 @@ impl FromStr for KeyRule {
     }
 }
 
+/// How campaigns and setups name a rule file: `file:<path>` (relative to the file that
+/// names it, as attack files are).
+pub const FILE_PREFIX: &str = "file:";
+
+/// Reads a rule file: a formula (`key_length`, see [`formula`]) or a program (`command`, see
+/// [`program`]). Every problem is reported with the rule file's name and, where the key is
+/// written, its line and column.
+pub fn load_rule_file(path: &std::path::Path) -> std::result::Result<Rule, Vec<crate::error::Error>> {
+    let text = crate::input::read_text(path).map_err(|e| vec![e])?;
+    let origin = path.display().to_string();
+    let table = crate::input::parse_toml(&text).map_err(|e| vec![e.with_file(path)])?;
+    if table.contains_key("command") {
+        let dir = path.parent().map(std::path::Path::to_path_buf).unwrap_or_default();
+        let dir = if dir.as_os_str().is_empty() { std::path::PathBuf::from(".") } else { dir };
+        program::ProgramRule::from_table(&table, &origin, &dir, &text)
+            .map(|r| Rule::Program(std::sync::Arc::new(r)))
+            .map_err(|errs| errs.into_iter().map(|e| crate::input::locate(e, &text).with_file(path)).collect())
+    } else {
+        formula::FormulaRule::parse(&text, &origin).map(|r| Rule::Formula(std::sync::Arc::new(r)))
+    }
+}
+
+/// A rule named in a campaign or setup: a built-in rule's name, or `file:<path>` with the
+/// path relative to `base` (`None`: files are not allowed, as in built-in campaigns).
+pub fn resolve_rule(name: &str, base: Option<&std::path::Path>) -> std::result::Result<Rule, Vec<crate::error::Error>> {
+    use crate::error::Error;
+    match name.strip_prefix(FILE_PREFIX) {
+        Some(path) => match base {
+            Some(b) => {
+                let full = b.join(path);
+                if let Err(e) = crate::input::read_text(&full) {
+                    return Err(vec![Error::input(format!("cannot read the rule file `{}`: {}", full.display(), e.message()))]);
+                }
+                load_rule_file(&full)
+            }
+            None => Err(vec![Error::input(format!("`{name}`: a built-in campaign cannot refer to files"))]),
+        },
+        None => name
+            .parse::<KeyRule>()
+            .map(Rule::Builtin)
+            .map_err(|e| vec![Error::input(format!("{e}, or a rule file as \"{FILE_PREFIX}<path>\""))]),
+    }
+}
+
+/// A rule file's `name`: letters, digits, '-', '_' and '.', at most
+/// [`crate::input::NAME_MAX_CHARS`] characters (it becomes part of file names and table
+/// cells), and not the name of a built-in rule.
+pub fn rule_name(v: &toml::Value, key: &str) -> crate::error::Result<String> {
+    let s = crate::input::name(v, key)?;
+    if !s.chars().all(|c| c.is_ascii_alphanumeric() || "-_.".contains(c)) || s.starts_with('.') {
+        return Err(crate::error::Error::input_key(key, format!("`{s}`: a rule's name is made of letters, digits, '-', '_' and '.'")));
+    }
+    if KeyRule::ALL.iter().any(|r| r.name() == s) {
+        return Err(crate::error::Error::input_key(
+            key,
+            format!("`{s}` is the name of a built-in rule; give the rule file a name of its own"),
+        ));
+    }
+    Ok(s)
+}
+
 /// The setup values a key-length rule reads; everything else it learns from the block.
 #[derive(Clone, Copy, Debug, PartialEq)]
 pub struct RuleParams {
@@ -150,9 +217,13 @@ pub struct RuleParams {
     pub blinding_catch: f64,
 }
 
-/// What a block showed, as the post-processing sees it.
-#[derive(Clone, Copy, Debug, PartialEq, Serialize)]
+/// What a block showed, as the post-processing sees it (and, in `key_errors`, what error
+/// correction learns). Every field is a variable of rule files and rule programs
+/// ([`block_vars`]).
+#[derive(Clone, Copy, Debug, PartialEq, Serialize, Default)]
 pub struct BlockStats {
+    /// Signals (pulses) sent.
+    pub signals: u64,
     /// Key bits: sifted Z bits not disclosed in the test sample.
     pub n: u64,
     /// Sifted X bits, all disclosed to estimate the phase error.
@@ -163,6 +234,19 @@ pub struct BlockStats {
     pub e_z: f64,
     /// Observed error rate on the sifted X bits (NaN when k = 0).
     pub e_x: f64,
+    /// Errors in the Z test sample.
+    pub m_errors: u64,
+    /// Errors among the sifted X bits.
+    pub k_errors: u64,
+    /// Sifted Y bits (six-state; 0 for BB84), all disclosed.
+    pub sifted_y: u64,
+    /// Errors among them.
+    pub y_errors: u64,
+    /// Observed Y error rate (NaN without Y bits).
+    pub e_y: f64,
+    /// Bit errors in the n key bits: what error correction finds and corrects. Real
+    /// systems learn it; the built-in rules do not read it.
+    pub key_errors: u64,
     /// Per-intensity statistics of a weak-coherent link (None for single photons).
     pub intensities: Option<IntensityObs>,
 }
@@ -237,8 +321,17 @@ pub struct KeyLength {
 
 impl KeyLength {
     fn new(raw_bits: f64, assumptions: &'static str, source: &'static str) -> Self {
-        let length = if raw_bits.is_finite() && raw_bits >= 1.0 { raw_bits.floor() as u64 } else { 0 };
-        KeyLength { raw_bits, length, assumptions, source }
+        KeyLength { raw_bits, length: KeyLength::floor_bits(raw_bits), assumptions, source }
+    }
+
+    /// The extracted length of a formula's value: `floor(raw_bits)`, or 0 when it is below
+    /// 1 or not finite.
+    pub fn floor_bits(raw_bits: f64) -> u64 {
+        if raw_bits.is_finite() && raw_bits >= 1.0 {
+            raw_bits.floor() as u64
+        } else {
+            0
+        }
     }
 }
 
