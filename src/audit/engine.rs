@@ -1,5 +1,6 @@
-//! The campaign engine: for each attack point, the exact quantities and the model to sample
-//! are computed once; then every trial draws a block from its own random stream
+//! The campaign engine: for each point (attack entry × the entry's sweep value × setup of
+//! [`Campaign::setups`], in that order, the setup innermost), the exact quantities and the
+//! model to sample are computed once, with the point's own setup; then every trial draws a block from its own random stream
 //! ([`crate::numeric::rng::trial_rng`] with the point's index and the trial's index),
 //! post-processes it and is judged under every rule of the campaign ([`super::trial`]).
 //! Trials are collected in order, so output bytes do not depend on threads.
@@ -31,6 +32,8 @@ pub struct PointResult {
     pub params: Vec<(String, Value)>,
     /// The swept parameter and its value, if any.
     pub swept: Option<(String, f64)>,
+    /// The point's setup: an index into [`Campaign::setups`] (0 without setup sweeps).
+    pub setup: usize,
     /// The key-length rule judged.
     pub rule: KeyRule,
     /// The evaluator's exact quantities. For link-level attacks Eve's knowledge is
@@ -56,23 +59,26 @@ pub fn run(c: &Campaign, progress: &(dyn Fn() + Sync)) -> Result<Vec<PointResult
     let mut jobs = Vec::new();
     for (ei, entry) in c.attacks.iter().enumerate() {
         for (swept, overrides) in entry.points() {
-            jobs.push((ei, entry, swept, overrides));
+            for si in 0..c.setups.len() {
+                jobs.push((ei, entry, swept.clone(), overrides.clone(), si));
+            }
         }
     }
-    let eval_opts = EvalOptions::full(c.setup.protocol);
-    let basis_prob = c.setup.basis_probabilities();
-    let rule_params = c.setup.rule_params();
     let per_point: Vec<Vec<PointResult>> = jobs
         .par_iter()
         .enumerate()
-        .map(|(index, (ei, entry, swept, overrides))| {
+        .map(|(index, (ei, entry, swept, overrides, si))| {
+            let setup = &c.setups[*si].setup;
+            let eval_opts = EvalOptions::full(setup.protocol);
+            let basis_prob = setup.basis_probabilities();
+            let rule_params = setup.rule_params();
             // Every link but the ideal single-photon one goes through the link model.
-            let link_model = !c.setup.link.is_ideal_single_photon();
+            let link_model = !setup.link.is_ideal_single_photon();
             let attack = entry.file.build(overrides).map_err(|e| e.with_file(&entry.origin))?;
             let (family, params, exact, model, note) = match attack {
                 AnyAttack::Pulse(attack) => {
-                    let model = PulseModel::new(&c.setup.link, Some(&attack), &basis_prob);
-                    let exact = pulse_evaluation(&model, c.setup.protocol);
+                    let model = PulseModel::new(&setup.link, Some(&attack), &basis_prob);
+                    let exact = pulse_evaluation(&model, setup.protocol);
                     let note = model.note.clone();
                     (
                         attack.name().to_string(),
@@ -83,19 +89,18 @@ pub fn run(c: &Campaign, progress: &(dyn Fn() + Sync)) -> Result<Vec<PointResult
                     )
                 }
                 AnyAttack::Qubit(attack) if link_model => {
-                    let qubit = evaluate(&attack, &EvalOptions::fast(c.setup.protocol))?;
-                    let model = PulseModel::qubit(&c.setup.link, &attack, c.setup.protocol, &basis_prob, qubit.h_x_given_e);
-                    let exact = pulse_evaluation(&model, c.setup.protocol);
+                    let qubit = evaluate(&attack, &EvalOptions::fast(setup.protocol))?;
+                    let model = PulseModel::qubit(&setup.link, &attack, setup.protocol, &basis_prob, qubit.h_x_given_e);
+                    let exact = pulse_evaluation(&model, setup.protocol);
                     let note = model.note.clone();
                     (attack.family.clone(), attack.params.0.clone(), exact, PointModel::Pulse(model), note)
                 }
                 AnyAttack::Qubit(attack) => {
                     let exact = evaluate(&attack, &eval_opts)?;
-                    let model = SignalModel::new(&attack, c.setup.protocol, &basis_prob);
+                    let model = SignalModel::new(&attack, setup.protocol, &basis_prob);
                     (attack.family.clone(), attack.params.0.clone(), exact, PointModel::Qubit(model), String::new())
                 }
             };
-            let setup = &c.setup;
             let test_size = |z: u64| setup.test_sample.size(z);
             let trials: Vec<Vec<trial::TrialOutcome>> = (0..c.trials)
                 .into_par_iter()
@@ -125,6 +130,7 @@ pub fn run(c: &Campaign, progress: &(dyn Fn() + Sync)) -> Result<Vec<PointResult
                         family: family.clone(),
                         params: params.clone(),
                         swept: swept.clone(),
+                        setup: *si,
                         rule: *rule,
                         exact: exact.clone(),
                         exact_eve_guess,
@@ -143,5 +149,5 @@ pub fn run(c: &Campaign, progress: &(dyn Fn() + Sync)) -> Result<Vec<PointResult
 
 /// Number of points a campaign will run.
 pub fn point_count(c: &Campaign) -> usize {
-    c.attacks.iter().map(|e| e.points().len()).sum()
+    c.attacks.iter().map(|e| e.points().len()).sum::<usize>() * c.setups.len()
 }

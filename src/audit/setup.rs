@@ -288,7 +288,11 @@ impl Setup {
         let mut t = self.to_table();
         let wrong_source = || Error::input_key(key, "is not a key of this setup: it needs a weak-coherent [source]");
         match spec.name {
-            "source.intensity" | "source.decoys[0]" | "source.decoys[1]" | "source.decoy_probabilities[0]" | "source.decoy_probabilities[1]" => {
+            "source.intensity"
+            | "source.decoys[0]"
+            | "source.decoys[1]"
+            | "source.decoy_probabilities[0]"
+            | "source.decoy_probabilities[1]" => {
                 let Some(src) = t.get_mut("source").and_then(|v| v.as_table_mut()) else { return Err(wrong_source()) };
                 if src.get("kind").and_then(|k| k.as_str()) != Some("weak-coherent") {
                     return Err(wrong_source());
@@ -303,7 +307,12 @@ impl Setup {
                         let slot = src.get_mut(list).and_then(|v| v.as_array_mut()).and_then(|a| a.get_mut(i));
                         match slot {
                             Some(x) => *x = toml::Value::Float(value),
-                            None => return Err(Error::input_key(key, format!("is not a key of this setup: its source has fewer than {} decoys", i + 1))),
+                            None => {
+                                return Err(Error::input_key(
+                                    key,
+                                    format!("is not a key of this setup: its source has fewer than {} decoys", i + 1),
+                                ))
+                            }
                         }
                     }
                 }
@@ -418,15 +427,8 @@ impl Setup {
         t.insert("epsilon_sec".into(), float(*epsilon_sec));
         t.insert("epsilon_cor".into(), float(*epsilon_cor));
         t.insert("key_rule".into(), toml::Value::String(key_rule.name().into()));
-        let Link {
-            source,
-            channel_loss_db,
-            length_km,
-            attenuation_db_per_km,
-            detector_efficiency,
-            dark_count_probability,
-            misalignment,
-        } = link;
+        let Link { source, channel_loss_db, length_km, attenuation_db_per_km, detector_efficiency, dark_count_probability, misalignment } =
+            link;
         let mut src = toml::Table::new();
         match source {
             Source::SinglePhoton => {

@@ -4,7 +4,12 @@
 //!   at symmetric QBER Q while the BB84 bound holds) and 1 − h(½ + √(Q(1−Q))) (the optimal
 //!   individual attack, Fuchs et al. 1997), and the abort threshold;
 //! - `abort_leak_<attack>.svg`: abort and leak probability (with 95 % intervals) against
-//!   the swept parameter, one file per swept attack.
+//!   the swept parameter, one file per swept attack (campaigns without setup sweeps);
+//! - `setup_<key>_<attack>.svg` (campaigns with setup sweeps): mean key length (with the 5–95 %
+//!   quantiles) and leak probability (with its 95 % interval) against each swept setup key,
+//!   one line per value of the other swept coordinates (the attack's sweep, other setup
+//!   keys); a logarithmic sweep gets a logarithmic axis. With several rules, one file per
+//!   attack and rule (`_<rule>` appended).
 
 use crate::audit::{Campaign, PointResult};
 use crate::error::{Error, ErrorKind, Result};
@@ -41,6 +46,20 @@ pub fn render(c: &Campaign, results: &[PointResult]) -> Result<Vec<(String, Stri
     let mut groups: Vec<(usize, crate::audit::rules::KeyRule)> = results.iter().map(|r| (r.entry, r.rule)).collect();
     groups.dedup();
     for (e, rule) in groups {
+        if !c.setup_sweeps.is_empty() {
+            for (k, sweep) in c.setup_sweeps.iter().enumerate() {
+                let pts: Vec<&PointResult> = results.iter().filter(|r| r.entry == e && r.rule == rule).collect();
+                let mut name = format!("{}_{}", sweep.key.column(), sanitize(&pts[0].attack));
+                if c.rules.len() > 1 {
+                    name = format!("{name}_{}", rule.name());
+                }
+                if out.iter().any(|(n, _)| *n == format!("{name}.svg")) {
+                    name = format!("{name}_entry{e}");
+                }
+                out.push((format!("{name}.svg"), setup_sweep_plot(c, k, &pts)?));
+            }
+            continue;
+        }
         let pts: Vec<&PointResult> = results.iter().filter(|r| r.entry == e && r.rule == rule && r.swept.is_some()).collect();
         if pts.len() >= 2 {
             let mut name = if c.rules.len() > 1 {
@@ -194,6 +213,90 @@ fn abort_leak(pts: &[&PointResult]) -> Result<String> {
                 .map_err(plot_err)?;
         }
         draw_legend(&mut chart, SeriesLabelPosition::MiddleRight)?;
+        root.present().map_err(plot_err)?;
+    }
+    Ok(svg)
+}
+
+/// Mean key length and leak probability of one attack entry under one rule against the
+/// campaign's `k`-th swept setup key: one line per value of the other coordinates.
+fn setup_sweep_plot(c: &Campaign, k: usize, pts: &[&PointResult]) -> Result<String> {
+    let sweep = &c.setup_sweeps[k];
+    let x_of = |r: &PointResult| c.setups[r.setup].values[k].1;
+    // The other coordinates of a point: the attack's swept value and the other setup keys.
+    let others = |r: &PointResult| -> String {
+        let mut parts: Vec<String> = r.swept.iter().map(|(p, v)| format!("{p} = {v}")).collect();
+        parts.extend(
+            c.setups[r.setup].values.iter().enumerate().filter(|(i, _)| *i != k).map(|(_, (key, v))| format!("{} = {v}", key.name)),
+        );
+        parts.join(", ")
+    };
+    let mut lines: Vec<(String, Vec<&PointResult>)> = Vec::new();
+    for r in pts {
+        let label = others(r);
+        match lines.iter_mut().find(|(l, _)| *l == label) {
+            Some((_, v)) => v.push(r),
+            None => lines.push((label, vec![r])),
+        }
+    }
+    for (_, v) in &mut lines {
+        v.sort_by(|a, b| x_of(a).total_cmp(&x_of(b)));
+    }
+    let (lo, hi) = pts.iter().map(|r| x_of(r)).fold((f64::INFINITY, f64::NEG_INFINITY), |(a, b), x| (a.min(x), b.max(x)));
+    let key_max = pts.iter().map(|r| r.stats.key_length_q95 as f64).fold(1.0_f64, f64::max) * 1.05;
+    let log = sweep.scale == crate::audit::campaign::Scale::Log;
+    let x_desc = format!("{}, {}", sweep.key.name, sweep.key.unit);
+    let mut svg = String::new();
+    {
+        let root = SVGBackend::with_string(&mut svg, (800, 800)).into_drawing_area();
+        root.fill(&WHITE).map_err(plot_err)?;
+        let title = format!("{} ({}) against {}", pts[0].attack, pts[0].rule, sweep.key.name);
+        let root = root.titled(&title, ("sans-serif", 20)).map_err(plot_err)?;
+        let (top, bottom) = root.split_vertically(380);
+        // One panel: `value` of each point with its interval `band`, on a linear or a
+        // logarithmic x axis (plotters types the two differently, hence the macro).
+        macro_rules! panel {
+            ($area:expr, $x:expr, $y:expr, $y_desc:expr, $value:expr, $band:expr, $legend:expr) => {{
+                let mut chart = ChartBuilder::on($area)
+                    .margin(15)
+                    .x_label_area_size(45)
+                    .y_label_area_size(70)
+                    .build_cartesian_2d($x, $y)
+                    .map_err(plot_err)?;
+                chart.configure_mesh().x_desc(x_desc.as_str()).y_desc($y_desc).draw().map_err(plot_err)?;
+                for (i, (label, line)) in lines.iter().enumerate() {
+                    let color = COLORS[i % COLORS.len()];
+                    let series: Vec<(f64, f64, (f64, f64))> = line.iter().map(|r| (x_of(r), $value(r), $band(r))).collect();
+                    let drawn = chart
+                        .draw_series(LineSeries::new(series.iter().map(|&(x, y, _)| (x, y)), color.stroke_width(2)))
+                        .map_err(plot_err)?;
+                    if $legend && !label.is_empty() {
+                        drawn.label(label.clone()).legend(move |(x, y)| PathElement::new(vec![(x, y), (x + 20, y)], color.stroke_width(2)));
+                    }
+                    chart
+                        .draw_series(series.iter().map(|&(x, _, (a, b))| PathElement::new(vec![(x, a), (x, b)], color.mix(0.6))))
+                        .map_err(plot_err)?;
+                }
+                if $legend && lines.len() > 1 {
+                    draw_legend(&mut chart, SeriesLabelPosition::UpperRight)?;
+                }
+            }};
+        }
+        let key = |r: &PointResult| r.stats.key_length_mean;
+        let key_band = |r: &PointResult| (r.stats.key_length_q05 as f64, r.stats.key_length_q95 as f64);
+        let leak = |r: &PointResult| r.stats.leak_probability;
+        let leak_band = |r: &PointResult| r.stats.leak_ci;
+        let key_desc = "mean key length, bits (bars: 5–95 %)";
+        let leak_desc = "leak probability (bars: 95 % interval)";
+        if log {
+            panel!(&top, (lo..hi.max(lo * 1.0001)).log_scale(), 0.0..key_max, key_desc, key, key_band, true);
+            panel!(&bottom, (lo..hi.max(lo * 1.0001)).log_scale(), -0.02..1.02, leak_desc, leak, leak_band, false);
+        } else {
+            let span = if hi > lo { hi - lo } else { 1.0 };
+            let x = (lo - 0.02 * span)..(hi + 0.02 * span);
+            panel!(&top, x.clone(), 0.0..key_max, key_desc, key, key_band, true);
+            panel!(&bottom, x, -0.02..1.02, leak_desc, leak, leak_band, false);
+        }
         root.present().map_err(plot_err)?;
     }
     Ok(svg)
