@@ -12,6 +12,7 @@ pub mod run;
 pub mod rounds;
 pub mod keyrate;
 pub mod hunt;
+pub mod tolerance;
 
 pub use common::Outcome;
 
@@ -50,6 +51,10 @@ pub enum Command {
     Keyrate(keyrate::KeyrateArgs),
     /// Search numerically for the strongest attack, to test how tight each bound is.
     Hunt(hunt::HuntArgs),
+    /// Find the value of one setup key (block size, abort threshold, distance, …) at which
+    /// a key-length rule starts to leak, or to give no key, against the strongest of a
+    /// campaign's attacks; exit status 1 if the configured setup is not shown safe.
+    Tolerance(tolerance::ToleranceArgs),
 }
 
 /// Runs the parsed command.
@@ -63,5 +68,6 @@ pub fn run(cli: Cli) -> Result<Outcome> {
         Command::Rounds(a) => rounds::cmd_rounds(a),
         Command::Keyrate(a) => keyrate::cmd_keyrate(a),
         Command::Hunt(a) => hunt::cmd_hunt(a),
+        Command::Tolerance(a) => tolerance::cmd_tolerance(a),
     }
 }
