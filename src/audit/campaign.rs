@@ -330,7 +330,12 @@ impl Campaign {
                             Ok(sw) if out.iter().any(|o: &SetupSweep| o.key == sw.key) => {
                                 p.push(Error::input_key(format!("{key}.key"), format!("`{}` is swept twice", sw.key.name)))
                             }
-                            Ok(sw) => out.push(sw),
+                            Ok(sw) => {
+                                if let Some(s) = &setup {
+                                    p.check(check_sweep_values(s, &sw, i));
+                                }
+                                out.push(sw);
+                            }
                             Err(errs) => p.nested(&key, errs),
                         },
                     }
@@ -458,7 +463,17 @@ fn swept_setup_warnings(setups: &[PointSetup], attacks: &[AttackEntry]) -> Vec<S
 
 /// `key = value, …` of swept setup values, for sentences.
 pub fn setup_values_text(values: &[(SetupKey, f64)]) -> String {
-    values.iter().map(|(k, v)| format!("{} = {v}", k.name)).collect::<Vec<_>>().join(", ")
+    values.iter().map(|(k, v)| format!("{} = {}", k.name, shown_value(*v))).collect::<Vec<_>>().join(", ")
+}
+
+/// A swept value in a message: scientific notation when very large or small (`1e16`, not
+/// seventeen digits).
+fn shown_value(x: f64) -> String {
+    if x != 0.0 && (x.abs() >= 1e6 || x.abs() < 1e-3) {
+        format!("{x:e}")
+    } else {
+        format!("{x}")
+    }
 }
 
 /// Reads one `[[setup_sweeps]]` table; errors name its keys.
@@ -529,27 +544,29 @@ fn parse_setup_sweep(t: &toml::Table) -> std::result::Result<SetupSweep, Vec<Err
     p.finish(sweep)
 }
 
-/// The setups of a campaign's points: every combination of the setup sweeps' values (the
-/// first sweep outermost), each built and validated by [`Setup::with_value`] and checked
-/// against every rule of the campaign. A sweep with a value out of range is reported once,
-/// at its `from` (first value) or `to` (a later one), with the value and the setup
-/// parser's message.
-fn point_setups(base: &Setup, sweeps: &[SetupSweep], rules: &[KeyRule], p: &mut Problems) -> Vec<PointSetup> {
-    let mut ok = true;
-    for (i, sw) in sweeps.iter().enumerate() {
-        let values = sw.values();
-        for (k, &v) in values.iter().enumerate() {
-            if let Err(e) = base.with_value(sw.key.name, v) {
-                let end = if k == 0 { "from" } else { "to" };
-                p.push(Error::input_key(
-                    format!("setup_sweeps[{i}].{end}"),
-                    format!("value {} of {} ({} = {v}) is not a valid setup: {e}", k + 1, values.len(), sw.key.name),
-                ));
-                ok = false;
-                break;
-            }
+/// Checks every value of the `i`-th setup sweep alone against the campaign's setup, through
+/// [`Setup::with_value`]: the first invalid value is reported at the sweep's `from` (the
+/// first value) or `to` (a later one), with the value and the setup parser's message.
+fn check_sweep_values(base: &Setup, sw: &SetupSweep, i: usize) -> Result<()> {
+    let values = sw.values();
+    for (k, &v) in values.iter().enumerate() {
+        if let Err(e) = base.with_value(sw.key.name, v) {
+            let end = if k == 0 { "from" } else { "to" };
+            return Err(Error::input_key(
+                format!("setup_sweeps[{i}].{end}"),
+                format!("value {} of {} ({} = {}) is not a valid setup: {e}", k + 1, values.len(), sw.key.name, shown_value(v)),
+            ));
         }
     }
+    Ok(())
+}
+
+/// The setups of a campaign's points: every combination of the setup sweeps' values (the
+/// first sweep outermost), each built and validated by [`Setup::with_value`] and checked
+/// against every rule of the campaign. Empty when a sweep has an invalid value (reported
+/// by [`check_sweep_values`]) or the combination is refused (reported here).
+fn point_setups(base: &Setup, sweeps: &[SetupSweep], rules: &[KeyRule], p: &mut Problems) -> Vec<PointSetup> {
+    let ok = sweeps.iter().enumerate().all(|(i, sw)| check_sweep_values(base, sw, i).is_ok());
     let total = sweeps.iter().try_fold(1usize, |acc, sw| acc.checked_mul(sw.steps));
     if total.map_or(true, |n| n > MAX_SETUP_POINTS) {
         p.push(Error::input_key(
