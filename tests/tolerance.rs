@@ -222,7 +222,7 @@ fn the_abort_threshold_search_agrees_with_a_dense_sweep() {
     let spec = abort_spec(60);
     let report = in_pool(2, || search(&c, &spec, &|_| {})).unwrap();
     let Finding::Boundary { safe, unsafe_, ref attack, .. } = report.finding else { panic!("{:?}", report.finding) };
-    assert_eq!(attack, "phase-covariant-cloner");
+    assert_eq!(attack, "phase-covariant-cloner (kind=phase-covariant;qber=0.06)");
     // Located to 2⁻⁸ of the range, or to a few such steps where inconclusive values lie between.
     assert!(safe < unsafe_ && unsafe_ - safe <= 4.0 * 0.04 / 2f64.powi(8), "[{safe}, {unsafe_}]");
     // The configured threshold 0.05 lies on the safe side; the statement says so.
@@ -280,7 +280,11 @@ fn the_block_size_boundary_of_the_rule_without_verification_matches_its_derivati
     let expected = 2f64.powf(verification_bits(1e-12) / 2.0) / (0.25 * 0.9);
     assert!(unsafe_ < safe, "unsafe below the boundary: [{unsafe_}, {safe}]");
     assert!(unsafe_ > 0.99 * expected && safe < 1.01 * expected, "[{unsafe_}, {safe}] vs {expected}");
-    assert!(report.statement.contains("leaks against `intercept-resend` for signals below a boundary"), "{}", report.statement);
+    assert!(
+        report.statement.contains("leaks against `intercept-resend (fraction=0;basis=random)` for signals below a boundary"),
+        "{}",
+        report.statement
+    );
     assert_eq!(report.configured, Side::Unsafe);
     // Every value the search classified agrees with the derivation.
     for e in report.evaluations.iter().filter(|e| e.side != Side::Inconclusive) {

@@ -481,7 +481,8 @@ impl Setup {
 pub struct SetupKey {
     /// The dotted name, as in setup files (`channel.length_km`, `source.decoys[0]`).
     pub name: &'static str,
-    /// Unit, for help texts and axis labels.
+    /// Unit, for sentences and axis labels (empty for probabilities, rates and other pure
+    /// numbers).
     pub unit: &'static str,
     /// Whether the key takes integers only (swept values are rounded to the nearest integer).
     pub integer: bool,
@@ -491,24 +492,24 @@ pub struct SetupKey {
 /// are the setup parser's ([`Setup::with_value`] re-validates every value).
 pub const SETUP_KEYS: &[SetupKey] = &[
     SetupKey { name: "signals", unit: "signals", integer: true },
-    SetupKey { name: "basis_z_probability", unit: "probability", integer: false },
-    SetupKey { name: "test_fraction", unit: "fraction of sifted Z bits", integer: false },
+    SetupKey { name: "basis_z_probability", unit: "", integer: false },
+    SetupKey { name: "test_fraction", unit: "", integer: false },
     SetupKey { name: "test_count", unit: "sifted Z bits", integer: true },
-    SetupKey { name: "abort_qber", unit: "error rate", integer: false },
-    SetupKey { name: "ec_efficiency", unit: "f", integer: false },
-    SetupKey { name: "epsilon_sec", unit: "probability", integer: false },
-    SetupKey { name: "epsilon_cor", unit: "probability", integer: false },
+    SetupKey { name: "abort_qber", unit: "", integer: false },
+    SetupKey { name: "ec_efficiency", unit: "", integer: false },
+    SetupKey { name: "epsilon_sec", unit: "", integer: false },
+    SetupKey { name: "epsilon_cor", unit: "", integer: false },
     SetupKey { name: "source.intensity", unit: "photons per pulse", integer: false },
     SetupKey { name: "source.decoys[0]", unit: "photons per pulse", integer: false },
     SetupKey { name: "source.decoys[1]", unit: "photons per pulse", integer: false },
-    SetupKey { name: "source.decoy_probabilities[0]", unit: "probability", integer: false },
-    SetupKey { name: "source.decoy_probabilities[1]", unit: "probability", integer: false },
+    SetupKey { name: "source.decoy_probabilities[0]", unit: "", integer: false },
+    SetupKey { name: "source.decoy_probabilities[1]", unit: "", integer: false },
     SetupKey { name: "channel.length_km", unit: "km", integer: false },
     SetupKey { name: "channel.attenuation_db_per_km", unit: "dB/km", integer: false },
     SetupKey { name: "channel.loss_db", unit: "dB", integer: false },
-    SetupKey { name: "detector.efficiency", unit: "probability", integer: false },
+    SetupKey { name: "detector.efficiency", unit: "", integer: false },
     SetupKey { name: "detector.dark_count_probability", unit: "per gate", integer: false },
-    SetupKey { name: "detector.misalignment", unit: "probability", integer: false },
+    SetupKey { name: "detector.misalignment", unit: "", integer: false },
 ];
 
 impl SetupKey {

@@ -254,14 +254,14 @@ pub enum Finding {
         unsafe_: f64,
         /// Values left inconclusive between them.
         band: Vec<f64>,
-        /// The attack that is unsafe at `unsafe_`.
+        /// The attack point that is unsafe at `unsafe_` (label and parameters).
         attack: String,
     },
     /// Both ends (and hence, with one crossing, the whole range) are safe.
     SafeThroughout,
     /// Both ends are unsafe.
     UnsafeThroughout {
-        /// The attack deciding at the end closer to the setup's value (or at `from`).
+        /// The attack point deciding at `from` (label and parameters).
         attack: String,
     },
     /// An end stayed inconclusive: no boundary claim.
@@ -353,7 +353,7 @@ pub fn search(c: &Campaign, spec: &Spec, progress: &(dyn Fn(&Evaluation) + Sync)
     let mut notes = Vec::new();
     let finding = match (s0, s1) {
         (Side::Safe, Side::Safe) => Finding::SafeThroughout,
-        (Side::Unsafe, Side::Unsafe) => Finding::UnsafeThroughout { attack: evaluations[0].decisive().attack.clone() },
+        (Side::Unsafe, Side::Unsafe) => Finding::UnsafeThroughout { attack: attack_text(evaluations[0].decisive()) },
         (Side::Inconclusive, _) => Finding::InconclusiveEnd { value: spec.value_at(0.0) },
         (_, Side::Inconclusive) => Finding::InconclusiveEnd { value: spec.value_at(1.0) },
         _ => {
@@ -395,7 +395,7 @@ pub fn search(c: &Campaign, spec: &Spec, progress: &(dyn Fn(&Evaluation) + Sync)
                         safe: value(safe),
                         unsafe_: value(first_unsafe),
                         band: band.iter().map(|&u| value(u)).collect(),
-                        attack: unsafe_eval.map(|e| e.decisive().attack.clone()).unwrap_or_default(),
+                        attack: unsafe_eval.map(|e| attack_text(e.decisive())).unwrap_or_default(),
                     };
                 };
                 let t = to_t(0.5 * (a + b));
@@ -484,6 +484,15 @@ fn evidence(spec: &Spec, level: f64, r: &PointResult) -> AttackEvidence {
     }
 }
 
+/// An attack point for sentences: its label and parameters.
+fn attack_text(a: &AttackEvidence) -> String {
+    if a.params.is_empty() {
+        a.attack.clone()
+    } else {
+        format!("{} ({})", a.attack, a.params)
+    }
+}
+
 /// A value as a reader writes it.
 fn num(x: f64) -> String {
     if x != 0.0 && (x.abs() < 1e-3 || x.abs() >= 1e6) {
@@ -497,7 +506,7 @@ fn num(x: f64) -> String {
 /// The finding in one sentence.
 fn statement(spec: &Spec, finding: &Finding, configured: Side, configured_value: Option<f64>) -> String {
     let key = spec.key.name;
-    let unit = spec.key.unit;
+    let unit = if spec.key.unit.is_empty() { String::new() } else { format!(" {}", spec.key.unit) };
     let rule = spec.rule;
     let (bad, good) = match spec.criterion {
         Criterion::Leak => ("leaks", "stays safe"),
@@ -509,21 +518,21 @@ fn statement(spec: &Spec, finding: &Finding, configured: Side, configured_value:
         num(spec.threshold),
         num(100.0 * spec.confidence)
     );
-    let range = format!("{} to {} {unit}", num(spec.from.min(spec.to)), num(spec.from.max(spec.to)));
+    let range = format!("{} to {}{unit}", num(spec.from.min(spec.to)), num(spec.from.max(spec.to)));
     let main = match finding {
         Finding::Boundary { safe, unsafe_, band, attack } => {
             let (lo, hi) = (safe.min(*unsafe_), safe.max(*unsafe_));
             let band = if band.is_empty() { String::new() } else { format!(", {} value(s) between them inconclusive", band.len()) };
             if unsafe_ < safe {
                 format!(
-                    "the rule `{rule}` {bad} against `{attack}` for {key} below a boundary between {} and {} {unit}, and {good} above it up to {} {unit}{band} ({level}; one crossing assumed)",
+                    "the rule `{rule}` {bad} against `{attack}` for {key} below a boundary between {} and {}{unit}, and {good} above it up to {}{unit}{band} ({level}; one crossing assumed)",
                     num(lo),
                     num(hi),
                     num(spec.from.max(spec.to))
                 )
             } else {
                 format!(
-                    "the rule `{rule}` {good} up to {key} = {} {unit} and {bad} against `{attack}` from {key} = {} {unit} on{band} (searched from {}; {level}; one crossing assumed)",
+                    "the rule `{rule}` {good} up to {key} = {}{unit} and {bad} against `{attack}` from {key} = {}{unit} on{band} (searched from {}; {level}; one crossing assumed)",
                     num(lo),
                     num(hi),
                     num(spec.from.min(spec.to))
@@ -533,13 +542,13 @@ fn statement(spec: &Spec, finding: &Finding, configured: Side, configured_value:
         Finding::SafeThroughout => format!("the rule `{rule}` {good} against every listed attack at both ends of {key} = {range} ({level}; one crossing assumed, so throughout)"),
         Finding::UnsafeThroughout { attack } => format!("the rule `{rule}` {bad} against `{attack}` at both ends of {key} = {range} ({level})"),
         Finding::InconclusiveEnd { value } => format!(
-            "no boundary claim: at {key} = {} {unit} the evidence stays inconclusive after {} trials per attack ({level}); raise --max-trials or move the range",
+            "no boundary claim: at {key} = {}{unit} the evidence stays inconclusive after {} trials per attack ({level}); raise --max-trials or move the range",
             num(*value),
             spec.max_trials
         ),
     };
     let own = match configured_value {
-        Some(v) => format!("the configured {key} = {} {unit}", num(v)),
+        Some(v) => format!("the configured {key} = {}{unit}", num(v)),
         None => "the configured setup".to_string(),
     };
     let verdict = match (configured, spec.criterion) {

@@ -111,6 +111,11 @@ pub fn cmd_tolerance(a: ToleranceArgs) -> Result<Outcome> {
         (None, None) => Campaign::demo(),
     };
     let key = SetupKey::find(&a.key).map_err(|e| e.with_key("--key"))?;
+    if !campaign.setup_sweeps.is_empty() {
+        note("note: the campaign's [[setup_sweeps]] are not used; the search varies --key on the campaign's setup");
+        campaign.setup_sweeps.clear();
+        campaign.setups.clear();
+    }
     let rule = match &a.rule {
         None => campaign.setup.key_rule,
         Some(r) => r.parse().map_err(|e: String| Error::input_key("--rule", e))?,
@@ -166,7 +171,7 @@ pub fn cmd_tolerance(a: ToleranceArgs) -> Result<Outcome> {
     let quiet = a.quiet;
     let progress = |e: &Evaluation| {
         if !quiet {
-            let at = e.value.map_or("the configured setup".to_string(), |v| format!("{} = {v}", key.name));
+            let at = e.value.map_or("the configured setup".to_string(), |v| format!("{} = {}", key.name, crate::exact::sweep::fmt_num(v)));
             let d = e.decisive();
             note(&format!(
                 "{at}: {} ({} {}: {} of {} trials, limits [{:.4}, {:.4}])",

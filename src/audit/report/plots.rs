@@ -245,7 +245,7 @@ fn setup_sweep_plot(c: &Campaign, k: usize, pts: &[&PointResult]) -> Result<Stri
     let (lo, hi) = pts.iter().map(|r| x_of(r)).fold((f64::INFINITY, f64::NEG_INFINITY), |(a, b), x| (a.min(x), b.max(x)));
     let key_max = pts.iter().map(|r| r.stats.key_length_q95 as f64).fold(1.0_f64, f64::max) * 1.05;
     let log = sweep.scale == crate::audit::campaign::Scale::Log;
-    let x_desc = format!("{}, {}", sweep.key.name, sweep.key.unit);
+    let x_desc = if sweep.key.unit.is_empty() { sweep.key.name.to_string() } else { format!("{}, {}", sweep.key.name, sweep.key.unit) };
     let mut svg = String::new();
     {
         let root = SVGBackend::with_string(&mut svg, (800, 800)).into_drawing_area();
