@@ -357,3 +357,18 @@ fn the_tolerance_command_exits_by_the_configured_side_and_is_thread_independent(
         assert!(err.contains(named), "{args:?}: {err}");
     }
 }
+
+#[test]
+fn the_example_campaigns_are_valid() {
+    let dir = Path::new(env!("CARGO_MANIFEST_DIR")).join("campaigns").join("examples");
+    let mut n = 0;
+    for entry in std::fs::read_dir(&dir).unwrap() {
+        let path = entry.unwrap().path();
+        if path.extension().is_some_and(|x| x == "toml") {
+            let c = Campaign::load(&path).unwrap_or_else(|e| panic!("{e}"));
+            assert!(c.warnings.is_empty(), "{}: {:?}", path.display(), c.warnings);
+            n += 1;
+        }
+    }
+    assert!(n >= 2);
+}
