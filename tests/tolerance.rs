@@ -372,3 +372,47 @@ fn the_example_campaigns_are_valid() {
     }
     assert!(n >= 2);
 }
+
+#[test]
+fn the_distance_at_which_a_single_photon_link_loses_its_key_agrees_with_a_dense_sweep() {
+    // A single-photon source on a fibre, the finite-key rule, no eavesdropper: the key bits
+    // fall with the transmittance until the finite-size terms take the whole key.
+    let text = "name = \"fibre\"\nseed = 2\ntrials = 40\n[setup]\nsignals = 1000000\nkey_rule = \"finite-uncertainty\"\n\
+                [setup.channel]\nlength_km = 10\nattenuation_db_per_km = 0.2\n\
+                [[attacks]]\nbuiltin = \"intercept-resend\"\nsteps = 1\nfrom = 0.0\n";
+    let c = Campaign::parse(text, "test", None).unwrap();
+    let spec = Spec {
+        key: SetupKey::find("channel.length_km").unwrap(),
+        from: 0.0,
+        to: 200.0,
+        scale: Scale::Linear,
+        rule: KeyRule::FiniteUncertainty,
+        criterion: Criterion::NoKey,
+        threshold: 0.05,
+        confidence: 0.95,
+        trials: 40,
+        max_trials: 160,
+        bisections: 8,
+    };
+    let report = search(&c, &spec, &|_| {}).unwrap();
+    let Finding::Boundary { safe, unsafe_, .. } = report.finding else { panic!("{:?}", report.finding) };
+    assert!(safe < unsafe_ && unsafe_ - safe <= 4.0 * 200.0 / 256.0, "[{safe}, {unsafe_}]");
+    assert_eq!(report.configured, Side::Safe, "10 km gives a key");
+    assert!(report.statement.contains("gives a key up to channel.length_km ="), "{}", report.statement);
+    let steps = 51;
+    let dense_text = format!("{text}[[setup_sweeps]]\nkey = \"channel.length_km\"\nfrom = 0\nto = 200\nsteps = {steps}\n");
+    let dense = Campaign::parse(&dense_text, "test", None).unwrap();
+    let rows = run(&dense, &|| {}).unwrap();
+    let step = 200.0 / (steps - 1) as f64;
+    let km = |r: &PointResult| dense.setups[r.setup].setup.link.length_km.unwrap();
+    let key_probability = |r: &PointResult| 1.0 - r.stats.abort_probability - r.stats.no_key_fraction;
+    let crossing = rows.iter().find(|r| key_probability(r) <= spec.threshold).map(km).unwrap();
+    assert!(crossing >= safe - step && crossing <= unsafe_ + step, "dense crossing {crossing} km, searched [{safe}, {unsafe_}]");
+    for r in &rows {
+        if km(r) < safe - step {
+            assert!(key_probability(r) > spec.threshold, "{} km", km(r));
+        } else if km(r) > unsafe_ + step {
+            assert!(key_probability(r) <= spec.threshold, "{} km", km(r));
+        }
+    }
+}

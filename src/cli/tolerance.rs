@@ -40,6 +40,10 @@ pub struct ToleranceArgs {
     /// Built-in demo campaign to use without a campaign file (default: decoy).
     #[arg(long, value_enum, value_name = "NAME")]
     pub demo: Option<DemoArg>,
+    /// A setup file (TOML) that replaces the campaign's setup: the system whose tolerance is
+    /// searched, with the campaign's attacks.
+    #[arg(long, value_name = "PATH")]
+    pub setup: Option<PathBuf>,
     /// The numeric setup key to search, as written in setup files: signals, abort_qber,
     /// test_fraction, test_count, basis_z_probability, ec_efficiency, epsilon_sec, epsilon_cor,
     /// source.intensity, source.decoys[0|1], source.decoy_probabilities[0|1],
@@ -110,6 +114,9 @@ pub fn cmd_tolerance(a: ToleranceArgs) -> Result<Outcome> {
         (None, Some(d)) => Campaign::demo_named(d.name())?,
         (None, None) => Campaign::demo(),
     };
+    if let Some(path) = &a.setup {
+        campaign.setup = crate::audit::setup::Setup::load(path)?;
+    }
     let key = SetupKey::find(&a.key).map_err(|e| e.with_key("--key"))?;
     if !campaign.setup_sweeps.is_empty() {
         note("note: the campaign's [[setup_sweeps]] are not used; the search varies --key on the campaign's setup");

@@ -245,7 +245,22 @@ fn setup_sweep_plot(c: &Campaign, k: usize, pts: &[&PointResult]) -> Result<Stri
     let (lo, hi) = pts.iter().map(|r| x_of(r)).fold((f64::INFINITY, f64::NEG_INFINITY), |(a, b), x| (a.min(x), b.max(x)));
     let key_max = pts.iter().map(|r| r.stats.key_length_q95 as f64).fold(1.0_f64, f64::max) * 1.05;
     let log = sweep.scale == crate::audit::campaign::Scale::Log;
-    let x_desc = if sweep.key.unit.is_empty() { sweep.key.name.to_string() } else { format!("{}, {}", sweep.key.name, sweep.key.unit) };
+    let x_desc = if sweep.key.unit.is_empty() || sweep.key.unit == sweep.key.name {
+        sweep.key.name.to_string()
+    } else {
+        format!("{}, {}", sweep.key.name, sweep.key.unit)
+    };
+    // Tick labels without float noise: scientific notation for large and small values.
+    let tick = |x: &f64| {
+        if *x != 0.0 && (x.abs() >= 1e5 || x.abs() < 1e-3) {
+            format!("{x:.0e}")
+        } else {
+            format!("{}", (x * 1e6).round() / 1e6)
+        }
+    };
+    // On a logarithmic sweep the key lengths span decades too: a logarithmic axis from one
+    // bit, where a key of 0 bits is drawn.
+    let key_floor = 1.0;
     let mut svg = String::new();
     {
         let root = SVGBackend::with_string(&mut svg, (800, 800)).into_drawing_area();
@@ -263,7 +278,14 @@ fn setup_sweep_plot(c: &Campaign, k: usize, pts: &[&PointResult]) -> Result<Stri
                     .y_label_area_size(70)
                     .build_cartesian_2d($x, $y)
                     .map_err(plot_err)?;
-                chart.configure_mesh().x_desc(x_desc.as_str()).y_desc($y_desc).draw().map_err(plot_err)?;
+                chart
+                    .configure_mesh()
+                    .x_desc(x_desc.as_str())
+                    .y_desc($y_desc)
+                    .x_label_formatter(&tick)
+                    .y_label_formatter(&tick)
+                    .draw()
+                    .map_err(plot_err)?;
                 for (i, (label, line)) in lines.iter().enumerate() {
                     let color = COLORS[i % COLORS.len()];
                     let series: Vec<(f64, f64, (f64, f64))> = line.iter().map(|r| (x_of(r), $value(r), $band(r))).collect();
@@ -289,7 +311,11 @@ fn setup_sweep_plot(c: &Campaign, k: usize, pts: &[&PointResult]) -> Result<Stri
         let key_desc = "mean key length, bits (bars: 5–95 %)";
         let leak_desc = "leak probability (bars: 95 % interval)";
         if log {
-            panel!(&top, (lo..hi.max(lo * 1.0001)).log_scale(), 0.0..key_max, key_desc, key, key_band, true);
+            let key = |r: &PointResult| r.stats.key_length_mean.max(key_floor);
+            let key_band =
+                |r: &PointResult| ((r.stats.key_length_q05 as f64).max(key_floor), (r.stats.key_length_q95 as f64).max(key_floor));
+            let key_desc = "mean key length, bits (bars: 5–95 %; 0 drawn at 1)";
+            panel!(&top, (lo..hi.max(lo * 1.0001)).log_scale(), (key_floor..key_max.max(10.0)).log_scale(), key_desc, key, key_band, true);
             panel!(&bottom, (lo..hi.max(lo * 1.0001)).log_scale(), -0.02..1.02, leak_desc, leak, leak_band, false);
         } else {
             let span = if hi > lo { hi - lo } else { 1.0 };
