@@ -339,8 +339,8 @@ pub fn search(c: &Campaign, spec: &Spec, progress: &(dyn Fn(&Evaluation) + Sync)
         Ok(s)
     };
     // Both ends are built first, so a range outside the key's allowed values fails at once.
-    setup_at(spec.from)?;
-    setup_at(spec.to)?;
+    setup_at(spec.value_at(0.0))?;
+    setup_at(spec.value_at(1.0))?;
     let judge_value = |v: Option<f64>, setup: Setup, role: &'static str| -> Result<Evaluation> {
         let e = classify(c, spec, level, v, setup, role)?;
         progress(&e);
@@ -529,7 +529,7 @@ fn statement(spec: &Spec, finding: &Finding, configured: Side, configured_value:
         num(spec.threshold),
         num(100.0 * spec.confidence)
     );
-    let range = format!("{} to {}{unit}", num(spec.from.min(spec.to)), num(spec.from.max(spec.to)));
+    let range = format!("{} to {}{unit}", num(spec.value_at(0.0).min(spec.value_at(1.0))), num(spec.value_at(0.0).max(spec.value_at(1.0))));
     let main = match finding {
         Finding::Boundary { safe, unsafe_, band, attack } => {
             let (lo, hi) = (safe.min(*unsafe_), safe.max(*unsafe_));
@@ -539,14 +539,14 @@ fn statement(spec: &Spec, finding: &Finding, configured: Side, configured_value:
                     "the rule `{rule}` {bad} against `{attack}` for {key} below a boundary between {} and {}{unit}, and {good} above it up to {}{unit}{band} ({level}; one crossing assumed)",
                     num(lo),
                     num(hi),
-                    num(spec.from.max(spec.to))
+                    num(spec.value_at(0.0).max(spec.value_at(1.0)))
                 )
             } else {
                 format!(
                     "the rule `{rule}` {good} up to {key} = {}{unit} and {bad} against `{attack}` from {key} = {}{unit} on{band} (searched from {}; {level}; one crossing assumed)",
                     num(lo),
                     num(hi),
-                    num(spec.from.min(spec.to))
+                    num(spec.value_at(0.0).min(spec.value_at(1.0)))
                 )
             }
         }
