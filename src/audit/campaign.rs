@@ -18,14 +18,25 @@
 //! # file = "attacks/x.toml"    # a catalogue entry or kraus file (relative to this file)
 //! steps = 11                   # optional: override the entry's sweep (also from, to)
 //! params = { basis = "z" }     # optional: parameter overrides
+//! [[setup_sweeps]]             # optional, repeatable: sweep a numeric setup key
+//! key = "signals"              # a name of `setup::SETUP_KEYS`
+//! from = 1e4                   # first and last value, in the key's unit
+//! to = 1e10
+//! steps = 7                    # 1..=100000
+//! scale = "log"                # linear (default) | log (from, to > 0)
 //! ```
-//! The engine that runs a campaign is [`super::engine`].
+//! A point is (attack entry × the entry's sweep value × setup), with one setup per
+//! combination of the setup sweeps (the first sweep outermost; without setup sweeps the
+//! one setup of the file). Every swept setup is built by [`Setup::with_value`], so a value
+//! out of the key's range is an error before any work; integer keys (`signals`,
+//! `test_count`) are rounded to the nearest integer, and a sweep whose rounded values
+//! repeat is refused. The engine that runs a campaign is [`super::engine`].
 
 use crate::attack::file::{builtin_entry_text, parse as parse_attack, AttackFile, Sweep};
 use crate::attack::Value;
 use crate::audit::rules::Rule;
 use crate::audit::sample::Sampler;
-use crate::audit::setup::Setup;
+use crate::audit::setup::{Setup, SetupKey};
 use crate::error::{Error, Result};
 use crate::input::{first, parse_toml, unknown_keys, Problems};
 use std::collections::BTreeMap;
@@ -51,6 +62,75 @@ pub struct AttackEntry {
     pub params: BTreeMap<String, Value>,
 }
 
+/// How a setup sweep steps from `from` to `to`.
+#[derive(Clone, Copy, Debug, PartialEq, Eq, serde::Serialize)]
+#[serde(rename_all = "kebab-case")]
+pub enum Scale {
+    /// Equal differences.
+    Linear,
+    /// Equal ratios (from and to positive).
+    Log,
+}
+
+/// A sweep of one numeric setup key.
+#[derive(Clone, Debug, PartialEq)]
+pub struct SetupSweep {
+    /// The key.
+    pub key: SetupKey,
+    /// First value.
+    pub from: f64,
+    /// Last value.
+    pub to: f64,
+    /// Number of values (with 1 only `from`).
+    pub steps: usize,
+    /// Linear or logarithmic steps.
+    pub scale: Scale,
+}
+
+impl SetupSweep {
+    /// The swept values, `from` and `to` exactly, integer keys rounded to the nearest integer.
+    pub fn values(&self) -> Vec<f64> {
+        (0..self.steps).map(|i| self.value_at(i)).collect()
+    }
+
+    fn value_at(&self, i: usize) -> f64 {
+        let n = self.steps.max(2) - 1;
+        let x = if i == 0 {
+            self.from
+        } else if i == n {
+            self.to
+        } else {
+            let t = i as f64 / n as f64;
+            match self.scale {
+                Scale::Linear => self.from + (self.to - self.from) * t,
+                Scale::Log => (self.from.ln() + (self.to.ln() - self.from.ln()) * t).exp(),
+            }
+        };
+        if self.key.integer {
+            x.round()
+        } else {
+            x
+        }
+    }
+}
+
+/// The setup of some of a campaign's points: the swept keys' values and the setup they give.
+#[derive(Clone, Debug, PartialEq)]
+pub struct PointSetup {
+    /// The swept keys and their values (empty without setup sweeps).
+    pub values: Vec<(SetupKey, f64)>,
+    /// The setup with those values.
+    pub setup: Setup,
+}
+
+/// Most setups a campaign's setup sweeps may combine into (the product of their steps):
+/// the same cap as one sweep's steps.
+pub const MAX_SETUP_POINTS: usize = crate::exact::sweep::MAX_SWEEP_STEPS;
+
+/// Most warnings about swept setups printed before the rest are counted: one per swept
+/// setup would bury the other warnings.
+const MAX_SWEPT_SETUP_WARNINGS: usize = 10;
+
 /// A validated campaign.
 #[derive(Clone, Debug)]
 pub struct Campaign {
@@ -62,8 +142,13 @@ pub struct Campaign {
     pub trials: u64,
     /// Block sampler.
     pub sampler: Sampler,
-    /// System under test.
+    /// System under test, as the campaign's setup (file or table) gives it.
     pub setup: Setup,
+    /// Setup sweeps (`[[setup_sweeps]]`), in the file's order.
+    pub setup_sweeps: Vec<SetupSweep>,
+    /// The setups of the points: one per combination of the setup sweeps' values, or
+    /// `setup` alone. [`crate::audit::engine::PointResult::setup`] indexes this list.
+    pub setups: Vec<PointSetup>,
     /// Key-length rules judged on the same blocks: the setup's `key_rule` first, then the
     /// campaign's comparison `rules` not already listed.
     pub rules: Vec<Rule>,
@@ -124,7 +209,7 @@ impl Campaign {
     pub fn parse_all(text: &str, origin: &str, base: Option<&Path>) -> std::result::Result<Campaign, Vec<Error>> {
         let t = parse_toml(text).map_err(|e| vec![e])?;
         let mut p = Problems::new();
-        p.nested("", unknown_keys(&t, &["name", "seed", "trials", "sampler", "setup", "rules", "attacks"], "a campaign"));
+        p.nested("", unknown_keys(&t, &["name", "seed", "trials", "sampler", "setup", "rules", "attacks", "setup_sweeps"], "a campaign"));
         let name = match t.get("name") {
             Some(toml::Value::String(s)) if valid_name(s) => s.clone(),
             Some(_) => {
@@ -256,28 +341,62 @@ impl Campaign {
             }
             _ => p.push(Error::input_key("attacks", "must be a non-empty list of [[attacks]] tables")),
         }
+        let setup_sweeps = match t.get("setup_sweeps") {
+            None => Vec::new(),
+            Some(toml::Value::Array(list)) => {
+                let mut out = Vec::new();
+                for (i, entry) in list.iter().enumerate() {
+                    let key = format!("setup_sweeps[{i}]");
+                    match entry.as_table() {
+                        None => p.push(Error::input_key(key, "must be a table")),
+                        Some(table) => match parse_setup_sweep(table) {
+                            Ok(sw) if out.iter().any(|o: &SetupSweep| o.key == sw.key) => {
+                                p.push(Error::input_key(format!("{key}.key"), format!("`{}` is swept twice", sw.key.name)))
+                            }
+                            Ok(sw) => {
+                                if let Some(s) = &setup {
+                                    p.check(check_sweep_values(s, &sw, i));
+                                }
+                                out.push(sw);
+                            }
+                            Err(errs) => p.nested(&key, errs),
+                        },
+                    }
+                }
+                out
+            }
+            Some(_) => {
+                p.push(Error::input_key("setup_sweeps", "must be a list of [[setup_sweeps]] tables"));
+                Vec::new()
+            }
+        };
+        let setups = match &setup {
+            Some(s) => point_setups(s, &setup_sweeps, &rules, &mut p),
+            None => Vec::new(),
+        };
         let (Some(setup), Some(sampler)) = (setup, sampler) else {
             return Err(p.finish(()).err().unwrap_or_else(|| vec![Error::input("invalid campaign")]));
         };
         // The per-round sampler draws every signal: about 10⁸ signals per second per core.
         const ROUND_SAMPLER_MAX_SIGNALS: u64 = 1_000_000_000;
-        if sampler == Sampler::Round && setup.signals > ROUND_SAMPLER_MAX_SIGNALS {
-            let points: usize = attacks.iter().map(|e| e.points().len()).sum();
-            let seconds = setup.signals as f64 * trials as f64 * points as f64 / 1e8;
+        let largest = setups.iter().map(|s| &s.setup).max_by_key(|s| s.signals).unwrap_or(&setup);
+        if sampler == Sampler::Round && largest.signals > ROUND_SAMPLER_MAX_SIGNALS {
+            let points: usize = attacks.iter().map(|e| e.points().len()).sum::<usize>() * setups.len().max(1);
+            let seconds = largest.signals as f64 * trials as f64 * points as f64 / 1e8;
             p.push(Error::input_key(
                 "sampler",
                 format!(
                     "the per-round sampler draws every one of the {} signals of a block: about {seconds:.1e} CPU seconds for this \
                      campaign; it is capped at {ROUND_SAMPLER_MAX_SIGNALS} signals per block. Use sampler = \"count\" (exact in \
                      distribution, cost independent of the block size)",
-                    setup.signals
+                    largest.signals
                 ),
             ));
-        } else if sampler == Sampler::Round && !setup.link.is_ideal_single_photon() {
+        } else if sampler == Sampler::Round && !setups.iter().all(|s| s.setup.link.is_ideal_single_photon()) {
             p.push(Error::input_key("sampler", "the per-round sampler supports the ideal single-photon link only; use \"count\""));
         }
-        let warnings = preflight_warnings(&setup, &attacks);
-        p.finish(Campaign { name, seed, trials, sampler, setup, rules, attacks, inputs, warnings })
+        let warnings = if setup_sweeps.is_empty() { preflight_warnings(&setup, &attacks) } else { swept_setup_warnings(&setups, &attacks) };
+        p.finish(Campaign { name, seed, trials, sampler, setup, setup_sweeps, setups, rules, attacks, inputs, warnings })
     }
 }
 
@@ -299,6 +418,13 @@ pub fn expected_sifted_z_bits(setup: &Setup) -> f64 {
 /// threshold above the protocol's zero-rate QBER (with one-way post-processing at the
 /// Shannon limit), and a parameter override that a sweep replaces.
 pub fn preflight_warnings(setup: &Setup, attacks: &[AttackEntry]) -> Vec<String> {
+    let mut out = setup_warnings(setup);
+    out.extend(attack_warnings(attacks));
+    out
+}
+
+/// The warnings of [`preflight_warnings`] about the setup.
+fn setup_warnings(setup: &Setup) -> Vec<String> {
     let mut out = Vec::new();
     let sifted = expected_sifted_z_bits(setup);
     let key_bits = sifted - setup.test_sample.size(sifted.floor() as u64) as f64;
@@ -338,6 +464,12 @@ pub fn preflight_warnings(setup: &Setup, attacks: &[AttackEntry]) -> Vec<String>
             ));
         }
     }
+    out
+}
+
+/// The warnings of [`preflight_warnings`] about the attack entries.
+fn attack_warnings(attacks: &[AttackEntry]) -> Vec<String> {
+    let mut out = Vec::new();
     for e in attacks {
         if let Some(s) = &e.sweep {
             if e.params.contains_key(&s.param) {
@@ -346,6 +478,175 @@ pub fn preflight_warnings(setup: &Setup, attacks: &[AttackEntry]) -> Vec<String>
         }
     }
     out
+}
+
+/// The warnings of a campaign with setup sweeps: each swept setup's (see
+/// [`preflight_warnings`]) prefixed by its values, at most [`MAX_SWEPT_SETUP_WARNINGS`] of
+/// them, then the attack entries'.
+fn swept_setup_warnings(setups: &[PointSetup], attacks: &[AttackEntry]) -> Vec<String> {
+    let mut per_setup = Vec::new();
+    for s in setups {
+        for w in setup_warnings(&s.setup) {
+            per_setup.push(format!("at {}: {w}", setup_values_text(&s.values)));
+        }
+    }
+    let more = per_setup.len().saturating_sub(MAX_SWEPT_SETUP_WARNINGS);
+    per_setup.truncate(MAX_SWEPT_SETUP_WARNINGS);
+    if more > 0 {
+        per_setup.push(format!("{more} more warning(s) about swept setups like the above"));
+    }
+    per_setup.extend(attack_warnings(attacks));
+    per_setup
+}
+
+/// `key = value, …` of swept setup values, for sentences.
+pub fn setup_values_text(values: &[(SetupKey, f64)]) -> String {
+    values.iter().map(|(k, v)| format!("{} = {}", k.name, shown_value(*v))).collect::<Vec<_>>().join(", ")
+}
+
+/// A swept value in a message: scientific notation when very large or small (`1e16`, not
+/// seventeen digits).
+fn shown_value(x: f64) -> String {
+    if x != 0.0 && (x.abs() >= 1e6 || x.abs() < 1e-3) {
+        format!("{x:e}")
+    } else {
+        format!("{x}")
+    }
+}
+
+/// Reads one `[[setup_sweeps]]` table; errors name its keys.
+fn parse_setup_sweep(t: &toml::Table) -> std::result::Result<SetupSweep, Vec<Error>> {
+    let mut p = Problems::new();
+    p.nested("", unknown_keys(t, &["key", "from", "to", "steps", "scale"], "a setup sweep"));
+    let key = match t.get("key") {
+        Some(toml::Value::String(k)) => p.check(SetupKey::find(k).map_err(|e| e.with_key("key"))),
+        Some(_) => {
+            p.push(Error::input_key("key", "must be a string naming a numeric setup key"));
+            None
+        }
+        None => {
+            p.push(Error::input_key("key", "missing: the numeric setup key to sweep (e.g. \"signals\")"));
+            None
+        }
+    };
+    let mut ends = [None, None];
+    for (slot, name) in ends.iter_mut().zip(["from", "to"]) {
+        match t.get(name) {
+            Some(v) => *slot = p.check(crate::input::number(v, name)),
+            None => {
+                p.push(Error::input_key(name, format!("missing: the {} value of the sweep", if name == "from" { "first" } else { "last" })))
+            }
+        }
+    }
+    let max = crate::exact::sweep::MAX_SWEEP_STEPS;
+    let steps = match t.get("steps") {
+        Some(toml::Value::Integer(i)) if (1..=max as i64).contains(i) => Some(*i as usize),
+        Some(v) => {
+            p.push(Error::input_key("steps", format!("must be an integer in [1, {max}], not {}", crate::input::shown(v))));
+            None
+        }
+        None => {
+            p.push(Error::input_key("steps", "missing: the number of values"));
+            None
+        }
+    };
+    let scale = match t.get("scale").map(|v| v.as_str()) {
+        None | Some(Some("linear")) => Some(Scale::Linear),
+        Some(Some("log")) => Some(Scale::Log),
+        Some(_) => {
+            p.push(Error::input_key("scale", "must be \"linear\" or \"log\""));
+            None
+        }
+    };
+    let (Some(key), [Some(from), Some(to)], Some(steps), Some(scale)) = (key, ends, steps, scale) else {
+        return Err(p.finish(()).err().unwrap_or_default());
+    };
+    if scale == Scale::Log && !(from > 0.0 && to > 0.0) {
+        p.push(Error::input_key(if from > 0.0 { "to" } else { "from" }, "a logarithmic sweep needs from > 0 and to > 0"));
+    }
+    let sweep = SetupSweep { key, from, to, steps, scale };
+    if p.is_empty() && key.integer {
+        let mut values = sweep.values();
+        values.dedup();
+        if values.len() < steps {
+            p.push(Error::input_key(
+                "steps",
+                format!(
+                    "{} takes integers: {steps} steps from {from} to {to} repeat values after rounding; use at most {} steps",
+                    key.name,
+                    values.len()
+                ),
+            ));
+        }
+    }
+    p.finish(sweep)
+}
+
+/// Checks every value of the `i`-th setup sweep alone against the campaign's setup, through
+/// [`Setup::with_value`]: the first invalid value is reported at the sweep's `from` (the
+/// first value) or `to` (a later one), with the value and the setup parser's message.
+fn check_sweep_values(base: &Setup, sw: &SetupSweep, i: usize) -> Result<()> {
+    let values = sw.values();
+    for (k, &v) in values.iter().enumerate() {
+        if let Err(e) = base.with_value(sw.key.name, v) {
+            let end = if k == 0 { "from" } else { "to" };
+            return Err(Error::input_key(
+                format!("setup_sweeps[{i}].{end}"),
+                format!("value {} of {} ({} = {}) is not a valid setup: {e}", k + 1, values.len(), sw.key.name, shown_value(v)),
+            ));
+        }
+    }
+    Ok(())
+}
+
+/// The setups of a campaign's points: every combination of the setup sweeps' values (the
+/// first sweep outermost), each built and validated by [`Setup::with_value`] and checked
+/// against every rule of the campaign. Empty when a sweep has an invalid value (reported
+/// by [`check_sweep_values`]) or the combination is refused (reported here).
+fn point_setups(base: &Setup, sweeps: &[SetupSweep], rules: &[Rule], p: &mut Problems) -> Vec<PointSetup> {
+    let ok = sweeps.iter().enumerate().all(|(i, sw)| check_sweep_values(base, sw, i).is_ok());
+    let total = sweeps.iter().try_fold(1usize, |acc, sw| acc.checked_mul(sw.steps));
+    if total.map_or(true, |n| n > MAX_SETUP_POINTS) {
+        p.push(Error::input_key(
+            "setup_sweeps",
+            format!("the sweeps combine into more than {MAX_SETUP_POINTS} setups (the product of their steps); use fewer steps"),
+        ));
+        return Vec::new();
+    }
+    if !ok {
+        return Vec::new();
+    }
+    let mut setups = vec![PointSetup { values: Vec::new(), setup: base.clone() }];
+    for sw in sweeps {
+        let mut next = Vec::with_capacity(setups.len() * sw.steps);
+        for s in &setups {
+            for v in sw.values() {
+                let mut values = s.values.clone();
+                values.push((sw.key, v));
+                match s.setup.with_value(sw.key.name, v) {
+                    Ok(setup) => next.push(PointSetup { values, setup }),
+                    Err(e) => {
+                        p.push(Error::input_key(
+                            "setup_sweeps",
+                            format!("the swept values {} do not make a valid setup together: {e}", setup_values_text(&values)),
+                        ));
+                        return Vec::new();
+                    }
+                }
+            }
+        }
+        setups = next;
+    }
+    // The comparison rules must fit every swept setup's link, like the setup's own rule.
+    for s in setups.iter().filter(|s| !s.values.is_empty()) {
+        for rule in rules {
+            if let Err(e) = s.setup.check_rule(rule) {
+                p.push(Error::input_key("setup_sweeps", format!("at {}: rule {e}", setup_values_text(&s.values))));
+                return Vec::new();
+            }
+        }
+    }
+    setups
 }
 
 /// A count for a sentence: 3 decimals, or 2 significant digits in scientific notation when

@@ -1,5 +1,6 @@
-//! The campaign engine: for each attack point, the exact quantities and the model to sample
-//! are computed once; then every trial draws a block from its own random stream
+//! The campaign engine: for each point (attack entry × the entry's sweep value × setup of
+//! [`Campaign::setups`], in that order, the setup innermost), the exact quantities and the
+//! model to sample are computed once, with the point's own setup; then every trial draws a block from its own random stream
 //! ([`crate::numeric::rng::trial_rng`] with the point's index and the trial's index),
 //! post-processes it and is judged under every rule of the campaign ([`super::trial`]).
 //! Trials run in chunks of [`CHUNK_TRIALS`]: a chunk is sampled in parallel, then every rule
@@ -38,6 +39,8 @@ pub struct PointResult {
     pub params: Vec<(String, Value)>,
     /// The swept parameter and its value, if any.
     pub swept: Option<(String, f64)>,
+    /// The point's setup: an index into [`Campaign::setups`] (0 without setup sweeps).
+    pub setup: usize,
     /// The key-length rule judged.
     pub rule: Rule,
     /// The evaluator's exact quantities. For link-level attacks Eve's knowledge is
@@ -69,6 +72,8 @@ struct Prepared<'a> {
     entry: usize,
     attack_entry: &'a AttackEntry,
     swept: Option<(String, f64)>,
+    /// Index of the point's setup in `Campaign::setups`.
+    setup: usize,
     family: String,
     params: Vec<(String, Value)>,
     exact: Evaluation,
@@ -87,22 +92,25 @@ pub fn run_logged(c: &Campaign, progress: &(dyn Fn() + Sync)) -> Result<(Vec<Poi
     let mut jobs = Vec::new();
     for (ei, entry) in c.attacks.iter().enumerate() {
         for (swept, overrides) in entry.points() {
-            jobs.push((ei, entry, swept, overrides));
+            for si in 0..c.setups.len() {
+                jobs.push((ei, entry, swept.clone(), overrides.clone(), si));
+            }
         }
     }
-    let eval_opts = EvalOptions::full(c.setup.protocol);
-    let basis_prob = c.setup.basis_probabilities();
     let prepared: Vec<Prepared> = jobs
         .par_iter()
         .enumerate()
-        .map(|(index, (ei, entry, swept, overrides))| {
+        .map(|(index, (ei, entry, swept, overrides, si))| {
+            let setup = &c.setups[*si].setup;
+            let eval_opts = EvalOptions::full(setup.protocol);
+            let basis_prob = setup.basis_probabilities();
             // Every link but the ideal single-photon one goes through the link model.
-            let link_model = !c.setup.link.is_ideal_single_photon();
+            let link_model = !setup.link.is_ideal_single_photon();
             let attack = entry.file.build(overrides).map_err(|e| e.with_file(&entry.origin))?;
             let (family, params, exact, model, note) = match attack {
                 AnyAttack::Pulse(attack) => {
-                    let model = PulseModel::new(&c.setup.link, Some(&attack), &basis_prob);
-                    let exact = pulse_evaluation(&model, c.setup.protocol);
+                    let model = PulseModel::new(&setup.link, Some(&attack), &basis_prob);
+                    let exact = pulse_evaluation(&model, setup.protocol);
                     let note = model.note.clone();
                     (
                         attack.name().to_string(),
@@ -113,30 +121,30 @@ pub fn run_logged(c: &Campaign, progress: &(dyn Fn() + Sync)) -> Result<(Vec<Poi
                     )
                 }
                 AnyAttack::Device(attack) => {
-                    let link = &c.setup.link;
+                    let link = &setup.link;
                     if !matches!(link.source, crate::protocol::optical::Source::SinglePhoton)
                         || link.dark_count_probability != 0.0
                         || link.misalignment != 0.0
                     {
                         return Err(crate::exact::device::unsupported_link(&attack.label));
                     }
-                    let point = evaluate_device(&attack, &link.flaws, c.setup.protocol, &basis_prob, &eval_opts)?;
+                    let point = evaluate_device(&attack, &link.flaws, setup.protocol, &basis_prob, &eval_opts)?;
                     (attack.family.clone(), attack.params.0.clone(), point.evaluation, PointModel::Qubit(point.model), point.note)
                 }
                 AnyAttack::Qubit(attack) if link_model => {
-                    let qubit = evaluate(&attack, &EvalOptions::fast(c.setup.protocol))?;
-                    let model = PulseModel::qubit(&c.setup.link, &attack, c.setup.protocol, &basis_prob, qubit.h_x_given_e);
-                    let exact = pulse_evaluation(&model, c.setup.protocol);
+                    let qubit = evaluate(&attack, &EvalOptions::fast(setup.protocol))?;
+                    let model = PulseModel::qubit(&setup.link, &attack, setup.protocol, &basis_prob, qubit.h_x_given_e);
+                    let exact = pulse_evaluation(&model, setup.protocol);
                     let note = model.note.clone();
                     (attack.family.clone(), attack.params.0.clone(), exact, PointModel::Pulse(model), note)
                 }
                 AnyAttack::Qubit(attack) => {
                     let exact = evaluate(&attack, &eval_opts)?;
-                    let model = SignalModel::new(&attack, c.setup.protocol, &basis_prob);
+                    let model = SignalModel::new(&attack, setup.protocol, &basis_prob);
                     (attack.family.clone(), attack.params.0.clone(), exact, PointModel::Qubit(model), String::new())
                 }
             };
-            Ok(Prepared { index, entry: *ei, attack_entry: entry, swept: swept.clone(), family, params, exact, model, note })
+            Ok(Prepared { index, entry: *ei, attack_entry: entry, swept: swept.clone(), setup: *si, family, params, exact, model, note })
         })
         .collect::<Result<_>>()?;
     let has_program = c.rules.iter().any(|r| matches!(r, Rule::Program(_)));
@@ -175,7 +183,7 @@ pub fn run_logged(c: &Campaign, progress: &(dyn Fn() + Sync)) -> Result<(Vec<Poi
 /// Samples and judges every trial of one point, chunk by chunk, under every rule;
 /// `sessions[i]` is the running program of rule i, if it is one.
 fn run_point(c: &Campaign, p: &Prepared, sessions: &mut [Option<Session>]) -> Result<Vec<PointResult>> {
-    let setup = &c.setup;
+    let setup = &c.setups[p.setup].setup;
     let rule_params = setup.rule_params();
     let test_size = |z: u64| setup.test_sample.size(z);
     let h = p.exact.h_x_given_e;
@@ -249,6 +257,7 @@ fn run_point(c: &Campaign, p: &Prepared, sessions: &mut [Option<Session>]) -> Re
             family: p.family.clone(),
             params: p.params.clone(),
             swept: p.swept.clone(),
+            setup: p.setup,
             rule: rule.clone(),
             exact: p.exact.clone(),
             exact_eve_guess,
@@ -260,5 +269,5 @@ fn run_point(c: &Campaign, p: &Prepared, sessions: &mut [Option<Session>]) -> Re
 
 /// Number of points a campaign will run.
 pub fn point_count(c: &Campaign) -> usize {
-    c.attacks.iter().map(|e| e.points().len()).sum()
+    c.attacks.iter().map(|e| e.points().len()).sum::<usize>() * c.setups.len()
 }

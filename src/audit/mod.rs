@@ -11,6 +11,7 @@ pub mod campaign;
 pub mod trial;
 pub mod stats;
 pub mod engine;
+pub mod tolerance;
 pub mod report;
 
 pub use campaign::{AttackEntry, Campaign, DEMO_CAMPAIGNS};

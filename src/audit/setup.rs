@@ -307,6 +307,210 @@ impl Setup {
         }
     }
 
+    /// The same setup with the numeric key `key` (a dotted name of [`SETUP_KEYS`], e.g.
+    /// `signals`, `channel.length_km`, `source.decoys[1]`) set to `value`, validated by the
+    /// setup parser exactly as if the value had been written in the file: an out-of-range
+    /// value is an error naming the key and the allowed range, and every check across keys
+    /// (decoys below the signal intensity, the key rule's needs of the link) runs again.
+    ///
+    /// Setting `channel.length_km` replaces a fixed `channel.loss_db` (and needs an
+    /// attenuation), setting `channel.loss_db` replaces a fibre length; `test_fraction` and
+    /// `test_count` replace each other. An integer key (`signals`, `test_count`) takes only
+    /// an integral value: callers that step through a range round first.
+    pub fn with_value(&self, key: &str, value: f64) -> Result<Setup> {
+        let spec = SetupKey::find(key)?;
+        let mut t = self.to_table();
+        let wrong_source = || Error::input_key(key, "is not a key of this setup: it needs a weak-coherent [source]");
+        match spec.name {
+            "source.intensity"
+            | "source.decoys[0]"
+            | "source.decoys[1]"
+            | "source.decoy_probabilities[0]"
+            | "source.decoy_probabilities[1]" => {
+                let Some(src) = t.get_mut("source").and_then(|v| v.as_table_mut()) else { return Err(wrong_source()) };
+                if src.get("kind").and_then(|k| k.as_str()) != Some("weak-coherent") {
+                    return Err(wrong_source());
+                }
+                match spec.name.split_once('[') {
+                    None => {
+                        src.insert("intensity".into(), toml::Value::Float(value));
+                    }
+                    Some((list, index)) => {
+                        let list = list.trim_start_matches("source.");
+                        let i: usize = index.trim_end_matches(']').parse().expect("index of a listed key");
+                        let slot = src.get_mut(list).and_then(|v| v.as_array_mut()).and_then(|a| a.get_mut(i));
+                        match slot {
+                            Some(x) => *x = toml::Value::Float(value),
+                            None => {
+                                return Err(Error::input_key(
+                                    key,
+                                    format!("is not a key of this setup: its source has fewer than {} decoys", i + 1),
+                                ))
+                            }
+                        }
+                    }
+                }
+            }
+            dotted => {
+                let (table, leaf) = match dotted.split_once('.') {
+                    Some((table, leaf)) => (Some(table), leaf),
+                    None => (None, dotted),
+                };
+                let target = match table {
+                    None => &mut t,
+                    Some(name) => t
+                        .entry(name.to_string())
+                        .or_insert_with(|| toml::Value::Table(toml::Table::new()))
+                        .as_table_mut()
+                        .expect("the setup's own tables"),
+                };
+                let replaced = match leaf {
+                    "length_km" => Some("loss_db"),
+                    "loss_db" => Some("length_km"),
+                    "test_fraction" => Some("test_count"),
+                    "test_count" => Some("test_fraction"),
+                    _ => None,
+                };
+                if let Some(r) = replaced {
+                    target.remove(r);
+                }
+                let v = if spec.integer && value.fract() == 0.0 && value.abs() < 9.0e15 {
+                    toml::Value::Integer(value as i64)
+                } else {
+                    toml::Value::Float(value)
+                };
+                target.insert(leaf.to_string(), v);
+            }
+        }
+        // The rule is carried over as it is (not re-read by name), then checked against the
+        // new link like the parser does.
+        t.remove("key_rule");
+        let mut s = Setup::parse_all(&t).map_err(first)?;
+        s.key_rule = self.key_rule.clone();
+        s.check_rule(&s.key_rule).map_err(|e| e.with_key("key_rule"))?;
+        Ok(s)
+    }
+
+    /// The value of the numeric key `key` (see [`SETUP_KEYS`]) in this setup; `None` when the
+    /// setup does not have it (a decoy of a single-photon source, a fibre length of a link
+    /// given by its loss, a test count of a setup with a test fraction).
+    pub fn value(&self, key: &str) -> Result<Option<f64>> {
+        let spec = SetupKey::find(key)?;
+        let ints = self.link.source.intensities();
+        let decoy = |i: usize| ints.get(i + 1).copied();
+        Ok(match spec.name {
+            "signals" => Some(self.signals as f64),
+            "basis_z_probability" => Some(self.basis_z_probability),
+            "test_fraction" => match self.test_sample {
+                TestSample::Fraction(f) => Some(f),
+                TestSample::Count(_) => None,
+            },
+            "test_count" => match self.test_sample {
+                TestSample::Count(c) => Some(c as f64),
+                TestSample::Fraction(_) => None,
+            },
+            "abort_qber" => Some(self.abort_qber),
+            "ec_efficiency" => Some(self.ec_efficiency),
+            "epsilon_sec" => Some(self.epsilon_sec),
+            "epsilon_cor" => Some(self.epsilon_cor),
+            "source.intensity" => ints.first().map(|(m, _)| *m),
+            "source.decoys[0]" => decoy(0).map(|(m, _)| m),
+            "source.decoys[1]" => decoy(1).map(|(m, _)| m),
+            "source.decoy_probabilities[0]" => decoy(0).map(|(_, p)| p),
+            "source.decoy_probabilities[1]" => decoy(1).map(|(_, p)| p),
+            "channel.length_km" => self.link.length_km,
+            "channel.attenuation_db_per_km" => self.link.attenuation_db_per_km,
+            "channel.loss_db" => Some(self.link.channel_loss_db),
+            "detector.efficiency" => Some(self.link.detector_efficiency),
+            "detector.dark_count_probability" => Some(self.link.dark_count_probability),
+            "detector.misalignment" => Some(self.link.misalignment),
+            other => unreachable!("SETUP_KEYS lists `{other}` without a value"),
+        })
+    }
+
+    /// The setup written back as the TOML table its parser reads: parsing it gives this
+    /// setup again. Every field is named (the destructuring below fails to compile when a
+    /// field is added), so a new key cannot be dropped silently.
+    pub fn to_table(&self) -> toml::Table {
+        use crate::protocol::optical::Source;
+        let Setup {
+            name,
+            protocol,
+            signals,
+            basis_z_probability,
+            test_sample,
+            abort_qber,
+            ec_efficiency,
+            epsilon_sec,
+            epsilon_cor,
+            key_rule,
+            link,
+        } = self;
+        let mut t = toml::Table::new();
+        let float = |x: f64| toml::Value::Float(x);
+        t.insert("name".into(), toml::Value::String(name.clone()));
+        t.insert("protocol".into(), toml::Value::String(protocol.name().into()));
+        t.insert("signals".into(), toml::Value::Integer(*signals as i64));
+        t.insert("basis_z_probability".into(), float(*basis_z_probability));
+        match *test_sample {
+            TestSample::Fraction(f) => t.insert("test_fraction".into(), float(f)),
+            TestSample::Count(c) => t.insert("test_count".into(), toml::Value::Integer(c as i64)),
+        };
+        t.insert("abort_qber".into(), float(*abort_qber));
+        t.insert("ec_efficiency".into(), float(*ec_efficiency));
+        t.insert("epsilon_sec".into(), float(*epsilon_sec));
+        t.insert("epsilon_cor".into(), float(*epsilon_cor));
+        t.insert("key_rule".into(), toml::Value::String(key_rule.name().into()));
+        let Link {
+            source,
+            channel_loss_db,
+            length_km,
+            attenuation_db_per_km,
+            detector_efficiency,
+            dark_count_probability,
+            misalignment,
+            flaws,
+        } = link;
+        let mut src = toml::Table::new();
+        match source {
+            Source::SinglePhoton => {
+                src.insert("kind".into(), toml::Value::String("single-photon".into()));
+            }
+            Source::WeakCoherent { intensity, probability: _, decoys } => {
+                // The signal's probability is implied by the decoys' (the parser computes it).
+                src.insert("kind".into(), toml::Value::String("weak-coherent".into()));
+                src.insert("intensity".into(), float(*intensity));
+                src.insert("decoys".into(), toml::Value::Array(decoys.iter().map(|(m, _)| float(*m)).collect()));
+                src.insert("decoy_probabilities".into(), toml::Value::Array(decoys.iter().map(|(_, p)| float(*p)).collect()));
+            }
+        }
+        t.insert("source".into(), toml::Value::Table(src));
+        let mut channel = toml::Table::new();
+        match length_km {
+            // The parser computes the loss from the length and the attenuation.
+            Some(km) if attenuation_db_per_km.is_some() => {
+                channel.insert("length_km".into(), float(*km));
+            }
+            _ => {
+                channel.insert("loss_db".into(), float(*channel_loss_db));
+            }
+        }
+        if let Some(a) = attenuation_db_per_km {
+            channel.insert("attenuation_db_per_km".into(), float(*a));
+        }
+        t.insert("channel".into(), toml::Value::Table(channel));
+        let mut detector = toml::Table::new();
+        detector.insert("efficiency".into(), float(*detector_efficiency));
+        detector.insert("dark_count_probability".into(), float(*dark_count_probability));
+        detector.insert("misalignment".into(), float(*misalignment));
+        let crate::protocol::detector::DetectorFlaws { mismatch, random_swap, blinding_catch } = flaws;
+        detector.insert("mismatch".into(), float(*mismatch));
+        detector.insert("random_swap".into(), toml::Value::Boolean(*random_swap));
+        detector.insert("blinding_catch".into(), float(*blinding_catch));
+        t.insert("detector".into(), toml::Value::Table(detector));
+        t
+    }
+
     /// Probabilities of Alice's (and Bob's) basis choices, in the order of
     /// `protocol.bases()`.
     pub fn basis_probabilities(&self) -> Vec<f64> {
@@ -315,6 +519,61 @@ impl Setup {
             Protocol::Bb84 => vec![self.basis_z_probability, rest],
             Protocol::SixState => vec![self.basis_z_probability, rest / 2.0, rest / 2.0],
         }
+    }
+}
+
+/// A numeric setup key that campaigns may sweep and `tolerance` may search.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub struct SetupKey {
+    /// The dotted name, as in setup files (`channel.length_km`, `source.decoys[0]`).
+    pub name: &'static str,
+    /// Unit, for sentences and axis labels (empty for probabilities, rates and other pure
+    /// numbers).
+    pub unit: &'static str,
+    /// Whether the key takes integers only (swept values are rounded to the nearest integer).
+    pub integer: bool,
+}
+
+/// Every numeric setup key, in the order of the README's setup tables. Their allowed ranges
+/// are the setup parser's ([`Setup::with_value`] re-validates every value).
+pub const SETUP_KEYS: &[SetupKey] = &[
+    SetupKey { name: "signals", unit: "signals", integer: true },
+    SetupKey { name: "basis_z_probability", unit: "", integer: false },
+    SetupKey { name: "test_fraction", unit: "", integer: false },
+    SetupKey { name: "test_count", unit: "sifted Z bits", integer: true },
+    SetupKey { name: "abort_qber", unit: "", integer: false },
+    SetupKey { name: "ec_efficiency", unit: "", integer: false },
+    SetupKey { name: "epsilon_sec", unit: "", integer: false },
+    SetupKey { name: "epsilon_cor", unit: "", integer: false },
+    SetupKey { name: "source.intensity", unit: "photons per pulse", integer: false },
+    SetupKey { name: "source.decoys[0]", unit: "photons per pulse", integer: false },
+    SetupKey { name: "source.decoys[1]", unit: "photons per pulse", integer: false },
+    SetupKey { name: "source.decoy_probabilities[0]", unit: "", integer: false },
+    SetupKey { name: "source.decoy_probabilities[1]", unit: "", integer: false },
+    SetupKey { name: "channel.length_km", unit: "km", integer: false },
+    SetupKey { name: "channel.attenuation_db_per_km", unit: "dB/km", integer: false },
+    SetupKey { name: "channel.loss_db", unit: "dB", integer: false },
+    SetupKey { name: "detector.efficiency", unit: "", integer: false },
+    SetupKey { name: "detector.dark_count_probability", unit: "per gate", integer: false },
+    SetupKey { name: "detector.misalignment", unit: "", integer: false },
+];
+
+impl SetupKey {
+    /// The key named `name`; the error lists every numeric key.
+    pub fn find(name: &str) -> Result<SetupKey> {
+        SETUP_KEYS.iter().copied().find(|k| k.name == name).ok_or_else(|| {
+            let names: Vec<&str> = SETUP_KEYS.iter().map(|k| k.name).collect();
+            Error::input(format!("`{name}` is not a numeric setup key; the numeric keys are {}", names.join(", ")))
+        })
+    }
+
+    /// The key as a CSV column: `setup_` and the name with dots and brackets as
+    /// underscores (`channel.length_km` → `setup_channel_length_km`, `source.decoys[0]` →
+    /// `setup_source_decoys_0`).
+    pub fn column(&self) -> String {
+        let mut c = String::from("setup_");
+        c.extend(self.name.chars().filter(|ch| *ch != ']').map(|ch| if ch == '.' || ch == '[' { '_' } else { ch }));
+        c
     }
 }
 
@@ -352,5 +611,62 @@ mod tests {
         assert_eq!(s.basis_probabilities().len(), 3);
         assert_eq!(s.key_rule, KeyRule::Asymptotic);
         assert!(parse("key_rule = \"file:x.toml\"").unwrap_err().message().contains("cannot refer to files"));
+    }
+
+    const LINK_SETUP: &str = "signals = 1e8\ntest_count = 5000\nabort_qber = 0.06\nkey_rule = \"decoy-finite\"\n\
+        [source]\nkind = \"weak-coherent\"\nintensity = 0.5\ndecoys = [0.1, 0.0]\ndecoy_probabilities = [0.1, 0.05]\n\
+        [channel]\nlength_km = 25\nattenuation_db_per_km = 0.2\n[detector]\nefficiency = 0.2\ndark_count_probability = 1e-6\n\
+        misalignment = 0.01";
+
+    #[test]
+    fn the_table_of_a_setup_parses_back_to_it() {
+        for text in ["", LINK_SETUP, "protocol = \"six-state\"\n[channel]\nloss_db = 3.5\nattenuation_db_per_km = 0.3"] {
+            let s = parse(text).unwrap();
+            assert_eq!(Setup::from_table(&s.to_table()).unwrap(), s, "{text}");
+        }
+    }
+
+    #[test]
+    fn setting_a_key_revalidates_through_the_parser() {
+        let s = parse(LINK_SETUP).unwrap();
+        let t = s.with_value("channel.length_km", 50.0).unwrap();
+        assert_eq!(t.link.channel_loss_db, 50.0 * 0.2);
+        assert_eq!(t.value("channel.length_km").unwrap(), Some(50.0));
+        let t = s.with_value("channel.loss_db", 7.0).unwrap();
+        assert_eq!((t.link.channel_loss_db, t.link.length_km), (7.0, None));
+        assert_eq!(s.with_value("signals", 1e10).unwrap().signals, 10_000_000_000);
+        let t = s.with_value("source.decoys[0]", 0.2).unwrap();
+        assert_eq!(t.link.source.intensities()[1].0, 0.2);
+        assert_eq!(t.with_value("test_fraction", 0.2).unwrap().test_sample, TestSample::Fraction(0.2));
+        // Out of range, not an integer, against another key, against the rule's needs.
+        for (key, value, named) in [
+            ("signals", 1e16, "signals"),
+            ("signals", 1234.5, "signals"),
+            ("abort_qber", 0.6, "abort_qber"),
+            ("source.decoys[0]", 0.6, "decoys[0]"),
+            ("source.decoys[1]", 0.45, "key_rule"),
+            ("detector.efficiency", 0.0, "detector.efficiency"),
+        ] {
+            let e = s.with_value(key, value).unwrap_err();
+            assert!(e.key().is_some_and(|k| k.ends_with(named)), "{key} = {value}: {e}");
+        }
+        // Keys this setup does not have, and names that are not numeric keys.
+        let plain = Setup::default();
+        assert!(plain.with_value("source.intensity", 0.5).unwrap_err().message().contains("weak-coherent"));
+        assert!(plain.with_value("channel.length_km", 5.0).unwrap_err().message().contains("attenuation"));
+        assert!(plain.with_value("key_rule", 1.0).unwrap_err().message().contains("numeric setup key"));
+        assert_eq!(plain.value("channel.length_km").unwrap(), None);
+        assert_eq!(plain.with_value("detector.misalignment", 0.02).unwrap().link.misalignment, 0.02);
+    }
+
+    #[test]
+    fn every_key_has_a_tidy_column_and_a_value_query() {
+        let s = parse(LINK_SETUP).unwrap();
+        for k in SETUP_KEYS {
+            let c = k.column();
+            assert!(c.chars().all(|ch| ch.is_ascii_lowercase() || ch.is_ascii_digit() || ch == '_'), "{c}");
+            s.value(k.name).unwrap();
+        }
+        assert_eq!(SetupKey::find("source.decoys[0]").unwrap().column(), "setup_source_decoys_0");
     }
 }

@@ -24,7 +24,7 @@ const BETA_QUANTILE_TOL: f64 = 1e-13;
 
 /// Quantile of the Beta(a, b) law by bisection on statrs' regularised incomplete beta
 /// function to 1e-13 (statrs' own `inverse_cdf` stops near 1e-5).
-fn beta_quantile(a: f64, b: f64, p: f64) -> f64 {
+pub fn beta_quantile(a: f64, b: f64, p: f64) -> f64 {
     let dist = Beta::new(a, b).expect("positive shape parameters");
     let (mut lo, mut hi) = (0.0_f64, 1.0_f64);
     while hi - lo > BETA_QUANTILE_TOL {

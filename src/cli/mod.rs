@@ -14,6 +14,7 @@ pub mod keyrate;
 pub mod hunt;
 pub mod report;
 pub mod compare;
+pub mod tolerance;
 
 pub use common::Outcome;
 
@@ -58,6 +59,10 @@ pub enum Command {
     /// Compare two results folders: verdict changes, leaks gained or lost, key length per
     /// point (exit 1 when B leaks where A did not).
     Compare(compare::CompareArgs),
+    /// Find the value of one setup key (block size, abort threshold, distance, …) at which
+    /// a key-length rule starts to leak, or to give no key, against the strongest of a
+    /// campaign's attacks; exit status 1 if the configured setup is not shown safe.
+    Tolerance(tolerance::ToleranceArgs),
 }
 
 /// Runs the parsed command.
@@ -73,5 +78,6 @@ pub fn run(cli: Cli) -> Result<Outcome> {
         Command::Hunt(a) => hunt::cmd_hunt(a),
         Command::Report(a) => report::cmd_report(a),
         Command::Compare(a) => compare::cmd_compare(a),
+        Command::Tolerance(a) => tolerance::cmd_tolerance(a),
     }
 }

@@ -78,7 +78,11 @@ fn plan(campaign: &Campaign, dir: &std::path::Path, force: bool) -> String {
     let trials = campaign.trials as f64;
     let per_trial_s = match campaign.sampler {
         crate::audit::sample::Sampler::Count => 1e-6 * rules as f64,
-        crate::audit::sample::Sampler::Round => campaign.setup.signals as f64 / 1e8 + 1e-6 * rules as f64,
+        crate::audit::sample::Sampler::Round => {
+            // The mean block over the swept setups (the one setup without setup sweeps).
+            let signals = campaign.setups.iter().map(|s| s.setup.signals as f64).sum::<f64>() / campaign.setups.len().max(1) as f64;
+            signals / 1e8 + 1e-6 * rules as f64
+        }
     };
     let cpu_s = points as f64 * (trials * per_trial_s + 1e-3);
     let threads = rayon::current_num_threads();

@@ -79,8 +79,24 @@ fn test_sample_text(t: &crate::audit::setup::TestSample) -> String {
 }
 
 /// Where a point sits on its sweep, for sentences.
-fn at(r: &PointResult) -> String {
-    r.swept.as_ref().map(|(p, v)| format!("{p} = {}", num(*v))).unwrap_or_else(|| "the only point".into())
+fn at(c: &Campaign, r: &PointResult) -> String {
+    let attack = r.swept.as_ref().map(|(p, v)| format!("{p} = {}", num(*v)));
+    with_setup(c, r, attack.unwrap_or_else(|| "the only point".into()))
+}
+
+/// `place` followed by the point's swept setup values, if the campaign sweeps its setup.
+fn with_setup(c: &Campaign, r: &PointResult, place: String) -> String {
+    let values = &c.setups[r.setup].values;
+    if values.is_empty() {
+        place
+    } else {
+        let setup: Vec<String> = values.iter().map(|(k, v)| format!("{} = {}", k.name, num(*v))).collect();
+        if r.swept.is_some() {
+            format!("{place}, {}", setup.join(", "))
+        } else {
+            setup.join(", ")
+        }
+    }
 }
 
 /// One sentence on why a leaking point leaks: which assumption of the rule the attack
@@ -116,8 +132,8 @@ pub fn leak_cause(c: &Campaign, r: &PointResult) -> String {
             h_x_given_e: r.exact.h_x_given_e,
             accessible_z: r.exact.accessible_z,
             holevo_z: r.exact.holevo_z,
-            epsilon_sec: c.setup.epsilon_sec,
-            epsilon_cor: c.setup.epsilon_cor,
+            epsilon_sec: c.setups[r.setup].setup.epsilon_sec,
+            epsilon_cor: c.setups[r.setup].setup.epsilon_cor,
         },
     )
 }
@@ -243,6 +259,23 @@ pub fn render(c: &Campaign, results: &[PointResult]) -> String {
         c.seed,
         link_text(&setup.link)
     );
+    if !c.setup_sweeps.is_empty() {
+        let sweeps: Vec<String> = c
+            .setup_sweeps
+            .iter()
+            .map(|w| {
+                let scale = if w.scale == crate::audit::campaign::Scale::Log { "logarithmic" } else { "linear" };
+                format!("`{}` from {} to {} in {} {scale} steps", w.key.name, num(w.from), num(w.to), w.steps)
+            })
+            .collect();
+        let _ = writeln!(
+            s,
+            "Setup sweeps: {}; every attack point runs at each of the {} swept setups, whose values replace the ones above. \
+             The tables below show the mean key length and the leak probability against them.\n",
+            sweeps.join("; "),
+            c.setups.len()
+        );
+    }
     if !c.warnings.is_empty() {
         let _ = writeln!(s, "**Warnings, found before the run:**\n");
         for w in &c.warnings {
@@ -352,7 +385,7 @@ pub fn render(c: &Campaign, results: &[PointResult]) -> String {
                     s,
                     "Strongest point not caught: {} (QBER_Z {:.4}, QBER_X {:.4}, Eve's information 1 − H(X|E) = {:.4} bits per key bit); \
                      abort probability {} [{}, {}], leak probability {}, mean key {:.0} bits.\n",
-                    r.swept.as_ref().map(|(p, v)| format!("{p} = {v}")).unwrap_or_else(|| "the only point".into()),
+                    with_setup(c, r, r.swept.as_ref().map(|(p, v)| format!("{p} = {v}")).unwrap_or_else(|| "the only point".into())),
                     r.exact.qber_z,
                     r.exact.qber_x,
                     r.exact.holevo_z,
@@ -368,16 +401,20 @@ pub fn render(c: &Campaign, results: &[PointResult]) -> String {
             }
         }
         let pname = if param.is_empty() { "point".to_string() } else { param.clone() };
+        // Swept setup keys get a column each, after the attack's parameter.
+        let setup_header: String = c.setup_sweeps.iter().map(|w| format!(" {} |", w.key.name)).collect();
         let _ = writeln!(
             s,
-            "| {pname} | QBER_Z | QBER_X |{} H(X\\|E) bits | abort | leak | mean key bits | verdict |",
+            "| {pname} |{setup_header} QBER_Z | QBER_X |{} H(X\\|E) bits | abort | leak | mean key bits | verdict |",
             if six_state { " QBER_Y |" } else { "" }
         );
-        let _ = writeln!(s, "|---|---|---|{}---|---|---|---|---|", if six_state { "---|" } else { "" });
+        let _ =
+            writeln!(s, "|---|{}---|---|{}---|---|---|---|---|", "---|".repeat(c.setup_sweeps.len()), if six_state { "---|" } else { "" });
         for r in &pts {
+            let setup_cells: String = c.setups[r.setup].values.iter().map(|(_, v)| format!(" {} |", num(*v))).collect();
             let _ = writeln!(
                 s,
-                "| {} | {:.4} | {:.4} |{} {:.4} | {} | {} | {:.0} | {} |",
+                "| {} |{setup_cells} {:.4} | {:.4} |{} {:.4} | {} | {} | {:.0} | {} |",
                 r.swept.as_ref().map(|(_, v)| format!("{v:.4}")).unwrap_or_else(|| r.index.to_string()),
                 r.exact.qber_z,
                 r.exact.qber_x,
@@ -466,11 +503,11 @@ fn explain_leaks(s: &mut String, c: &Campaign, results: &[PointResult]) {
             rule,
             if rule == c.setup.key_rule { " (the system's rule)" } else { "" },
             pts.len(),
-            at(first),
+            at(c, first),
             bits(first.stats.mean_excess),
             share(first),
             pct(first.stats.leak_probability),
-            at(worst),
+            at(c, worst),
             bits(worst.stats.mean_excess),
             share(worst),
             leak_cause(c, worst)

@@ -7,7 +7,8 @@
 //! | point | index of the point in the campaign (its random-stream key) |
 //! | `param_<name>` | one column per attack parameter over all rows (e.g. `param_fraction`, `param_kind`), empty where an attack has no such parameter |
 //! | sweep_param, sweep_value | the swept parameter and its value (empty if none) |
-//! | protocol, key_rule, signals, trials | the setup and the trial count |
+//! | `setup_<key>` | campaigns with `[[setup_sweeps]]` only: one column per swept setup key, its value at the row's point (dots and brackets of the key as underscores: `setup_signals`, `setup_channel_length_km`, `setup_source_decoys_0`) |
+//! | protocol, key_rule, signals, trials | the row's setup and the trial count |
 //! | qber_z, qber_x, qber_y | exact error rates |
 //! | p_guess_z | exact Helstrom probability that Eve guesses a key bit |
 //! | holevo_z_bits, h_x_given_e_bits, accessible_z_bits | exact information quantities |
@@ -48,6 +49,10 @@ struct Column {
 /// The columns before the attack parameters.
 const LEADING: usize = 5;
 
+/// The columns between the attack parameters and the swept setup keys
+/// (`sweep_param, sweep_value`).
+const SWEEP: usize = 2;
+
 /// A column of the evaluator's quantities, under the quantity's own CSV column name.
 macro_rules! exact {
     ($column:literal) => {
@@ -70,9 +75,9 @@ const COLUMNS: &[Column] = &[
     column!("point", |_c, r| r.index.to_string()),
     column!("sweep_param", |_c, r| r.swept.as_ref().map_or(String::new(), |(p, _)| p.clone())),
     column!("sweep_value", |_c, r| r.swept.as_ref().map_or(String::new(), |(_, v)| fmt_num(*v))),
-    column!("protocol", |c, _r| c.setup.protocol.to_string()),
+    column!("protocol", |c, r| c.setups[r.setup].setup.protocol.to_string()),
     column!("key_rule", |_c, r| r.rule.to_string()),
-    column!("signals", |c, _r| c.setup.signals.to_string()),
+    column!("signals", |c, r| c.setups[r.setup].setup.signals.to_string()),
     column!("trials", |_c, r| r.stats.trials.to_string()),
     exact!("qber_z"),
     exact!("qber_x"),
@@ -126,10 +131,18 @@ fn parameter_names(results: &[PointResult]) -> Vec<String> {
     names
 }
 
-/// The header, in order, for rows with attack parameters `params`.
-pub fn header(params: &[String]) -> Vec<String> {
+/// The header, in order, for rows with attack parameters `params` and swept setup keys
+/// `setup_columns` (`setup_<key>`).
+pub fn header(params: &[String], setup_columns: &[String]) -> Vec<String> {
     let fixed = COLUMNS.iter().map(|c| c.header.to_string());
-    fixed.clone().take(LEADING).chain(params.iter().map(|p| format!("param_{p}"))).chain(fixed.skip(LEADING)).collect()
+    fixed
+        .clone()
+        .take(LEADING)
+        .chain(params.iter().map(|p| format!("param_{p}")))
+        .chain(fixed.clone().skip(LEADING).take(SWEEP))
+        .chain(setup_columns.iter().cloned())
+        .chain(fixed.skip(LEADING + SWEEP))
+        .collect()
 }
 
 /// Renders the table.
@@ -137,7 +150,8 @@ pub fn render(c: &Campaign, results: &[PointResult]) -> Result<String> {
     let mut w = csv::Writer::from_writer(Vec::new());
     let io = |e: csv::Error| Error::new(ErrorKind::Io, e.to_string());
     let params = parameter_names(results);
-    w.write_record(header(&params)).map_err(io)?;
+    let setup_columns: Vec<String> = c.setup_sweeps.iter().map(|s| s.key.column()).collect();
+    w.write_record(header(&params, &setup_columns)).map_err(io)?;
     for r in results {
         let cells = COLUMNS.iter().map(|col| (col.cell)(c, r));
         let values = params.iter().map(|p| match r.params.iter().find(|(k, _)| k == p) {
@@ -145,7 +159,15 @@ pub fn render(c: &Campaign, results: &[PointResult]) -> Result<String> {
             Some((_, Value::Text(s))) => s.clone(),
             None => String::new(),
         });
-        let row: Vec<String> = cells.clone().take(LEADING).chain(values).chain(cells.skip(LEADING)).collect();
+        let setup_values = c.setups[r.setup].values.iter().map(|(_, v)| fmt_num(*v));
+        let row: Vec<String> = cells
+            .clone()
+            .take(LEADING)
+            .chain(values)
+            .chain(cells.clone().skip(LEADING).take(SWEEP))
+            .chain(setup_values)
+            .chain(cells.skip(LEADING + SWEEP))
+            .collect();
         w.write_record(row).map_err(io)?;
     }
     let bytes = w.into_inner().map_err(|e| Error::new(ErrorKind::Io, e.to_string()))?;
@@ -159,7 +181,7 @@ mod tests {
     #[test]
     fn headers_are_unique_and_tidy() {
         let mut seen = std::collections::BTreeSet::new();
-        for h in header(&["fraction".to_string()]) {
+        for h in header(&["fraction".to_string()], &["setup_signals".to_string()]) {
             assert!(h.chars().all(|c| c.is_ascii_lowercase() || c.is_ascii_digit() || c == '_'), "{h}");
             assert!(seen.insert(h.clone()), "duplicate column {h}");
         }
