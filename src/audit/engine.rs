@@ -16,8 +16,9 @@ use crate::exact::signal::SignalModel;
 use crate::numeric::rng::trial_rng;
 use rayon::prelude::*;
 
-/// The result for one attack point under one key-length rule.
-#[derive(Clone, Debug)]
+/// The result for one attack point under one key-length rule. Serialisable so that a
+/// shard's results can be merged (`qkd-audit merge`).
+#[derive(Clone, Debug, serde::Serialize, serde::Deserialize)]
 pub struct PointResult {
     /// Index of the attack entry in the campaign.
     pub entry: usize,
@@ -53,19 +54,27 @@ enum PointModel {
 
 /// Runs the campaign; `progress` is called once per finished point.
 pub fn run(c: &Campaign, progress: &(dyn Fn() + Sync)) -> Result<Vec<PointResult>> {
+    run_points(c, progress, &|_| true)
+}
+
+/// Runs only the points whose campaign index `keep` accepts (a shard of the campaign,
+/// `run --shard`); each point keeps its index, hence its random streams, so the union of
+/// the shards' results is the full run's, row for row.
+pub fn run_points(c: &Campaign, progress: &(dyn Fn() + Sync), keep: &(dyn Fn(u64) -> bool + Sync)) -> Result<Vec<PointResult>> {
     let mut jobs = Vec::new();
     for (ei, entry) in c.attacks.iter().enumerate() {
         for (swept, overrides) in entry.points() {
             jobs.push((ei, entry, swept, overrides));
         }
     }
+    let jobs: Vec<_> = jobs.into_iter().enumerate().filter(|(index, _)| keep(*index as u64)).collect();
     let eval_opts = EvalOptions::full(c.setup.protocol);
     let basis_prob = c.setup.basis_probabilities();
     let rule_params = c.setup.rule_params();
     let per_point: Vec<Vec<PointResult>> = jobs
         .par_iter()
-        .enumerate()
         .map(|(index, (ei, entry, swept, overrides))| {
+            let index = *index;
             // Every link but the ideal single-photon one goes through the link model.
             let link_model = !c.setup.link.is_ideal_single_photon();
             let attack = entry.file.build(overrides).map_err(|e| e.with_file(&entry.origin))?;

@@ -12,6 +12,7 @@ pub mod run;
 pub mod rounds;
 pub mod keyrate;
 pub mod hunt;
+pub mod merge;
 
 pub use common::Outcome;
 
@@ -50,6 +51,9 @@ pub enum Command {
     Keyrate(keyrate::KeyrateArgs),
     /// Search numerically for the strongest attack, to test how tight each bound is.
     Hunt(hunt::HuntArgs),
+    /// Join the partial results of a job run in shards (`--shard K/N` of sweep, hunt or
+    /// run) into exactly what the unsharded command writes.
+    Merge(merge::MergeArgs),
 }
 
 /// Runs the parsed command.
@@ -63,5 +67,6 @@ pub fn run(cli: Cli) -> Result<Outcome> {
         Command::Rounds(a) => rounds::cmd_rounds(a),
         Command::Keyrate(a) => keyrate::cmd_keyrate(a),
         Command::Hunt(a) => hunt::cmd_hunt(a),
+        Command::Merge(a) => merge::cmd_merge(a),
     }
 }

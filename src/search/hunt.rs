@@ -383,8 +383,15 @@ pub fn hunt(opts: &HuntOptions, qs: &[f64]) -> Result<Vec<HuntPoint>> {
 
 /// Like [`hunt`], but one outcome per target: a target where no start reached a feasible
 /// attack (Q = 0, say) is an error of its own and the other targets keep their results.
-/// Errors of the options themselves are the outer error.
+/// Errors of the options themselves, and a start that fails, are the outer error.
 pub fn hunt_each(opts: &HuntOptions, qs: &[f64]) -> Result<Vec<Result<HuntPoint>>> {
+    let starts = hunt_starts(opts, qs, &|_| true)?;
+    let finals = starts.into_iter().map(|(_, x)| x).collect::<Result<Vec<_>>>()?;
+    hunt_score(opts, qs, finals)
+}
+
+/// Checks the hunt's options.
+pub fn check_options(opts: &HuntOptions, qs: &[f64]) -> Result<()> {
     if !(2..=8).contains(&opts.eve_dim) {
         return Err(Error::input_key("--eve-dim", format!("{} is outside [2, 8]", opts.eve_dim)));
     }
@@ -395,19 +402,36 @@ pub fn hunt_each(opts: &HuntOptions, qs: &[f64]) -> Result<Vec<Result<HuntPoint>
         crate::error::check_range("--q", q, 0.0, 0.5)?;
     }
     bound(opts.objective, opts.protocol, 0.1)?;
+    Ok(())
+}
+
+/// The optimised starts whose unit number `keep` accepts, in parallel. Unit u is start
+/// `u mod starts` of target `u / starts`; each has its own random stream, so a start's
+/// result does not depend on which others run (shards, threads).
+pub fn hunt_starts(opts: &HuntOptions, qs: &[f64], keep: &(dyn Fn(u64) -> bool + Sync)) -> Result<Vec<(u64, Result<Vec<f64>>)>> {
+    check_options(opts, qs)?;
     let n = 8 * opts.eve_dim;
+    let units: Vec<u64> = (0..(qs.len() * opts.starts) as u64).filter(|&u| keep(u)).collect();
+    Ok(units
+        .into_par_iter()
+        .map(|u| {
+            let (qi, s) = (u / opts.starts as u64, u % opts.starts as u64);
+            let mut rng = crate::numeric::rng::trial_rng(opts.seed, qi, s);
+            let x0: Vec<f64> = (0..n).map(|_| rng.sample::<f64, _>(StandardNormal)).collect();
+            (u, optimise_start(opts, qs[qi as usize], x0))
+        })
+        .collect())
+}
+
+/// Scores the final parameters of every start (`finals[qi * starts + s]`) and keeps the
+/// best feasible one per target.
+pub fn hunt_score(opts: &HuntOptions, qs: &[f64], finals: Vec<Vec<f64>>) -> Result<Vec<Result<HuntPoint>>> {
+    check_options(opts, qs)?;
+    assert_eq!(finals.len(), qs.len() * opts.starts, "one final point per (target, start)");
     let out: Vec<Result<HuntPoint>> = qs
         .iter()
-        .enumerate()
-        .map(|(qi, &q)| {
-            let finals: Vec<Vec<f64>> = (0..opts.starts)
-                .into_par_iter()
-                .map(|s| {
-                    let mut rng = crate::numeric::rng::trial_rng(opts.seed, qi as u64, s as u64);
-                    let x0: Vec<f64> = (0..n).map(|_| rng.sample::<f64, _>(StandardNormal)).collect();
-                    optimise_start(opts, q, x0)
-                })
-                .collect::<Result<_>>()?;
+        .zip(finals.chunks(opts.starts))
+        .map(|(&q, finals)| {
             let scored: Vec<(f64, bool, Attack, Evaluation)> = finals
                 .iter()
                 .map(|x| {
