@@ -62,7 +62,7 @@ pub struct HuntArgs {
     pub force: bool,
     /// Sharding (by target and start; not for --rounds).
     #[command(flatten)]
-    pub shard: super::merge::ShardArgs,
+    pub shard: super::shard::ShardArgs,
 }
 
 /// Runs `qkd-audit hunt`.
@@ -270,8 +270,8 @@ fn strategy_toml(r: &crate::search::game::GameResult) -> String {
 }
 
 /// One shard of a hunt: its (target, start) units, written as a partial result.
-fn hunt_shard(a: &HuntArgs, opts: &crate::search::hunt::HuntOptions, spec: super::merge::ShardSpec) -> Result<Outcome> {
-    use super::merge::{HuntStart, Partial};
+fn hunt_shard(a: &HuntArgs, opts: &crate::search::hunt::HuntOptions, spec: super::shard::ShardSpec) -> Result<Outcome> {
+    use super::shard::{HuntStart, Partial};
     let clock = std::time::Instant::now();
     let starts = crate::search::hunt::hunt_starts(opts, &a.q, &|u| spec.owns(u))?;
     let units = (a.q.len() * a.starts) as u64;
@@ -291,7 +291,7 @@ fn hunt_shard(a: &HuntArgs, opts: &crate::search::hunt::HuntOptions, spec: super
 
 /// `merge` of `hunt` shards: every start's final parameters, scored and reported as the
 /// unsharded hunt does, into `output` (default: the hunt's default folder).
-pub fn merge_hunt(mut a: HuntArgs, parts: Vec<super::merge::Partial>, output: Option<PathBuf>, force: bool) -> Result<Outcome> {
+pub fn merge_hunt(mut a: HuntArgs, parts: Vec<super::shard::Partial>, output: Option<PathBuf>, force: bool) -> Result<Outcome> {
     use crate::search::hunt::{hunt_score, HuntOptions, Objective};
     let units = parts[0].units as usize;
     let mut finals: Vec<Option<Vec<f64>>> = vec![None; units];

@@ -12,6 +12,7 @@ pub mod run;
 pub mod rounds;
 pub mod keyrate;
 pub mod hunt;
+pub mod shard;
 pub mod merge;
 
 pub use common::Outcome;

@@ -1,7 +1,7 @@
 //! The `run` subcommand: a finite-key audit campaign into a results folder.
 
 use super::common::{note, print, Outcome};
-use super::merge::{InputId, Partial, ShardArgs};
+use super::shard::{InputId, Partial, ShardArgs};
 use crate::audit::report::manifest::{sha256_hex, InputHash, Manifest};
 use crate::audit::trial::Verdict;
 use crate::audit::{point_count, run, Campaign};

@@ -3,7 +3,7 @@
 //! shard of it (`--shard`, joined by `qkd-audit merge`).
 
 use super::common::{note, thread_pool, write_stdout, Outcome, ProtocolArg};
-use super::merge::{InputId, Partial, ShardArgs, SweepPayload};
+use super::shard::{InputId, Partial, ShardArgs, SweepPayload};
 use crate::attack::file as attack_file;
 use crate::error::Result;
 use crate::exact::eval::EvalOptions;
