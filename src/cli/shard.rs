@@ -134,7 +134,9 @@ const NEUTRAL_OPTIONS: &[(&str, bool)] = &[
     ("-q", false),
 ];
 
-/// The arguments of this process after the subcommand, without [`NEUTRAL_OPTIONS`].
+/// The arguments of this process after the subcommand, without the options that never
+/// change a result (`--shard`, `--shard-dir`, `--threads`, the output location, `--force`,
+/// `--quiet`).
 pub fn identity_args() -> Vec<String> {
     let all: Vec<String> = std::env::args().skip(2).collect();
     let mut out = Vec::new();
