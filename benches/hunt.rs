@@ -13,9 +13,22 @@ fn holevo_hunt(c: &mut Criterion) {
     group.finish();
 }
 
+/// One start per objective on one thread: the figures before and after the
+/// objective-specific evaluation (issue: speed and scale, target ≥ 5×) in DEVELOPERS.md.
+fn per_objective(c: &mut Criterion) {
+    let pool = rayon::ThreadPoolBuilder::new().num_threads(1).build().unwrap();
+    let mut group = c.benchmark_group("hunt, 4 starts at Q = 0.05, d_E = 4 (1 thread)");
+    group.sample_size(10);
+    for objective in [Objective::Holevo, Objective::Guess, Objective::Game, Objective::Accessible] {
+        let opts = HuntOptions { protocol: Protocol::Bb84, objective, eve_dim: 4, starts: 4, seed: 1, max_iters: 100 };
+        group.bench_function(objective.name(), |b| b.iter(|| pool.install(|| hunt(&opts, &[0.05]).unwrap()[0].value)));
+    }
+    group.finish();
+}
+
 criterion_group! {
     name = benches;
-    config = Criterion::default().sample_size(10).measurement_time(std::time::Duration::from_secs(20)).warm_up_time(std::time::Duration::from_millis(100));
-    targets = holevo_hunt
+    config = Criterion::default().sample_size(10).measurement_time(std::time::Duration::from_secs(5)).warm_up_time(std::time::Duration::from_millis(100));
+    targets = holevo_hunt, per_objective
 }
 criterion_main!(benches);

@@ -20,12 +20,12 @@ pub mod pauli;
 use crate::error::{check_range, Error, Result};
 use crate::numeric::linalg::{CMat, Tolerance};
 use crate::quantum::channel::KrausChannel;
-use serde::Serialize;
+use serde::{Deserialize, Serialize};
 use std::collections::BTreeMap;
 use std::fmt;
 
 /// A parameter value: a number or a keyword.
-#[derive(Clone, Debug, PartialEq, Serialize)]
+#[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
 #[serde(untagged)]
 pub enum Value {
     /// A real number.

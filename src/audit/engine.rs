@@ -24,8 +24,9 @@ use crate::exact::signal::SignalModel;
 use crate::numeric::rng::trial_rng;
 use rayon::prelude::*;
 
-/// The result for one attack point under one key-length rule.
-#[derive(Clone, Debug)]
+/// The result for one attack point under one key-length rule. Serialisable so that a
+/// shard's results can be merged (`qkd-audit merge`).
+#[derive(Clone, Debug, serde::Serialize, serde::Deserialize)]
 pub struct PointResult {
     /// Index of the attack entry in the campaign.
     pub entry: usize,
@@ -89,6 +90,17 @@ pub fn run(c: &Campaign, progress: &(dyn Fn() + Sync)) -> Result<Vec<PointResult
 /// Runs the campaign and gives, besides the results, the log of every rule program (its
 /// stderr and notes) for the results folder.
 pub fn run_logged(c: &Campaign, progress: &(dyn Fn() + Sync)) -> Result<(Vec<PointResult>, Vec<ProgramLog>)> {
+    run_points(c, progress, &|_| true)
+}
+
+/// Runs only the points whose campaign index `keep` accepts (a shard of the campaign,
+/// `run --shard`); each point keeps its index, hence its random streams, so the union of
+/// the shards' results is the full run's, row for row.
+pub fn run_points(
+    c: &Campaign,
+    progress: &(dyn Fn() + Sync),
+    keep: &(dyn Fn(u64) -> bool + Sync),
+) -> Result<(Vec<PointResult>, Vec<ProgramLog>)> {
     let mut jobs = Vec::new();
     for (ei, entry) in c.attacks.iter().enumerate() {
         for (swept, overrides) in entry.points() {
@@ -97,10 +109,11 @@ pub fn run_logged(c: &Campaign, progress: &(dyn Fn() + Sync)) -> Result<(Vec<Poi
             }
         }
     }
+    let jobs: Vec<_> = jobs.into_iter().enumerate().filter(|(index, _)| keep(*index as u64)).collect();
     let prepared: Vec<Prepared> = jobs
         .par_iter()
-        .enumerate()
         .map(|(index, (ei, entry, swept, overrides, si))| {
+            let index = *index;
             let setup = &c.setups[*si].setup;
             let eval_opts = EvalOptions::full(setup.protocol);
             let basis_prob = setup.basis_probabilities();

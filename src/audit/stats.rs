@@ -3,7 +3,7 @@
 //! on the number of threads, and per point only the key lengths are kept.
 
 use super::trial::{TrialOutcome, Verdict};
-use serde::Serialize;
+use serde::{Deserialize, Serialize};
 use statrs::distribution::{Beta, ContinuousCDF};
 
 /// Two-sided 95 % Clopper–Pearson interval for `k` successes in `n` trials (Clopper &
@@ -49,7 +49,7 @@ pub fn quantile_sorted(sorted: &[u64], q: f64) -> u64 {
 }
 
 /// Monte Carlo summary of one attack point.
-#[derive(Clone, Debug, PartialEq, Serialize)]
+#[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
 pub struct PointStats {
     /// Number of trials.
     pub trials: u64,

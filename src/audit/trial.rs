@@ -19,11 +19,11 @@
 
 use crate::audit::rules::{aep_min_entropy, ec_leak_bits, pa_cost_bits, BlockStats, EpsilonBudget, Rule, RuleAnswer, RuleParams};
 use crate::audit::sample::BlockCounts;
-use serde::Serialize;
+use serde::{Deserialize, Serialize};
 
 /// A verdict, of one trial or (the worst that matters over its trials, see
 /// [`crate::audit::stats::point_verdict`]) of one attack point. One vocabulary for both.
-#[derive(Clone, Copy, Debug, PartialEq, Eq, Serialize, PartialOrd, Ord, Hash)]
+#[derive(Clone, Copy, Debug, PartialEq, Eq, Serialize, Deserialize, PartialOrd, Ord, Hash)]
 #[serde(rename_all = "kebab-case")]
 pub enum Verdict {
     /// The protocol aborted (observed error rate above threshold, or nothing to test); for

@@ -137,3 +137,19 @@ pub fn write_stdout(out: &mut impl Write, text: &str) -> Result<()> {
         Err(e) => Err(Error::new(crate::error::ErrorKind::Io, format!("cannot write to stdout: {e}"))),
     }
 }
+
+/// Most worker threads `--threads` accepts: more only adds memory and scheduling; results
+/// do not change.
+pub const MAX_THREADS: usize = 256;
+
+/// A rayon pool of `threads` workers (default: all cores, or RAYON_NUM_THREADS).
+pub fn thread_pool(threads: Option<usize>) -> Result<rayon::ThreadPool> {
+    let mut b = rayon::ThreadPoolBuilder::new();
+    if let Some(n) = threads {
+        if n == 0 || n > MAX_THREADS {
+            return Err(crate::error::Error::input_key("--threads", format!("{n} is outside [1, {MAX_THREADS}]")));
+        }
+        b = b.num_threads(n);
+    }
+    b.build().map_err(|e| crate::error::Error::input(format!("cannot start worker threads: {e}")))
+}

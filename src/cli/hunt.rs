@@ -60,10 +60,18 @@ pub struct HuntArgs {
     /// Replace the output folder if it exists.
     #[arg(long)]
     pub force: bool,
+    /// Sharding (by target and start; not for --rounds).
+    #[command(flatten)]
+    pub shard: super::shard::ShardArgs,
 }
 
 /// Runs `qkd-audit hunt`.
 pub fn cmd_hunt(a: HuntArgs) -> Result<Outcome> {
+    hunt_with(a, None)
+}
+
+/// `hunt`, with the per-target outcomes already computed when `merged` is given (`merge`).
+fn hunt_with(a: HuntArgs, merged: Option<Vec<Result<crate::search::hunt::HuntPoint>>>) -> Result<Outcome> {
     use crate::search::hunt::{hunt_each, HuntOptions, Objective};
     let objective = match a.objective {
         ObjectiveArg::Holevo => Objective::Holevo,
@@ -75,6 +83,9 @@ pub fn cmd_hunt(a: HuntArgs) -> Result<Outcome> {
     if let Some(n) = a.rounds {
         if objective != Objective::Game {
             return Err(Error::input_key("--rounds", "the multi-round game setting needs --objective game"));
+        }
+        if a.shard.shard.is_some() {
+            return Err(Error::input_key("--shard", "the multi-round game setting (--rounds) is not sharded"));
         }
         let dir = a.out_dir.clone().unwrap_or_else(|| PathBuf::from(format!("results/hunt-game-{n}-rounds")));
         crate::output::clean_up_on_signals();
@@ -120,12 +131,18 @@ pub fn cmd_hunt(a: HuntArgs) -> Result<Outcome> {
         }
         return Ok(Outcome::Clean);
     }
+    let opts = HuntOptions { protocol, objective, eve_dim: a.eve_dim, starts: a.starts, seed: a.seed, max_iters: a.iters };
+    if let Some(spec) = a.shard.shard {
+        return hunt_shard(&a, &opts, spec);
+    }
     let dir = a.out_dir.clone().unwrap_or_else(|| PathBuf::from(format!("results/hunt-{}-{}", objective.name(), protocol)));
     crate::output::clean_up_on_signals();
     let folder = crate::output::prepare_folder(&dir, a.force)?;
     folder.notes().iter().for_each(|n| note(n));
-    let opts = HuntOptions { protocol, objective, eve_dim: a.eve_dim, starts: a.starts, seed: a.seed, max_iters: a.iters };
-    let outcomes = hunt_each(&opts, &a.q)?;
+    let outcomes = match merged {
+        Some(o) => o,
+        None => hunt_each(&opts, &a.q)?,
+    };
     let mut points = Vec::new();
     let mut infeasible = Vec::new();
     for (q, outcome) in a.q.iter().zip(outcomes) {
@@ -259,4 +276,65 @@ fn strategy_toml(r: &crate::search::game::GameResult) -> String {
         }
     }
     s
+}
+
+/// One shard of a hunt: its (target, start) units, written as a partial result.
+fn hunt_shard(a: &HuntArgs, opts: &crate::search::hunt::HuntOptions, spec: super::shard::ShardSpec) -> Result<Outcome> {
+    use super::shard::{HuntStart, Partial};
+    let clock = std::time::Instant::now();
+    let starts = crate::search::hunt::hunt_starts(opts, &a.q, &|u| spec.owns(u))?;
+    let units = (a.q.len() * a.starts) as u64;
+    let mut partial = Partial::new("hunt", Vec::new(), spec, units, clock.elapsed().as_secs_f64());
+    partial.hunt = Some(
+        starts
+            .into_iter()
+            .map(|(_, r)| match r {
+                Ok(x) => HuntStart { x: Some(x), error: None },
+                Err(e) => HuntStart { x: None, error: Some(e.to_string()) },
+            })
+            .collect(),
+    );
+    partial.write(&a.shard.shard_dir, a.force)?;
+    Ok(Outcome::Clean)
+}
+
+/// `merge` of `hunt` shards: every start's final parameters, scored and reported as the
+/// unsharded hunt does, into `output` (default: the hunt's default folder).
+pub fn merge_hunt(mut a: HuntArgs, parts: Vec<super::shard::Partial>, output: Option<PathBuf>, force: bool) -> Result<Outcome> {
+    use crate::search::hunt::{hunt_score, HuntOptions, Objective};
+    let units = parts[0].units as usize;
+    let mut finals: Vec<Option<Vec<f64>>> = vec![None; units];
+    for p in parts {
+        let (k, n) = (p.shard, p.shards);
+        let starts = p.hunt.ok_or_else(|| Error::input(format!("shard {k}/{n} carries no hunt results")))?;
+        if starts.len() != p.indices.len() {
+            return Err(Error::input(format!("shard {k}/{n} lists {} units but {} results", p.indices.len(), starts.len())));
+        }
+        for (u, st) in p.indices.into_iter().zip(starts) {
+            match (st.x, st.error) {
+                (Some(x), None) => finals[u as usize] = Some(x),
+                (_, Some(e)) => return Err(Error::new(crate::error::ErrorKind::NoConvergence, format!("shard {k}/{n}, unit {u}: {e}"))),
+                (None, None) => return Err(Error::input(format!("shard {k}/{n}, unit {u}: neither a result nor an error"))),
+            }
+        }
+    }
+    let objective = match a.objective {
+        ObjectiveArg::Holevo => Objective::Holevo,
+        ObjectiveArg::Accessible => Objective::Accessible,
+        ObjectiveArg::Guess => Objective::Guess,
+        ObjectiveArg::Game => Objective::Game,
+    };
+    let opts = HuntOptions {
+        protocol: Protocol::from(a.protocol),
+        objective,
+        eve_dim: a.eve_dim,
+        starts: a.starts,
+        seed: a.seed,
+        max_iters: a.iters,
+    };
+    let finals: Vec<Vec<f64>> = finals.into_iter().map(|x| x.expect("every unit is owned by exactly one checked shard")).collect();
+    let outcomes = hunt_score(&opts, &a.q, finals)?;
+    a.out_dir = output;
+    a.force = force;
+    hunt_with(a, Some(outcomes))
 }

@@ -15,6 +15,8 @@ pub mod hunt;
 pub mod report;
 pub mod compare;
 pub mod tolerance;
+pub mod shard;
+pub mod merge;
 
 pub use common::Outcome;
 
@@ -63,6 +65,9 @@ pub enum Command {
     /// a key-length rule starts to leak, or to give no key, against the strongest of a
     /// campaign's attacks; exit status 1 if the configured setup is not shown safe.
     Tolerance(tolerance::ToleranceArgs),
+    /// Join the partial results of a job run in shards (`--shard K/N` of sweep, hunt or
+    /// run) into exactly what the unsharded command writes.
+    Merge(merge::MergeArgs),
 }
 
 /// Runs the parsed command.
@@ -79,5 +84,6 @@ pub fn run(cli: Cli) -> Result<Outcome> {
         Command::Report(a) => report::cmd_report(a),
         Command::Compare(a) => compare::cmd_compare(a),
         Command::Tolerance(a) => tolerance::cmd_tolerance(a),
+        Command::Merge(a) => merge::cmd_merge(a),
     }
 }

@@ -1,6 +1,7 @@
 //! The `run` subcommand: a finite-key audit campaign into a results folder.
 
 use super::common::{note, print, Outcome};
+use super::shard::{InputId, Partial, ShardArgs};
 use crate::audit::report::manifest::{sha256_hex, InputHash, Manifest};
 use crate::audit::trial::Verdict;
 use crate::audit::{point_count, Campaign};
@@ -64,6 +65,10 @@ pub struct RunArgs {
     /// writing anything.
     #[arg(long)]
     pub dry_run: bool,
+    /// Sharding (by attack point). A shard exits 0 when it computed its points; the merge
+    /// gives the campaign's exit status.
+    #[command(flatten)]
+    pub shard: ShardArgs,
 }
 
 /// The plan of a campaign and a rough estimate of its cost, for `--dry-run`. The rates are
@@ -148,6 +153,22 @@ pub fn cmd_run(a: RunArgs) -> Result<Outcome> {
         print(&plan(&campaign, &dir, a.force))?;
         return Ok(Outcome::Clean);
     }
+    if let Some(spec) = a.shard.shard {
+        if let Some(r) = campaign.rules.iter().find(|r| r.builtin().is_none()) {
+            return Err(Error::input_key(
+                "--shard",
+                format!("the campaign judges the rule file `{r}`; sharded runs support built-in rules only (run it unsharded)"),
+            ));
+        }
+        let pool = super::common::thread_pool(a.threads)?;
+        let clock = std::time::Instant::now();
+        let (results, _logs) = pool.install(|| crate::audit::engine::run_points(&campaign, &|| {}, &|i| spec.owns(i)))?;
+        let inputs = campaign.inputs.iter().map(|(o, t)| InputId { origin: o.clone(), sha256: sha256_hex(t) }).collect();
+        let mut partial = Partial::new("run", inputs, spec, point_count(&campaign) as u64, clock.elapsed().as_secs_f64());
+        partial.run = Some(results);
+        partial.write(&a.shard.shard_dir, a.force)?;
+        return Ok(Outcome::Clean);
+    }
     // Every output problem shows now, before the computation; the lock holds until written.
     crate::output::clean_up_on_signals();
     let folder = crate::output::prepare_folder(&dir, a.force)?;
@@ -204,7 +225,21 @@ pub fn cmd_run(a: RunArgs) -> Result<Outcome> {
             })
             .collect(),
     };
-    crate::audit::report::write_folder_with(folder, &campaign, &results, &manifest, &logs)?;
+    finish(&a, &campaign, &dir, folder, &results, &manifest, &logs)
+}
+
+/// Writes the results folder (with the rule programs' logs) and reports the verdicts (the
+/// end of `run`, and of `merge`).
+fn finish(
+    a: &RunArgs,
+    campaign: &Campaign,
+    dir: &std::path::Path,
+    folder: crate::output::FolderGuard,
+    results: &[crate::audit::PointResult],
+    manifest: &Manifest,
+    logs: &[crate::audit::rules::program::ProgramLog],
+) -> Result<Outcome> {
+    crate::audit::report::write_folder_with(folder, campaign, results, manifest, logs)?;
     let system_rule = campaign.setup.key_rule.clone();
     let leaks = results.iter().filter(|r| r.stats.verdict == Verdict::Leak).count();
     let gating = results.iter().filter(|r| r.stats.verdict == Verdict::Leak && (a.fail_on_any_rule || r.rule == system_rule)).count();
@@ -225,4 +260,53 @@ pub fn cmd_run(a: RunArgs) -> Result<Outcome> {
     }
     print(&format!("{}\n", dir.display()))?;
     Ok(if gating > 0 { Outcome::Findings } else { Outcome::Clean })
+}
+
+/// `merge` of `run` shards: checks the campaign still has the inputs the shards ran on,
+/// orders the point results as the engine does, and writes the results folder under
+/// `output` (default `results`; the shards' `--results-dir` is not part of a job's
+/// identity). The manifest's elapsed time is the slowest shard's.
+pub fn merge_run(a: RunArgs, parts: Vec<Partial>, output: Option<PathBuf>, force: bool, quiet: bool) -> Result<Outcome> {
+    let campaign = match (&a.campaign, &a.demo) {
+        (Some(p), _) => Campaign::load(p)?,
+        (None, Some(d)) => Campaign::demo_named(d.name())?,
+        (None, None) => Campaign::demo(),
+    };
+    let inputs: Vec<InputId> = campaign.inputs.iter().map(|(o, t)| InputId { origin: o.clone(), sha256: sha256_hex(t) }).collect();
+    if inputs != parts[0].inputs {
+        return Err(Error::input(format!(
+            "the campaign's input files changed since the shards ran (SHA-256 differ): {}",
+            inputs.iter().map(|i| i.origin.as_str()).collect::<Vec<_>>().join(", ")
+        )));
+    }
+    let a = RunArgs { results_dir: output.unwrap_or_else(|| PathBuf::from("results")), force, quiet, ..a };
+    let dir = a.results_dir.join(&campaign.name);
+    crate::output::clean_up_on_signals();
+    let folder = crate::output::prepare_folder(&dir, a.force)?;
+    folder.notes().iter().for_each(|n| note(n));
+    let started = std::time::SystemTime::now();
+    let elapsed_s = parts.iter().map(|p| p.elapsed_s).fold(0.0, f64::max);
+    let mut results = Vec::new();
+    for p in parts {
+        let (k, n) = (p.shard, p.shards);
+        results.extend(p.run.ok_or_else(|| Error::input(format!("shard {k}/{n} carries no campaign results")))?);
+    }
+    // The engine's order: entry, then rule, then point.
+    results.sort_by_key(|r| (r.entry, campaign.rules.iter().position(|x| *x == r.rule).unwrap_or(0), r.index));
+    let manifest = Manifest {
+        tool: "qkd-audit",
+        version: env!("CARGO_PKG_VERSION"),
+        command_line: std::env::args().collect(),
+        campaign: campaign.name.clone(),
+        seed: campaign.seed,
+        trials: campaign.trials,
+        sampler: campaign.sampler,
+        inputs: campaign.inputs.iter().map(|(o, t)| InputHash { origin: o.clone(), sha256: sha256_hex(t) }).collect(),
+        started_unix_s: started.duration_since(std::time::UNIX_EPOCH).map(|d| d.as_secs()).unwrap_or(0),
+        elapsed_s,
+        threads: rayon::current_num_threads(),
+        // Sharded runs refuse rule programs (see the shard branch of `cmd_run`).
+        rule_programs: Vec::new(),
+    };
+    finish(&a, &campaign, &dir, folder, &results, &manifest, &[])
 }

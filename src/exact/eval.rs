@@ -96,7 +96,7 @@ impl EvalOptions {
 
 /// Everything the evaluator reports for one attack. Field names are the JSON keys; the
 /// numeric ones are listed, with their CSV columns, in [`QUANTITIES`].
-#[derive(Clone, Debug, PartialEq)]
+#[derive(Clone, Debug, PartialEq, serde::Serialize, serde::Deserialize)]
 pub struct Evaluation {
     /// QBER in the Z (key) basis.
     pub qber_z: f64,

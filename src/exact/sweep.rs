@@ -10,6 +10,7 @@ use crate::attack::file::AttackFile;
 use crate::attack::Value;
 use crate::error::{Error, Result};
 use crate::exact::eval::{evaluate, EvalOptions, Evaluation, QUANTITIES};
+use rayon::prelude::*;
 use std::collections::BTreeMap;
 
 /// Significant digits of a non-integer CSV number: the evaluator's results are accurate to
@@ -85,8 +86,15 @@ pub struct SweepPoint {
     pub eval: Evaluation,
 }
 
-/// Evaluates the file's sweep (with `steps` overriding the file's number of points).
+/// Evaluates the file's sweep (with `steps` overriding the file's number of points), in
+/// parallel over points on the current rayon pool; the points come back in sweep order and
+/// each is computed on its own, so the result does not depend on the number of threads.
 pub fn run_sweep(file: &AttackFile, steps: Option<usize>, opts: &EvalOptions) -> Result<Vec<SweepPoint>> {
+    Ok(run_sweep_points(file, steps, opts, &|_| true)?.into_iter().map(|(_, p)| p).collect())
+}
+
+/// The sweep's values (with `steps` overriding the file's number of points).
+pub fn sweep_values(file: &AttackFile, steps: Option<usize>) -> Result<(String, Vec<f64>)> {
     let mut sweep = file.sweep().cloned().ok_or_else(|| Error::input_key("sweep", "the file has no [sweep] table to run"))?;
     if let Some(n) = steps {
         if n == 0 || n > MAX_SWEEP_STEPS {
@@ -94,37 +102,70 @@ pub fn run_sweep(file: &AttackFile, steps: Option<usize>, opts: &EvalOptions) ->
         }
         sweep.steps = n;
     }
-    sweep
-        .values()
-        .into_iter()
-        .map(|v| {
+    Ok((sweep.param.clone(), sweep.values()))
+}
+
+/// Like [`run_sweep`], but only the points whose index `keep` accepts (a shard), each with
+/// its index. The first error in sweep order is returned.
+pub fn run_sweep_points(
+    file: &AttackFile,
+    steps: Option<usize>,
+    opts: &EvalOptions,
+    keep: &(dyn Fn(usize) -> bool + Sync),
+) -> Result<Vec<(usize, SweepPoint)>> {
+    let (param, values) = sweep_values(file, steps)?;
+    let todo: Vec<(usize, f64)> = values.into_iter().enumerate().filter(|(i, _)| keep(*i)).collect();
+    todo.into_par_iter()
+        .map(|(i, v)| {
             let mut o = BTreeMap::new();
-            o.insert(sweep.param.clone(), Value::Num(v));
+            o.insert(param.clone(), Value::Num(v));
             let attack = file.attack(&o)?;
             let eval = evaluate(&attack, opts)?;
-            Ok(SweepPoint { label: attack.label.clone(), family: attack.family.clone(), params: attack.params.0.clone(), eval })
+            Ok((i, SweepPoint { label: attack.label.clone(), family: attack.family.clone(), params: attack.params.0.clone(), eval }))
         })
         .collect()
 }
 
 /// Renders sweep points as CSV text.
 pub fn sweep_csv(points: &[SweepPoint]) -> Result<String> {
-    let mut w = csv::Writer::from_writer(Vec::new());
-    let mut header = vec!["attack".to_string(), "family".to_string(), "protocol".to_string()];
-    if let Some(p) = points.first() {
-        header.extend(p.params.iter().map(|(k, _)| format!("param_{k}")));
-    }
-    header.extend(QUANTITIES.iter().map(|q| q.column.to_string()));
-    w.write_record(&header).map_err(csv_err)?;
+    let mut out = match points.first() {
+        Some(p) => sweep_header(p)?,
+        None => csv_line(&header_fields(&[]))?,
+    };
     for p in points {
-        let mut row = vec![p.label.clone(), p.family.clone(), p.eval.protocol.to_string()];
-        row.extend(p.params.iter().map(|(_, v)| match v {
-            Value::Num(x) => fmt_num(*x),
-            Value::Text(s) => s.clone(),
-        }));
-        row.extend(QUANTITIES.iter().map(|q| fmt_num((q.value)(&p.eval).unwrap_or(f64::NAN))));
-        w.write_record(&row).map_err(csv_err)?;
+        out.push_str(&sweep_row(p)?);
     }
+    Ok(out)
+}
+
+fn header_fields(params: &[(String, Value)]) -> Vec<String> {
+    let mut header = vec!["attack".to_string(), "family".to_string(), "protocol".to_string()];
+    header.extend(params.iter().map(|(k, _)| format!("param_{k}")));
+    header.extend(QUANTITIES.iter().map(|q| q.column.to_string()));
+    header
+}
+
+/// The CSV header line of a sweep whose first point is `first` (its parameter names give
+/// the `param_` columns), with its line end.
+pub fn sweep_header(first: &SweepPoint) -> Result<String> {
+    csv_line(&header_fields(&first.params))
+}
+
+/// One point's CSV record, with its line end: the bytes [`sweep_csv`] writes for it.
+pub fn sweep_row(p: &SweepPoint) -> Result<String> {
+    let mut row = vec![p.label.clone(), p.family.clone(), p.eval.protocol.to_string()];
+    row.extend(p.params.iter().map(|(_, v)| match v {
+        Value::Num(x) => fmt_num(*x),
+        Value::Text(s) => s.clone(),
+    }));
+    row.extend(QUANTITIES.iter().map(|q| fmt_num((q.value)(&p.eval).unwrap_or(f64::NAN))));
+    csv_line(&row)
+}
+
+/// One CSV record (quoted as the `csv` crate quotes, `\n` line end).
+fn csv_line(fields: &[String]) -> Result<String> {
+    let mut w = csv::Writer::from_writer(Vec::new());
+    w.write_record(fields).map_err(csv_err)?;
     let bytes = w.into_inner().map_err(|e| Error::input(e.to_string()))?;
     Ok(String::from_utf8(bytes).expect("csv output is UTF-8"))
 }

@@ -247,7 +247,7 @@ pub fn render(ev: &Evidence, figures: &[Figure], csv_sha256: &str) -> String {
     let _ = write!(
         s,
         "<header><h1>Audit evidence: <span id=\"campaign-name\">{}</span></h1>\n<p class=\"meta\">qkd-audit {} · \
-         {} trials per attack point · seed {}</p>\n<p class=\"meta run\">run started {}</p>\n<nav><a href=\"#verdict\">Verdict</a>\
+         {} trials per attack point · seed {}</p>\n<p class=\"run meta\">run started {}</p>\n<nav><a href=\"#verdict\">Verdict</a>\
          <a href=\"#leaks\">Leaks</a><a href=\"#system\">System</a><a href=\"#figures\">Figures</a><a href=\"#tables\">Tables</a><a href=\"#provenance\">Provenance</a>\
          <a href=\"#caution\">Caution</a></nav>\n<p id=\"system-line\"><b>System under test:</b> {}</p></header>\n",
         esc(&name),
@@ -395,10 +395,11 @@ fn tables_html(ev: &Evidence) -> String {
 fn provenance_html(ev: &Evidence, csv_sha256: &str) -> String {
     let m = &ev.manifest;
     let mut s = String::from("<section id=\"provenance\" class=\"provenance\"><h2>Provenance</h2>\n<table class=\"provenance\"><tbody>\n");
-    // Rows that differ between runs of the same inputs carry the class `run` (one line each),
+    // Rows that differ between runs of the same inputs (the command line too: `--threads`,
+    // `merge` of shards) carry the class `run` (one line each),
     // so that a comparison of two pages can leave them out (`grep -v 'class="run'`).
     let mut row = |k: &str, v: String| {
-        let class = if matches!(k, "started" | "elapsed") { " class=\"run\"" } else { "" };
+        let class = if matches!(k, "command line" | "started" | "elapsed") { " class=\"run\"" } else { "" };
         let _ = writeln!(s, "<tr{class}><th scope=\"row\">{}</th><td>{}</td></tr>", esc(k), v);
     };
     row("tool", format!("{} {}", esc(&m.tool), esc(&m.version)));

@@ -29,12 +29,12 @@ pub mod rule;
 pub use rule::{Rule, RuleAnswer};
 
 use crate::quantum::measures::binary_entropy_capped;
-use serde::Serialize;
+use serde::{Deserialize, Serialize};
 use std::fmt;
 use std::str::FromStr;
 
 /// The key-length rules a system may use.
-#[derive(Clone, Copy, Debug, PartialEq, Eq, Serialize)]
+#[derive(Clone, Copy, Debug, PartialEq, Eq, Serialize, Deserialize)]
 #[serde(rename_all = "kebab-case")]
 pub enum KeyRule {
     /// Finite-key rule from the smooth-entropy uncertainty relation.

@@ -114,6 +114,18 @@ impl serde::Serialize for Rule {
     }
 }
 
+impl<'de> serde::Deserialize<'de> for Rule {
+    /// Reads a built-in rule back by name (a shard's partial results). A rule file's rule
+    /// cannot be rebuilt from its name alone, so shards refuse campaigns with rule files
+    /// (`run --shard`), and reading one back is an error.
+    fn deserialize<D: serde::Deserializer<'de>>(d: D) -> Result<Rule, D::Error> {
+        let name = String::deserialize(d)?;
+        name.parse::<KeyRule>()
+            .map(Rule::Builtin)
+            .map_err(|_| serde::de::Error::custom(format!("`{name}` is not a built-in rule; results under rule files are not read back")))
+    }
+}
+
 impl From<KeyRule> for Rule {
     fn from(r: KeyRule) -> Rule {
         Rule::Builtin(r)

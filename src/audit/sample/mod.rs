@@ -3,13 +3,15 @@
 //!
 //! Two samplers of single-photon points must agree in distribution: [`count`] (multinomial,
 //! binomial and hypergeometric draws; cost independent of the block size; the default) and
-//! [`round`] (an alias table, one draw per signal; can also write the round log of a small
-//! block). [`pulses`] draws blocks of an optical link's pulses per kind of pulse.
+//! [`round`] (an alias table, one draw per signal, constant memory; can also write the
+//! round log of a small block). [`pulses`] draws blocks of an optical link's pulses per kind of pulse.
 //!
 //! Test sample: a uniformly random subset of the sifted Z rounds of the configured size m is
-//! disclosed. Rounds are i.i.d. and hence exchangeable, so the per-round sampler may take
-//! the first m sifted Z rounds as that subset, and the count-level sampler may draw the
-//! test sample and the key as independent multinomials of sizes m and n_Z − m given n_Z.
+//! disclosed. Rounds are i.i.d. and hence exchangeable, so the per-round sampler draws the
+//! test sample's categories from its tallies (a multivariate hypergeometric draw, constant
+//! memory) or, when it logs rounds, takes the first m sifted Z rounds; the count-level
+//! sampler draws the test sample and the key as independent multinomials of sizes m and
+//! n_Z − m given n_Z.
 //!
 //! Every (point, trial) has its own random stream ([`crate::numeric::rng::trial_rng`]), so
 //! results do not depend on the number of threads.
