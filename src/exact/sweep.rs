@@ -3,8 +3,8 @@
 //! CSV schema (one row per point): `attack`, `family`, `protocol`, then one column per
 //! family parameter (named `param_<name>`), then every evaluator quantity of
 //! [`crate::exact::eval::QUANTITIES`] under its CSV column (probabilities bare, information
-//! in `_bits`, rates in bits per sifted bit). Numbers are printed by [`fmt_num`] (shortest
-//! round-trip decimal); a quantity not computed is an empty cell.
+//! in `_bits`, rates in bits per sifted bit). Numbers are printed by [`fmt_num`] (integers
+//! exactly, other values at 12 significant digits); a quantity not computed is an empty cell.
 
 use crate::attack::file::AttackFile;
 use crate::attack::Value;
