@@ -94,6 +94,10 @@ pub struct PointStats {
     pub key_fraction_single: f64,
     /// Weak-coherent links: fraction of all key bits from multi-photon pulses.
     pub key_fraction_multi: f64,
+    /// Shares of the trials that aborted for each reason (several reasons can hold in one
+    /// trial, so they may add up to more than the abort probability).
+    #[serde(default)]
+    pub abort_reasons: AbortShares,
     /// The point's verdict ([`point_verdict`]).
     pub verdict: Verdict,
 }
@@ -121,6 +125,20 @@ impl Mean {
     }
 }
 
+/// Shares of a point's trials that aborted for each reason (see
+/// [`crate::audit::trial::AbortReasons`]).
+#[derive(Clone, Copy, Debug, Default, PartialEq, serde::Serialize, serde::Deserialize)]
+pub struct AbortShares {
+    /// A monitor alarm.
+    pub alarm: f64,
+    /// No key bits or no X bits.
+    pub empty: f64,
+    /// The rule's own abort condition.
+    pub rule: f64,
+    /// The observed error rate of the Z test sample, X and Y above the abort threshold.
+    pub qber: [f64; 3],
+}
+
 /// The running summary of one point under one rule: trials are fed in trial order (chunk by
 /// chunk), and only the key lengths are kept (8 bytes per trial, for the exact quantiles);
 /// everything else is a count or a sum, so memory does not grow with the trials otherwise.
@@ -142,6 +160,8 @@ pub struct Tally {
     class_total: u64,
     class_single: u64,
     class_multi: u64,
+    /// Aborts by reason: alarm, empty, rule, QBER_Z, QBER_X, QBER_Y.
+    abort_reasons: [u64; 6],
 }
 
 fn verdict_index(v: Verdict) -> usize {
@@ -163,6 +183,10 @@ impl Tally {
     /// Adds the next trial (in trial order).
     pub fn add(&mut self, o: &TrialOutcome) {
         self.verdicts[verdict_index(o.verdict)] += 1;
+        let r = &o.abort_reasons;
+        for (count, hit) in self.abort_reasons.iter_mut().zip([r.alarm, r.empty, r.rule, r.qber[0], r.qber[1], r.qber[2]]) {
+            *count += u64::from(hit);
+        }
         self.lengths.push(o.length);
         self.key_length.add(o.length as f64);
         if o.length > 0 {
@@ -223,6 +247,12 @@ impl Tally {
             eve_guess_rate: if self.key_bits == 0 { f64::NAN } else { self.eve as f64 / self.key_bits as f64 },
             key_fraction_single: class(self.class_single),
             key_fraction_multi: class(self.class_multi),
+            abort_reasons: AbortShares {
+                alarm: frac(self.abort_reasons[0]),
+                empty: frac(self.abort_reasons[1]),
+                rule: frac(self.abort_reasons[2]),
+                qber: [frac(self.abort_reasons[3]), frac(self.abort_reasons[4]), frac(self.abort_reasons[5])],
+            },
             // Which verdicts occurred is all the point's verdict depends on.
             verdict: point_verdict(present.iter().copied()),
         }

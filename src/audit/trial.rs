@@ -81,8 +81,25 @@ pub struct TrialOutcome {
     pub eve_correct_key: u64,
     /// Weak-coherent links: key bits by photon-number class (0, 1, ≥ 2 photons).
     pub key_classes: Option<[u64; 3]>,
+    /// Why the block aborted (all false when it did not).
+    pub abort_reasons: AbortReasons,
     /// The verdict.
     pub verdict: Verdict,
+}
+
+/// What made a block abort; several can hold at once (an error rate above the threshold in
+/// two bases).
+#[derive(Clone, Copy, Debug, Default, PartialEq, Eq, Serialize)]
+pub struct AbortReasons {
+    /// A monitor alarm (a detector flaw's countermeasure).
+    pub alarm: bool,
+    /// No key bits or no X bits to estimate the phase error from.
+    pub empty: bool,
+    /// The rule's own abort condition (a rule file's `abort_if`, a program's `abort`).
+    pub rule: bool,
+    /// The observed error rate of the Z test sample, X, Y above the abort threshold (when
+    /// the setup's threshold decides).
+    pub qber: [bool; 3],
 }
 
 /// The slack of the converse: 2·log₂ n bits.
@@ -169,6 +186,18 @@ pub fn judge_answer(
             None => true,
             Some(a) => a.abort.unwrap_or_else(|| threshold_aborts(&stats, params)),
         };
+    let abort_reasons = if aborted {
+        let exceeds = |e: f64| !e.is_nan() && e > params.abort_qber;
+        let threshold_decides = answer.is_some_and(|a| a.abort.is_none());
+        AbortReasons {
+            alarm: counts.alarm,
+            empty: answer.is_none(),
+            rule: answer.is_some_and(|a| a.abort == Some(true)),
+            qber: if threshold_decides { [exceeds(stats.e_z), exceeds(stats.e_x), exceeds(stats.e_y)] } else { [false; 3] },
+        }
+    } else {
+        AbortReasons::default()
+    };
     let leak_ec = ec_leak_bits(&stats, params);
     // Weak-coherent links: Eve's actual knowledge, summed over the photon-number classes of
     // the sampled key bits; otherwise n·H(X|E).
@@ -201,6 +230,7 @@ pub fn judge_answer(
         excess: length as f64 - capacity,
         eve_correct_key: counts.eve_correct_key(),
         key_classes: counts.key_classes,
+        abort_reasons,
         verdict,
     }
 }

@@ -348,7 +348,10 @@ pub fn render(c: &Campaign, results: &[PointResult]) -> String {
     }
     let _ = writeln!(
         s,
-        "Verdicts per trial: `aborted`, `no-key`, `secure` (ℓ ≤ achievable), `inconclusive`, `leak` (ℓ > capacity + 2 log₂ n).\n"
+        "Verdicts per trial: `aborted`, `no-key`, `secure` (ℓ ≤ achievable), `inconclusive`, `leak` (ℓ > capacity + 2 log₂ n). \
+         In the tables, an abort share is followed by its causes as shares of all trials: the basis whose observed error rate \
+         exceeded the threshold (Z test sample, X, Y), `empty` (no key or X bits), `rule` (the rule's own abort condition), \
+         `alarm` (a detector monitor).\n"
     );
     let mut groups: Vec<(usize, crate::audit::rules::Rule)> = results.iter().map(|r| (r.entry, r.rule.clone())).collect();
     groups.dedup();
@@ -420,7 +423,7 @@ pub fn render(c: &Campaign, results: &[PointResult]) -> String {
                 r.exact.qber_x,
                 if six_state { format!(" {:.4} |", r.exact.qber_y) } else { String::new() },
                 r.exact.h_x_given_e,
-                pct(r.stats.abort_probability),
+                abort_cell(&r.stats, six_state),
                 pct(r.stats.leak_probability),
                 r.stats.key_length_mean,
                 r.stats.verdict
@@ -434,6 +437,25 @@ pub fn render(c: &Campaign, results: &[PointResult]) -> String {
          Defer to the applicable standards and certification schemes."
     );
     s
+}
+
+/// The abort probability with what caused the aborts, e.g. `97.5 % (X 97.5 %, Z 12.0 %)`:
+/// the bases whose observed error rate exceeded the threshold (Z test sample, X, Y), a block
+/// without key or X bits (`empty`), the rule's own condition (`rule`), a monitor alarm
+/// (`alarm`), each as a share of all trials (one trial can have several).
+fn abort_cell(st: &crate::audit::stats::PointStats, six_state: bool) -> String {
+    let total = pct(st.abort_probability);
+    if !(st.abort_probability > 0.0) {
+        return total;
+    }
+    let a = &st.abort_reasons;
+    let mut causes = vec![("Z", a.qber[0]), ("X", a.qber[1])];
+    if six_state {
+        causes.push(("Y", a.qber[2]));
+    }
+    causes.extend([("empty", a.empty), ("rule", a.rule), ("alarm", a.alarm)]);
+    let named: Vec<String> = causes.into_iter().filter(|(_, f)| *f > 0.0).map(|(k, f)| format!("{k} {}", pct(f))).collect();
+    format!("{total} ({})", named.join(", "))
 }
 
 /// The attack × rule matrix: one cell per (attack entry, rule) with the worst point's
