@@ -298,7 +298,9 @@ fn a_setup_sweep_gets_its_own_figure_and_columns_and_the_page_still_rebuilds_byt
     assert_eq!(ev.setup_values(0), [1e3, 1e4, 1e5, 1e6, 1e7]);
     // The setup figure: a logarithmic sweep axis, one series per attack strength, both rules.
     let fig = read(&folder.join("setup_signals_intercept-resend.svg"));
-    for needle in [">1e3<", ">1e7<", "fraction = 0<", "fraction = 0.1<", "asymptotic (system&#39;s rule)", "finite-uncertainty: leak probability"] {
+    for needle in
+        [">1e3<", ">1e7<", "fraction = 0<", "fraction = 0.1<", "asymptotic (system&#39;s rule)", "finite-uncertainty: leak probability"]
+    {
         assert!(fig.contains(needle), "{needle}");
     }
     // Every point without key is drawn, as a cross (one more in the legend), and every

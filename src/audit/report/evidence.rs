@@ -509,7 +509,8 @@ impl Evidence {
         let Some(first) = self.rows.iter().find(|r| r.entry == entry) else {
             return Vec::new();
         };
-        let same = |r: &Row| r.setup.len() == first.setup.len() && r.setup.iter().zip(&first.setup).all(|(a, b)| a.1.total_cmp(&b.1).is_eq());
+        let same =
+            |r: &Row| r.setup.len() == first.setup.len() && r.setup.iter().zip(&first.setup).all(|(a, b)| a.1.total_cmp(&b.1).is_eq());
         self.points(entry, rule).into_iter().filter(|r| same(r)).collect()
     }
 
@@ -644,6 +645,31 @@ mod tests {
         assert_eq!((leaks.len(), leaks[0].first.mean_excess), (1, 120.0));
         assert!(ev.headline().0.starts_with("NOT SECURE"));
         assert_eq!(r.excess_share(), "24.0 % of the key");
+    }
+
+    #[test]
+    fn swept_setup_columns_read_back_with_the_manifest_s_names_or_their_own() {
+        let header = HEADER.replace("sweep_value,", "sweep_value,setup_channel_length_km,");
+        let row = ROW.replace(",fraction,0.5,", ",fraction,0.5,25,");
+        let table = format!("{header}\n{row}\n");
+        let manifest = r#"{"setup_sweeps": [{"key": "channel.length_km", "column": "setup_channel_length_km", "unit": "km",
+            "scale": "linear", "from": 0, "to": 50, "steps": 3}]}"#;
+        let ev = Evidence::parse(&table, manifest, "t.csv", "m.json").unwrap();
+        assert_eq!(ev.rows[0].setup, vec![("channel.length_km".to_string(), 25.0)]);
+        assert_eq!((ev.setup_keys[0].unit.as_str(), ev.setup_keys[0].log()), ("km", false));
+        assert_eq!(ev.rows[0].at(), "fraction = 0.5, channel.length_km = 25");
+        assert!(ev.rows[0].point_key().ends_with(" at channel.length_km=25"), "{}", ev.rows[0].point_key());
+        // Without the manifest's record: the column's own name, no unit, the scale from the
+        // values (one value: linear).
+        let ev = Evidence::parse(&table, "{}", "t.csv", "m.json").unwrap();
+        assert_eq!(
+            (ev.setup_keys[0].key.as_str(), ev.setup_keys[0].unit.as_str(), ev.setup_keys[0].log()),
+            ("channel_length_km", "", false)
+        );
+        let e = Evidence::parse(&table.replace(",0.5,25,", ",0.5,far,"), "{}", "t.csv", "m.json").unwrap_err().to_string();
+        assert!(e.contains("t.csv:2") && e.contains("setup_channel_length_km") && e.contains("`far`"), "{e}");
+        // Rows without setup columns have none, and read as before.
+        assert!(Evidence::parse(&csv(ROW), "{}", "t.csv", "m.json").unwrap().setup_keys.is_empty());
     }
 
     #[test]

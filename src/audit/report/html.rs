@@ -7,7 +7,8 @@
 //! Content, in reading order: the system under test (every setup value with its unit), the
 //! overall verdict and the attack × rule matrix (the first screen answers "is this
 //! configuration secure, against which attacks does it fail, by how much"), each leak
-//! explained, the figures with captions, the per-point tables, the provenance and the
+//! explained, the figures with captions, the per-point tables (with a column per swept
+//! setup key, and the setup sweeps listed under the system), the provenance and the
 //! caution. Every text that came from a user (names, labels, parameter values, the command
 //! line, warnings) is escaped. The page is computed from [`Evidence`] alone, so
 //! `qkd-audit report <folder>` rebuilds it byte for byte.

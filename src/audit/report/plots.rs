@@ -7,6 +7,11 @@
 //! - `abort_leak_<attack>.svg`: abort probability and each rule's leak probability against
 //!   the swept parameter, markers at measured points only, 95 % Clopper–Pearson intervals as
 //!   error bars, series staggered sideways so none hides another, legend above the data;
+//! - `setup_<key>_<attack>.svg` (campaigns with setup sweeps): per swept setup key, one row
+//!   of two panels per rule — mean key length with the 5–95 % trial spread, and leak
+//!   probability with 95 % Clopper–Pearson intervals — against the swept key, one series per
+//!   value of the other coordinates (attack sweep value, other swept keys); the two figures
+//!   above then show the entry's first swept setup only, and say so;
 //! - `eve_information.svg`: Eve's information against QBER, one panel per attack with the
 //!   protocol's bounds labelled for what they cover (single photons); link-level points
 //!   (Eve's exact knowledge of a fraction of the key) drawn as open squares and flagged;
@@ -359,7 +364,8 @@ fn setup_figure(ev: &Evidence, g: &Group, key: usize) -> Figure {
     }
     let total = all.len();
     let series: Vec<Series> = if total > MAX_SETUP_SERIES {
-        let keep: Vec<usize> = (0..MAX_SETUP_SERIES).map(|i| (i * (total - 1) + (MAX_SETUP_SERIES - 1) / 2) / (MAX_SETUP_SERIES - 1)).collect();
+        let keep: Vec<usize> =
+            (0..MAX_SETUP_SERIES).map(|i| (i * (total - 1) + (MAX_SETUP_SERIES - 1) / 2) / (MAX_SETUP_SERIES - 1)).collect();
         all.into_iter().enumerate().filter(|(i, _)| keep.contains(i)).map(|(_, s)| s).collect()
     } else {
         all
@@ -422,7 +428,11 @@ fn setup_figure(ev: &Evidence, g: &Group, key: usize) -> Figure {
         ]);
     }
     for (i, s) in series.iter().enumerate() {
-        let label = if s.label.is_empty() { "mean key length ℓ (bar: 5–95 % of trials); leak probability".to_string() } else { s.label.clone() };
+        let label = if s.label.is_empty() {
+            "mean key length ℓ (bar: 5–95 % of trials); leak probability".to_string()
+        } else {
+            s.label.clone()
+        };
         legend.push(LegendEntry { key: Key::MarkerBar { shape: SERIES_SHAPES[i], color: PALETTE[i] }, label });
     }
     if !single {
@@ -553,10 +563,7 @@ fn setup_figure(ev: &Evidence, g: &Group, key: usize) -> Figure {
             format!("First leaks: {}.", first_leaks.join("; "))
         },
         thinned = if total > series.len() {
-            format!(
-                " Showing {} of the {total} series, evenly spaced; the per-point tables list every point.",
-                series.len()
-            )
+            format!(" Showing {} of the {total} series, evenly spaced; the per-point tables list every point.", series.len())
         } else {
             String::new()
         },
