@@ -256,3 +256,143 @@ fn the_page_depends_on_the_thread_count_only_in_its_run_lines() {
     };
     assert!(page("1", "one") == page("2", "two"), "the page differs between thread counts");
 }
+
+/// A single-photon system whose block size is swept over four decades, against
+/// intercept-resend at two strengths, judged under a rule without finite-size terms and
+/// under finite-uncertainty.
+const SIGNALS_SWEEP: &str = r#"
+name = "blocks"
+seed = 5
+trials = 20
+rules = ["finite-uncertainty"]
+[setup]
+key_rule = "asymptotic"
+[[attacks]]
+builtin = "intercept-resend"
+steps = 2
+from = 0.0
+to = 0.1
+[[setup_sweeps]]
+key = "signals"
+from = 1e3
+to = 1e7
+steps = 5
+scale = "log"
+"#;
+
+#[test]
+fn a_setup_sweep_gets_its_own_figure_and_columns_and_the_page_still_rebuilds_byte_for_byte() {
+    let dir = tempfile::tempdir().unwrap();
+    std::fs::write(dir.path().join("b.toml"), SIGNALS_SWEEP).unwrap();
+    let out = qkd(&["run", "b.toml", "-q"], dir.path());
+    assert!(matches!(out.status.code(), Some(0 | 1)), "{}", String::from_utf8_lossy(&out.stderr));
+    let folder = dir.path().join("results/blocks");
+    let names: Vec<String> = svg_files(&folder).iter().map(|p| p.file_name().unwrap().to_string_lossy().into_owned()).collect();
+    assert_eq!(
+        names,
+        ["abort_leak_intercept-resend.svg", "eve_information.svg", "key_length_intercept-resend.svg", "setup_signals_intercept-resend.svg"]
+    );
+    let ev = Evidence::load(&folder).unwrap();
+    assert_eq!(ev.setup_keys.len(), 1);
+    assert_eq!((ev.setup_keys[0].key.as_str(), ev.setup_keys[0].log()), ("signals", true));
+    assert_eq!(ev.setup_values(0), [1e3, 1e4, 1e5, 1e6, 1e7]);
+    // The setup figure: a logarithmic sweep axis, one series per attack strength, both rules.
+    let fig = read(&folder.join("setup_signals_intercept-resend.svg"));
+    for needle in
+        [">1e3<", ">1e7<", "fraction = 0<", "fraction = 0.1<", "asymptotic (system&#39;s rule)", "finite-uncertainty: leak probability"]
+    {
+        assert!(fig.contains(needle), "{needle}");
+    }
+    // Every point without key is drawn, as a cross (one more in the legend), and every
+    // point's leak probability has its marker and interval.
+    let no_key = ev.rows.iter().filter(|r| r.key_length.0.is_nan() || r.key_length.0 <= 0.0).count();
+    assert!(no_key > 0, "the smallest blocks under finite-uncertainty give no key");
+    assert_eq!(fig.matches("<path d=\"M").count(), no_key + 1);
+    // The key lengths span decades: a logarithmic key axis, the crosses at its floor.
+    assert!(fig.contains("at the axis floor"));
+    // The figures against attack strength show the first swept setup only, and say so.
+    let kl = read(&folder.join("key_length_intercept-resend.svg"));
+    assert!(kl.contains("Key length against attack strength: intercept-resend") && kl.contains(" at signals = 1000"), "title");
+    let page = read(&folder.join("report.html"));
+    assert!(page.contains("Drawn at the first swept setup only (signals = 1000)"));
+    // The page embeds and captions the setup figure, lists the sweep and shows the swept value per row.
+    assert!(page.contains(fig.as_str()) && page.contains("(setup_signals_intercept-resend.svg)"));
+    assert!(page.contains("How does signals change whether the key-length rules stay inside what intercept-resend leaves secret?"));
+    assert!(page.contains("<code>signals</code> from 1000 signals to 1.000e7 signals, 5 logarithmic steps"), "sweep listed");
+    assert!(page.contains("<th class=\"num\">fraction</th><th class=\"num\"><code>signals</code>, signals</th><th>rule</th>"));
+    let tables = &page[page.find("id=\"tables\"").unwrap()..page.find("id=\"provenance\"").unwrap()];
+    let table_rows = tables.matches("<tr class=").count();
+    assert_eq!(table_rows, ev.rows.len(), "one table row per CSV row");
+    // The page and every figure rebuild byte for byte from the table and the manifest.
+    let csv = read(&folder.join("attack_vs_bound.csv"));
+    let manifest = read(&folder.join("manifest.json"));
+    let (figures, rebuilt) = qkd_audit::audit::report::rebuild(&csv, &manifest, "t.csv", "m.json").unwrap();
+    assert!(rebuilt == page, "rebuilt page differs");
+    assert_eq!(figures.len(), names.len());
+    for f in &figures {
+        assert!(read(&folder.join(&f.file)) == f.svg, "{} differs", f.file);
+    }
+    std::fs::remove_file(folder.join("report.html")).unwrap();
+    assert_eq!(qkd(&["report", folder.to_str().unwrap()], dir.path()).status.code(), Some(0));
+    assert!(read(&folder.join("report.html")) == page, "qkd-audit report differs");
+}
+
+#[test]
+fn crossed_setup_sweeps_give_one_figure_per_key_and_attack_and_old_manifests_still_read() {
+    let dir = tempfile::tempdir().unwrap();
+    let text = r#"
+name = "crossed"
+seed = 2
+trials = 5
+[setup]
+signals = 20000
+test_fraction = 0.05
+[[attacks]]
+builtin = "intercept-resend"
+steps = 2
+to = 0.2
+[[attacks]]
+builtin = "phase-covariant-cloner"
+[[setup_sweeps]]
+key = "abort_qber"
+from = 0.08
+to = 0.11
+steps = 2
+[[setup_sweeps]]
+key = "signals"
+from = 2e4
+to = 2e6
+steps = 3
+scale = "log"
+"#;
+    std::fs::write(dir.path().join("c.toml"), text).unwrap();
+    let out = qkd(&["run", "c.toml", "-q"], dir.path());
+    assert!(matches!(out.status.code(), Some(0 | 1)), "{}", String::from_utf8_lossy(&out.stderr));
+    let folder = dir.path().join("results/crossed");
+    let names: Vec<String> = svg_files(&folder).iter().map(|p| p.file_name().unwrap().to_string_lossy().into_owned()).collect();
+    for n in [
+        "setup_abort_qber_intercept-resend.svg",
+        "setup_signals_intercept-resend.svg",
+        "setup_abort_qber_phase-covariant-cloner.svg",
+        "setup_signals_phase-covariant-cloner.svg",
+    ] {
+        assert!(names.contains(&n.to_string()), "{n} missing from {names:?}");
+    }
+    assert_eq!(names.iter().filter(|n| n.starts_with("setup_")).count(), 4, "{names:?}");
+    // The abort_qber figure's series: every (fraction, signals) pair, 2 × 3 = 6, thinned to 5.
+    let fig = read(&folder.join("setup_abort_qber_intercept-resend.svg"));
+    assert!(fig.contains("fraction = 0, signals = 20000<") && fig.contains("fraction = 0.2, signals = 2.000e6<"), "first and last series");
+    let page = read(&folder.join("report.html"));
+    assert!(page.contains("Showing 5 of the 6 series, evenly spaced"));
+    assert!(page.contains("One series per value of the attack&#39;s fraction and signals"));
+    // A manifest that does not record the sweeps (written before the report knew them)
+    // still reads: keys from the column names, the scale judged from the values.
+    let csv = read(&folder.join("attack_vs_bound.csv"));
+    let mut manifest: serde_json::Value = serde_json::from_str(&read(&folder.join("manifest.json"))).unwrap();
+    manifest.as_object_mut().unwrap().remove("setup_sweeps").expect("the manifest records the sweeps");
+    let ev = Evidence::parse(&csv, &manifest.to_string(), "t.csv", "m.json").unwrap();
+    let keys: Vec<(&str, bool)> = ev.setup_keys.iter().map(|k| (k.key.as_str(), k.log())).collect();
+    assert_eq!(keys, [("abort_qber", false), ("signals", true)]);
+    let (figures, _) = qkd_audit::audit::report::rebuild(&csv, &manifest.to_string(), "t.csv", "m.json").unwrap();
+    assert_eq!(figures.iter().filter(|f| f.file.starts_with("setup_")).count(), 4);
+}

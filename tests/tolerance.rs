@@ -118,6 +118,28 @@ steps = 3
     // reaches the engine (errors without any attack).
     let first_misaligned = results.iter().find(|r| c.setups[r.setup].setup.link.misalignment == 0.02).unwrap();
     assert!(first_misaligned.stats.mean_e_z > 0.01, "{}", first_misaligned.stats.mean_e_z);
+    // The report draws one figure per swept key for the attack, from the table and manifest.
+    let manifest = qkd_audit::audit::report::manifest::Manifest {
+        tool: "qkd-audit",
+        version: "test",
+        command_line: Vec::new(),
+        campaign: c.name.clone(),
+        seed: c.seed,
+        trials: c.trials,
+        sampler: c.sampler,
+        inputs: Vec::new(),
+        started_unix_s: 0,
+        elapsed_s: 0.0,
+        threads: 1,
+        rule_programs: Vec::new(),
+    };
+    let csv = table::render(&c, &results).unwrap();
+    let (figures, page) = qkd_audit::audit::report::rebuild(&csv, &manifest.to_json_with(&c), "t.csv", "m.json").unwrap();
+    let files: Vec<&str> = figures.iter().map(|f| f.file.as_str()).collect();
+    for name in ["setup_abort_qber_breidbart.svg", "setup_detector_misalignment_breidbart.svg"] {
+        assert!(files.contains(&name), "{name} missing from {files:?}");
+        assert!(page.contains(&format!("({name})")), "{name} not captioned in the page");
+    }
 }
 
 #[test]

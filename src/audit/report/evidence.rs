@@ -10,7 +10,7 @@
 //! [`super::summary::leak_cause`] (one function for the Markdown summary and the HTML).
 //! Must not recompute physics: every number shown comes from the CSV.
 
-use super::manifest::Record;
+use super::manifest::{Record, SweptKey};
 use crate::audit::trial::Verdict;
 use crate::error::{Error, Result};
 use std::path::Path;
@@ -32,6 +32,9 @@ pub struct Row {
     pub sweep_param: String,
     /// Swept value.
     pub sweep_value: Option<f64>,
+    /// The swept setup keys' values at this point, `(key, value)` in the order of
+    /// [`Evidence::setup_keys`] (empty without setup sweeps).
+    pub setup: Vec<(String, f64)>,
     /// Protocol name.
     pub protocol: String,
     /// Key-length rule.
@@ -83,16 +86,30 @@ impl Row {
         crate::attack::pulse::PULSE_FAMILIES.iter().any(|(name, _)| *name == self.family)
     }
 
-    /// The point's identity across folders: attack label and every parameter value.
+    /// The point's identity across folders: attack label, every parameter value and the
+    /// swept setup values.
     pub fn point_key(&self) -> String {
         let p: Vec<String> = self.params.iter().map(|(k, v)| format!("{k}={v}")).collect();
-        format!("{} ({})", self.attack, p.join(", "))
+        if self.setup.is_empty() {
+            format!("{} ({})", self.attack, p.join(", "))
+        } else {
+            let s: Vec<String> = self.setup.iter().map(|(k, v)| format!("{k}={}", crate::exact::sweep::fmt_num(*v))).collect();
+            format!("{} ({}) at {}", self.attack, p.join(", "), s.join(", "))
+        }
     }
 
-    /// Where the point sits on its sweep, for sentences.
+    /// The swept setup values in words (`signals = 1e4, abort_qber = 0.05`), empty without.
+    pub fn setup_words(&self) -> String {
+        self.setup.iter().map(|(k, v)| format!("{k} = {}", short(*v))).collect::<Vec<_>>().join(", ")
+    }
+
+    /// Where the point sits on its sweep and among the swept setups, for sentences.
     pub fn at(&self) -> String {
+        let setup = self.setup_words();
         match self.sweep_value {
-            Some(v) if !self.sweep_param.is_empty() => format!("{} = {}", self.sweep_param, short(v)),
+            Some(v) if !self.sweep_param.is_empty() && setup.is_empty() => format!("{} = {}", self.sweep_param, short(v)),
+            Some(v) if !self.sweep_param.is_empty() => format!("{} = {}, {setup}", self.sweep_param, short(v)),
+            _ if !setup.is_empty() => setup,
             _ => format!("point {}", self.point),
         }
     }
@@ -180,6 +197,8 @@ pub struct Evidence {
     pub csv_header: Vec<String>,
     /// Attack entries, in campaign order.
     pub groups: Vec<Group>,
+    /// The swept setup keys, in the table's column order (empty without setup sweeps).
+    pub setup_keys: Vec<SweptKey>,
 }
 
 /// A fraction as a percentage with one decimal.
@@ -232,6 +251,12 @@ pub fn sanitize(s: &str) -> String {
 fn verdict_named(s: &str) -> Option<Verdict> {
     [Verdict::Aborted, Verdict::NoKey, Verdict::Secure, Verdict::Inconclusive, Verdict::Leak].into_iter().find(|v| v.name() == s)
 }
+
+/// Smallest ratio of the largest to the smallest swept value (all positive) at which a
+/// setup column whose manifest does not record its sweep's scale is drawn on a
+/// logarithmic axis: two decades, where a linear axis crowds the small values into its
+/// first percent (common practice).
+pub const INFERRED_LOG_RATIO: f64 = 100.0;
 
 /// Largest results-folder file read back, bytes. A folder's own outputs are not capped like
 /// user input (4 MiB): the largest campaign table (100 000 sweep steps per entry, several
@@ -318,6 +343,17 @@ impl Evidence {
         let idx: Vec<usize> = names.iter().map(|n| col(n)).collect::<Result<_>>()?;
         let params: Vec<(usize, String)> =
             header.iter().enumerate().filter_map(|(i, h)| h.strip_prefix("param_").map(|p| (i, p.to_string()))).collect();
+        let setup_cols: Vec<(usize, SweptKey)> = header
+            .iter()
+            .enumerate()
+            .filter(|(_, h)| h.starts_with("setup_"))
+            .map(|(i, h)| {
+                let known = manifest.setup_sweeps.iter().find(|k| k.column == *h).cloned();
+                // A table whose manifest does not record its sweeps: the column's own name,
+                // no unit, the scale judged from the values below.
+                (i, known.unwrap_or_else(|| SweptKey { key: h["setup_".len()..].to_string(), column: h.clone(), ..SweptKey::default() }))
+            })
+            .collect();
         let mut rows = Vec::new();
         for (line, rec) in reader.records().enumerate() {
             let line = line + 2;
@@ -337,6 +373,17 @@ impl Evidence {
             let verdict = verdict_named(&text(28))
                 .ok_or_else(|| Error::input(format!("{csv_origin}:{line}: column `verdict`: `{}` is not a verdict", text(28))))?;
             let sweep = number(5)?;
+            let mut setup = Vec::with_capacity(setup_cols.len());
+            for (i, k) in &setup_cols {
+                let t = rec.get(*i).unwrap_or("");
+                let v = if t.is_empty() {
+                    f64::NAN
+                } else {
+                    t.parse::<f64>()
+                        .map_err(|_| Error::input(format!("{csv_origin}:{line}: column `{}`: `{t}` is not a number", k.column)))?
+                };
+                setup.push((k.key.clone(), v));
+            }
             rows.push(Row {
                 attack: text(0),
                 family: text(1),
@@ -348,6 +395,7 @@ impl Evidence {
                     .collect(),
                 sweep_param: text(4),
                 sweep_value: if sweep.is_nan() { None } else { Some(sweep) },
+                setup,
                 protocol: text(6),
                 rule: text(7),
                 trials: integer(8)?,
@@ -392,7 +440,27 @@ impl Evidence {
                 stem,
             });
         }
-        Ok(Evidence { manifest, rows, csv_header: header, groups })
+        let setup_keys = setup_cols
+            .into_iter()
+            .enumerate()
+            .map(|(j, (_, mut k))| {
+                if k.scale.is_empty() {
+                    let vs: Vec<f64> = rows.iter().map(|r| r.setup[j].1).filter(|v| v.is_finite()).collect();
+                    let (lo, hi) = vs.iter().fold((f64::INFINITY, 0.0_f64), |(a, b), &v| (a.min(v), b.max(v)));
+                    k.scale = if lo > 0.0 && hi / lo >= INFERRED_LOG_RATIO { "log" } else { "linear" }.to_string();
+                }
+                k
+            })
+            .collect();
+        Ok(Evidence { manifest, rows, csv_header: header, groups, setup_keys })
+    }
+
+    /// The values a swept setup key takes over the table, ascending.
+    pub fn setup_values(&self, key: usize) -> Vec<f64> {
+        let mut v: Vec<f64> = self.rows.iter().filter_map(|r| r.setup.get(key).map(|s| s.1)).filter(|x| x.is_finite()).collect();
+        v.sort_by(f64::total_cmp);
+        v.dedup();
+        v
     }
 
     /// Every rule judged, the system's first.
@@ -431,6 +499,19 @@ impl Evidence {
     /// The rows of one entry under one rule, in sweep order.
     pub fn points(&self, entry: usize, rule: &str) -> Vec<&Row> {
         self.rows.iter().filter(|r| r.entry == entry && r.rule == rule).collect()
+    }
+
+    /// The rows of one entry under one rule at the entry's first swept setup (the setup of
+    /// its first row), in sweep order: every row without setup sweeps. The figures against
+    /// attack strength draw these, so that points of different setups that share an attack
+    /// sweep value never sit on one x position as if they were one series.
+    pub fn first_setup_points(&self, entry: usize, rule: &str) -> Vec<&Row> {
+        let Some(first) = self.rows.iter().find(|r| r.entry == entry) else {
+            return Vec::new();
+        };
+        let same =
+            |r: &Row| r.setup.len() == first.setup.len() && r.setup.iter().zip(&first.setup).all(|(a, b)| a.1.total_cmp(&b.1).is_eq());
+        self.points(entry, rule).into_iter().filter(|r| same(r)).collect()
     }
 
     /// The matrix cell of an entry under a rule (None if the rule did not judge it).
@@ -564,6 +645,31 @@ mod tests {
         assert_eq!((leaks.len(), leaks[0].first.mean_excess), (1, 120.0));
         assert!(ev.headline().0.starts_with("NOT SECURE"));
         assert_eq!(r.excess_share(), "24.0 % of the key");
+    }
+
+    #[test]
+    fn swept_setup_columns_read_back_with_the_manifest_s_names_or_their_own() {
+        let header = HEADER.replace("sweep_value,", "sweep_value,setup_channel_length_km,");
+        let row = ROW.replace(",fraction,0.5,", ",fraction,0.5,25,");
+        let table = format!("{header}\n{row}\n");
+        let manifest = r#"{"setup_sweeps": [{"key": "channel.length_km", "column": "setup_channel_length_km", "unit": "km",
+            "scale": "linear", "from": 0, "to": 50, "steps": 3}]}"#;
+        let ev = Evidence::parse(&table, manifest, "t.csv", "m.json").unwrap();
+        assert_eq!(ev.rows[0].setup, vec![("channel.length_km".to_string(), 25.0)]);
+        assert_eq!((ev.setup_keys[0].unit.as_str(), ev.setup_keys[0].log()), ("km", false));
+        assert_eq!(ev.rows[0].at(), "fraction = 0.5, channel.length_km = 25");
+        assert!(ev.rows[0].point_key().ends_with(" at channel.length_km=25"), "{}", ev.rows[0].point_key());
+        // Without the manifest's record: the column's own name, no unit, the scale from the
+        // values (one value: linear).
+        let ev = Evidence::parse(&table, "{}", "t.csv", "m.json").unwrap();
+        assert_eq!(
+            (ev.setup_keys[0].key.as_str(), ev.setup_keys[0].unit.as_str(), ev.setup_keys[0].log()),
+            ("channel_length_km", "", false)
+        );
+        let e = Evidence::parse(&table.replace(",0.5,25,", ",0.5,far,"), "{}", "t.csv", "m.json").unwrap_err().to_string();
+        assert!(e.contains("t.csv:2") && e.contains("setup_channel_length_km") && e.contains("`far`"), "{e}");
+        // Rows without setup columns have none, and read as before.
+        assert!(Evidence::parse(&csv(ROW), "{}", "t.csv", "m.json").unwrap().setup_keys.is_empty());
     }
 
     #[test]

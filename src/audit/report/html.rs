@@ -7,7 +7,8 @@
 //! Content, in reading order: the system under test (every setup value with its unit), the
 //! overall verdict and the attack × rule matrix (the first screen answers "is this
 //! configuration secure, against which attacks does it fail, by how much"), each leak
-//! explained, the figures with captions, the per-point tables, the provenance and the
+//! explained, the figures with captions, the per-point tables (with a column per swept
+//! setup key, and the setup sweeps listed under the system), the provenance and the
 //! caution. Every text that came from a user (names, labels, parameter values, the command
 //! line, warnings) is escaped. The page is computed from [`Evidence`] alone, so
 //! `qkd-audit report <folder>` rebuilds it byte for byte.
@@ -321,6 +322,22 @@ pub fn render(ev: &Evidence, figures: &[Figure], csv_sha256: &str) -> String {
         }
         s.push_str("</div>\n");
     }
+    if !m.setup_sweeps.is_empty() {
+        s.push_str("<p id=\"setup-sweeps\"><b>Setup sweeps</b> (each swept value replaces the one above; every attack point runs at every combination):</p>\n<ul>\n");
+        for k in &m.setup_sweeps {
+            let unit = if k.unit.is_empty() { String::new() } else { format!(" {}", esc(&k.unit)) };
+            let _ = writeln!(
+                s,
+                "<li><code>{}</code> from {}{unit} to {}{unit}, {} {} steps</li>",
+                esc(&k.key),
+                short(k.from),
+                short(k.to),
+                k.steps,
+                if k.log() { "logarithmic" } else { "linear" }
+            );
+        }
+        s.push_str("</ul>\n");
+    }
     if !m.warnings.is_empty() {
         s.push_str("<div class=\"warn\"><p><b>Warnings found before the run:</b></p><ul>\n");
         for w in &m.warnings {
@@ -351,24 +368,43 @@ fn tables_html(ev: &Evidence) -> String {
     for g in &ev.groups {
         let _ =
             writeln!(s, "<h3>{}{}</h3>", esc(&g.attack), if g.fixed.is_empty() { String::new() } else { format!(" ({})", esc(&g.fixed)) });
-        let p = if g.sweep_param.is_empty() { "point".to_string() } else { g.sweep_param.clone() };
+        let p = if g.sweep_param.is_empty() && !ev.setup_keys.is_empty() {
+            String::new()
+        } else if g.sweep_param.is_empty() {
+            "point".to_string()
+        } else {
+            g.sweep_param.clone()
+        };
+        let first = if p.is_empty() { String::new() } else { format!("<th class=\"num\">{}</th>", esc(&p)) };
+        let setup_heads: String = ev
+            .setup_keys
+            .iter()
+            .map(|k| {
+                let unit = if k.unit.is_empty() { String::new() } else { format!(", {}", esc(&k.unit)) };
+                format!("<th class=\"num\"><code>{}</code>{unit}</th>", esc(&k.key))
+            })
+            .collect();
         let _ = write!(
             s,
-            "<table class=\"points\"><thead><tr><th class=\"num\">{}</th><th>rule</th><th class=\"num\">QBER Z</th><th class=\"num\">QBER X</th>{}\
+            "<table class=\"points\"><thead><tr>{first}{setup_heads}<th>rule</th><th class=\"num\">QBER Z</th><th class=\"num\">QBER X</th>{}\
              <th class=\"num\">H(X|E), bits</th><th class=\"num\">abort</th><th class=\"num\">leak</th><th class=\"num\">mean key, bits</th>\
              <th class=\"num\">capacity, bits</th><th class=\"num\">excess, bits</th><th>verdict</th></tr></thead>\n<tbody>\n",
-            esc(&p),
             if six { "<th class=\"num\">QBER Y</th>" } else { "" }
         );
         for rule in ev.rules() {
             for r in ev.points(g.entry, &rule) {
                 let _ = writeln!(
                     s,
-                    "<tr class=\"{}\"><td class=\"num\">{}</td><td><code>{}</code></td><td class=\"num\">{:.4}</td><td class=\"num\">{:.4}</td>{}\
+                    "<tr class=\"{}\">{}{}<td><code>{}</code></td><td class=\"num\">{:.4}</td><td class=\"num\">{:.4}</td>{}\
                      <td class=\"num\">{:.4}</td><td class=\"num\">{}</td><td class=\"num\">{}</td><td class=\"num\">{}</td><td class=\"num\">{}</td>\
                      <td class=\"num\">{}</td><td>{}</td></tr>",
                     verdict_class(r.verdict),
-                    r.sweep_value.map_or(r.point.to_string(), short),
+                    if p.is_empty() {
+                        String::new()
+                    } else {
+                        format!("<td class=\"num\">{}</td>", r.sweep_value.map_or(r.point.to_string(), short))
+                    },
+                    r.setup.iter().map(|(_, v)| format!("<td class=\"num\">{}</td>", short(*v))).collect::<String>(),
                     esc(&r.rule),
                     r.qber[0],
                     r.qber[1],

@@ -5,7 +5,11 @@
 //! entries are named `builtin:<name>`), `started_unix_s`, `elapsed_s`, `threads`; then the
 //! system under test as the report shows it: `setup` (every setup value as `key`, `value`,
 //! `unit`), `protocol`, `system_rule` (the setup's own key-length rule), `rules` (every rule
-//! judged, the system's first) and `warnings` (found before the run). Only `started_unix_s`,
+//! judged, the system's first) and `warnings` (found before the run); a campaign with setup
+//! sweeps adds `setup_sweeps`: per swept key its `key` (dotted, as in setup files), `column`
+//! (its `setup_<key>` column of the table), `unit` (empty for pure numbers), `scale`
+//! (`linear` or `log`), `from`, `to` and `steps`, which the figures need to label and scale
+//! their axes. Only `started_unix_s`,
 //! `elapsed_s` and `threads` vary between runs with the same inputs.
 //! Rule files are inputs like attack files; a campaign with rule programs adds
 //! `rule_programs`: per program its `rule`, `rule_file`, `command`, `working_dir`, `files`
@@ -69,6 +73,58 @@ pub struct SetupValue {
     pub unit: String,
 }
 
+/// One swept setup key, as the report labels and scales it.
+#[derive(Clone, Debug, Serialize, Deserialize, PartialEq, Default)]
+pub struct SweptKey {
+    /// The setup file's key (e.g. `signals`, `channel.length_km`).
+    pub key: String,
+    /// Its column in `attack_vs_bound.csv` (`setup_signals`, `setup_channel_length_km`).
+    pub column: String,
+    /// Its unit (empty for probabilities, rates and other pure numbers).
+    #[serde(default)]
+    pub unit: String,
+    /// `linear` or `log`.
+    #[serde(default)]
+    pub scale: String,
+    /// First value.
+    #[serde(default)]
+    pub from: f64,
+    /// Last value.
+    #[serde(default)]
+    pub to: f64,
+    /// Number of values.
+    #[serde(default)]
+    pub steps: usize,
+}
+
+impl SweptKey {
+    /// The campaign's setup sweeps, as the manifest records them.
+    pub fn of(c: &crate::audit::Campaign) -> Vec<SweptKey> {
+        use crate::audit::campaign::Scale;
+        c.setup_sweeps
+            .iter()
+            .map(|s| SweptKey {
+                key: s.key.name.to_string(),
+                column: s.key.column(),
+                unit: s.key.unit.to_string(),
+                scale: match s.scale {
+                    Scale::Linear => "linear",
+                    Scale::Log => "log",
+                }
+                .to_string(),
+                from: s.from,
+                to: s.to,
+                steps: s.steps,
+            })
+            .collect()
+    }
+
+    /// Whether the sweep steps by equal ratios.
+    pub fn log(&self) -> bool {
+        self.scale == "log"
+    }
+}
+
 /// What the report needs about the campaign beyond the table.
 #[derive(Clone, Debug, Serialize)]
 struct CampaignContext {
@@ -77,6 +133,8 @@ struct CampaignContext {
     system_rule: String,
     rules: Vec<String>,
     warnings: Vec<String>,
+    #[serde(skip_serializing_if = "Vec::is_empty")]
+    setup_sweeps: Vec<SweptKey>,
 }
 
 #[derive(Serialize)]
@@ -138,6 +196,10 @@ pub struct Record {
     /// Warnings found before the run.
     #[serde(default)]
     pub warnings: Vec<String>,
+    /// The swept setup keys (empty without setup sweeps, and in folders written before the
+    /// report knew them).
+    #[serde(default)]
+    pub setup_sweeps: Vec<SweptKey>,
 }
 
 /// Hex SHA-256 of a text.
@@ -221,6 +283,7 @@ impl Manifest {
             system_rule: c.setup.key_rule.to_string(),
             rules: c.rules.iter().map(|r| r.to_string()).collect(),
             warnings: c.warnings.clone(),
+            setup_sweeps: SweptKey::of(c),
         };
         serde_json::to_string_pretty(&Full { manifest: self, context }).expect("manifest serialises") + "\n"
     }

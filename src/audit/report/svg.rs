@@ -46,6 +46,8 @@ pub enum Shape {
     Triangle,
     /// Filled diamond.
     Diamond,
+    /// Filled triangle pointing down.
+    TriangleDown,
     /// Open circle.
     Ring,
     /// Cross (×).
@@ -250,6 +252,16 @@ impl Svg {
                 f(y + 0.8 * r),
                 f(x + 1.1 * r),
                 f(y + 0.8 * r)
+            ),
+            Shape::TriangleDown => writeln!(
+                b,
+                "<polygon points=\"{},{} {},{} {},{}\" fill=\"{color}\" stroke=\"#ffffff\" stroke-width=\"0.8\"/>",
+                f(x),
+                f(y + 1.2 * r),
+                f(x - 1.1 * r),
+                f(y - 0.8 * r),
+                f(x + 1.1 * r),
+                f(y - 0.8 * r)
             ),
             Shape::Diamond => writeln!(
                 b,
