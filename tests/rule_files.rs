@@ -47,9 +47,19 @@ fn load(dir: &Path, text: &str) -> Campaign {
     Campaign::load_all(&path).unwrap_or_else(|e| panic!("{e:?}"))
 }
 
-/// Every row of `rule` as JSON, with the rule's name left out.
+/// Every row of `rule` as JSON, with the rule's name left out, and the causes of aborts too:
+/// a rule file's `abort_if` is the rule's own condition, where a built-in rule leaves the
+/// decision to the setup's threshold (the same blocks abort; the summary names them apart).
 fn rows(results: &[PointResult], rule: &str) -> Vec<String> {
-    results.iter().filter(|r| r.rule.name() == rule).map(|r| format!("{} {}", r.index, serde_json::to_string(&r.stats).unwrap())).collect()
+    results
+        .iter()
+        .filter(|r| r.rule.name() == rule)
+        .map(|r| {
+            let mut v = serde_json::to_value(&r.stats).unwrap();
+            v.as_object_mut().unwrap().remove("abort_reasons");
+            format!("{} {v}", r.index)
+        })
+        .collect()
 }
 
 #[test]
