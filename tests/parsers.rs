@@ -144,3 +144,22 @@ fn validate_reports_every_problem_in_one_pass() {
     }
     assert!(err.contains("9 problem(s)"), "{err}");
 }
+
+/// `validate` reads rule files too (a formula or a program), and names the position of an
+/// unknown name inside the formula.
+#[test]
+fn validate_reads_rule_files() {
+    let dir = tempfile::tempdir().unwrap();
+    std::fs::write(dir.path().join("bad.toml"), "name = \"bad\"\nkey_length = \"n * (1 - hh(e_x))\"\n").unwrap();
+    let repo = std::path::Path::new(env!("CARGO_MANIFEST_DIR"));
+    let good = repo.join("examples/rule-files/finite-uncertainty.toml");
+    let out = std::process::Command::new(env!("CARGO_BIN_EXE_qkd-audit"))
+        .current_dir(dir.path())
+        .args(["validate", good.to_str().unwrap(), "bad.toml"])
+        .output()
+        .unwrap();
+    assert_eq!(out.status.code(), Some(2));
+    let (stdout, stderr) = (String::from_utf8_lossy(&out.stdout), String::from_utf8_lossy(&out.stderr));
+    assert!(stdout.contains("ok ") && stdout.contains("finite-uncertainty.toml"), "{stdout}");
+    assert!(stderr.contains("bad.toml:2:24: key `key_length`: unknown function `hh`"), "{stderr}");
+}

@@ -43,7 +43,8 @@ pub enum Command {
     Sweep(sweep::SweepArgs),
     /// Print the zero-rate and attack thresholds, each computed and with its source.
     Thresholds(thresholds::ThresholdArgs),
-    /// Check attack files and report every problem found.
+    /// Check input files (campaigns, setups, attack files, rule files) and report every
+    /// problem found, each with file, line and column.
     Validate(validate::ValidateArgs),
     /// Run a finite-key audit campaign and write the attack-versus-bound table
     /// (without a file: the built-in demo campaign).

@@ -1,6 +1,7 @@
 //! The `validate` subcommand: check input files and report the problems found, without
 //! running anything. A file is read as a campaign when it has `attacks`, as an attack file
-//! when it has `operators` or `family`, and as a setup otherwise. Every problem of a file
+//! when it has `operators` or `family`, as a rule file when it has `key_length` or
+//! `command`, and as a setup otherwise. Every problem of a file
 //! (and of the setup and attack files a campaign names) is reported in one pass.
 
 use super::common::{note, print, Outcome};
@@ -55,6 +56,8 @@ fn check_file(path: &Path) -> Vec<Error> {
         Campaign::load_all(path).err().unwrap_or_default()
     } else if table.contains_key("operators") || table.contains_key("family") {
         attack_file::validate(path)
+    } else if table.contains_key("key_length") || table.contains_key("command") {
+        crate::audit::rules::load_rule_file(path).err().unwrap_or_default()
     } else {
         Setup::load_all(path).err().unwrap_or_default()
     }
