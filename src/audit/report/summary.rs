@@ -445,7 +445,7 @@ pub fn render(c: &Campaign, results: &[PointResult]) -> String {
 /// (`alarm`), each as a share of all trials (one trial can have several).
 fn abort_cell(st: &crate::audit::stats::PointStats, six_state: bool) -> String {
     let total = pct(st.abort_probability);
-    if !(st.abort_probability > 0.0) {
+    if st.abort_probability.is_nan() || st.abort_probability <= 0.0 {
         return total;
     }
     let a = &st.abort_reasons;
