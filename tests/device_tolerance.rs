@@ -18,10 +18,9 @@ use qkd_audit::quantum::measures::binary_entropy;
 /// time shift and the full faked-state attack, plus `extra` (e.g. a setup sweep).
 fn mismatch_campaign(extra: &str) -> Campaign {
     let demo = DEMO_CAMPAIGNS.iter().find(|(n, _)| *n == "detector-mismatch").unwrap().1;
-    let text = demo.replace("trials = 200", "trials = 40").replace(
-        "builtin = \"time-shift\"\n",
-        "builtin = \"time-shift\"\nfrom = 1.0\nsteps = 1\n",
-    );
+    let text = demo
+        .replace("trials = 200", "trials = 40")
+        .replace("builtin = \"time-shift\"\n", "builtin = \"time-shift\"\nfrom = 1.0\nsteps = 1\n");
     let text = text.replace("builtin = \"faked-state\"\n", "builtin = \"faked-state\"\nfrom = 1.0\nsteps = 1\n");
     Campaign::parse(&format!("{text}\n{extra}"), "test", None).unwrap()
 }
@@ -126,8 +125,7 @@ fn the_mismatch_aware_rule_is_safe_over_the_whole_range() {
     }
     // Between the ends too (the search classifies only the ends of a safe range): a sweep of
     // 30 values on a log scale, where the rule must keep a key and never leak.
-    let mut swept =
-        mismatch_campaign("[[setup_sweeps]]\nkey = \"detector.mismatch\"\nfrom = 0.001\nto = 1\nsteps = 30\nscale = \"log\"\n");
+    let mut swept = mismatch_campaign("[[setup_sweeps]]\nkey = \"detector.mismatch\"\nfrom = 0.001\nto = 1\nsteps = 30\nscale = \"log\"\n");
     swept.rules = vec![KeyRule::MismatchAware.into()];
     let results = run(&swept, &|| {}).unwrap();
     assert!(results.iter().all(|p| p.stats.leak_probability == 0.0));
@@ -165,7 +163,9 @@ fn blinding_tolerance_brackets_the_catch_probability_the_alarm_statistics_give()
 #[test]
 fn a_device_attack_on_a_link_the_device_model_does_not_cover_is_refused_at_its_entry() {
     let campaign = |setup: &str, extra: &str| {
-        format!("name = \"x\"\n[setup]\n{setup}\n[[attacks]]\nbuiltin = \"intercept-resend\"\n\n[[attacks]]\nbuiltin = \"time-shift\"\n{extra}")
+        format!(
+            "name = \"x\"\n[setup]\n{setup}\n[[attacks]]\nbuiltin = \"intercept-resend\"\n\n[[attacks]]\nbuiltin = \"time-shift\"\n{extra}"
+        )
     };
     for (setup, extra, says) in [
         ("[setup.detector]\nmismatch = 0.3\ndark_count_probability = 1e-6", "", "dark_count_probability = 1e-6"),
@@ -193,7 +193,8 @@ fn a_device_attack_on_a_link_the_device_model_does_not_cover_is_refused_at_its_e
         assert!(located.to_string().starts_with(&format!("line {line}, column 1:")), "{located}");
     }
     // Loss and the common efficiency are covered: the campaign is accepted and runs.
-    let ok = campaign("[setup.channel]\nloss_db = 3\n[setup.detector]\nmismatch = 0.3\nefficiency = 0.5", "").replace("name = \"x\"", "name = \"x\"\ntrials = 5");
+    let ok = campaign("[setup.channel]\nloss_db = 3\n[setup.detector]\nmismatch = 0.3\nefficiency = 0.5", "")
+        .replace("name = \"x\"", "name = \"x\"\ntrials = 5");
     let c = Campaign::parse(&ok, "test", None).unwrap();
     run(&c, &|| {}).unwrap();
 }
@@ -240,8 +241,10 @@ fn campaign_validation_and_the_engine_agree_on_which_links_carry_device_attacks(
 
 #[test]
 fn a_device_attack_whose_flaw_the_detector_lacks_is_warned_about() {
-    let warnings = |setup: &str, attacks: &str| Campaign::parse(&format!("name = \"x\"\n[setup]\n{setup}\n{attacks}"), "test", None).unwrap().warnings;
-    let all = "[[attacks]]\nbuiltin = \"time-shift\"\n[[attacks]]\nbuiltin = \"faked-state\"\n[[attacks]]\nbuiltin = \"detector-blinding\"\n";
+    let warnings =
+        |setup: &str, attacks: &str| Campaign::parse(&format!("name = \"x\"\n[setup]\n{setup}\n{attacks}"), "test", None).unwrap().warnings;
+    let all =
+        "[[attacks]]\nbuiltin = \"time-shift\"\n[[attacks]]\nbuiltin = \"faked-state\"\n[[attacks]]\nbuiltin = \"detector-blinding\"\n";
     // The ideal detector: every device attack is inert.
     let w = warnings("", all);
     for (label, says) in [("time-shift", "mismatch = 1"), ("faked-state", "mismatch = 1"), ("detector-blinding", "blinding_catch = 1")] {
@@ -257,7 +260,8 @@ fn a_device_attack_whose_flaw_the_detector_lacks_is_warned_about() {
     assert!(!Campaign::demo_named("detector-mismatch").unwrap().warnings.iter().any(|x| x.contains("inert")));
     assert!(!blinding_campaign(0.5).warnings.iter().any(|x| x.contains("inert")));
     // A setup sweep that gives the flaw somewhere: no warning; one that never does: a warning.
-    let sweep = |from: f64, steps: u32| format!("[[setup_sweeps]]\nkey = \"detector.mismatch\"\nfrom = {from:?}\nto = 1.0\nsteps = {steps}\n");
+    let sweep =
+        |from: f64, steps: u32| format!("[[setup_sweeps]]\nkey = \"detector.mismatch\"\nfrom = {from:?}\nto = 1.0\nsteps = {steps}\n");
     let one = "[[attacks]]\nbuiltin = \"time-shift\"\n";
     assert!(!warnings("", &format!("{one}{}", sweep(0.2, 5))).iter().any(|x| x.contains("inert")));
     assert!(warnings("", &format!("{one}{}", sweep(1.0, 1))).iter().any(|x| x.contains("inert")));

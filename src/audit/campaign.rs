@@ -437,9 +437,7 @@ pub fn preflight_warnings(setup: &Setup, attacks: &[AttackEntry]) -> Vec<String>
 /// counts or misalignment (loss and the common efficiency drop out once the audit
 /// conditions on Bob's clicks). The engine refuses any other link the same way.
 pub fn link_supports_device_attacks(link: &crate::protocol::optical::Link) -> bool {
-    matches!(link.source, crate::protocol::optical::Source::SinglePhoton)
-        && link.dark_count_probability == 0.0
-        && link.misalignment == 0.0
+    matches!(link.source, crate::protocol::optical::Source::SinglePhoton) && link.dark_count_probability == 0.0 && link.misalignment == 0.0
 }
 
 /// Refuses a device attack (entry `i` of `[[attacks]]`) before any work when one of the
