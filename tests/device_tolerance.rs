@@ -6,7 +6,7 @@
 
 use qkd_audit::audit::campaign::{link_supports_device_attacks, Campaign, DEMO_CAMPAIGNS};
 use qkd_audit::audit::engine::run;
-use qkd_audit::audit::rules::{BlockStats, KeyRule, Rule};
+use qkd_audit::audit::rules::{BlockStats, KeyRule};
 use qkd_audit::audit::setup::{Setup, SetupKey};
 use qkd_audit::audit::tolerance::{search, Criterion, Finding, Report, Side, Spec};
 use qkd_audit::audit::trial::allowance_bits;
@@ -98,9 +98,8 @@ fn mismatch_tolerance_brackets_the_computed_threshold_and_agrees_with_a_dense_sw
     for (i, ps) in swept.setups.iter().enumerate() {
         let eta = ps.setup.link.flaws.mismatch;
         assert_eq!(ps.values, vec![(SetupKey::find("detector.mismatch").unwrap(), eta)]);
-        let leak = |rule: KeyRule| {
-            results.iter().filter(|p| p.setup == i && p.rule == Rule::from(rule)).map(|p| p.stats.leak_probability).fold(0.0, f64::max)
-        };
+        let leak =
+            |rule: KeyRule| results.iter().filter(|p| p.setup == i && p.rule == rule).map(|p| p.stats.leak_probability).fold(0.0, f64::max);
         // Away from the searched boundary (by more than the sampling spread), the sweep agrees.
         if eta < unsafe_ - 0.005 {
             assert!(leak(KeyRule::FiniteUncertainty) > 0.5, "η = {eta}: the sweep must leak below {unsafe_}");
