@@ -322,6 +322,9 @@ impl Campaign {
             inputs.push((origin.to_string(), text.to_string()));
         }
         let mut attacks = Vec::new();
+        // The position of each parsed entry in the file's `[[attacks]]` list (entries that
+        // failed to parse are missing from `attacks`).
+        let mut attack_index = Vec::new();
         match t.get("attacks") {
             Some(toml::Value::Array(list)) if !list.is_empty() => {
                 for (i, entry) in list.iter().enumerate() {
@@ -334,6 +337,7 @@ impl Campaign {
                         Ok(e) => {
                             inputs.push((e.origin.clone(), e.text.clone()));
                             attacks.push(e);
+                            attack_index.push(i);
                         }
                         Err(errs) => p.nested(&key, errs),
                     }
@@ -374,6 +378,9 @@ impl Campaign {
             Some(s) => point_setups(s, &setup_sweeps, &rules, &mut p),
             None => Vec::new(),
         };
+        for (entry, &i) in attacks.iter().zip(&attack_index) {
+            p.check(check_device_link(entry, i, &setups));
+        }
         let (Some(setup), Some(sampler)) = (setup, sampler) else {
             return Err(p.finish(()).err().unwrap_or_else(|| vec![Error::input("invalid campaign")]));
         };
@@ -416,10 +423,76 @@ pub fn expected_sifted_z_bits(setup: &Setup) -> f64 {
 /// Settings that are valid but that a reviewer should look at twice: a setup that can never
 /// give a key, a test sample too small to estimate the error rate at ε_sec, an abort
 /// threshold above the protocol's zero-rate QBER (with one-way post-processing at the
-/// Shannon limit), and a parameter override that a sweep replaces.
+/// Shannon limit), a parameter override that a sweep replaces, and a device attack whose
+/// flaw the detector does not have (an inert attack).
 pub fn preflight_warnings(setup: &Setup, attacks: &[AttackEntry]) -> Vec<String> {
     let mut out = setup_warnings(setup);
     out.extend(attack_warnings(attacks));
+    out.extend(device_warnings(&[setup], attacks));
+    out
+}
+
+/// Whether the device attacks can run on `link`: the exact device model
+/// ([`crate::exact::device`]) describes single photons reaching a detector without dark
+/// counts or misalignment (loss and the common efficiency drop out once the audit
+/// conditions on Bob's clicks). The engine refuses any other link the same way.
+pub fn link_supports_device_attacks(link: &crate::protocol::optical::Link) -> bool {
+    matches!(link.source, crate::protocol::optical::Source::SinglePhoton) && link.dark_count_probability == 0.0 && link.misalignment == 0.0
+}
+
+/// Refuses a device attack (entry `i` of `[[attacks]]`) before any work when one of the
+/// campaign's setups (every swept setup included) is a link the device model does not
+/// cover; the error names the entry's `builtin` or `file` key and what the link has.
+fn check_device_link(entry: &AttackEntry, i: usize, setups: &[PointSetup]) -> Result<()> {
+    if !entry.file.is_device_attack() {
+        return Ok(());
+    }
+    let Some(bad) = setups.iter().find(|s| !link_supports_device_attacks(&s.setup.link)) else { return Ok(()) };
+    let link = &bad.setup.link;
+    let mut has = Vec::new();
+    if !matches!(link.source, crate::protocol::optical::Source::SinglePhoton) {
+        has.push("a weak-coherent [source]".to_string());
+    }
+    if link.dark_count_probability != 0.0 {
+        has.push(format!("detector.dark_count_probability = {}", shown_value(link.dark_count_probability)));
+    }
+    if link.misalignment != 0.0 {
+        has.push(format!("detector.misalignment = {}", shown_value(link.misalignment)));
+    }
+    let at = if bad.values.is_empty() { String::new() } else { format!(" at {}", setup_values_text(&bad.values)) };
+    let key = if entry.origin.starts_with("builtin:") { "builtin" } else { "file" };
+    let why = crate::exact::device::unsupported_link(&entry.label);
+    Err(Error::input_key(format!("attacks[{i}].{key}"), format!("{}; the setup{at} has {}", why.message(), has.join(", "))))
+}
+
+/// The warnings of [`preflight_warnings`] about device attacks whose flaw is absent from
+/// every one of `setups`: a mismatch attack against matched detectors (`mismatch = 1`: the
+/// time shift tells Eve nothing, faked states cause QBER ½ and abort), a blinding attack
+/// against a monitor that catches every blinded period (`blinding_catch = 1`: every blinded
+/// block aborts). Such an entry shows nothing about the system, which is worth a second look
+/// (a flaw left at its ideal default), not an error.
+fn device_warnings(setups: &[&Setup], attacks: &[AttackEntry]) -> Vec<String> {
+    let mut out = Vec::new();
+    for e in attacks {
+        let AttackFile::Catalogue(c) = &e.file else { continue };
+        let flaws = |s: &&Setup| s.link.flaws;
+        let text = match c.family.as_str() {
+            "time-shift" | "faked-state" if setups.iter().map(flaws).all(|f| f.mismatch == 1.0) => format!(
+                "attack `{}` exploits a detector efficiency mismatch, but the setup's detectors have none ([detector] mismatch = 1, \
+                 the ideal device): the attack is inert ({}); set [detector] mismatch to the characterised ratio",
+                e.label,
+                if c.family == "time-shift" { "shifted photons tell Eve nothing" } else { "faked states cause a QBER of ½ and abort" }
+            ),
+            "detector-blinding" if setups.iter().map(flaws).all(|f| f.blinding_catch == 1.0) => format!(
+                "attack `{}` blinds the detectors, but the setup's monitor catches every blinded period ([detector] \
+                 blinding_catch = 1, the ideal device): every blinded block aborts and the attack is inert; set [detector] \
+                 blinding_catch to the catch probability the system claims",
+                e.label
+            ),
+            _ => continue,
+        };
+        out.push(text);
+    }
     out
 }
 
@@ -496,6 +569,8 @@ fn swept_setup_warnings(setups: &[PointSetup], attacks: &[AttackEntry]) -> Vec<S
         per_setup.push(format!("{more} more warning(s) about swept setups like the above"));
     }
     per_setup.extend(attack_warnings(attacks));
+    let all: Vec<&Setup> = setups.iter().map(|s| &s.setup).collect();
+    per_setup.extend(device_warnings(&all, attacks));
     per_setup
 }
 

@@ -424,6 +424,8 @@ impl Setup {
             "detector.efficiency" => Some(self.link.detector_efficiency),
             "detector.dark_count_probability" => Some(self.link.dark_count_probability),
             "detector.misalignment" => Some(self.link.misalignment),
+            "detector.mismatch" => Some(self.link.flaws.mismatch),
+            "detector.blinding_catch" => Some(self.link.flaws.blinding_catch),
             other => unreachable!("SETUP_KEYS lists `{other}` without a value"),
         })
     }
@@ -556,6 +558,8 @@ pub const SETUP_KEYS: &[SetupKey] = &[
     SetupKey { name: "detector.efficiency", unit: "", integer: false },
     SetupKey { name: "detector.dark_count_probability", unit: "per gate", integer: false },
     SetupKey { name: "detector.misalignment", unit: "", integer: false },
+    SetupKey { name: "detector.mismatch", unit: "", integer: false },
+    SetupKey { name: "detector.blinding_catch", unit: "", integer: false },
 ];
 
 impl SetupKey {
@@ -620,7 +624,12 @@ mod tests {
 
     #[test]
     fn the_table_of_a_setup_parses_back_to_it() {
-        for text in ["", LINK_SETUP, "protocol = \"six-state\"\n[channel]\nloss_db = 3.5\nattenuation_db_per_km = 0.3"] {
+        for text in [
+            "",
+            LINK_SETUP,
+            "protocol = \"six-state\"\n[channel]\nloss_db = 3.5\nattenuation_db_per_km = 0.3",
+            "[detector]\nmismatch = 0.25\nrandom_swap = true\nblinding_catch = 3e-5",
+        ] {
             let s = parse(text).unwrap();
             assert_eq!(Setup::from_table(&s.to_table()).unwrap(), s, "{text}");
         }
@@ -657,6 +666,16 @@ mod tests {
         assert!(plain.with_value("key_rule", 1.0).unwrap_err().message().contains("numeric setup key"));
         assert_eq!(plain.value("channel.length_km").unwrap(), None);
         assert_eq!(plain.with_value("detector.misalignment", 0.02).unwrap().link.misalignment, 0.02);
+        // The detector flaws: written into [detector] beside the other keys, checked by its parser.
+        let flawed = plain.with_value("detector.mismatch", 0.26).unwrap();
+        assert_eq!((flawed.link.flaws.mismatch, flawed.value("detector.mismatch").unwrap()), (0.26, Some(0.26)));
+        let blind = flawed.with_value("detector.blinding_catch", 1e-5).unwrap();
+        assert_eq!((blind.link.flaws.mismatch, blind.link.flaws.blinding_catch), (0.26, 1e-5));
+        assert_eq!(plain.value("detector.blinding_catch").unwrap(), Some(1.0));
+        for (key, value) in [("detector.mismatch", 0.0), ("detector.mismatch", 1.5), ("detector.blinding_catch", -0.1)] {
+            let e = plain.with_value(key, value).unwrap_err();
+            assert_eq!(e.key(), Some(key), "{key} = {value}: {e}");
+        }
     }
 
     #[test]
