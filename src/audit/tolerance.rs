@@ -507,7 +507,10 @@ fn attack_text(a: &AttackEvidence) -> String {
 /// A value as a reader writes it.
 fn num(x: f64) -> String {
     if x != 0.0 && (x.abs() < 1e-3 || x.abs() >= 1e6) {
-        format!("{x:e}")
+        // Seven significant digits, as the plain form below keeps six decimals.
+        let s = format!("{x:.6e}");
+        let (mantissa, exponent) = s.split_once('e').unwrap_or((&s, "0"));
+        format!("{}e{exponent}", mantissa.trim_end_matches('0').trim_end_matches('.'))
     } else {
         let s = format!("{x:.6}");
         s.trim_end_matches('0').trim_end_matches('.').to_string()

@@ -48,7 +48,8 @@ pub struct ToleranceArgs {
     /// test_fraction, test_count, basis_z_probability, ec_efficiency, epsilon_sec, epsilon_cor,
     /// source.intensity, source.decoys[0|1], source.decoy_probabilities[0|1],
     /// channel.length_km (km), channel.attenuation_db_per_km, channel.loss_db (dB),
-    /// detector.efficiency, detector.dark_count_probability, detector.misalignment.
+    /// detector.efficiency, detector.dark_count_probability, detector.misalignment,
+    /// detector.mismatch, detector.blinding_catch.
     #[arg(long, value_name = "KEY")]
     pub key: String,
     /// One end of the searched range, in the key's unit.

@@ -66,5 +66,14 @@ pub fn write_folder_with(
 
 /// `name=value;…` of a point's parameters.
 pub fn params_string(params: &[(String, crate::attack::Value)]) -> String {
-    params.iter().map(|(k, v)| format!("{k}={v}")).collect::<Vec<_>>().join(";")
+    // Numbers as the CSV writes them (12 significant digits: no float noise such as
+    // 0.42500000000000004 from a sweep's grid).
+    params
+        .iter()
+        .map(|(k, v)| match v {
+            crate::attack::Value::Num(x) => format!("{k}={}", crate::exact::sweep::fmt_num(*x)),
+            crate::attack::Value::Text(t) => format!("{k}={t}"),
+        })
+        .collect::<Vec<_>>()
+        .join(";")
 }
