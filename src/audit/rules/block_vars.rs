@@ -23,7 +23,7 @@ const fn var(name: &'static str, unit: &'static str, meaning: &'static str) -> V
 }
 
 /// Number of variables that do not depend on the intensity.
-const SCALARS: usize = 22;
+const SCALARS: usize = 24;
 
 /// Number of per-intensity variables (each for intensities 1, 2, 3).
 const PER_INTENSITY: usize = 9;
@@ -55,6 +55,8 @@ pub const VARIABLES: [Variable; COUNT] = [
     var("eps_sec", "1", "the setup's secrecy parameter epsilon_sec"),
     var("eps_cor", "1", "the setup's correctness parameter epsilon_cor"),
     var("leak_ec", "bits", "the tool's standard error-correction leak f·n·h(q_ec) + log2(2/eps_cor)"),
+    var("mismatch", "1", "the detector's claimed efficiency mismatch ratio (1 = none; setup detector.mismatch)"),
+    var("blinding_catch", "1", "the claimed probability that the monitor catches a blinded period (1 = not blindable)"),
     var("intensities", "1", "number of intensities on the link (0 for single photons)"),
     var("single_photon", "1", "1 on a single-photon link, 0 on a weak-coherent one"),
     var("mu1", "photons/pulse", "mean photon number of intensity 1 (the signal)"),
@@ -125,6 +127,8 @@ pub fn values(obs: &BlockStats, params: &RuleParams) -> [f64; COUNT] {
         params.epsilon_sec,
         params.epsilon_cor,
         ec_leak_bits(obs, params),
+        params.mismatch,
+        params.blinding_catch,
         c(obs.intensities.map_or(0, |i| i.count as u64)),
         if obs.intensities.is_some_and(|i| i.multi_photon.iter().any(|&p| p > 0.0)) { 0.0 } else { 1.0 },
     ];
@@ -170,6 +174,8 @@ mod tests {
         assert_eq!(v[slot("key_errors").unwrap()], 1.0);
         assert_eq!(v[slot("leak_ec").unwrap()], ec_leak_bits(&obs, &params));
         assert_eq!(v[slot("single_photon").unwrap()], 1.0);
+        assert_eq!(v[slot("mismatch").unwrap()], 1.0);
+        assert_eq!(v[slot("blinding_catch").unwrap()], 1.0);
         assert!(v[slot("mu1").unwrap()].is_nan());
     }
 }
