@@ -220,6 +220,22 @@ fn a_nan_key_length_stops_the_run_naming_rule_and_trial() {
     assert!(!dir.path().join("out/rules-test").exists());
 }
 
+/// A formula that gives more key than the block has key bits (+∞ from a division by zero,
+/// or 1e30) stops the run too: it is never floored to "no key" nor saturated into a length.
+#[test]
+fn an_infinite_or_impossible_key_length_stops_the_run() {
+    for formula in ["1/0", "1e30"] {
+        let dir = tempfile::tempdir().unwrap();
+        std::fs::write(dir.path().join("inf.toml"), format!("name = \"inf-rule\"\nkey_length = \"{formula}\"\n")).unwrap();
+        std::fs::write(dir.path().join("c.toml"), campaign_text(&["file:inf.toml".into()], 100_000, 4)).unwrap();
+        let out = qkd(&["run", "c.toml", "--results-dir", "out", "--quiet"], dir.path());
+        let err = String::from_utf8_lossy(&out.stderr);
+        assert_eq!(out.status.code(), Some(2), "{formula}: {err}");
+        assert!(err.contains("inf.toml") && err.contains("more than the block's n =") && err.contains("point 0 trial 0"), "{err}");
+        assert!(!dir.path().join("out").join("rules-test").exists());
+    }
+}
+
 #[test]
 fn a_rule_may_take_the_abort_decision_from_the_setup() {
     // abort_if = "0" never aborts, a program answering abort = true always does; without

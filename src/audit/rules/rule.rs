@@ -84,6 +84,15 @@ impl Rule {
                 if v.raw_bits.is_nan() && !aborted {
                     return Err(format!("rule file `{}`: key_length is NaN", f.origin));
                 }
+                // No key is longer than the block's key bits: a larger value (+∞ from a
+                // division by zero or log2(0), or 1e30) is a broken formula, not a key, and
+                // is never floored or saturated into one.
+                if !aborted && v.raw_bits > obs.n as f64 {
+                    return Err(format!(
+                        "rule file `{}`: key_length is {} bits, more than the block's n = {} key bits",
+                        f.origin, v.raw_bits, obs.n
+                    ));
+                }
                 Ok(RuleAnswer { abort, length: super::KeyLength::floor_bits(v.raw_bits) })
             }
             Rule::Program(p) => Err(format!("rule program `{}` is asked in batches, not per block", p.name)),
