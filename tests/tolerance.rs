@@ -438,3 +438,21 @@ fn the_distance_at_which_a_single_photon_link_loses_its_key_agrees_with_a_dense_
         }
     }
 }
+
+/// Two safe ends around a leaking configured value (the naive rule under photon-number
+/// splitting: safe at 0 km, no key at 200 km, leaking at the demo's 50 km) break the
+/// one-crossing assumption: the statement must not claim "throughout", and a note says why.
+#[test]
+fn a_leaking_configured_value_between_safe_ends_is_not_called_safe_throughout() {
+    let out = std::process::Command::new(env!("CARGO_BIN_EXE_qkd-audit"))
+        .args(["tolerance", "--demo", "decoy", "--rule", "naive-single-photon", "--attack", "photon-number-splitting"])
+        .args(["--key", "channel.length_km", "--from", "0", "--to", "200", "--quiet"])
+        .output()
+        .unwrap();
+    let (stdout, stderr) = (String::from_utf8_lossy(&out.stdout), String::from_utf8_lossy(&out.stderr));
+    assert_eq!(out.status.code(), Some(1), "{stdout}{stderr}");
+    assert!(stdout.contains("but NOT throughout") && !stdout.contains("so throughout"), "{stdout}");
+    assert!(stdout.contains("At the configured channel.length_km = 50 km the rule LEAKS"), "{stdout}");
+    // The search's notes follow the statement on stdout.
+    assert!(stdout.contains("one-crossing assumption fails"), "{stdout}");
+}

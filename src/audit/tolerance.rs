@@ -420,7 +420,22 @@ pub fn search(c: &Campaign, spec: &Spec, progress: &(dyn Fn(&Evaluation) + Sync)
     let own = judge_value(configured_value, c.setup.clone(), "configured")?;
     let configured = own.side;
     evaluations.push(own);
-    let statement = statement(spec, &finding, configured, configured_value);
+    // A configured value inside the range whose side contradicts both ends shows that the
+    // search's one-crossing assumption fails here: say so instead of claiming "throughout".
+    let (lo, hi) = (spec.value_at(0.0).min(spec.value_at(1.0)), spec.value_at(0.0).max(spec.value_at(1.0)));
+    let inside = configured_value.is_some_and(|v| v >= lo && v <= hi);
+    let broken = inside
+        && matches!((&finding, configured), (Finding::SafeThroughout, Side::Unsafe) | (Finding::UnsafeThroughout { .. }, Side::Safe));
+    if broken {
+        notes.push(format!(
+            "the configured {} = {} lies inside the searched range but is on the other side from both ends: the result is not \
+             monotone along {}, so the one-crossing assumption fails; search the sub-ranges on either side of the configured value",
+            spec.key.name,
+            num(configured_value.unwrap_or(f64::NAN)),
+            spec.key.name
+        ));
+    }
+    let statement = statement(spec, &finding, configured, configured_value, broken);
     Ok(Report { spec: spec.clone(), level_per_limit: level, evaluations, finding, configured, configured_value, notes, statement })
 }
 
@@ -518,7 +533,7 @@ fn num(x: f64) -> String {
 }
 
 /// The finding in one sentence.
-fn statement(spec: &Spec, finding: &Finding, configured: Side, configured_value: Option<f64>) -> String {
+fn statement(spec: &Spec, finding: &Finding, configured: Side, configured_value: Option<f64>, broken: bool) -> String {
     let key = spec.key.name;
     let unit = if spec.key.unit.is_empty() { String::new() } else { format!(" {}", spec.key.unit) };
     let rule = &spec.rule;
@@ -553,7 +568,15 @@ fn statement(spec: &Spec, finding: &Finding, configured: Side, configured_value:
                 )
             }
         }
+        Finding::SafeThroughout if broken => format!(
+            "the rule `{rule}` {good} against every listed attack at both ends of {key} = {range} ({level}) but NOT throughout: \
+             the configured value inside the range is on the other side, so the result is not monotone and no boundary is claimed"
+        ),
         Finding::SafeThroughout => format!("the rule `{rule}` {good} against every listed attack at both ends of {key} = {range} ({level}; one crossing assumed, so throughout)"),
+        Finding::UnsafeThroughout { attack } if broken => format!(
+            "the rule `{rule}` {bad} against `{attack}` at both ends of {key} = {range} ({level}) but NOT throughout: the configured \
+             value inside the range is on the other side, so the result is not monotone and no boundary is claimed"
+        ),
         Finding::UnsafeThroughout { attack } => format!("the rule `{rule}` {bad} against `{attack}` at both ends of {key} = {range} ({level})"),
         Finding::InconclusiveEnd { value } => format!(
             "no boundary claim: at {key} = {}{unit} the evidence stays inconclusive after {} trials per attack ({level}); raise --max-trials or move the range",
