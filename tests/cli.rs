@@ -217,3 +217,13 @@ fn control_characters_in_user_values_never_reach_the_terminal() {
     let err = String::from_utf8_lossy(&out.stderr);
     assert!(!err.contains('\u{1b}') && err.contains("\\u{1b}"), "{err}");
 }
+
+/// `run --dry-run` refuses the thread counts the run would refuse.
+#[test]
+fn dry_run_checks_the_thread_count() {
+    for n in ["0", "300"] {
+        let out = std::process::Command::new(env!("CARGO_BIN_EXE_qkd-audit")).args(["run", "--dry-run", "--threads", n]).output().unwrap();
+        assert_eq!(out.status.code(), Some(2), "{n}");
+        assert!(String::from_utf8_lossy(&out.stderr).contains("key `--threads`"), "{n}");
+    }
+}

@@ -149,6 +149,8 @@ pub fn cmd_run(a: RunArgs) -> Result<Outcome> {
         note(&format!("warning: {w}"));
     }
     let dir = a.results_dir.join(&campaign.name);
+    // The thread count is checked before anything, the dry run included.
+    let pool = super::common::thread_pool(a.threads)?;
     if a.dry_run {
         print(&plan(&campaign, &dir, a.force))?;
         return Ok(Outcome::Clean);
@@ -160,7 +162,6 @@ pub fn cmd_run(a: RunArgs) -> Result<Outcome> {
                 format!("the campaign judges the rule file `{r}`; sharded runs support built-in rules only (run it unsharded)"),
             ));
         }
-        let pool = super::common::thread_pool(a.threads)?;
         let clock = std::time::Instant::now();
         let (results, _logs) = pool.install(|| crate::audit::engine::run_points(&campaign, &|| {}, &|i| spec.owns(i)))?;
         let inputs = campaign.inputs.iter().map(|(o, t)| InputId { origin: o.clone(), sha256: sha256_hex(t) }).collect();
@@ -173,18 +174,6 @@ pub fn cmd_run(a: RunArgs) -> Result<Outcome> {
     crate::output::clean_up_on_signals();
     let folder = crate::output::prepare_folder(&dir, a.force)?;
     folder.notes().iter().for_each(|n| note(n));
-    let pool = {
-        let mut b = rayon::ThreadPoolBuilder::new();
-        if let Some(n) = a.threads {
-            // More workers than this only adds memory and scheduling; results do not change.
-            const MAX_THREADS: usize = 256;
-            if n == 0 || n > MAX_THREADS {
-                return Err(Error::input_key("--threads", format!("{n} is outside [1, {MAX_THREADS}]")));
-            }
-            b = b.num_threads(n);
-        }
-        b.build().map_err(|e| Error::input(format!("cannot start worker threads: {e}")))?
-    };
     let started = std::time::SystemTime::now();
     let clock = std::time::Instant::now();
     let total = point_count(&campaign) as u64;

@@ -301,10 +301,13 @@ pub fn render(c: &Campaign, results: &[PointResult]) -> String {
         );
     }
     let keyless = results.iter().filter(|r| matches!(r.stats.verdict, Verdict::Aborted | Verdict::NoKey)).count();
+    // Rows are (attack point, rule) pairs: with several rules, say so rather than count each
+    // point once per rule as if it were an attack point.
+    let rows_are = if c.rules.len() > 1 { "(attack point, rule) pairs" } else { "attack points" };
     if leaks.is_empty() && keyless == results.len() {
         let _ = writeln!(
             s,
-            "**{}: no key.** No trial at any of the {} attack points gave a key (every point is `no-key` or `aborted`), so nothing \
+            "**{}: no key.** No trial at any of the {} {rows_are} gave a key (every one is `no-key` or `aborted`), so nothing \
              leaked, and the system as configured produces nothing to use. Check the block size, the channel loss and the detectors.\n",
             if c.rules.len() > 1 { "Across all rules" } else { "Verdict" },
             results.len()
@@ -312,7 +315,7 @@ pub fn render(c: &Campaign, results: &[PointResult]) -> String {
     } else if leaks.is_empty() {
         let _ = writeln!(
             s,
-            "**{}: no leak found.** No trial at any of the {} attack points extracted more key than the attack leaves secret{}.\n",
+            "**{}: no leak found.** No trial at any of the {} {rows_are} extracted more key than the attack leaves secret{}.\n",
             if c.rules.len() > 1 { "Across all rules" } else { "Verdict" },
             results.len(),
             if keyless > 0 { format!("; {keyless} of them gave no key at all (`no-key` or `aborted`)") } else { String::new() }
@@ -388,7 +391,11 @@ pub fn render(c: &Campaign, results: &[PointResult]) -> String {
                     s,
                     "Strongest point not caught: {} (QBER_Z {:.4}, QBER_X {:.4}, Eve's information 1 − H(X|E) = {:.4} bits per key bit); \
                      abort probability {} [{}, {}], leak probability {}, mean key {:.0} bits.\n",
-                    with_setup(c, r, r.swept.as_ref().map(|(p, v)| format!("{p} = {v}")).unwrap_or_else(|| "the only point".into())),
+                    with_setup(
+                        c,
+                        r,
+                        r.swept.as_ref().map(|(p, v)| format!("{p} = {}", num(*v))).unwrap_or_else(|| "the only point".into())
+                    ),
                     r.exact.qber_z,
                     r.exact.qber_x,
                     r.exact.holevo_z,
