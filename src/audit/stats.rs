@@ -75,6 +75,13 @@ pub struct PointStats {
     pub key_length_q95: u64,
     /// Mean ℓ − capacity over trials that produced a key (NaN when none did), bits.
     pub mean_excess: f64,
+    /// Mean ℓ − capacity over the leaking trials only (NaN without one): how much a leaking
+    /// key exceeds what the attack leaves secret, when it leaks.
+    #[serde(default)]
+    pub leak_excess_mean: f64,
+    /// Largest ℓ − capacity of a leaking trial (NaN without one).
+    #[serde(default)]
+    pub leak_excess_max: f64,
     /// Mean capacity over trials that did not abort, bits.
     pub mean_capacity: f64,
     /// Mean rigorous achievable length over trials that did not abort, bits.
@@ -149,6 +156,8 @@ pub struct Tally {
     lengths: Vec<u64>,
     key_length: Mean,
     excess: Mean,
+    leak_excess: Mean,
+    leak_excess_max: Option<f64>,
     capacity: Mean,
     achievable: Mean,
     key_bits_mean: Mean,
@@ -191,6 +200,10 @@ impl Tally {
         self.key_length.add(o.length as f64);
         if o.length > 0 {
             self.excess.add(o.excess);
+        }
+        if o.verdict == Verdict::Leak {
+            self.leak_excess.add(o.excess);
+            self.leak_excess_max = Some(self.leak_excess_max.map_or(o.excess, |m| m.max(o.excess)));
         }
         if !o.aborted {
             self.capacity.add(o.capacity);
@@ -238,6 +251,8 @@ impl Tally {
             key_length_q05: quantile_sorted(&self.lengths, 0.05),
             key_length_q95: quantile_sorted(&self.lengths, 0.95),
             mean_excess: self.excess.value(),
+            leak_excess_mean: self.leak_excess.value(),
+            leak_excess_max: self.leak_excess_max.unwrap_or(f64::NAN),
             mean_capacity: self.capacity.value(),
             mean_achievable: self.achievable.value(),
             mean_key_bits: self.key_bits_mean.value(),

@@ -57,6 +57,9 @@ pub struct Row {
     pub leak: (f64, f64, f64),
     /// Mean ℓ − capacity, bits.
     pub mean_excess: f64,
+    /// Mean and largest ℓ − capacity over the leaking trials, bits (NaN without a leaking
+    /// trial, or in a table written before these columns).
+    pub leak_excess: (f64, f64),
     /// Mean capacity, bits.
     pub mean_capacity: f64,
     /// Mean achievable bound, bits.
@@ -114,12 +117,23 @@ impl Row {
         }
     }
 
-    /// The excess as a share of the key, in words.
+    /// How much a leaking key exceeds what the attack leaves secret: the mean over the
+    /// leaking trials, or (a table without that column) the mean over trials with a key.
+    pub fn leak_excess(&self) -> f64 {
+        if self.leak_excess.0.is_finite() {
+            self.leak_excess.0
+        } else {
+            self.mean_excess
+        }
+    }
+
+    /// The excess of the leaking trials as a share of the mean key, in words.
     pub fn excess_share(&self) -> String {
-        if self.mean_excess >= self.key_length.0 {
-            "all of the key".into()
+        let x = self.leak_excess();
+        if x >= self.key_length.0 {
+            "all of the mean key".into()
         } else if self.key_length.0 > 0.0 {
-            format!("{} of the key", pct(self.mean_excess / self.key_length.0))
+            format!("{} of the mean key", pct(x / self.key_length.0))
         } else {
             "-".into()
         }
@@ -343,6 +357,8 @@ impl Evidence {
         let idx: Vec<usize> = names.iter().map(|n| col(n)).collect::<Result<_>>()?;
         let params: Vec<(usize, String)> =
             header.iter().enumerate().filter_map(|(i, h)| h.strip_prefix("param_").map(|p| (i, p.to_string()))).collect();
+        let optional = |name: &str| header.iter().position(|h| h == name);
+        let leak_excess_cols = (optional("leak_excess_mean_bits"), optional("leak_excess_max_bits"));
         let setup_cols: Vec<(usize, SweptKey)> = header
             .iter()
             .enumerate()
@@ -407,6 +423,15 @@ impl Evidence {
                 key_length: (number(18)?, number(19)?, number(20)?),
                 leak: (number(21)?, number(22)?, number(23)?),
                 mean_excess: number(24)?,
+                leak_excess: {
+                    let at = |i: Option<usize>| -> Result<f64> {
+                        match i.and_then(|i| rec.get(i)).filter(|t| !t.is_empty()) {
+                            None => Ok(f64::NAN),
+                            Some(t) => t.parse::<f64>().map_err(|_| Error::input(format!("{csv_origin}:{line}: `{t}` is not a number"))),
+                        }
+                    };
+                    (at(leak_excess_cols.0)?, at(leak_excess_cols.1)?)
+                },
                 mean_capacity: number(25)?,
                 mean_achievable: number(26)?,
                 leak_cause: text(27),
@@ -524,7 +549,7 @@ impl Evidence {
         let leaking = pts.iter().filter(|r| r.verdict == Verdict::Leak);
         Some(Cell {
             verdict,
-            worst_excess: leaking.clone().map(|r| r.mean_excess).filter(|x| x.is_finite()).fold(f64::NEG_INFINITY, f64::max),
+            worst_excess: leaking.clone().map(|r| r.leak_excess()).filter(|x| x.is_finite()).fold(f64::NEG_INFINITY, f64::max),
             max_leak_probability: pts.iter().map(|r| r.leak.0).filter(|x| x.is_finite()).fold(0.0, f64::max),
             points: pts.len(),
         })
@@ -538,7 +563,7 @@ impl Evidence {
             for g in &self.groups {
                 let points: Vec<&Row> = self.points(g.entry, &rule).into_iter().filter(|r| r.verdict == Verdict::Leak).collect();
                 if let Some(first) = points.first().copied() {
-                    let worst = points.iter().copied().max_by(|a, b| a.mean_excess.total_cmp(&b.mean_excess)).unwrap_or(first);
+                    let worst = points.iter().copied().max_by(|a, b| a.leak_excess().total_cmp(&b.leak_excess())).unwrap_or(first);
                     out.push(Leak { group: g, rule: rule.clone(), system: rule == system, points, first, worst });
                 }
             }
@@ -576,7 +601,7 @@ impl Evidence {
                         l.group.attack,
                         if own { String::new() } else { format!(" under `{}`", l.rule) },
                         l.first.at(),
-                        bits(l.worst.mean_excess),
+                        bits(l.worst.leak_excess()),
                         l.worst.excess_share()
                     )
                 })
@@ -644,7 +669,14 @@ mod tests {
         let leaks = ev.leaks();
         assert_eq!((leaks.len(), leaks[0].first.mean_excess), (1, 120.0));
         assert!(ev.headline().0.starts_with("NOT SECURE"));
-        assert_eq!(r.excess_share(), "24.0 % of the key");
+        assert_eq!(r.excess_share(), "24.0 % of the mean key");
+        // With the leaking trials' columns, the excess is theirs, not the mean over all trials.
+        let header = HEADER.replace("mean_excess_bits,", "mean_excess_bits,leak_excess_mean_bits,leak_excess_max_bits,");
+        let row = ROW.replace(",120,380,", ",-6,30,55,380,");
+        let ev = Evidence::parse(&format!("{header}\n{row}\n"), "{}", "t.csv", "m.json").unwrap();
+        assert_eq!((ev.rows[0].mean_excess, ev.rows[0].leak_excess), (-6.0, (30.0, 55.0)));
+        assert_eq!(ev.rows[0].leak_excess(), 30.0);
+        assert_eq!(ev.rows[0].excess_share(), "6.0 % of the mean key");
     }
 
     #[test]

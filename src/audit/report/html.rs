@@ -285,19 +285,20 @@ pub fn render(ev: &Evidence, figures: &[Figure], csv_sha256: &str) -> String {
                 if l.worst.leak_cause.is_empty() { "not recorded in this folder's table".to_string() } else { l.worst.leak_cause.clone() };
             let _ = writeln!(
                 s,
-                "<li><b>{} under <code>{}</code>{}</b>: leaks at {} of its {} points. First leaking point {}: the key exceeds what the \
-                 attack leaves secret by {} bits on average ({}), leak probability {}. Worst point {}: {} bits ({}). Cause: {}.</li>",
+                "<li><b>{} under <code>{}</code>{}</b>: leaks at {} of its {} points. First leaking point {}: in the leaking trials the \
+                 key exceeds what the attack leaves secret by {} bits on average ({}), leak probability {}. Worst point {}: {} bits \
+                 ({}). Cause: {}.</li>",
                 esc(&l.group.attack),
                 esc(&l.rule),
                 if l.system { " (the system's rule)" } else { "" },
                 l.points.len(),
                 ev.points(l.group.entry, &l.rule).len(),
                 esc(&l.first.at()),
-                bits(l.first.mean_excess),
+                bits(l.first.leak_excess()),
                 l.first.excess_share(),
                 pct(l.first.leak.0),
                 esc(&l.worst.at()),
-                bits(l.worst.mean_excess),
+                bits(l.worst.leak_excess()),
                 l.worst.excess_share(),
                 esc_code(&cause)
             );

@@ -210,10 +210,10 @@ fn key_length(ev: &Evidence, g: &Group) -> Figure {
         if let Some(first) = pts.iter().find(|r| r.verdict == Verdict::Leak) {
             let (px, py) = p.at(x_of(first), first.key_length.0);
             svg.marker(Shape::Halo, px, py, 10.0, INK);
-            let text = format!("first leak: +{} bits ({})", bits(first.mean_excess), first.excess_share());
+            let text = format!("first leak: +{} bits ({})", bits(first.leak_excess()), first.excess_share());
             let ly = if py < area.1 + 40.0 { py + 30.0 } else { py - 16.0 };
             svg.label_in(area, px, ly, &text);
-            first_leaks.push(format!("under `{rule}` from {} (+{} bits)", first.at(), bits(first.mean_excess)));
+            first_leaks.push(format!("under `{rule}` from {} (+{} bits)", first.at(), bits(first.leak_excess())));
         }
         if let Some(nk) = pts.iter().find(|r| r.key_length.0.is_nan() || r.key_length.0 <= 0.0) {
             let (px, py) = p.at(x_of(nk), 0.0);
@@ -521,7 +521,7 @@ fn setup_figure(ev: &Evidence, g: &Group, key: usize) -> Figure {
             }
         }
         if let Some(first) = ev.points(g.entry, rule).into_iter().find(|r| r.verdict == Verdict::Leak) {
-            first_leaks.push(format!("under `{rule}` at {} (+{} bits)", first.at(), bits(first.mean_excess)));
+            first_leaks.push(format!("under `{rule}` at {} (+{} bits)", first.at(), bits(first.leak_excess())));
         }
     }
     let height = top + rules.len() as f64 * (panel_h + 82.0) - 20.0;

@@ -108,14 +108,15 @@ pub fn leak_cause(c: &Campaign, r: &PointResult) -> String {
         // A rule file or program: its assumptions are the system's own, so the sentence
         // states what it extracted against what the attack leaves.
         return format!(
-            "the system's rule `{}` extracted ℓ = {} bits on average while this attack leaves only n·H(X|E) − leak_EC = {} \
-             bits secret (H(X|E) = {} bits per key bit); its formula or program takes more than the attack leaves, in {} of \
-             the trials",
+            "the rule `{}` (a rule file) takes more key than this attack leaves secret in {} of the trials: in those trials \
+             ℓ exceeds n·H(X|E) − leak_EC by {} bits on average (H(X|E) = {} bits per key bit); over all trials ℓ = {} bits \
+             on average against {} bits left secret. Its formula or program omits or underestimates a term this attack exploits",
             r.rule,
-            bits(s.key_length_mean),
-            bits(s.mean_capacity),
+            pct(s.leak_probability),
+            bits(s.leak_excess_mean),
             num(r.exact.h_x_given_e),
-            pct(s.leak_probability)
+            bits(s.key_length_mean),
+            bits(s.mean_capacity)
         );
     };
     cause_sentence(
@@ -484,7 +485,7 @@ fn matrix(s: &mut String, c: &Campaign, results: &[PointResult]) {
                 let pts: Vec<&PointResult> = results.iter().filter(|r| r.entry == e && r.rule == *rule).collect();
                 let verdict = crate::audit::stats::point_verdict(pts.iter().map(|r| r.stats.verdict));
                 if verdict == Verdict::Leak {
-                    let worst = pts.iter().map(|r| r.stats.mean_excess).filter(|x| x.is_finite()).fold(f64::NEG_INFINITY, f64::max);
+                    let worst = pts.iter().map(|r| r.stats.leak_excess_max).filter(|x| x.is_finite()).fold(f64::NEG_INFINITY, f64::max);
                     let prob = pts.iter().map(|r| r.stats.leak_probability).fold(0.0, f64::max);
                     format!("**LEAK** (up to {} excess bits; leak probability up to {})", bits(worst), pct(prob))
                 } else {
@@ -511,33 +512,36 @@ fn explain_leaks(s: &mut String, c: &Campaign, results: &[PointResult]) {
         let pts: Vec<&PointResult> =
             results.iter().filter(|r| r.entry == e && r.rule == rule && r.stats.verdict == Verdict::Leak).collect();
         let first = pts[0];
-        let worst = pts.iter().copied().max_by(|a, b| a.stats.mean_excess.total_cmp(&b.stats.mean_excess)).unwrap_or(first);
-        // The capacity is negative when Eve knows more than error correction leaves: then
-        // the whole key is exposed and the excess exceeds it.
+        let worst = pts.iter().copied().max_by(|a, b| a.stats.leak_excess_max.total_cmp(&b.stats.leak_excess_max)).unwrap_or(first);
+        // Excess over the leaking trials (the mean over all trials can be negative when only
+        // a few trials leak). The capacity is negative when Eve knows more than error
+        // correction leaves: then the whole key is exposed and the excess exceeds it.
         let share = |r: &PointResult| {
-            if r.stats.mean_excess >= r.stats.key_length_mean {
-                "all of the key".to_string()
+            if r.stats.leak_excess_mean >= r.stats.key_length_mean {
+                "all of the mean key".to_string()
             } else if r.stats.key_length_mean > 0.0 {
-                format!("{} of the key", pct(r.stats.mean_excess / r.stats.key_length_mean))
+                format!("{} of the mean key", pct(r.stats.leak_excess_mean / r.stats.key_length_mean))
             } else {
                 "-".into()
             }
         };
         let _ = writeln!(
             s,
-            "- **{} under `{}`{}**: leaks at {} of its points. First leaking point {}: the key exceeds what the attack \
-             leaves secret by {} bits on average ({}), leak probability {}. Worst point {}: {} bits ({}). \
-             Cause: {}.",
+            "- **{} under `{}`{}**: leaks at {} of its points. First leaking point {}: in {} of the trials the key exceeds what \
+             the attack leaves secret, by {} bits on average over those trials ({}), at most {} bits. Worst point {}: {} bits on \
+             average, at most {} ({}). Cause: {}.",
             first.attack,
             rule,
             if rule == c.setup.key_rule { " (the system's rule)" } else { "" },
             pts.len(),
             at(c, first),
-            bits(first.stats.mean_excess),
-            share(first),
             pct(first.stats.leak_probability),
+            bits(first.stats.leak_excess_mean),
+            share(first),
+            bits(first.stats.leak_excess_max),
             at(c, worst),
-            bits(worst.stats.mean_excess),
+            bits(worst.stats.leak_excess_mean),
+            bits(worst.stats.leak_excess_max),
             share(worst),
             leak_cause(c, worst)
         );

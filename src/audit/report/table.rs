@@ -23,6 +23,7 @@
 //! | secure_fraction, inconclusive_fraction, no_key_fraction | trial verdict fractions |
 //! | leak_probability, leak_ci_low, leak_ci_high | trials with ℓ > capacity + 2 log₂ n |
 //! | mean_excess_bits | mean ℓ − capacity over trials with a key |
+//! | leak_excess_mean_bits, leak_excess_max_bits | mean and largest ℓ − capacity over the leaking trials (empty without one) |
 //! | mean_capacity_bits, mean_achievable_bits | means over trials that did not abort |
 //! | leak_cause | for a leaking row, one sentence on which assumption of the rule the attack breaks (empty otherwise) |
 //! | verdict | the point's verdict: leak, inconclusive, secure, no-key (no trial gave a key) or aborted (every trial aborted) |
@@ -110,6 +111,8 @@ const COLUMNS: &[Column] = &[
     column!("leak_ci_low", |_c, r| fmt_num(r.stats.leak_ci.0)),
     column!("leak_ci_high", |_c, r| fmt_num(r.stats.leak_ci.1)),
     column!("mean_excess_bits", |_c, r| fmt_num(r.stats.mean_excess)),
+    column!("leak_excess_mean_bits", |_c, r| fmt_num(r.stats.leak_excess_mean)),
+    column!("leak_excess_max_bits", |_c, r| fmt_num(r.stats.leak_excess_max)),
     column!("mean_capacity_bits", |_c, r| fmt_num(r.stats.mean_capacity)),
     column!("mean_achievable_bits", |_c, r| fmt_num(r.stats.mean_achievable)),
     column!("leak_cause", |c, r| if r.stats.verdict == Verdict::Leak { super::summary::leak_cause(c, r) } else { String::new() }),
