@@ -73,6 +73,20 @@ pub fn locate_key(text: &str, dotted: &str) -> Option<(usize, usize)> {
             }
         }
     }
+    // A key that names a table (`[detectors]`, `[[attack]]`, `[setup.detectr]`) is written
+    // as a header: its first one.
+    let whole: Vec<&str> = parts.iter().map(|p| p.split('[').next().unwrap_or(p)).collect();
+    let whole = whole.join(".");
+    for (n, line) in text.lines().enumerate() {
+        let trimmed = line.trim_start();
+        if let Some(header) = trimmed.strip_prefix('[') {
+            let name: String =
+                header.trim_start_matches('[').split(']').next().unwrap_or("").split('.').map(str::trim).collect::<Vec<_>>().join(".");
+            if name == whole {
+                return Some((n + 1, line.len() - trimmed.len() + 1));
+            }
+        }
+    }
     None
 }
 
@@ -248,6 +262,10 @@ mod tests {
         assert_eq!(locate_key(text, "attacks[1].steps"), Some((8, 1)));
         assert_eq!(locate_key(text, "attacks[0].steps"), None);
         assert_eq!(locate_key(text, "seed"), None);
+        // A table's key is found at its header.
+        assert_eq!(locate_key(text, "setup"), Some((2, 1)));
+        assert_eq!(locate_key("a = 1\n[detectors]\nx = 2\n", "detectors"), Some((2, 1)));
+        assert_eq!(locate_key("[setup]\n[setup.detectr]\nx = 1\n", "setup.detectr"), Some((2, 1)));
         let e = locate(Error::input_key("setup.abort_qber", "too big"), text).with_file("c.toml");
         assert_eq!(e.to_string(), "c.toml:4:3: key `setup.abort_qber`: too big");
     }

@@ -1,5 +1,6 @@
 //! The `validate` subcommand: check input files and report the problems found, without
-//! running anything. A file is read as a campaign when it has `attacks`, as an attack file
+//! running anything. A file is read as a campaign when it has a campaign key (`attacks`,
+//! `setup`, `trials`, `seed`, …), as an attack file
 //! when it has `operators` or `family`, as a rule file when it has `key_length` or
 //! `command`, and as a setup otherwise. Every problem of a file
 //! (and of the setup and attack files a campaign names) is reported in one pass.
@@ -52,7 +53,10 @@ fn check_file(path: &Path) -> Vec<Error> {
         Ok(t) => t,
         Err(e) => return vec![e.with_file(path)],
     };
-    if table.contains_key("attacks") {
+    // A campaign-only key marks a campaign, so that a misspelt `[[attacks]]` is reported as
+    // such rather than the file being read as a setup.
+    const CAMPAIGN_KEYS: &[&str] = &["attacks", "attack", "setup", "trials", "seed", "sampler", "rules", "setup_sweeps"];
+    if CAMPAIGN_KEYS.iter().any(|k| table.contains_key(*k)) {
         Campaign::load_all(path).err().unwrap_or_default()
     } else if table.contains_key("operators") || table.contains_key("family") {
         attack_file::validate(path)
