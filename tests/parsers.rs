@@ -163,3 +163,20 @@ fn validate_reads_rule_files() {
     assert!(stdout.contains("ok ") && stdout.contains("finite-uncertainty.toml"), "{stdout}");
     assert!(stderr.contains("bad.toml:2:24: key `key_length`: unknown function `hh`"), "{stderr}");
 }
+
+/// A sweep end out of range is reported at the key the user wrote (`to`), with the value
+/// the sweep reaches; a misspelt table is reported at its header.
+#[test]
+fn sweep_ends_and_table_headers_are_located() {
+    let dir = tempfile::tempdir().unwrap();
+    std::fs::write(dir.path().join("c.toml"), "name = \"x\"\n[[attacks]]\nbuiltin = \"intercept-resend\"\nsteps = 4\nto = 3\n").unwrap();
+    std::fs::write(dir.path().join("s.toml"), "signals = 1000\n[detectors]\nefficiency = 0.2\n").unwrap();
+    let out = std::process::Command::new(env!("CARGO_BIN_EXE_qkd-audit"))
+        .current_dir(dir.path())
+        .args(["validate", "c.toml", "s.toml"])
+        .output()
+        .unwrap();
+    let err = String::from_utf8_lossy(&out.stderr);
+    assert!(err.contains("c.toml:5:1: key `attacks[0].to`: the sweep reaches fraction = 2"), "{err}");
+    assert!(err.contains("s.toml:2:1: key `detectors`: unknown key"), "{err}");
+}

@@ -823,9 +823,19 @@ fn parse_entry(t: &toml::Table, base: Option<&Path>) -> std::result::Result<Atta
     let entry = AttackEntry { label, origin, text, file, sweep, params };
     // Build every point once now, so bad values are reported before any work (the first
     // failing point: the others fail the same way).
-    for (_, overrides) in entry.points() {
+    for (swept, overrides) in entry.points() {
         if let Err(e) = entry.file.build(&overrides) {
-            p.push(e);
+            // A value the sweep produced is reported at the sweep key the user wrote
+            // (`from` or `to`), not at a parameter the entry never names.
+            let at_sweep = swept.as_ref().filter(|(param, _)| e.key().is_some_and(|k| k.ends_with(param.as_str())));
+            match (at_sweep, &entry.sweep) {
+                (Some((param, v)), Some(_)) => {
+                    // The end the user moved: `to` if written, else `from`, else the entry's own sweep.
+                    let key = ["to", "from", "steps"].into_iter().find(|k| t.contains_key(*k)).unwrap_or("builtin");
+                    p.push(Error::input_key(key, format!("the sweep reaches {param} = {v}, where {}", e.message())));
+                }
+                _ => p.push(e),
+            }
             break;
         }
     }
