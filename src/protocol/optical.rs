@@ -273,7 +273,13 @@ fn parse_detector(t: &toml::Table, link: &mut Link, p: &mut Problems) {
     if let Some(v) = t.get("efficiency") {
         let e = num(v, "detector.efficiency").and_then(|e| {
             if !(e > 0.0 && e <= 1.0) {
-                return Err(Error::input_key("detector.efficiency", format!("{e} is outside (0, 1]")));
+                // A datasheet's percentage is the commonest slip: say so.
+                let hint = if e > 1.0 && e <= 100.0 {
+                    format!("; a percentage is written as a fraction: {e} % is {}", e / 100.0)
+                } else {
+                    String::new()
+                };
+                return Err(Error::input_key("detector.efficiency", format!("{e} is outside the allowed range (0, 1]{hint}")));
             }
             Ok(e)
         });
