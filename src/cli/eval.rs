@@ -150,7 +150,7 @@ fn table_of(label: &str, family: &str, params: &ParamSet, e: &Evaluation) -> Str
             (None, _) => "-".to_string(),
             (Some(v), Shown::Fixed) => format!("{v:.10}"),
             // An exact zero (the bound met exactly) reads as 0, not 0.0e0.
-            (Some(v), Shown::Scientific) if v == 0.0 => "0".to_string(),
+            (Some(0.0), Shown::Scientific) => "0".to_string(),
             (Some(v), Shown::Scientific) => format!("{v:.1e}"),
         };
         s.push_str(&format!("  {:<16} {v:>14}  {}\n", q.key, q.help));
