@@ -430,3 +430,25 @@ fn single_photon_link_sampler_matches_the_exact_model() {
     let se = (known * (1.0 - known) / key as f64).sqrt();
     assert!((entropy / key as f64 - model.h_x_given_e()).abs() < 5.0 * se, "H(X|E) per key bit");
 }
+
+/// `keyrate --setup` takes the sifting factor from the setup's basis choice (Σ P(basis)²),
+/// unless `--sifting` overrides it.
+#[test]
+fn keyrate_sifting_follows_the_setup_basis_choice() {
+    let dir = tempfile::tempdir().unwrap();
+    std::fs::write(
+        dir.path().join("l.toml"),
+        "basis_z_probability = 0.9\n[source]\nkind = \"weak-coherent\"\nintensity = 0.5\n[channel]\nlength_km = 10\nattenuation_db_per_km = 0.2\n",
+    )
+    .unwrap();
+    for (extra, q) in [(vec![], "q = 0.82"), (vec!["--sifting", "0.5"], "q = 0.5")] {
+        let out = std::process::Command::new(env!("CARGO_BIN_EXE_qkd-audit"))
+            .current_dir(dir.path())
+            .args([&["keyrate", "--setup", "l.toml", "--steps", "3"][..], &extra[..]].concat())
+            .output()
+            .unwrap();
+        assert_eq!(out.status.code(), Some(0));
+        let err = String::from_utf8_lossy(&out.stderr);
+        assert!(err.contains(q), "{q}: {err}");
+    }
+}

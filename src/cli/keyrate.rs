@@ -32,9 +32,11 @@ pub struct KeyrateArgs {
     /// Error-correction efficiency f (default: the setup's, or 1.22 with the default link).
     #[arg(long, value_name = "F")]
     pub f_ec: Option<f64>,
-    /// Sifting factor q: fraction of detections kept (½ for symmetric BB84).
-    #[arg(long, default_value_t = 0.5)]
-    pub sifting: f64,
+    /// Sifting factor q: fraction of detections kept (default: with --setup, the chance that
+    /// Alice's and Bob's bases match, Σ P(basis)², e.g. 0.82 for P(Z) = 0.9; otherwise ½, for
+    /// symmetric BB84).
+    #[arg(long)]
+    pub sifting: Option<f64>,
     /// Output CSV (default: stdout).
     #[arg(short, long, value_name = "FILE")]
     pub output: Option<PathBuf>,
@@ -54,7 +56,6 @@ pub struct KeyrateArgs {
 pub fn cmd_keyrate(a: KeyrateArgs) -> Result<Outcome> {
     use crate::exact::keyrate::{at_search_limit, max_distance, optimal_mu, rate_table, RateParams, RateRule, MU_MIN};
     use crate::protocol::optical::Link;
-    crate::error::check_range("--sifting", a.sifting, 1e-6, 1.0)?;
     crate::error::check_range("--from-km", a.from_km, 0.0, 1000.0)?;
     crate::error::check_range("--to-km", a.to_km, a.from_km, 1000.0)?;
     if a.steps == 0 || a.steps > 1_000_000 {
@@ -64,13 +65,16 @@ pub fn cmd_keyrate(a: KeyrateArgs) -> Result<Outcome> {
     let svg_target = a.svg.as_deref().map(|o| crate::output::prepare_file(o, a.force)).transpose()?;
     let csv_target = a.output.as_deref().map(|o| crate::output::prepare_file(o, a.force)).transpose()?;
     let html_target = a.html.as_deref().map(|o| crate::output::prepare_file(o, a.force)).transpose()?;
-    let (link, f_default) = match &a.setup {
+    let (link, f_default, sifting_default) = match &a.setup {
         Some(p) => {
             let s = crate::audit::setup::Setup::load(p)?;
-            (s.link, s.ec_efficiency)
+            let matched: f64 = s.basis_probabilities().iter().map(|p| p * p).sum();
+            (s.link, s.ec_efficiency, matched)
         }
-        None => (Link::reference_parameter_set(), 1.22),
+        None => (Link::reference_parameter_set(), 1.22, 0.5),
     };
+    let sifting = a.sifting.unwrap_or(sifting_default);
+    crate::error::check_range("--sifting", sifting, 1e-6, 1.0)?;
     if link.attenuation_db_per_km.is_none() {
         return Err(Error::input_key(
             "channel.attenuation_db_per_km",
@@ -90,7 +94,7 @@ pub fn cmd_keyrate(a: KeyrateArgs) -> Result<Outcome> {
         rules.push(RateRule::DecoyVacuumWeak);
     }
     crate::error::check_range("--mu-max", a.mu_max, 1e-3, 100.0)?;
-    let params = RateParams { sifting: a.sifting, f_ec, nu: if nu.is_finite() { nu } else { 0.0 }, mu_max: a.mu_max };
+    let params = RateParams { sifting, f_ec, nu: if nu.is_finite() { nu } else { 0.0 }, mu_max: a.mu_max };
     // A single-photon source has no intensity to set or optimise.
     let mu = if a.optimize_mu || ints.is_empty() { None } else { Some(ints[0].0) };
     let distances: Vec<f64> = if a.steps == 1 {
@@ -135,7 +139,7 @@ pub fn cmd_keyrate(a: KeyrateArgs) -> Result<Outcome> {
         } else {
             format!("μ = {}", ints[0].0)
         },
-        a.sifting
+        crate::exact::sweep::fmt_num(sifting)
     );
     for &rule in &rules {
         let d = max_distance(rule, &link, mu, &params)?;
