@@ -72,6 +72,29 @@ pub enum Scale {
     Log,
 }
 
+impl Scale {
+    /// The value at position `t` ∈ [0, 1] between `from` and `to` on this scale (the ends
+    /// exactly), rounded to an integer when `integer`. Setup sweeps and the tolerance search
+    /// both step through setup keys this way.
+    pub fn interpolate(self, from: f64, to: f64, t: f64, integer: bool) -> f64 {
+        let x = if t <= 0.0 {
+            from
+        } else if t >= 1.0 {
+            to
+        } else {
+            match self {
+                Scale::Linear => from + (to - from) * t,
+                Scale::Log => (from.ln() + (to.ln() - from.ln()) * t).exp(),
+            }
+        };
+        if integer {
+            x.round()
+        } else {
+            x
+        }
+    }
+}
+
 /// A sweep of one numeric setup key.
 #[derive(Clone, Debug, PartialEq)]
 pub struct SetupSweep {
@@ -95,22 +118,7 @@ impl SetupSweep {
 
     fn value_at(&self, i: usize) -> f64 {
         let n = self.steps.max(2) - 1;
-        let x = if i == 0 {
-            self.from
-        } else if i == n {
-            self.to
-        } else {
-            let t = i as f64 / n as f64;
-            match self.scale {
-                Scale::Linear => self.from + (self.to - self.from) * t,
-                Scale::Log => (self.from.ln() + (self.to.ln() - self.from.ln()) * t).exp(),
-            }
-        };
-        if self.key.integer {
-            x.round()
-        } else {
-            x
-        }
+        self.scale.interpolate(self.from, self.to, i as f64 / n as f64, self.key.integer)
     }
 }
 

@@ -176,21 +176,7 @@ impl Spec {
 
     /// The value at position `t` ∈ [0, 1] of the range on its scale, rounded for integer keys.
     fn value_at(&self, t: f64) -> f64 {
-        let x = if t <= 0.0 {
-            self.from
-        } else if t >= 1.0 {
-            self.to
-        } else {
-            match self.scale {
-                Scale::Linear => self.from + (self.to - self.from) * t,
-                Scale::Log => (self.from.ln() + (self.to.ln() - self.from.ln()) * t).exp(),
-            }
-        };
-        if self.key.integer {
-            x.round()
-        } else {
-            x
-        }
+        self.scale.interpolate(self.from, self.to, t, self.key.integer)
     }
 }
 

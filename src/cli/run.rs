@@ -193,27 +193,7 @@ pub fn cmd_run(a: RunArgs) -> Result<Outcome> {
     if let Some(b) = &bar {
         b.finish_and_clear();
     }
-    let manifest = Manifest {
-        tool: "qkd-audit",
-        version: env!("CARGO_PKG_VERSION"),
-        command_line: std::env::args().collect(),
-        campaign: campaign.name.clone(),
-        seed: campaign.seed,
-        trials: campaign.trials,
-        sampler: campaign.sampler,
-        inputs: campaign.inputs.iter().map(|(o, t)| InputHash { origin: o.clone(), sha256: sha256_hex(t) }).collect(),
-        started_unix_s: started.duration_since(std::time::UNIX_EPOCH).map(|d| d.as_secs()).unwrap_or(0),
-        elapsed_s: clock.elapsed().as_secs_f64(),
-        threads: pool.current_num_threads(),
-        rule_programs: campaign
-            .rules
-            .iter()
-            .filter_map(|r| match r {
-                crate::audit::rules::Rule::Program(p) => Some(p.provenance()),
-                _ => None,
-            })
-            .collect(),
-    };
+    let manifest = manifest_of(&campaign, started, clock.elapsed().as_secs_f64(), pool.current_num_threads());
     finish(&a, &campaign, &dir, folder, &results, &manifest, &logs)
 }
 
@@ -282,7 +262,14 @@ pub fn merge_run(a: RunArgs, parts: Vec<Partial>, output: Option<PathBuf>, force
     }
     // The engine's order: entry, then rule, then point.
     results.sort_by_key(|r| (r.entry, campaign.rules.iter().position(|x| *x == r.rule).unwrap_or(0), r.index));
-    let manifest = Manifest {
+    // Sharded runs refuse rule programs (see the shard branch of `cmd_run`), so none is recorded.
+    let manifest = manifest_of(&campaign, started, elapsed_s, rayon::current_num_threads());
+    finish(&a, &campaign, &dir, folder, &results, &manifest, &[])
+}
+
+/// The manifest of a campaign run (or of merged shards) that started at `started`.
+fn manifest_of(campaign: &Campaign, started: std::time::SystemTime, elapsed_s: f64, threads: usize) -> Manifest {
+    Manifest {
         tool: "qkd-audit",
         version: env!("CARGO_PKG_VERSION"),
         command_line: std::env::args().collect(),
@@ -293,9 +280,14 @@ pub fn merge_run(a: RunArgs, parts: Vec<Partial>, output: Option<PathBuf>, force
         inputs: campaign.inputs.iter().map(|(o, t)| InputHash { origin: o.clone(), sha256: sha256_hex(t) }).collect(),
         started_unix_s: started.duration_since(std::time::UNIX_EPOCH).map(|d| d.as_secs()).unwrap_or(0),
         elapsed_s,
-        threads: rayon::current_num_threads(),
-        // Sharded runs refuse rule programs (see the shard branch of `cmd_run`).
-        rule_programs: Vec::new(),
-    };
-    finish(&a, &campaign, &dir, folder, &results, &manifest, &[])
+        threads,
+        rule_programs: campaign
+            .rules
+            .iter()
+            .filter_map(|r| match r {
+                crate::audit::rules::Rule::Program(p) => Some(p.provenance()),
+                _ => None,
+            })
+            .collect(),
+    }
 }

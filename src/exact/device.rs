@@ -63,12 +63,12 @@
 use crate::attack::device::DeviceAttack;
 use crate::error::{Error, ErrorKind, Result};
 use crate::exact::bounds::{six_state_entropy, six_state_weights};
-use crate::exact::eval::{check_no_nan, clamp_probability, EvalOptions, Evaluation, BOUND_SLACK, ROUNDING_SLACK};
+use crate::exact::eval::{accessible_pair, check_no_nan, clamp_probability, snap, EvalOptions, Evaluation, BOUND_SLACK, ROUNDING_SLACK};
 use crate::exact::signal::{cell, SignalModel};
 use crate::numeric::linalg::{c, hermitian_eigen, CMat};
 use crate::protocol::detector::{DetectorFlaws, BOB_DIM};
 use crate::protocol::{Basis, Protocol};
-use crate::quantum::measures::{accessible_information, binary_entropy, mutual_information, trace_norm, von_neumann_entropy};
+use crate::quantum::measures::{binary_entropy, mutual_information, trace_norm, von_neumann_entropy};
 
 /// Below this probability of a click in a sifted round the attack leaves nothing to judge:
 /// the evaluation is an error rather than a ratio of rounding noise.
@@ -210,15 +210,8 @@ pub fn evaluate_device(
         }
         _ => (1.0 - hx - hz, z.h_x_given_e - (1.0 - hx)),
     };
-    let (accessible_z, accessible_x, accessible_converged, accessible_gap) = match &opts.accessible {
-        Some(acc) => {
-            let az = accessible_information(&z.priors, &z.ens, acc)?;
-            let ax = accessible_information(&x.priors, &x.ens, acc)?;
-            let gap = az.upper_bound.zip(ax.upper_bound).map(|(uz, ux)| snap((uz - az.bits).max(ux - ax.bits), 0.0, f64::INFINITY));
-            (Some(snap(az.bits, 0.0, 1.0)), Some(snap(ax.bits, 0.0, 1.0)), Some(az.converged && ax.converged), gap)
-        }
-        None => (None, None, None, None),
-    };
+    let (accessible_z, accessible_x, accessible_converged, accessible_gap) =
+        accessible_pair((&z.priors, &z.ens), (&x.priors, &x.ens), opts.accessible.as_ref())?;
     let evaluation = Evaluation {
         qber_z: z.qber,
         qber_x: x.qber,
@@ -306,16 +299,6 @@ pub fn evaluate_device(
     }
     let model = SignalModel { bases, basis_prob: basis_prob.to_vec(), cells, detection: Some(detection), alarm_odds };
     Ok(DevicePoint { evaluation, model, detection_ratio: p_click, alarm_odds, note: note.join("; ") })
-}
-
-fn snap(x: f64, lo: f64, hi: f64) -> f64 {
-    if (x - lo).abs() <= ROUNDING_SLACK {
-        lo
-    } else if (x - hi).abs() <= ROUNDING_SLACK {
-        hi
-    } else {
-        x
-    }
 }
 
 /// The error a device attack gives where a setup's link cannot carry it.

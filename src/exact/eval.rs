@@ -62,7 +62,7 @@ pub fn clamp_probability(name: &str, p: f64) -> Result<f64> {
 }
 
 /// Snaps `x` to `lo` or `hi` when it lies within [`ROUNDING_SLACK`] of either.
-fn snap(x: f64, lo: f64, hi: f64) -> f64 {
+pub fn snap(x: f64, lo: f64, hi: f64) -> f64 {
     if (x - lo).abs() <= ROUNDING_SLACK {
         lo
     } else if (x - hi).abs() <= ROUNDING_SLACK {
@@ -70,6 +70,22 @@ fn snap(x: f64, lo: f64, hi: f64) -> f64 {
     } else {
         x
     }
+}
+
+/// The accessible information of Eve's Z and X ensembles (priors, states) when `acc` asks
+/// for it: each snapped to [0, 1] within the rounding slack, whether both searches
+/// converged, and the larger of the two certified gaps. All `None` without `acc`.
+#[allow(clippy::type_complexity)]
+pub fn accessible_pair(
+    z: (&[f64], &[CMat]),
+    x: (&[f64], &[CMat]),
+    acc: Option<&AccessibleOptions>,
+) -> Result<(Option<f64>, Option<f64>, Option<bool>, Option<f64>)> {
+    let Some(acc) = acc else { return Ok((None, None, None, None)) };
+    let az = accessible_information(z.0, z.1, acc)?;
+    let ax = accessible_information(x.0, x.1, acc)?;
+    let gap = az.upper_bound.zip(ax.upper_bound).map(|(uz, ux)| snap((uz - az.bits).max(ux - ax.bits), 0.0, f64::INFINITY));
+    Ok((Some(snap(az.bits, 0.0, 1.0)), Some(snap(ax.bits, 0.0, 1.0)), Some(az.converged && ax.converged), gap))
 }
 
 /// Evaluation settings.
@@ -407,15 +423,8 @@ pub fn evaluate_unchecked(attack: &Attack, opts: &EvalOptions) -> Result<Evaluat
             (1.0 - h, h_x_given_e - (1.0 - h + hz))
         }
     };
-    let (accessible_z, accessible_x, accessible_converged, accessible_gap) = match &opts.accessible {
-        Some(acc) => {
-            let az = accessible_information(&[0.5, 0.5], &z.eve, acc)?;
-            let ax = accessible_information(&[0.5, 0.5], &x.eve, acc)?;
-            let gap = az.upper_bound.zip(ax.upper_bound).map(|(uz, ux)| snap((uz - az.bits).max(ux - ax.bits), 0.0, f64::INFINITY));
-            (Some(snap(az.bits, 0.0, 1.0)), Some(snap(ax.bits, 0.0, 1.0)), Some(az.converged && ax.converged), gap)
-        }
-        None => (None, None, None, None),
-    };
+    let (accessible_z, accessible_x, accessible_converged, accessible_gap) =
+        accessible_pair((&[0.5, 0.5], &z.eve), (&[0.5, 0.5], &x.eve), opts.accessible.as_ref())?;
     let eval = Evaluation {
         qber_z: z.qber,
         qber_x: x.qber,

@@ -4,18 +4,11 @@
 //! "Not caught" means the protocol aborted in at most half of the trials; "strongest"
 //! means the largest information of Eve about a key bit, 1 − H(X|E), among those points.
 
+use super::evidence::{bits, pct};
 use crate::audit::rules::KeyRule;
 use crate::audit::trial::Verdict;
 use crate::audit::{Campaign, PointResult};
 use std::fmt::Write;
-
-fn pct(x: f64) -> String {
-    if x.is_nan() {
-        "-".into()
-    } else {
-        format!("{:.1} %", 100.0 * x)
-    }
-}
 
 fn link_text(l: &crate::protocol::optical::Link) -> String {
     use crate::protocol::optical::Source;
@@ -37,27 +30,6 @@ fn link_text(l: &crate::protocol::optical::Link) -> String {
         if l.dark_count_probability == 0.0 { "0".to_string() } else { format!("{:e}", l.dark_count_probability) },
         l.misalignment
     )
-}
-
-/// A number of bits, rounded to the bit, with thin grouping for reading.
-fn bits(x: f64) -> String {
-    if !x.is_finite() {
-        return "-".into();
-    }
-    let n = x.round() as i128;
-    let digits = n.unsigned_abs().to_string();
-    let mut out = String::new();
-    for (i, ch) in digits.chars().enumerate() {
-        if i > 0 && (digits.len() - i) % 3 == 0 {
-            out.push('\u{202f}');
-        }
-        out.push(ch);
-    }
-    if n < 0 {
-        format!("−{out}")
-    } else {
-        out
-    }
 }
 
 /// A parameter value as a reader writes it: up to 6 significant digits, no float noise.
