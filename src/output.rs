@@ -114,6 +114,11 @@ pub fn prepare_file(path: &Path, force: bool) -> Result<FileGuard> {
 }
 
 impl FileGuard {
+    /// The file's final path.
+    pub fn path(&self) -> &Path {
+        &self.path
+    }
+
     /// Writes `bytes` and renames the file into place (replacing an existing one only if
     /// the guard was prepared with `force`).
     pub fn commit(mut self, bytes: &[u8]) -> Result<()> {

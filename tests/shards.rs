@@ -165,3 +165,147 @@ fn merge_refuses_missing_duplicate_and_mismatched_shards() {
     let e = refused(&["merge", "nowhere", "-o", "m.csv"], "no file");
     assert!(e.contains("nowhere"), "{e}");
 }
+
+/// A campaign whose abort-threshold search (with the arguments below) bisects, with values
+/// that need more than one look (a leak threshold of 10⁻³ needs 4400 trials to show a value
+/// safe), looks of several trial chunks (8800 trials) and an inconclusive value.
+const TOLERANCE_CAMPAIGN: &str = r#"
+name = "abort-threshold"
+seed = 4
+trials = 60
+[setup]
+signals = 1000000
+abort_qber = 0.05
+key_rule = "individual"
+[[attacks]]
+builtin = "phase-covariant-cloner"
+steps = 1
+from = 0.06
+"#;
+
+const TOLERANCE_ARGS: [&str; 17] = [
+    "tolerance",
+    "c.toml",
+    "--key",
+    "abort_qber",
+    "--from",
+    "0.04",
+    "--to",
+    "0.08",
+    "--bisections",
+    "5",
+    "--trials",
+    "1100",
+    "--max-trials",
+    "8800",
+    "--threshold",
+    "0.001",
+    "--json",
+];
+
+/// Runs rounds of `n` shards and merges until the merge writes `out`; gives the merge's
+/// output and the number of rounds.
+fn tolerance_rounds(dir: &Path, n: usize, shard_dir: &str, out: &str) -> (Output, usize) {
+    for round in 1..=40 {
+        shard_all(&TOLERANCE_ARGS, n, dir, shard_dir);
+        let merged = qkd(&["merge", shard_dir, "-o", out], dir);
+        assert!(matches!(merged.status.code(), Some(0 | 1)), "round {round}: {}", String::from_utf8_lossy(&merged.stderr));
+        if dir.join(out).exists() {
+            return (merged, round);
+        }
+        assert!(merged.stdout.is_empty(), "an unfinished search printed a result");
+        let err = String::from_utf8_lossy(&merged.stderr);
+        assert!(err.contains("needs next"), "{err}");
+    }
+    panic!("the search did not finish in 40 rounds");
+}
+
+#[test]
+fn tolerance_shards_merged_round_by_round_equal_the_single_search() {
+    let tmp = tempfile::tempdir().unwrap();
+    std::fs::write(tmp.path().join("c.toml"), TOLERANCE_CAMPAIGN).unwrap();
+    let mut single_args = TOLERANCE_ARGS.to_vec();
+    single_args.extend(["--evidence", "single.csv", "--quiet"]);
+    let single = qkd(&single_args, tmp.path());
+    assert_eq!(single.status.code(), Some(0), "{}", String::from_utf8_lossy(&single.stderr));
+    let single_csv = std::fs::read(tmp.path().join("single.csv")).unwrap();
+    let json: serde_json::Value = serde_json::from_slice(&single.stdout).unwrap();
+    let evaluations = json["evaluations"].as_array().unwrap();
+    // The search this test needs: bisections, and values that took more than one look.
+    assert!(evaluations.iter().any(|e| e["role"] == "bisection"), "{json}");
+    assert!(evaluations.iter().any(|e| e["looks"].as_u64().unwrap() > 1), "{json}");
+    assert!(evaluations.iter().any(|e| e["attacks"][0]["trials"].as_u64().unwrap() > 4096), "no look of several chunks: {json}");
+    // 1, 3 and 40 shards (40 is more than any round's units: 1 point × 1–3 chunks per look).
+    for n in [1, 3, 40] {
+        let (sd, out) = (format!("s{n}"), format!("merged-{n}.csv"));
+        let (merged, rounds) = tolerance_rounds(tmp.path(), n, &sd, &out);
+        assert!(rounds > 2, "N = {n}: {rounds} rounds");
+        assert_eq!(merged.status.code(), single.status.code(), "N = {n}");
+        assert_eq!(String::from_utf8_lossy(&merged.stdout), String::from_utf8_lossy(&single.stdout), "N = {n}");
+        assert_eq!(std::fs::read(tmp.path().join(&out)).unwrap(), single_csv, "N = {n}");
+        // The merged partials are gone; the state says the search is finished.
+        let left: Vec<_> = files(&tmp.path().join(&sd)).into_keys().collect();
+        assert_eq!(left, vec![PathBuf::from("tolerance-state.toml")], "N = {n}");
+        let state = std::fs::read_to_string(tmp.path().join(&sd).join("tolerance-state.toml")).unwrap();
+        assert!(state.contains("finished = true"), "{state}");
+        // A shard after the end has nothing to do and writes nothing.
+        let mut again = TOLERANCE_ARGS.to_vec();
+        again.extend(["--shard", "1/3", "--shard-dir", &sd]);
+        let out = qkd(&again, tmp.path());
+        ok(&out);
+        assert!(String::from_utf8_lossy(&out.stderr).contains("complete"), "{}", String::from_utf8_lossy(&out.stderr));
+        assert_eq!(files(&tmp.path().join(&sd)).len(), 1);
+    }
+}
+
+#[test]
+fn tolerance_merges_refuse_stale_foreign_and_incomplete_rounds() {
+    let tmp = tempfile::tempdir().unwrap();
+    let dir = tmp.path();
+    std::fs::write(dir.join("c.toml"), TOLERANCE_CAMPAIGN).unwrap();
+    let refused = |args: &[&str], what: &str| {
+        let out = qkd(args, dir);
+        assert_eq!(out.status.code(), Some(2), "{what}: {}", String::from_utf8_lossy(&out.stderr));
+        assert!(!dir.join("m.csv").exists(), "{what}: a result was written");
+        String::from_utf8_lossy(&out.stderr).to_string()
+    };
+    shard_all(&TOLERANCE_ARGS, 2, dir, "sd");
+    let state = dir.join("sd/tolerance-state.toml");
+    // A missing shard: refused, and nothing is merged.
+    let e = refused(&["merge", "sd/tolerance-shard-1-of-2.toml", "-o", "m.csv"], "missing");
+    assert!(e.contains("missing shard(s) 2/2"), "{e}");
+    assert!(!state.exists());
+    // Keep a copy of round 1, merge it, then offer the copy again: left over.
+    std::fs::create_dir(dir.join("old")).unwrap();
+    for k in 1..=2 {
+        let name = format!("tolerance-shard-{k}-of-2.toml");
+        std::fs::copy(dir.join("sd").join(&name), dir.join("old").join(&name)).unwrap();
+    }
+    ok(&qkd(&["merge", "sd", "-o", "m.csv"], dir));
+    assert!(state.exists() && !dir.join("m.csv").exists());
+    let before = std::fs::read(&state).unwrap();
+    for k in 1..=2 {
+        let name = format!("tolerance-shard-{k}-of-2.toml");
+        std::fs::copy(dir.join("old").join(&name), dir.join("sd").join(&name)).unwrap();
+    }
+    let e = refused(&["merge", "sd", "-o", "m.csv"], "stale");
+    assert!(e.contains("left over from an earlier round"), "{e}");
+    assert_eq!(std::fs::read(&state).unwrap(), before, "a refused merge changed the state");
+    // Partials of one search must sit beside its state.
+    let e = refused(&["merge", "old/tolerance-shard-1-of-2.toml", "sd/tolerance-shard-2-of-2.toml", "-o", "m.csv"], "folders");
+    assert!(e.contains("one --shard-dir"), "{e}");
+    // A shard of another search in the same folder: refused before any work.
+    let mut other = TOLERANCE_ARGS.to_vec();
+    other[9] = "4";
+    other.extend(["--shard", "1/2", "--shard-dir", "sd", "--force"]);
+    let e = refused(&other, "foreign");
+    assert!(e.contains("another search"), "{e}");
+    // A rule file is not sharded.
+    std::fs::write(dir.join("fu.toml"), "name = \"zero\"\nkey_length = \"0\"\n").unwrap();
+    std::fs::write(dir.join("r.toml"), TOLERANCE_CAMPAIGN.replace("key_rule = \"individual\"", "key_rule = \"file:fu.toml\"")).unwrap();
+    let mut rule_file = TOLERANCE_ARGS.to_vec();
+    rule_file[1] = "r.toml";
+    rule_file.extend(["--shard", "1/2", "--shard-dir", "rf"]);
+    let e = refused(&rule_file, "rule file");
+    assert!(e.contains("--shard") && e.contains("built-in rules only"), "{e}");
+}

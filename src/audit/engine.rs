@@ -101,6 +101,73 @@ pub fn run_points(
     progress: &(dyn Fn() + Sync),
     keep: &(dyn Fn(u64) -> bool + Sync),
 ) -> Result<(Vec<PointResult>, Vec<ProgramLog>)> {
+    let prepared = prepare(c, keep)?;
+    let (per_point, logs) = for_each_point(c, &prepared, progress, &|p, sessions| run_point(c, p, sessions))?;
+    // Rule-major order within each entry keeps each attack's sweep together per rule.
+    let mut out: Vec<PointResult> = per_point.into_iter().flatten().collect();
+    out.sort_by_key(|r| (r.entry, c.rules.iter().position(|x| *x == r.rule).unwrap_or(0), r.index));
+    Ok((out, logs))
+}
+
+/// The counts of one work unit of [`run_units`]: one chunk of one point's trials, under
+/// every rule of the campaign.
+#[derive(Clone, Debug, serde::Serialize, serde::Deserialize)]
+pub struct UnitCounts {
+    /// Index of the point in the campaign.
+    pub point: u64,
+    /// Index of the chunk: trials `chunk · CHUNK_TRIALS ..` of the point.
+    pub chunk: u64,
+    /// The point's attack label.
+    pub attack: String,
+    /// The point's resolved attack parameters, `name=value;…` (as in the results tables).
+    pub params: String,
+    /// The chunk's counts, one per rule of the campaign (in its order).
+    pub counts: Vec<stats::Counts>,
+}
+
+/// Number of trial chunks of each point: ⌈trials / [`CHUNK_TRIALS`]⌉.
+pub fn chunk_count(c: &Campaign) -> u64 {
+    c.trials.div_ceil(CHUNK_TRIALS)
+}
+
+/// Runs only the (point, chunk) work units that `keep` accepts and gives their integer
+/// counts, point by point and chunk by chunk in order. Each trial keeps its random stream
+/// (the point's index and the trial's), so the counts of a unit are the same whichever
+/// process computes it, and adding the units' counts gives the whole campaign's (the
+/// tolerance search's shards). Rule programs are asked in point, then trial order.
+pub fn run_units(c: &Campaign, keep: &(dyn Fn(u64, u64) -> bool + Sync)) -> Result<Vec<UnitCounts>> {
+    let chunks = chunk_count(c);
+    let prepared = prepare(c, &|point| (0..chunks).any(|chunk| keep(point, chunk)))?;
+    let work = |p: &Prepared, sessions: &mut [Option<Session>]| -> Result<Vec<UnitCounts>> {
+        let mut units = Vec::new();
+        for chunk in (0..chunks).filter(|&chunk| keep(p.index as u64, chunk)) {
+            let start = chunk * CHUNK_TRIALS;
+            let outcomes = judge_chunk(c, p, sessions, start, (start + CHUNK_TRIALS).min(c.trials))?;
+            let counts = outcomes
+                .iter()
+                .map(|rule_outcomes| {
+                    let mut k = stats::Counts::default();
+                    rule_outcomes.iter().for_each(|o| k.add(o));
+                    k
+                })
+                .collect();
+            units.push(UnitCounts {
+                point: p.index as u64,
+                chunk,
+                attack: p.attack_entry.label.clone(),
+                params: super::report::params_string(&p.params),
+                counts,
+            });
+        }
+        Ok(units)
+    };
+    let (per_point, _logs) = for_each_point(c, &prepared, &|| {}, &work)?;
+    Ok(per_point.into_iter().flatten().collect())
+}
+
+/// Builds the points whose campaign index `keep` accepts: their attacks, exact quantities
+/// and the models to sample.
+fn prepare<'a>(c: &'a Campaign, keep: &(dyn Fn(u64) -> bool + Sync)) -> Result<Vec<Prepared<'a>>> {
     let mut jobs = Vec::new();
     for (ei, entry) in c.attacks.iter().enumerate() {
         for (swept, overrides) in entry.points() {
@@ -110,8 +177,7 @@ pub fn run_points(
         }
     }
     let jobs: Vec<_> = jobs.into_iter().enumerate().filter(|(index, _)| keep(*index as u64)).collect();
-    let prepared: Vec<Prepared> = jobs
-        .par_iter()
+    jobs.par_iter()
         .map(|(index, (ei, entry, swept, overrides, si))| {
             let index = *index;
             let setup = &c.setups[*si].setup;
@@ -159,100 +225,55 @@ pub fn run_points(
             };
             Ok(Prepared { index, entry: *ei, attack_entry: entry, swept: swept.clone(), setup: *si, family, params, exact, model, note })
         })
-        .collect::<Result<_>>()?;
+        .collect::<Result<_>>()
+}
+
+/// Runs `work` on every prepared point and gives its results in point order, with the
+/// logs of the rule programs. With a rule program the points run one after the other (the
+/// program sees point, then trial order) and `work` gets the running programs; otherwise
+/// points run in parallel and `work` gets none.
+fn for_each_point<T: Send>(
+    c: &Campaign,
+    prepared: &[Prepared],
+    progress: &(dyn Fn() + Sync),
+    work: &(dyn Fn(&Prepared, &mut [Option<Session>]) -> Result<T> + Sync),
+) -> Result<(Vec<T>, Vec<ProgramLog>)> {
     let has_program = c.rules.iter().any(|r| matches!(r, Rule::Program(_)));
-    let (per_point, logs): (Vec<Vec<PointResult>>, Vec<ProgramLog>) = if has_program {
-        // A program is asked in one deterministic order (point, then trial): points run
-        // one after the other, each point's trials in parallel.
+    if has_program {
         let mut sessions: Vec<Option<Session>> =
             c.rules.iter().map(|r| if let Rule::Program(p) = r { p.start().map(Some) } else { Ok(None) }).collect::<Result<_>>()?;
         let results = prepared
             .iter()
             .map(|p| {
-                let r = run_point(c, p, &mut sessions);
+                let r = work(p, &mut sessions);
                 progress();
                 r
             })
             .collect::<Result<Vec<_>>>()?;
         let logs = sessions.into_iter().flatten().map(Session::finish).collect::<Result<Vec<_>>>()?;
-        (results, logs)
+        Ok((results, logs))
     } else {
         let results = prepared
             .par_iter()
             .map(|p| {
-                let r = run_point(c, p, &mut Vec::new());
+                let r = work(p, &mut []);
                 progress();
                 r
             })
             .collect::<Result<Vec<_>>>()?;
-        (results, Vec::new())
-    };
-    // Rule-major order within each entry keeps each attack's sweep together per rule.
-    let mut out: Vec<PointResult> = per_point.into_iter().flatten().collect();
-    out.sort_by_key(|r| (r.entry, c.rules.iter().position(|x| *x == r.rule).unwrap_or(0), r.index));
-    Ok((out, logs))
+        Ok((results, Vec::new()))
+    }
 }
 
 /// Samples and judges every trial of one point, chunk by chunk, under every rule;
 /// `sessions[i]` is the running program of rule i, if it is one.
 fn run_point(c: &Campaign, p: &Prepared, sessions: &mut [Option<Session>]) -> Result<Vec<PointResult>> {
-    let setup = &c.setups[p.setup].setup;
-    let rule_params = setup.rule_params();
-    let test_size = |z: u64| setup.test_sample.size(z);
-    let h = p.exact.h_x_given_e;
     let mut tallies: Vec<stats::Tally> = c.rules.iter().map(|_| stats::Tally::with_capacity(c.trials)).collect();
     let mut start = 0;
     while start < c.trials {
         let end = (start + CHUNK_TRIALS).min(c.trials);
-        let blocks: Vec<(BlockCounts, BlockStats)> = (start..end)
-            .into_par_iter()
-            .map(|t| {
-                let mut rng = trial_rng(c.seed, p.index as u64, t);
-                let counts = match &p.model {
-                    PointModel::Qubit(m) => sample_block(c.sampler, m, setup.signals, &test_size, &mut rng),
-                    PointModel::Pulse(m) => crate::audit::sample::pulses::sample(m, setup.signals, &test_size, &mut rng),
-                };
-                let stats = trial::block_stats(&counts);
-                (counts, stats)
-            })
-            .collect();
-        let id = |i: usize| TrialId { point: p.index as u64, trial: start + i as u64 };
-        for (ri, rule) in c.rules.iter().enumerate() {
-            let answers: Vec<Option<RuleAnswer>> = match (rule, sessions.get_mut(ri).and_then(Option::as_mut)) {
-                (Rule::Program(_), Some(session)) => {
-                    let asked: Vec<(TrialId, &BlockStats, &RuleParams)> = blocks
-                        .iter()
-                        .enumerate()
-                        .filter(|(_, (_, s))| !trial::is_empty(s))
-                        .map(|(i, (_, s))| (id(i), s, &rule_params))
-                        .collect();
-                    let mut given = session.ask(&asked)?.into_iter();
-                    blocks
-                        .iter()
-                        .map(|(_, s)| {
-                            (!trial::is_empty(s)).then(|| given.next().map(|a| RuleAnswer { abort: a.abort, length: a.length })).flatten()
-                        })
-                        .collect()
-                }
-                _ => blocks
-                    .par_iter()
-                    .enumerate()
-                    .map(|(i, (_, s))| {
-                        if trial::is_empty(s) {
-                            return Ok(None);
-                        }
-                        rule.answer(s, &rule_params, trial::threshold_aborts(s, &rule_params))
-                            .map(Some)
-                            .map_err(|m| Error::new(ErrorKind::NotANumber, format!("{m}, at {} ({})", id(i), p.attack_entry.label)))
-                    })
-                    .collect::<Result<_>>()?,
-            };
-            let outcomes: Vec<trial::TrialOutcome> = blocks
-                .par_iter()
-                .zip(answers)
-                .map(|((counts, s), answer)| trial::judge_answer(counts, *s, answer, &rule_params, h))
-                .collect();
-            outcomes.iter().for_each(|o| tallies[ri].add(o));
+        for (tally, outcomes) in tallies.iter_mut().zip(judge_chunk(c, p, sessions, start, end)?) {
+            outcomes.iter().for_each(|o| tally.add(o));
         }
         start = end;
     }
@@ -278,6 +299,71 @@ fn run_point(c: &Campaign, p: &Prepared, sessions: &mut [Option<Session>]) -> Re
             stats: tally.finish(),
         })
         .collect())
+}
+
+/// Samples trials `start..end` of one point in parallel (each from its own stream), asks
+/// every rule (a rule program in one batch round trip) and judges the blocks: the outcomes
+/// per rule, in trial order.
+fn judge_chunk(
+    c: &Campaign,
+    p: &Prepared,
+    sessions: &mut [Option<Session>],
+    start: u64,
+    end: u64,
+) -> Result<Vec<Vec<trial::TrialOutcome>>> {
+    let setup = &c.setups[p.setup].setup;
+    let rule_params = setup.rule_params();
+    let test_size = |z: u64| setup.test_sample.size(z);
+    let h = p.exact.h_x_given_e;
+    let blocks: Vec<(BlockCounts, BlockStats)> = (start..end)
+        .into_par_iter()
+        .map(|t| {
+            let mut rng = trial_rng(c.seed, p.index as u64, t);
+            let counts = match &p.model {
+                PointModel::Qubit(m) => sample_block(c.sampler, m, setup.signals, &test_size, &mut rng),
+                PointModel::Pulse(m) => crate::audit::sample::pulses::sample(m, setup.signals, &test_size, &mut rng),
+            };
+            let stats = trial::block_stats(&counts);
+            (counts, stats)
+        })
+        .collect();
+    let id = |i: usize| TrialId { point: p.index as u64, trial: start + i as u64 };
+    let mut per_rule = Vec::with_capacity(c.rules.len());
+    for (ri, rule) in c.rules.iter().enumerate() {
+        let answers: Vec<Option<RuleAnswer>> = match (rule, sessions.get_mut(ri).and_then(Option::as_mut)) {
+            (Rule::Program(_), Some(session)) => {
+                let asked: Vec<(TrialId, &BlockStats, &RuleParams)> = blocks
+                    .iter()
+                    .enumerate()
+                    .filter(|(_, (_, s))| !trial::is_empty(s))
+                    .map(|(i, (_, s))| (id(i), s, &rule_params))
+                    .collect();
+                let mut given = session.ask(&asked)?.into_iter();
+                blocks
+                    .iter()
+                    .map(|(_, s)| {
+                        (!trial::is_empty(s)).then(|| given.next().map(|a| RuleAnswer { abort: a.abort, length: a.length })).flatten()
+                    })
+                    .collect()
+            }
+            _ => blocks
+                .par_iter()
+                .enumerate()
+                .map(|(i, (_, s))| {
+                    if trial::is_empty(s) {
+                        return Ok(None);
+                    }
+                    rule.answer(s, &rule_params, trial::threshold_aborts(s, &rule_params))
+                        .map(Some)
+                        .map_err(|m| Error::new(ErrorKind::NotANumber, format!("{m}, at {} ({})", id(i), p.attack_entry.label)))
+                })
+                .collect::<Result<_>>()?,
+        };
+        per_rule.push(
+            blocks.par_iter().zip(answers).map(|((counts, s), answer)| trial::judge_answer(counts, *s, answer, &rule_params, h)).collect(),
+        );
+    }
+    Ok(per_rule)
 }
 
 /// Number of points a campaign will run.

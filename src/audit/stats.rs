@@ -233,10 +233,6 @@ impl Tally {
         let leaks = self.count(Verdict::Leak);
         let frac = |k: u64| if t == 0 { f64::NAN } else { k as f64 / t as f64 };
         let class = |k: u64| if self.class_total == 0 { f64::NAN } else { k as f64 / self.class_total as f64 };
-        let present: Vec<Verdict> = [Verdict::Aborted, Verdict::NoKey, Verdict::Secure, Verdict::Inconclusive, Verdict::Leak]
-            .into_iter()
-            .filter(|v| self.count(*v) > 0)
-            .collect();
         self.lengths.sort_unstable();
         PointStats {
             trials: t,
@@ -268,9 +264,85 @@ impl Tally {
                 rule: frac(self.abort_reasons[2]),
                 qber: [frac(self.abort_reasons[3]), frac(self.abort_reasons[4]), frac(self.abort_reasons[5])],
             },
-            // Which verdicts occurred is all the point's verdict depends on.
-            verdict: point_verdict(present.iter().copied()),
+            verdict: verdict_of(&self.verdicts),
         }
+    }
+}
+
+/// The integer evidence of some trials of one point under one rule: the trials, their
+/// verdicts and the sum of their key lengths. Counts add exactly, in any order, so the
+/// counts of a point's trial chunks computed by separate processes (`tolerance --shard`)
+/// add up to the counts of the whole point, bit for bit.
+#[derive(Clone, Copy, Debug, Default, PartialEq, Eq, Serialize, Deserialize)]
+pub struct Counts {
+    /// Trials counted.
+    pub trials: u64,
+    /// Trials by verdict: aborted, no key, secure, inconclusive, leak.
+    pub verdicts: [u64; 5],
+    /// Sum of the extracted key lengths (aborts count 0), bits; as text in files, since
+    /// it can exceed 2⁶⁴ (10⁶ trials of 10¹⁵-bit keys).
+    #[serde(with = "u128_text")]
+    pub key_length_sum: u128,
+}
+
+impl Counts {
+    /// Adds one trial.
+    pub fn add(&mut self, o: &TrialOutcome) {
+        self.trials += 1;
+        self.verdicts[verdict_index(o.verdict)] += 1;
+        self.key_length_sum += u128::from(o.length);
+    }
+
+    /// Adds the counts of other trials of the same point.
+    pub fn merge(&mut self, other: &Counts) {
+        self.trials += other.trials;
+        for (a, b) in self.verdicts.iter_mut().zip(other.verdicts) {
+            *a += b;
+        }
+        self.key_length_sum += other.key_length_sum;
+    }
+
+    /// Trials with verdict `v`.
+    pub fn count(&self, v: Verdict) -> u64 {
+        self.verdicts[verdict_index(v)]
+    }
+
+    /// Mean key length over the trials, bits (NaN without trials).
+    pub fn key_length_mean(&self) -> f64 {
+        if self.trials == 0 {
+            f64::NAN
+        } else {
+            self.key_length_sum as f64 / self.trials as f64
+        }
+    }
+
+    /// The point's verdict ([`point_verdict`] of the verdicts that occurred).
+    pub fn verdict(&self) -> Verdict {
+        verdict_of(&self.verdicts)
+    }
+}
+
+/// The point's verdict from its counts by verdict (in [`verdict_index`] order): which
+/// verdicts occurred is all it depends on.
+fn verdict_of(counts: &[u64; 5]) -> Verdict {
+    let present: Vec<Verdict> = [Verdict::Aborted, Verdict::NoKey, Verdict::Secure, Verdict::Inconclusive, Verdict::Leak]
+        .into_iter()
+        .filter(|v| counts[verdict_index(*v)] > 0)
+        .collect();
+    point_verdict(present.iter().copied())
+}
+
+/// A `u128` as a decimal string (TOML integers stop at 2⁶³ − 1).
+mod u128_text {
+    use serde::{Deserialize, Deserializer, Serializer};
+
+    pub fn serialize<S: Serializer>(x: &u128, s: S) -> Result<S::Ok, S::Error> {
+        s.serialize_str(&x.to_string())
+    }
+
+    pub fn deserialize<'de, D: Deserializer<'de>>(d: D) -> Result<u128, D::Error> {
+        let text = String::deserialize(d)?;
+        text.parse().map_err(|_| serde::de::Error::custom(format!("`{text}` is not a whole number of bits")))
     }
 }
 

@@ -40,13 +40,15 @@
 //! look (see [`value_seed`]), never on the order of evaluation or the thread count.
 
 use super::campaign::{Campaign, PointSetup, Scale};
-use super::engine::{run, PointResult};
+use super::engine::{run_units, UnitCounts, CHUNK_TRIALS};
 use super::rules::Rule;
 use super::setup::{Setup, SetupKey};
+use super::stats::Counts;
+use super::trial::Verdict;
 use crate::error::{Error, Result};
 use crate::numeric::rng::trial_rng;
 use rand::RngCore;
-use serde::Serialize;
+use serde::{Deserialize, Serialize};
 
 /// What the search looks for.
 #[derive(Clone, Copy, Debug, PartialEq, Eq, Serialize)]
@@ -309,9 +311,88 @@ pub fn value_seed(seed: u64, value: f64, look: u32, configured: bool) -> u64 {
     trial_rng(seed, value.to_bits(), stream).next_u64()
 }
 
+/// One look of the search: the first `trials · 2^look` trials of every attack point at one
+/// value (look 0 has `trials`).
+#[derive(Clone, Copy, Debug, PartialEq, Serialize, Deserialize)]
+pub struct LookId {
+    /// The searched key's value (absent for a configured setup without the key).
+    pub value: Option<f64>,
+    /// Whether this is the configured setup's own point.
+    pub configured: bool,
+    /// The look's number, from 0.
+    pub look: u32,
+}
+
+impl LookId {
+    /// Trials of every attack point at this look.
+    pub fn trials(&self, spec: &Spec) -> u64 {
+        spec.trials << self.look
+    }
+}
+
+impl std::fmt::Display for LookId {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        match (self.value, self.configured) {
+            (Some(v), false) => write!(f, "look {} at {}", self.look + 1, num(v)),
+            (Some(v), true) => write!(f, "look {} at the configured {}", self.look + 1, num(v)),
+            (None, _) => write!(f, "look {} at the configured setup", self.look + 1),
+        }
+    }
+}
+
+/// One attack point's counts at one look.
+#[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
+pub struct PointCounts {
+    /// The attack's label.
+    pub attack: String,
+    /// Its parameters, `name=value;…`.
+    pub params: String,
+    /// The point's trials under the searched rule.
+    pub counts: Counts,
+}
+
+/// A finished look: every attack point's counts, in campaign order.
+#[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
+pub struct Look {
+    /// Which look.
+    pub id: LookId,
+    /// Every attack point's counts.
+    pub points: Vec<PointCounts>,
+}
+
+/// Where a search gets its looks.
+#[derive(Clone, Copy, Debug)]
+pub enum Looks<'a> {
+    /// Computed here, as the search needs them.
+    Compute,
+    /// Only these (a sharded search): the search stops at the first look it lacks.
+    Known(&'a [Look]),
+}
+
+/// How far a search got.
+#[derive(Clone, Debug)]
+pub enum Step {
+    /// Finished.
+    Done(Box<Report>),
+    /// It needs these looks next (with [`Looks::Known`] only). They do not depend on each
+    /// other, so they can be computed side by side.
+    Needs(Vec<LookId>),
+}
+
 /// Runs the search on the campaign's setup, attacks and sampler (its setup sweeps are not
 /// used; a campaign with any is refused). `progress` gets one line per classified value.
 pub fn search(c: &Campaign, spec: &Spec, progress: &(dyn Fn(&Evaluation) + Sync)) -> Result<Report> {
+    match search_with(c, spec, Looks::Compute, progress)? {
+        Step::Done(report) => Ok(*report),
+        Step::Needs(_) => unreachable!("a search that computes its looks never lacks one"),
+    }
+}
+
+/// The search, on looks it computes or on looks given (see [`Looks`]). With looks given,
+/// the three values every search classifies (both ends and the configured setup) are
+/// looked at first, so their looks are asked for together; after them each bisection step
+/// needs the one before.
+pub fn search_with(c: &Campaign, spec: &Spec, looks: Looks, progress: &(dyn Fn(&Evaluation) + Sync)) -> Result<Step> {
     spec.check()?;
     if !c.setup_sweeps.is_empty() {
         return Err(Error::input_key("setup_sweeps", "a tolerance search varies one key itself: remove the campaign's [[setup_sweeps]]"));
@@ -319,25 +400,51 @@ pub fn search(c: &Campaign, spec: &Spec, progress: &(dyn Fn(&Evaluation) + Sync)
     let points: usize = c.attacks.iter().map(|e| e.points().len()).sum();
     let alpha = 1.0 - spec.confidence;
     let level = alpha / (points as f64 * f64::from(spec.looks()));
-    let setup_at = |v: f64| -> Result<Setup> {
-        let s = c.setup.with_value(spec.key.name, v).map_err(|e| Error::input(format!("at {} = {v}: {e}", spec.key.name)))?;
-        s.check_rule(&spec.rule).map_err(|e| Error::input_key("--rule", format!("at {} = {v}: {e}", spec.key.name)))?;
-        Ok(s)
-    };
+    let setup_at = |v: f64| setup_at(c, spec, v);
     // Both ends are built first, so a range outside the key's allowed values fails at once.
     setup_at(spec.value_at(0.0))?;
     setup_at(spec.value_at(1.0))?;
-    let judge_value = |v: Option<f64>, setup: Setup, role: &'static str| -> Result<Evaluation> {
-        let e = classify(c, spec, level, v, setup, role)?;
-        progress(&e);
+    let configured_value = c.setup.value(spec.key.name)?;
+    c.setup.check_rule(&spec.rule).map_err(|e| e.with_key("--rule"))?;
+    let fetch = |id: LookId| -> Result<Option<Vec<PointCounts>>> {
+        match looks {
+            Looks::Compute => look_counts(c, spec, id, &|_, _| true).map(Some),
+            Looks::Known(known) => Ok(known.iter().find(|l| same_look(&l.id, &id)).map(|l| l.points.clone())),
+        }
+    };
+    let judge_value = |v: Option<f64>, configured: bool, role: &'static str| -> Result<std::result::Result<Evaluation, LookId>> {
+        let e = classify(spec, level, v, configured, role, &fetch)?;
+        if let Ok(e) = &e {
+            progress(e);
+        }
         Ok(e)
     };
+    if let Looks::Known(_) = looks {
+        let quiet = |v: Option<f64>, configured: bool| classify(spec, level, v, configured, "end", &fetch);
+        let mut needs = Vec::new();
+        for (v, configured) in [(Some(spec.value_at(0.0)), false), (Some(spec.value_at(1.0)), false), (configured_value, true)] {
+            if let Err(id) = quiet(v, configured)? {
+                needs.push(id);
+            }
+        }
+        if !needs.is_empty() {
+            return Ok(Step::Needs(needs));
+        }
+    }
+    macro_rules! judged {
+        ($e:expr) => {
+            match $e? {
+                Ok(e) => e,
+                Err(id) => return Ok(Step::Needs(vec![id])),
+            }
+        };
+    }
     let mut evaluations = Vec::new();
     // Positions t ∈ [0, 1] on the range and their evaluations.
     let mut at: Vec<(f64, usize)> = Vec::new();
     for t in [0.0, 1.0] {
         let v = spec.value_at(t);
-        evaluations.push(judge_value(Some(v), setup_at(v)?, "end")?);
+        evaluations.push(judged!(judge_value(Some(v), false, "end")));
         at.push((t, evaluations.len() - 1));
     }
     let (s0, s1) = (evaluations[0].side, evaluations[1].side);
@@ -396,14 +503,13 @@ pub fn search(c: &Campaign, spec: &Spec, progress: &(dyn Fn(&Evaluation) + Sync)
                 };
                 let t = to_t(0.5 * (a + b));
                 let v = spec.value_at(t);
-                evaluations.push(judge_value(Some(v), setup_at(v)?, "bisection")?);
+                setup_at(v)?;
+                evaluations.push(judged!(judge_value(Some(v), false, "bisection")));
                 at.push((t, evaluations.len() - 1));
             }
         }
     };
-    let configured_value = c.setup.value(spec.key.name)?;
-    c.setup.check_rule(&spec.rule).map_err(|e| e.with_key("--rule"))?;
-    let own = judge_value(configured_value, c.setup.clone(), "configured")?;
+    let own = judged!(judge_value(configured_value, true, "configured"));
     let configured = own.side;
     evaluations.push(own);
     // A configured value inside the range whose side contradicts both ends shows that the
@@ -422,24 +528,121 @@ pub fn search(c: &Campaign, spec: &Spec, progress: &(dyn Fn(&Evaluation) + Sync)
         ));
     }
     let statement = statement(spec, &finding, configured, configured_value, broken);
-    Ok(Report { spec: spec.clone(), level_per_limit: level, evaluations, finding, configured, configured_value, notes, statement })
+    Ok(Step::Done(Box::new(Report {
+        spec: spec.clone(),
+        level_per_limit: level,
+        evaluations,
+        finding,
+        configured,
+        configured_value,
+        notes,
+        statement,
+    })))
+}
+
+/// Whether two looks are the same (values compared bit for bit).
+fn same_look(a: &LookId, b: &LookId) -> bool {
+    a.value.map(f64::to_bits) == b.value.map(f64::to_bits) && a.configured == b.configured && a.look == b.look
+}
+
+/// The campaign's setup with the searched key at `v`, checked for the rule.
+fn setup_at(c: &Campaign, spec: &Spec, v: f64) -> Result<Setup> {
+    let s = c.setup.with_value(spec.key.name, v).map_err(|e| Error::input(format!("at {} = {v}: {e}", spec.key.name)))?;
+    s.check_rule(&spec.rule).map_err(|e| Error::input_key("--rule", format!("at {} = {v}: {e}", spec.key.name)))?;
+    Ok(s)
+}
+
+/// The campaign that simulates one look: the look's setup, the searched rule alone, the
+/// count-level sampler, the look's trials and its own seed ([`value_seed`]).
+pub fn look_campaign(c: &Campaign, spec: &Spec, id: LookId) -> Result<Campaign> {
+    let setup = match (id.value, id.configured) {
+        (Some(v), false) => setup_at(c, spec, v)?,
+        _ => c.setup.clone(),
+    };
+    let mut camp = c.clone();
+    camp.setups = vec![PointSetup { values: id.value.map(|v| vec![(spec.key, v)]).unwrap_or_default(), setup: setup.clone() }];
+    camp.setup = setup;
+    camp.rules = vec![spec.rule.clone()];
+    camp.sampler = super::sample::Sampler::Count;
+    camp.trials = id.trials(spec);
+    camp.seed = value_seed(c.seed, id.value.unwrap_or(f64::NAN), id.look, id.configured);
+    Ok(camp)
+}
+
+/// The work units of one look: (attack point, chunk of trials) pairs, numbered point-major;
+/// their number is points × ⌈trials / chunk⌉.
+pub fn look_units(c: &Campaign, spec: &Spec, id: LookId) -> u64 {
+    let points: usize = c.attacks.iter().map(|e| e.points().len()).sum();
+    points as u64 * id.trials(spec).div_ceil(CHUNK_TRIALS)
+}
+
+/// Computes the units of one look that `keep` (point, chunk) accepts.
+pub fn look_unit_counts(c: &Campaign, spec: &Spec, id: LookId, keep: &(dyn Fn(u64, u64) -> bool + Sync)) -> Result<Vec<UnitCounts>> {
+    run_units(&look_campaign(c, spec, id)?, keep)
+}
+
+/// Adds up the units of one look (all of them, in any order) into its attack points'
+/// counts; an error if a unit is missing or given twice.
+pub fn assemble_look(c: &Campaign, spec: &Spec, id: LookId, units: &[UnitCounts]) -> Result<Vec<PointCounts>> {
+    let points: usize = c.attacks.iter().map(|e| e.points().len()).sum();
+    let chunks = id.trials(spec).div_ceil(CHUNK_TRIALS);
+    let mut seen = vec![false; points * chunks as usize];
+    let mut out: Vec<Option<PointCounts>> = vec![None; points];
+    for u in units {
+        let slot = (u.point as usize).checked_mul(chunks as usize).and_then(|i| i.checked_add(u.chunk as usize));
+        let fresh = slot.filter(|&i| u.chunk < chunks && i < seen.len() && !seen[i]);
+        let Some(i) = fresh else {
+            return Err(Error::input(format!("{id}: unit (point {}, chunk {}) is out of range or given twice", u.point, u.chunk)));
+        };
+        seen[i] = true;
+        let [counts] = u.counts.as_slice() else {
+            return Err(Error::input(format!(
+                "{id}: unit (point {}, chunk {}) has {} rules' counts, not 1",
+                u.point,
+                u.chunk,
+                u.counts.len()
+            )));
+        };
+        let entry = out[u.point as usize].get_or_insert_with(|| PointCounts {
+            attack: u.attack.clone(),
+            params: u.params.clone(),
+            counts: Counts::default(),
+        });
+        entry.counts.merge(counts);
+    }
+    if let Some(missing) = seen.iter().position(|s| !s) {
+        return Err(Error::input(format!(
+            "{id}: unit (point {}, chunk {}) is missing",
+            missing / chunks as usize,
+            missing % chunks as usize
+        )));
+    }
+    Ok(out.into_iter().map(|p| p.expect("every unit is present")).collect())
+}
+
+/// Computes a whole look here.
+fn look_counts(c: &Campaign, spec: &Spec, id: LookId, keep: &(dyn Fn(u64, u64) -> bool + Sync)) -> Result<Vec<PointCounts>> {
+    let units = look_unit_counts(c, spec, id, keep)?;
+    assemble_look(c, spec, id, &units)
 }
 
 /// Classifies one value: looks of doubling trials until the value is safe or unsafe, or the
-/// maximum is reached.
-fn classify(c: &Campaign, spec: &Spec, level: f64, value: Option<f64>, setup: Setup, role: &'static str) -> Result<Evaluation> {
-    let mut trials = spec.trials;
+/// maximum is reached. `Err(look)` when `fetch` lacks that look.
+fn classify(
+    spec: &Spec,
+    level: f64,
+    value: Option<f64>,
+    configured: bool,
+    role: &'static str,
+    fetch: &dyn Fn(LookId) -> Result<Option<Vec<PointCounts>>>,
+) -> Result<std::result::Result<Evaluation, LookId>> {
     let mut look = 0;
     loop {
-        let mut camp = c.clone();
-        camp.setups = vec![PointSetup { values: value.map(|v| vec![(spec.key, v)]).unwrap_or_default(), setup: setup.clone() }];
-        camp.setup = setup.clone();
-        camp.rules = vec![spec.rule.clone()];
-        camp.sampler = super::sample::Sampler::Count;
-        camp.trials = trials;
-        camp.seed = value_seed(c.seed, value.unwrap_or(f64::NAN), look, role == "configured");
-        let results = run(&camp, &|| {})?;
-        let attacks: Vec<AttackEvidence> = results.iter().map(|r| evidence(spec, level, r)).collect();
+        let id = LookId { value, configured, look };
+        let Some(points) = fetch(id)? else {
+            return Ok(Err(id));
+        };
+        let attacks: Vec<AttackEvidence> = points.iter().map(|p| evidence(spec, level, p)).collect();
         let side = if attacks.iter().any(|a| a.side == Side::Unsafe) {
             Side::Unsafe
         } else if attacks.iter().all(|a| a.side == Side::Safe) {
@@ -456,22 +659,19 @@ fn classify(c: &Campaign, spec: &Spec, level: f64, value: Option<f64>, setup: Se
         };
         let decided_by = (0..attacks.len()).fold(0, |best, i| if score(&attacks[i]) > score(&attacks[best]) { i } else { best });
         look += 1;
-        if side != Side::Inconclusive || trials.saturating_mul(2) > spec.max_trials {
-            return Ok(Evaluation { value, role, side, looks: look, attacks, decided_by });
+        if side != Side::Inconclusive || id.trials(spec).saturating_mul(2) > spec.max_trials {
+            return Ok(Ok(Evaluation { value, role, side, looks: look, attacks, decided_by }));
         }
-        trials *= 2;
     }
 }
 
 /// The evidence of one attack point.
-fn evidence(spec: &Spec, level: f64, r: &PointResult) -> AttackEvidence {
-    let s = &r.stats;
-    let n = s.trials;
-    // The fractions are k / n in f64: rounding recovers k exactly for n ≤ 10⁶.
-    let count = |p: f64| (p * n as f64).round() as u64;
+fn evidence(spec: &Spec, level: f64, p: &PointCounts) -> AttackEvidence {
+    let k = &p.counts;
+    let n = k.trials;
     let events = match spec.criterion {
-        Criterion::Leak => count(s.leak_probability),
-        Criterion::NoKey => n - count(s.abort_probability) - count(s.no_key_fraction),
+        Criterion::Leak => k.count(Verdict::Leak),
+        Criterion::NoKey => n - k.count(Verdict::Aborted) - k.count(Verdict::NoKey),
     };
     let (lower, upper) = (lower_limit(events, n, level), upper_limit(events, n, level));
     let side = match spec.criterion {
@@ -481,17 +681,18 @@ fn evidence(spec: &Spec, level: f64, r: &PointResult) -> AttackEvidence {
         Criterion::NoKey if lower > spec.threshold => Side::Safe,
         _ => Side::Inconclusive,
     };
+    let frac = |x: u64| if n == 0 { f64::NAN } else { x as f64 / n as f64 };
     AttackEvidence {
-        attack: r.attack.clone(),
-        params: super::report::params_string(&r.params),
+        attack: p.attack.clone(),
+        params: p.params.clone(),
         trials: n,
         events,
-        probability: if n == 0 { f64::NAN } else { events as f64 / n as f64 },
+        probability: frac(events),
         lower,
         upper,
-        key_length_mean_bits: s.key_length_mean,
-        abort_probability: s.abort_probability,
-        verdict: s.verdict.to_string(),
+        key_length_mean_bits: k.key_length_mean(),
+        abort_probability: frac(k.count(Verdict::Aborted)),
+        verdict: k.verdict().to_string(),
         side,
     }
 }

@@ -164,12 +164,14 @@ fn reparse(command: &str, args: &[String]) -> Result<super::Command> {
 
 /// Runs `qkd-audit merge`.
 pub fn cmd_merge(a: MergeArgs) -> Result<Outcome> {
+    let files = partial_files(&a.partials)?;
     let parts = check_partials(&a.partials)?;
     let command = reparse(&parts[0].command, &parts[0].args)?;
     match command {
         super::Command::Sweep(_) => merge_sweep(parts, &a),
         super::Command::Hunt(h) => super::hunt::merge_hunt(h, parts, a.output.clone(), a.force),
         super::Command::Run(r) => super::run::merge_run(r, parts, a.output.clone(), a.force, a.quiet),
+        super::Command::Tolerance(t) => super::tolerance::merge_tolerance(t, parts, &files, a.output.clone(), a.force),
         _ => Err(Error::input(format!("`{}` is not a sharded command", parts[0].command))),
     }
 }

@@ -1,4 +1,4 @@
-//! Shards of a job (`--shard K/N` on `sweep`, `hunt` and `run`): which work units a shard
+//! Shards of a job (`--shard K/N` on `sweep`, `hunt`, `run` and `tolerance`): which work units a shard
 //! owns, and the partial result file it writes. `qkd-audit merge` ([`super::merge`]) joins
 //! the partial results; its module doc describes the scheme and the file.
 
@@ -77,7 +77,7 @@ pub struct Partial {
     pub format: String,
     /// Tool version.
     pub version: String,
-    /// `sweep`, `hunt` or `run`.
+    /// `sweep`, `hunt`, `run` or `tolerance`.
     pub command: String,
     /// The arguments that determine the result.
     pub args: Vec<String>,
@@ -99,6 +99,8 @@ pub struct Partial {
     pub hunt: Option<Vec<HuntStart>>,
     /// `run`: the point results (every rule of each point).
     pub run: Option<Vec<PointResult>>,
+    /// `tolerance`: the units of one round of the search.
+    pub tolerance: Option<super::tolerance::TolerancePayload>,
 }
 
 /// Sweep records of a shard.
@@ -129,6 +131,7 @@ const NEUTRAL_OPTIONS: &[(&str, bool)] = &[
     ("-o", true),
     ("--results-dir", true),
     ("--out-dir", true),
+    ("--evidence", true),
     ("--force", false),
     ("--quiet", false),
     ("-q", false),
@@ -175,6 +178,7 @@ impl Partial {
             sweep: None,
             hunt: None,
             run: None,
+            tolerance: None,
         }
     }
 

@@ -5,12 +5,19 @@
 
 use super::common::{note, print, Outcome};
 use super::run::DemoArg;
+use super::shard::{identity_args, InputId, Partial, ShardArgs, ShardSpec};
 use crate::audit::campaign::Scale;
+use crate::audit::engine::UnitCounts;
+use crate::audit::report::manifest::sha256_hex;
 use crate::audit::setup::SetupKey;
-use crate::audit::tolerance::{evidence_csv, search, Criterion, Evaluation, Side, Spec};
+use crate::audit::tolerance::{
+    assemble_look, evidence_csv, look_unit_counts, look_units, search, search_with, Criterion, Evaluation, Look, LookId, Looks, Report,
+    Side, Spec, Step,
+};
 use crate::audit::Campaign;
-use crate::error::{Error, Result};
-use std::path::PathBuf;
+use crate::error::{Error, ErrorKind, Result};
+use serde::{Deserialize, Serialize};
+use std::path::{Path, PathBuf};
 
 /// `--scale`.
 #[derive(clap::ValueEnum, Clone, Copy, Debug, PartialEq, Eq)]
@@ -106,10 +113,93 @@ pub struct ToleranceArgs {
     /// Worker threads (default: all cores). Results do not depend on it.
     #[arg(long, value_name = "N")]
     pub threads: Option<usize>,
+    /// Sharding, round by round: each run of the N shards computes its part of the looks the
+    /// search needs next (every attack point's trials, in chunks), and `qkd-audit merge` adds
+    /// them to the search's state in --shard-dir; repeat until the merge prints the result.
+    #[command(flatten)]
+    pub shard: ShardArgs,
 }
 
-/// Runs `qkd-audit tolerance`.
-pub fn cmd_tolerance(a: ToleranceArgs) -> Result<Outcome> {
+/// The format of the search's state file, `<shard dir>/tolerance-state.toml`.
+const STATE_FORMAT: &str = "qkd-audit tolerance state";
+
+/// The state of a sharded search between rounds: the looks merged so far. Written by
+/// `merge` only; read by the shards to find the looks of the next round.
+#[derive(Debug, Serialize, Deserialize)]
+pub struct State {
+    /// Always "qkd-audit tolerance state".
+    pub format: String,
+    /// Tool version.
+    pub version: String,
+    /// The search's identifying arguments (as in partial results).
+    pub args: Vec<String>,
+    /// Its input files.
+    pub inputs: Vec<InputId>,
+    /// Rounds merged.
+    pub rounds: u64,
+    /// Whether the search is finished (its result written by the last merge).
+    pub finished: bool,
+    /// Every look merged, in the order merged.
+    pub looks: Vec<Look>,
+}
+
+/// The units of a shard of one round.
+#[derive(Debug, Serialize, Deserialize)]
+pub struct TolerancePayload {
+    /// Rounds merged into the state when the shard ran.
+    pub round: u64,
+    /// The looks of this round, in unit order.
+    pub looks: Vec<LookId>,
+    /// The units this shard computed.
+    pub units: Vec<ShardUnit>,
+}
+
+/// One unit of a round: a chunk of one attack point's trials at one of the round's looks.
+#[derive(Debug, Serialize, Deserialize)]
+pub struct ShardUnit {
+    /// Index into the round's looks.
+    pub look: usize,
+    /// The counts.
+    pub counts: UnitCounts,
+}
+
+fn state_path(dir: &Path) -> PathBuf {
+    dir.join("tolerance-state.toml")
+}
+
+/// The state in `dir`, if any, checked to belong to the job identified by `args` and `inputs`.
+fn read_state(dir: &Path, args: &[String], inputs: &[InputId]) -> Result<Option<State>> {
+    let path = state_path(dir);
+    let text = match std::fs::read_to_string(&path) {
+        Ok(t) => t,
+        Err(e) if e.kind() == std::io::ErrorKind::NotFound => return Ok(None),
+        Err(e) => return Err(Error::new(ErrorKind::Io, format!("cannot read {}: {e}", path.display()))),
+    };
+    let state: State =
+        toml::from_str(&text).map_err(|e| Error::input(format!("not a qkd-audit tolerance state: {}", e.message())).with_file(&path))?;
+    let other = |what: &str| {
+        Err(Error::input(format!(
+            "{} holds the state of another search (its {what} differ); give each search a --shard-dir of its own",
+            path.display()
+        )))
+    };
+    if state.format != STATE_FORMAT {
+        return Err(Error::input_key("format", format!("`{}` is not `{STATE_FORMAT}`", state.format)).with_file(&path));
+    }
+    if state.version != env!("CARGO_PKG_VERSION") {
+        return other("tool versions");
+    }
+    if state.args != args {
+        return other("arguments");
+    }
+    if state.inputs != inputs {
+        return other("input files (SHA-256)");
+    }
+    Ok(Some(state))
+}
+
+/// The campaign, the search and the input files of the command's arguments.
+fn build(a: &ToleranceArgs) -> Result<(Campaign, Spec, Vec<InputId>)> {
     let mut campaign = match (&a.campaign, &a.demo) {
         (Some(p), _) => Campaign::load(p)?,
         (None, Some(d)) => Campaign::demo_named(d.name())?,
@@ -163,22 +253,25 @@ pub fn cmd_tolerance(a: ToleranceArgs) -> Result<Outcome> {
         bisections: a.bisections,
     };
     spec.check()?;
-    if let Some(path) = &a.evidence {
-        crate::output::check_overwrite(path, a.force)?;
+    let mut inputs: Vec<InputId> = campaign.inputs.iter().map(|(o, t)| InputId { origin: o.clone(), sha256: sha256_hex(t) }).collect();
+    if let Some(path) = &a.setup {
+        let text = std::fs::read_to_string(path).map_err(|e| Error::new(ErrorKind::Io, format!("cannot read {}: {e}", path.display())))?;
+        inputs.push(InputId { origin: path.display().to_string(), sha256: sha256_hex(&text) });
     }
-    let pool = {
-        let mut b = rayon::ThreadPoolBuilder::new();
-        if let Some(n) = a.threads {
-            // As for `run`: more workers only add memory and scheduling.
-            const MAX_THREADS: usize = 256;
-            if n == 0 || n > MAX_THREADS {
-                return Err(Error::input_key("--threads", format!("{n} is outside [1, {MAX_THREADS}]")));
-            }
-            b = b.num_threads(n);
-        }
-        b.build().map_err(|e| Error::input(format!("cannot start worker threads: {e}")))?
-    };
+    Ok((campaign, spec, inputs))
+}
+
+/// Runs `qkd-audit tolerance`.
+pub fn cmd_tolerance(a: ToleranceArgs) -> Result<Outcome> {
+    let (campaign, spec, inputs) = build(&a)?;
+    let pool = super::common::thread_pool(a.threads)?;
+    if let Some(shard) = a.shard.shard {
+        return pool.install(|| run_shard(&a, &campaign, &spec, inputs, shard));
+    }
+    // Every output problem shows now, before the computation; the lock holds until written.
+    let evidence = a.evidence.as_deref().map(|p| crate::output::prepare_file(p, a.force)).transpose()?;
     let quiet = a.quiet;
+    let key = spec.key;
     let progress = |e: &Evaluation| {
         if !quiet {
             let at = e.value.map_or("the configured setup".to_string(), |v| format!("{} = {}", key.name, crate::exact::sweep::fmt_num(v)));
@@ -196,14 +289,21 @@ pub fn cmd_tolerance(a: ToleranceArgs) -> Result<Outcome> {
         }
     };
     let report = pool.install(|| search(&campaign, &spec, &progress))?;
-    if let Some(path) = &a.evidence {
-        crate::output::write_atomic(path, evidence_csv(&report)?.as_bytes(), a.force)?;
+    conclude(&report, evidence, a.json, a.quiet)
+}
+
+/// Writes the evidence (if asked), prints the statement or the JSON, and gives the exit
+/// status: the end of `tolerance`, and of the `merge` that finishes a sharded search.
+fn conclude(report: &Report, evidence: Option<crate::output::FileGuard>, json: bool, quiet: bool) -> Result<Outcome> {
+    if let Some(guard) = evidence {
+        let path = guard.path().to_path_buf();
+        guard.commit(evidence_csv(report)?.as_bytes())?;
         if !quiet {
             note(&format!("wrote {} evaluated values to {}", report.evaluations.len(), path.display()));
         }
     }
-    if a.json {
-        let json = serde_json::to_string_pretty(&report).map_err(|e| Error::new(crate::error::ErrorKind::Io, e.to_string()))?;
+    if json {
+        let json = serde_json::to_string_pretty(report).map_err(|e| Error::new(ErrorKind::Io, e.to_string()))?;
         print(&format!("{json}\n"))?;
     } else {
         let mut text = format!("{}\n", report.statement);
@@ -213,4 +313,146 @@ pub fn cmd_tolerance(a: ToleranceArgs) -> Result<Outcome> {
         print(&text)?;
     }
     Ok(if report.configured == Side::Safe { Outcome::Clean } else { Outcome::Findings })
+}
+
+/// The looks of the next round and their units: (look, offset of its first unit, units).
+fn round_plan(campaign: &Campaign, spec: &Spec, looks: &[LookId]) -> (Vec<(LookId, u64, u64)>, u64) {
+    let mut total = 0;
+    let plan = looks
+        .iter()
+        .map(|&id| {
+            let units = look_units(campaign, spec, id);
+            total += units;
+            (id, total - units, units)
+        })
+        .collect();
+    (plan, total)
+}
+
+/// `tolerance --shard K/N`: computes this shard's part of the looks the search needs next
+/// (from the state in the shard folder) and writes it as a partial result.
+fn run_shard(a: &ToleranceArgs, campaign: &Campaign, spec: &Spec, inputs: Vec<InputId>, shard: ShardSpec) -> Result<Outcome> {
+    if spec.rule.builtin().is_none() {
+        return Err(Error::input_key(
+            "--shard",
+            format!("the search judges the rule file `{}`; sharded searches support built-in rules only (run it unsharded)", spec.rule),
+        ));
+    }
+    let clock = std::time::Instant::now();
+    let dir = &a.shard.shard_dir;
+    let args = identity_args();
+    let state = read_state(dir, &args, &inputs)?;
+    let known = state.as_ref().map(|s| s.looks.as_slice()).unwrap_or_default();
+    let needs = match search_with(campaign, spec, Looks::Known(known), &|_| {})? {
+        Step::Done(_) => {
+            note(&format!("nothing to do: the search in {} is complete (its last merge printed the result)", dir.display()));
+            return Ok(Outcome::Clean);
+        }
+        Step::Needs(needs) => needs,
+    };
+    let (plan, total) = round_plan(campaign, spec, &needs);
+    let mut units = Vec::new();
+    for (look, &(id, offset, count)) in plan.iter().enumerate() {
+        let chunks = id.trials(spec).div_ceil(crate::audit::engine::CHUNK_TRIALS);
+        let owned = |point: u64, chunk: u64| shard.owns(offset + point * chunks + chunk);
+        if !(offset..offset + count).any(|u| shard.owns(u)) {
+            continue;
+        }
+        for counts in look_unit_counts(campaign, spec, id, &owned)? {
+            units.push(ShardUnit { look, counts });
+        }
+    }
+    let round = state.as_ref().map_or(0, |s| s.rounds);
+    let mut partial = Partial::new("tolerance", inputs, shard, total, clock.elapsed().as_secs_f64());
+    partial.tolerance = Some(TolerancePayload { round, looks: needs, units });
+    partial.write(dir, a.force)?;
+    Ok(Outcome::Clean)
+}
+
+/// `merge` of one round of `tolerance` shards: adds the round's looks to the search's state
+/// (beside the partial files, which are then removed), and when the search is finished
+/// writes and prints its result as the unsharded search does (evidence to `output`).
+pub fn merge_tolerance(a: ToleranceArgs, parts: Vec<Partial>, files: &[PathBuf], output: Option<PathBuf>, force: bool) -> Result<Outcome> {
+    let (campaign, spec, inputs) = build(&a)?;
+    if parts[0].inputs != inputs {
+        return Err(Error::input("the search's input files changed since the shards ran (SHA-256 differ): run the round again"));
+    }
+    let dir = files[0].parent().map(Path::to_path_buf).unwrap_or_default();
+    if let Some(other) = files.iter().find(|f| f.parent() != Some(dir.as_path())) {
+        return Err(Error::input(format!(
+            "{} is not in {}: the shards of a search, and its state, are kept in one --shard-dir",
+            other.display(),
+            dir.display()
+        )));
+    }
+    let args = parts[0].args.clone();
+    let mut state = read_state(&dir, &args, &inputs)?.unwrap_or_else(|| State {
+        format: STATE_FORMAT.to_string(),
+        version: env!("CARGO_PKG_VERSION").to_string(),
+        args: args.clone(),
+        inputs: inputs.clone(),
+        rounds: 0,
+        finished: false,
+        looks: Vec::new(),
+    });
+    let needs = match search_with(&campaign, &spec, Looks::Known(&state.looks), &|_| {})? {
+        Step::Done(_) => {
+            return Err(Error::input(format!("the search in {} is already complete: these partial results are left over", dir.display())))
+        }
+        Step::Needs(needs) => needs,
+    };
+    let mut units: Vec<Vec<UnitCounts>> = needs.iter().map(|_| Vec::new()).collect();
+    for p in parts {
+        let (k, n) = (p.shard, p.shards);
+        let payload = p.tolerance.ok_or_else(|| Error::input(format!("shard {k}/{n} carries no tolerance looks")))?;
+        if payload.round != state.rounds {
+            return Err(Error::input(format!(
+                "shard {k}/{n} was computed after round {} but {} holds {} merged round(s): the partial results are left over from an earlier round",
+                payload.round,
+                state_path(&dir).display(),
+                state.rounds
+            )));
+        }
+        if payload.looks != needs {
+            return Err(Error::input(format!("shard {k}/{n} computed other looks than the search needs next")));
+        }
+        for u in payload.units {
+            units
+                .get_mut(u.look)
+                .ok_or_else(|| Error::input(format!("shard {k}/{n} names look {} of {}", u.look, needs.len())))?
+                .push(u.counts);
+        }
+    }
+    let guard = output.as_deref().map(|p| crate::output::prepare_file(p, force)).transpose()?;
+    for (id, units) in needs.iter().zip(&units) {
+        let points = assemble_look(&campaign, &spec, *id, units)?;
+        state.looks.push(Look { id: *id, points });
+    }
+    state.rounds += 1;
+    let step = search_with(&campaign, &spec, Looks::Known(&state.looks), &|_| {})?;
+    state.finished = matches!(step, Step::Done(_));
+    let text = toml::to_string(&state).map_err(|e| Error::new(ErrorKind::Io, format!("cannot encode the search's state: {e}")))?;
+    crate::output::write_atomic(&state_path(&dir), text.as_bytes(), true)?;
+    for f in files {
+        std::fs::remove_file(f)
+            .map_err(|e| Error::new(ErrorKind::Io, format!("cannot remove the merged partial result {}: {e}", f.display())))?;
+    }
+    match step {
+        Step::Done(report) => {
+            if !a.quiet {
+                note(&format!("merged round {}: the search is complete ({} looks)", state.rounds, state.looks.len()));
+            }
+            conclude(&report, guard, a.json, a.quiet)
+        }
+        Step::Needs(next) => {
+            let next: Vec<String> = next.iter().map(|id| format!("{} ({} trials per attack point)", id, id.trials(&spec))).collect();
+            note(&format!(
+                "merged round {} ({} looks so far); the search needs next: {}. Run the shards again with the same arguments, then merge",
+                state.rounds,
+                state.looks.len(),
+                next.join("; ")
+            ));
+            Ok(Outcome::Clean)
+        }
+    }
 }
