@@ -1,23 +1,33 @@
 #!/usr/bin/env bash
-# Run one qkd-audit job (sweep, hunt or run) as a Slurm job array, one shard per array
-# task, and merge the shards in a job that starts when every task has succeeded.
+# Run one qkd-audit job (sweep, hunt, run or tolerance) as a Slurm job array, one shard
+# per array task, and merge the shards in a job that starts when every task has succeeded.
+#
+# A tolerance search runs in rounds (each bisection step needs the step before): for it
+# this script stays in the foreground, submits one array and one merge per round, waits for
+# each, and ends when the merge reports the search finished. It then prints the merge's
+# result (the sentence, or the JSON) and exits with the search's status. Run it where it
+# may wait: under nohup, in tmux, or as a one-CPU batch job of its own.
 #
 # Usage:
 #   examples/slurm-shards.sh N OUTPUT -- SUBCOMMAND [ARGUMENTS...]
 #
 #   N        number of shards (array tasks 1..N); more shards than work units is fine
 #   OUTPUT   what `qkd-audit merge -o` writes: the CSV file of a sweep, the folder of a
-#            hunt, or the folder that receives <campaign name>/ for a run
+#            hunt, the folder that receives <campaign name>/ for a run, or the evidence
+#            CSV of a tolerance search
 #
 # Examples:
 #   examples/slurm-shards.sh 16 results -- run campaigns/demo-single-photon.toml
 #   examples/slurm-shards.sh 8 sweep.csv -- sweep --attack-file attacks/pauli.toml --steps 2000
+#   examples/slurm-shards.sh 32 evidence.csv -- tolerance my-campaign.toml --key signals \
+#       --from 1e4 --to 1e10 --scale log --trials 100000
 #
 # Environment (all optional):
 #   QKD_AUDIT    the qkd-audit binary (default: qkd-audit on PATH); give an absolute path
 #   SHARD_DIR    folder for the partial results and the Slurm logs (default: shards-<time>)
 #   SBATCH_OPTS  extra sbatch options for both jobs, e.g. "--partition=short --time=01:00:00"
-#   WAIT=1       block until the merge job ends and exit with its status (sbatch --wait)
+#   WAIT=1       block until the merge job ends and exit with its status (sbatch --wait);
+#                a tolerance search always waits
 #
 # Every array task runs in the submission directory (sbatch's default) and writes
 # SHARD_DIR/<subcommand>-shard-K-of-N.toml; the merge refuses a missing, duplicated or
@@ -50,6 +60,34 @@ array_id=${array_id%%;*}
 echo "submitted array job $array_id ($n shards) writing to $dir" >&2
 
 merge=$(printf '%q ' "$bin" merge "$dir" -o "$output")
+if [[ $1 == tolerance ]]; then
+    # Rounds: the array computes the looks the search needs next; the merge adds them to
+    # $dir/tolerance-state.toml and, once the search is finished, writes OUTPUT and prints
+    # the result.
+    round=1
+    while :; do
+        merge_id=$(sbatch --parsable "${extra[@]}" --wait --job-name=qkd-audit-merge \
+            --dependency="afterok:$array_id" --kill-on-invalid-dep=yes \
+            --output="$dir/merge-round-$round.out" --error="$dir/merge-round-$round.err" --wrap="$merge") && status=0 || status=$?
+        merge_id=${merge_id%%;*}
+        if ((status > 1)); then
+            echo "round $round: the merge job $merge_id failed (status $status); see $dir/merge-round-$round.err" >&2
+            cat "$dir/merge-round-$round.err" >&2 2>/dev/null || true
+            exit "$status"
+        fi
+        if grep -q '^finished = true' "$dir/tolerance-state.toml"; then
+            echo "the search finished after $round round(s); evidence in $output" >&2
+            cat "$dir/merge-round-$round.out"
+            exit "$status"
+        fi
+        round=$((round + 1))
+        array_id=$(sbatch --parsable "${extra[@]}" --job-name=qkd-audit-shard --array="1-$n" \
+            --output="$dir/slurm-%A_%a.out" \
+            --wrap="$job --shard \${SLURM_ARRAY_TASK_ID}/$n --shard-dir $(printf '%q' "$dir")")
+        array_id=${array_id%%;*}
+        echo "round $round: submitted array job $array_id" >&2
+    done
+fi
 wait_opt=()
 if [[ ${WAIT:-0} == 1 ]]; then
     wait_opt=(--wait)

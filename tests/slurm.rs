@@ -1,7 +1,8 @@
 //! The Slurm example end to end: a single-node Slurm cluster (Debian's `slurm-wlm` and
 //! `munge`, started here as root in a temporary folder, on ports of its own), the example
 //! job-array script `examples/slurm-shards.sh` submitting one shard per array task and a
-//! dependent merge, and the merged results folder compared with the single run.
+//! dependent merge, and the merged results folder compared with the single run; then a
+//! tolerance search through the same script, round by round, compared with the single search.
 //!
 //! Needs root and the packages, which `.ci/run` installs; so it is `#[ignore]`d in the
 //! default suite and `.ci/run` runs it explicitly. When the scheduler cannot start, the
@@ -203,5 +204,58 @@ fn slurm_job_array_and_merge_equal_the_single_run() {
             assert!(v == &b[k], "{} differs", k.display());
         }
     }
+
+    // A tolerance search, round by round: the script submits an array and a merge per round
+    // and prints the result once the search is finished.
+    std::fs::write(t.join("c.toml"), TOLERANCE_CAMPAIGN).unwrap();
+    let search = [
+        "tolerance",
+        "c.toml",
+        "--key",
+        "abort_qber",
+        "--from",
+        "0.04",
+        "--to",
+        "0.08",
+        "--bisections",
+        "4",
+        "--trials",
+        "1100",
+        "--max-trials",
+        "4400",
+        "--threshold",
+        "0.001",
+    ];
+    let single = Command::new(bin).args(search).args(["--evidence", "single.csv", "-q"]).current_dir(t).output().unwrap();
+    assert_eq!(single.status.code(), Some(0), "{}", String::from_utf8_lossy(&single.stderr));
+    let out = Command::new(&script)
+        .args(["3", "merged.csv", "--"])
+        .args(search)
+        .current_dir(t)
+        .env("SLURM_CONF", &conf)
+        .env("QKD_AUDIT", bin)
+        .env("SHARD_DIR", "tolerance-shards")
+        .output()
+        .unwrap();
+    let err = String::from_utf8_lossy(&out.stderr);
+    assert_eq!(out.status.code(), Some(0), "the rounds failed: {err}\nslurmctld log:\n{}", log_tail(&t.join("slurmctld.log")));
+    assert!(err.contains("finished after") && !err.contains("finished after 1 round"), "{err}");
+    assert_eq!(String::from_utf8_lossy(&out.stdout), String::from_utf8_lossy(&single.stdout));
+    assert_eq!(std::fs::read(t.join("merged.csv")).unwrap(), std::fs::read(t.join("single.csv")).unwrap());
     drop(daemons);
 }
+
+/// The search of `tests/shards.rs`: bisections, and values needing several looks.
+const TOLERANCE_CAMPAIGN: &str = r#"
+name = "abort-threshold"
+seed = 4
+trials = 60
+[setup]
+signals = 1000000
+abort_qber = 0.05
+key_rule = "individual"
+[[attacks]]
+builtin = "phase-covariant-cloner"
+steps = 1
+from = 0.06
+"#;

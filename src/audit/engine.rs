@@ -370,3 +370,49 @@ fn judge_chunk(
 pub fn point_count(c: &Campaign) -> usize {
     c.attacks.iter().map(|e| e.points().len()).sum::<usize>() * c.setups.len()
 }
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::audit::trial::Verdict;
+
+    /// The units' counts, added up per point, agree with the point results of `run` (the
+    /// same trials through the tally), and any split of the units adds up to the same counts.
+    #[test]
+    fn unit_counts_add_up_to_the_run_and_do_not_depend_on_the_split() {
+        let mut c = Campaign::demo();
+        c.attacks.truncate(2);
+        c.rules.truncate(1);
+        c.trials = CHUNK_TRIALS + 904;
+        let results = run(&c, &|| {}).unwrap();
+        let all = run_units(&c, &|_, _| true).unwrap();
+        let chunks = chunk_count(&c);
+        assert_eq!(chunks, 2);
+        assert_eq!(all.len() as u64, results.len() as u64 * chunks);
+        let by_point = |units: &[UnitCounts]| {
+            let mut out = std::collections::BTreeMap::<u64, stats::Counts>::new();
+            for u in units {
+                out.entry(u.point).or_default().merge(&u.counts[0]);
+            }
+            out
+        };
+        let whole = by_point(&all);
+        for r in &results {
+            let k = &whole[&r.index];
+            let s = &r.stats;
+            assert_eq!(k.trials, s.trials);
+            assert_eq!(k.count(Verdict::Leak) as f64 / k.trials as f64, s.leak_probability);
+            assert_eq!(k.count(Verdict::Aborted) as f64 / k.trials as f64, s.abort_probability);
+            assert_eq!(k.count(Verdict::NoKey) as f64 / k.trials as f64, s.no_key_fraction);
+            assert_eq!(k.verdict(), s.verdict);
+            assert!((k.key_length_mean() - s.key_length_mean).abs() <= 1e-9 * s.key_length_mean.abs().max(1.0), "{r:?}");
+        }
+        // Two halves computed separately, and chunk by chunk in reverse: the same counts.
+        let odd = run_units(&c, &|p, ch| (p + ch) % 2 == 1).unwrap();
+        let even = run_units(&c, &|p, ch| (p + ch) % 2 == 0).unwrap();
+        assert_eq!(odd.len() + even.len(), all.len());
+        let mut halves: Vec<UnitCounts> = even.into_iter().chain(odd).collect();
+        halves.reverse();
+        assert_eq!(by_point(&halves), whole);
+    }
+}

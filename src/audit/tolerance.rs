@@ -878,6 +878,49 @@ mod tests {
     }
 
     #[test]
+    fn a_look_is_assembled_only_from_every_unit_once() {
+        let c = Campaign::demo();
+        let spec = Spec {
+            key: SetupKey::find("abort_qber").unwrap(),
+            from: 0.04,
+            to: 0.08,
+            scale: Scale::Linear,
+            rule: c.setup.key_rule.clone(),
+            criterion: Criterion::Leak,
+            threshold: 0.05,
+            confidence: 0.95,
+            trials: CHUNK_TRIALS + 1,
+            max_trials: 2 * CHUNK_TRIALS + 2,
+            bisections: 3,
+        };
+        let id = LookId { value: Some(0.05), configured: false, look: 0 };
+        let points: usize = c.attacks.iter().map(|e| e.points().len()).sum();
+        assert_eq!(look_units(&c, &spec, id), 2 * points as u64);
+        let unit = |point: u64, chunk: u64| UnitCounts {
+            point,
+            chunk,
+            attack: "a".into(),
+            params: String::new(),
+            counts: vec![Counts { trials: 1, verdicts: [0, 0, 1, 0, 0], key_length_sum: 7 }],
+        };
+        let all: Vec<UnitCounts> = (0..points as u64).flat_map(|p| [unit(p, 1), unit(p, 0)]).collect();
+        let assembled = assemble_look(&c, &spec, id, &all).unwrap();
+        assert_eq!(assembled.len(), points);
+        assert!(assembled.iter().all(|p| p.counts == Counts { trials: 2, verdicts: [0, 0, 2, 0, 0], key_length_sum: 14 }));
+        let missing = assemble_look(&c, &spec, id, &all[1..]).unwrap_err().to_string();
+        assert!(missing.contains("missing"), "{missing}");
+        let mut twice = all.clone();
+        twice.push(unit(0, 0));
+        assert!(assemble_look(&c, &spec, id, &twice).unwrap_err().to_string().contains("twice"));
+        let beyond = [unit(0, 2)];
+        assert!(assemble_look(&c, &spec, id, &beyond).unwrap_err().to_string().contains("out of range"));
+        // Counts survive a text round trip, sums past 2⁶⁴ included.
+        let big = Counts { trials: 3, verdicts: [1, 0, 0, 0, 2], key_length_sum: u128::from(u64::MAX) * 5 };
+        let text = toml::to_string(&PointCounts { attack: "a".into(), params: String::new(), counts: big }).unwrap();
+        assert_eq!(toml::from_str::<PointCounts>(&text).unwrap().counts, big);
+    }
+
+    #[test]
     fn looks_double_up_to_the_maximum_and_integer_values_round() {
         let spec = Spec {
             key: SetupKey::find("signals").unwrap(),
