@@ -38,6 +38,12 @@
 //!
 //! **Determinism.** The random streams of a value depend only on the seed, the value and the
 //! look (see [`value_seed`]), never on the order of evaluation or the thread count.
+//!
+//! **Shards.** A look's evidence is integer counts ([`Counts`]) per attack point, the sum of
+//! its (attack point, chunk of trials) units ([`look_unit_counts`], [`assemble_look`]), so
+//! separate processes can compute a look's units and the sum is exact. [`search_with`] runs
+//! the search on the looks known so far and, where it lacks one, names the looks it needs
+//! next ([`Step::Needs`]); `tolerance --shard` and `merge` drive it round by round.
 
 use super::campaign::{Campaign, PointSetup, Scale};
 use super::engine::{run_units, UnitCounts, CHUNK_TRIALS};

@@ -1,9 +1,10 @@
-//! Shards and the `merge` subcommand: splitting `sweep`, `hunt` and `run` over separate
-//! processes (a cluster's job array, say) and joining their partial results into exactly
-//! what the unsharded command writes.
+//! Shards and the `merge` subcommand: splitting `sweep`, `hunt`, `run` and `tolerance` over
+//! separate processes (a cluster's job array, say) and joining their partial results into
+//! exactly what the unsharded command writes.
 //!
 //! Work units: a sweep's points, a campaign's attack points, a hunt's (target, start)
-//! pairs, numbered in the order the unsharded command takes them. Shard K of N
+//! pairs, numbered in the order the unsharded command takes them; for a tolerance search,
+//! the (look, attack point, chunk of trials) triples of one round (below). Shard K of N
 //! (`--shard K/N`, 1 ≤ K ≤ N) computes the units whose number u has u mod N = K − 1; every
 //! unit keeps its number, hence its random stream, so results do not depend on N. A shard
 //! writes one partial file `<dir>/<command>-shard-K-of-N.toml` (`--shard-dir`, default
@@ -24,6 +25,15 @@
 //! same report writers (only the manifest's `command_line`, start time, elapsed time and
 //! threads differ, as between any two runs). Its exit status is the unsharded command's.
 //!
+//! A tolerance search runs in rounds, since each bisection step depends on the one before.
+//! Its state, `<shard dir>/tolerance-state.toml` ([`super::tolerance::State`]), holds the
+//! integer counts of every look merged so far; a shard replays the search on them
+//! ([`crate::audit::tolerance::search_with`]) to find the looks needed next, and computes its
+//! units of those. `merge` checks that the partials are of the state's round and of the looks
+//! it needs, adds them to the state (written atomically), removes the merged partial files,
+//! and, once the replay finishes, writes the evidence and prints the result as the unsharded
+//! search does. Counts are integers, so the result does not depend on N.
+//!
 //! The shard side (units, the partial file) is [`super::shard`]. This module reads the
 //! three commands' arguments back with clap; it must not compute anything those commands
 //! do not.
@@ -39,12 +49,13 @@ use std::path::{Path, PathBuf};
 #[derive(clap::Args, Debug)]
 pub struct MergeArgs {
     /// Partial results of one sharded job (files, or folders holding `*-shard-*-of-*.toml`),
-    /// all N of them.
+    /// all N of them (for `tolerance`: all N of one round, in the search's shard folder).
     #[arg(required = true, value_name = "PARTIAL")]
     pub partials: Vec<PathBuf>,
     /// Where the merged result goes: for `sweep` the CSV file (default: stdout), for `hunt`
     /// the output folder (default: results/hunt-OBJECTIVE-PROTOCOL), for `run` the folder
-    /// that receives `<campaign name>/` (default: results).
+    /// that receives `<campaign name>/` (default: results), for `tolerance` the evidence CSV
+    /// (written by the merge that finishes the search; default: none).
     #[arg(short, long, value_name = "PATH")]
     pub output: Option<PathBuf>,
     /// Replace an existing output file or folder.

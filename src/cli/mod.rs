@@ -66,8 +66,9 @@ pub enum Command {
     /// a key-length rule starts to leak, or to give no key, against the strongest of a
     /// campaign's attacks; exit status 1 if the configured setup is not shown safe.
     Tolerance(tolerance::ToleranceArgs),
-    /// Join the partial results of a job run in shards (`--shard K/N` of sweep, hunt or
-    /// run) into exactly what the unsharded command writes.
+    /// Join the partial results of a job run in shards (`--shard K/N` of sweep, hunt, run
+    /// or tolerance) into exactly what the unsharded command writes; a tolerance search is
+    /// merged round by round until it is finished.
     Merge(merge::MergeArgs),
 }
 
