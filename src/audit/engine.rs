@@ -228,6 +228,9 @@ fn prepare<'a>(c: &'a Campaign, keep: &(dyn Fn(u64) -> bool + Sync)) -> Result<V
         .collect::<Result<_>>()
 }
 
+/// The work done on one prepared point, given the running rule programs (if any).
+type PointWork<'w, T> = dyn Fn(&Prepared, &mut [Option<Session>]) -> Result<T> + Sync + 'w;
+
 /// Runs `work` on every prepared point and gives its results in point order, with the
 /// logs of the rule programs. With a rule program the points run one after the other (the
 /// program sees point, then trial order) and `work` gets the running programs; otherwise
@@ -236,7 +239,7 @@ fn for_each_point<T: Send>(
     c: &Campaign,
     prepared: &[Prepared],
     progress: &(dyn Fn() + Sync),
-    work: &(dyn Fn(&Prepared, &mut [Option<Session>]) -> Result<T> + Sync),
+    work: &PointWork<T>,
 ) -> Result<(Vec<T>, Vec<ProgramLog>)> {
     let has_program = c.rules.iter().any(|r| matches!(r, Rule::Program(_)));
     if has_program {

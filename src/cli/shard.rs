@@ -3,6 +3,8 @@
 //! the partial results; its module doc describes the scheme and the file.
 
 use super::common::note;
+use crate::audit::engine::UnitCounts;
+use crate::audit::tolerance::LookId;
 use crate::audit::PointResult;
 use crate::error::{Error, ErrorKind, Result};
 use serde::{Deserialize, Serialize};
@@ -100,7 +102,7 @@ pub struct Partial {
     /// `run`: the point results (every rule of each point).
     pub run: Option<Vec<PointResult>>,
     /// `tolerance`: the units of one round of the search.
-    pub tolerance: Option<super::tolerance::TolerancePayload>,
+    pub tolerance: Option<TolerancePayload>,
 }
 
 /// Sweep records of a shard.
@@ -119,6 +121,26 @@ pub struct HuntStart {
     pub x: Option<Vec<f64>>,
     /// The start's error, if it failed.
     pub error: Option<String>,
+}
+
+/// The units of a shard of one round.
+#[derive(Debug, Serialize, Deserialize)]
+pub struct TolerancePayload {
+    /// Rounds merged into the state when the shard ran.
+    pub round: u64,
+    /// The looks of this round, in unit order.
+    pub looks: Vec<LookId>,
+    /// The units this shard computed.
+    pub units: Vec<ShardUnit>,
+}
+
+/// One unit of a round: a chunk of one attack point's trials at one of the round's looks.
+#[derive(Debug, Serialize, Deserialize)]
+pub struct ShardUnit {
+    /// Index into the round's looks.
+    pub look: usize,
+    /// The counts.
+    pub counts: UnitCounts,
 }
 
 /// Options that never change a result: dropped from the arguments that identify a job.

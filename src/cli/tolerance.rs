@@ -5,7 +5,7 @@
 
 use super::common::{note, print, Outcome};
 use super::run::DemoArg;
-use super::shard::{identity_args, InputId, Partial, ShardArgs, ShardSpec};
+use super::shard::{identity_args, InputId, Partial, ShardArgs, ShardSpec, ShardUnit, TolerancePayload};
 use crate::audit::campaign::Scale;
 use crate::audit::engine::UnitCounts;
 use crate::audit::report::manifest::sha256_hex;
@@ -141,26 +141,6 @@ pub struct State {
     pub finished: bool,
     /// Every look merged, in the order merged.
     pub looks: Vec<Look>,
-}
-
-/// The units of a shard of one round.
-#[derive(Debug, Serialize, Deserialize)]
-pub struct TolerancePayload {
-    /// Rounds merged into the state when the shard ran.
-    pub round: u64,
-    /// The looks of this round, in unit order.
-    pub looks: Vec<LookId>,
-    /// The units this shard computed.
-    pub units: Vec<ShardUnit>,
-}
-
-/// One unit of a round: a chunk of one attack point's trials at one of the round's looks.
-#[derive(Debug, Serialize, Deserialize)]
-pub struct ShardUnit {
-    /// Index into the round's looks.
-    pub look: usize,
-    /// The counts.
-    pub counts: UnitCounts,
 }
 
 fn state_path(dir: &Path) -> PathBuf {
