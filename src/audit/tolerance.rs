@@ -334,15 +334,15 @@ impl LookId {
     pub fn trials(&self, spec: &Spec) -> u64 {
         spec.trials << self.look
     }
-}
 
-impl std::fmt::Display for LookId {
-    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
-        match (self.value, self.configured) {
-            (Some(v), false) => write!(f, "look {} at {}", self.look + 1, num(v)),
-            (Some(v), true) => write!(f, "look {} at the configured {}", self.look + 1, num(v)),
-            (None, _) => write!(f, "look {} at the configured setup", self.look + 1),
-        }
+    /// The look for messages: "look 2 (2000 trials) at signals = 1e6".
+    pub fn describe(&self, spec: &Spec) -> String {
+        let at = match (self.value, self.configured) {
+            (Some(v), false) => format!("{} = {}", spec.key.name, num(v)),
+            (Some(v), true) => format!("the configured {} = {}", spec.key.name, num(v)),
+            (None, _) => "the configured setup".to_string(),
+        };
+        format!("look {} ({} trials per attack point) at {at}", self.look + 1, self.trials(spec))
     }
 }
 
@@ -594,6 +594,7 @@ pub fn assemble_look(c: &Campaign, spec: &Spec, id: LookId, units: &[UnitCounts]
     let chunks = id.trials(spec).div_ceil(CHUNK_TRIALS);
     let mut seen = vec![false; points * chunks as usize];
     let mut out: Vec<Option<PointCounts>> = vec![None; points];
+    let id = id.describe(spec);
     for u in units {
         let slot = (u.point as usize).checked_mul(chunks as usize).and_then(|i| i.checked_add(u.chunk as usize));
         let fresh = slot.filter(|&i| u.chunk < chunks && i < seen.len() && !seen[i]);

@@ -425,7 +425,7 @@ pub fn merge_tolerance(a: ToleranceArgs, parts: Vec<Partial>, files: &[PathBuf],
             conclude(&report, guard, a.json, a.quiet)
         }
         Step::Needs(next) => {
-            let next: Vec<String> = next.iter().map(|id| format!("{} ({} trials per attack point)", id, id.trials(&spec))).collect();
+            let next: Vec<String> = next.iter().map(|id| id.describe(&spec)).collect();
             note(&format!(
                 "merged round {} ({} looks so far); the search needs next: {}. Run the shards again with the same arguments, then merge",
                 state.rounds,
