@@ -183,7 +183,7 @@ steps = 1
 from = 0.06
 "#;
 
-const TOLERANCE_ARGS: [&str; 17] = [
+const TOLERANCE_ARGS: [&str; 16] = [
     "tolerance",
     "c.toml",
     "--key",
@@ -200,7 +200,6 @@ const TOLERANCE_ARGS: [&str; 17] = [
     "8800",
     "--threshold",
     "0.001",
-    "--json",
 ];
 
 /// Runs rounds of `n` shards and merges until the merge writes `out`; gives the merge's
@@ -208,7 +207,7 @@ const TOLERANCE_ARGS: [&str; 17] = [
 fn tolerance_rounds(dir: &Path, n: usize, shard_dir: &str, out: &str) -> (Output, usize) {
     for round in 1..=40 {
         shard_all(&TOLERANCE_ARGS, n, dir, shard_dir);
-        let merged = qkd(&["merge", shard_dir, "-o", out], dir);
+        let merged = qkd(&["merge", shard_dir, "-o", out, "--json"], dir);
         assert!(matches!(merged.status.code(), Some(0 | 1)), "round {round}: {}", String::from_utf8_lossy(&merged.stderr));
         if dir.join(out).exists() {
             return (merged, round);
@@ -225,7 +224,7 @@ fn tolerance_shards_merged_round_by_round_equal_the_single_search() {
     let tmp = tempfile::tempdir().unwrap();
     std::fs::write(tmp.path().join("c.toml"), TOLERANCE_CAMPAIGN).unwrap();
     let mut single_args = TOLERANCE_ARGS.to_vec();
-    single_args.extend(["--evidence", "single.csv", "--quiet"]);
+    single_args.extend(["--evidence", "single.csv", "--quiet", "--json"]);
     let single = qkd(&single_args, tmp.path());
     assert_eq!(single.status.code(), Some(0), "{}", String::from_utf8_lossy(&single.stderr));
     let single_csv = std::fs::read(tmp.path().join("single.csv")).unwrap();
@@ -253,8 +252,13 @@ fn tolerance_shards_merged_round_by_round_equal_the_single_search() {
         again.extend(["--shard", "1/3", "--shard-dir", &sd]);
         let out = qkd(&again, tmp.path());
         ok(&out);
-        assert!(String::from_utf8_lossy(&out.stderr).contains("complete"), "{}", String::from_utf8_lossy(&out.stderr));
+        assert!(String::from_utf8_lossy(&out.stderr).contains("finished"), "{}", String::from_utf8_lossy(&out.stderr));
         assert_eq!(files(&tmp.path().join(&sd)).len(), 1);
+        // The finished search gives its result again, from its state alone.
+        let again = qkd(&["merge", &sd, "-o", "again.csv", "--json", "--force"], tmp.path());
+        assert_eq!(again.status.code(), single.status.code(), "{}", String::from_utf8_lossy(&again.stderr));
+        assert_eq!(again.stdout, single.stdout);
+        assert_eq!(std::fs::read(tmp.path().join("again.csv")).unwrap(), single_csv);
     }
 }
 

@@ -587,6 +587,44 @@ pub fn look_unit_counts(c: &Campaign, spec: &Spec, id: LookId, keep: &(dyn Fn(u6
     run_units(&look_campaign(c, spec, id)?, keep)
 }
 
+/// Checks that a unit computed elsewhere fits the search: a point and chunk of the look,
+/// one rule's counts, the chunk's number of trials, verdicts adding up to them, the point's
+/// attack label, and no more key than the look's blocks hold.
+pub fn check_unit(c: &Campaign, spec: &Spec, id: LookId, u: &UnitCounts) -> Result<()> {
+    let labels: Vec<&str> = c.attacks.iter().flat_map(|e| std::iter::repeat_n(e.label.as_str(), e.points().len())).collect();
+    let trials = id.trials(spec);
+    let chunks = trials.div_ceil(CHUNK_TRIALS);
+    let at = format!("{}, unit (point {}, chunk {})", id.describe(spec), u.point, u.chunk);
+    let bad = |what: String| Err(Error::input(format!("{at}: {what}; the partial result does not fit the search")));
+    let Some(&label) = labels.get(u.point as usize) else {
+        return bad(format!("the search has {} attack points", labels.len()));
+    };
+    if u.chunk >= chunks {
+        return bad(format!("the look has {chunks} chunk(s)"));
+    }
+    let [k] = u.counts.as_slice() else {
+        return bad(format!("{} rules' counts, not 1", u.counts.len()));
+    };
+    let expected = CHUNK_TRIALS.min(trials - u.chunk * CHUNK_TRIALS);
+    if k.trials != expected {
+        return bad(format!("{} trials counted, the chunk has {expected}", k.trials));
+    }
+    if k.verdicts.iter().sum::<u64>() != k.trials {
+        return bad(format!("verdicts {:?} do not add up to its {} trials", k.verdicts, k.trials));
+    }
+    if u.attack != label {
+        return bad(format!("attack `{}`, the point's is `{label}`", u.attack));
+    }
+    let signals = match (id.value, id.configured) {
+        (Some(v), false) => setup_at(c, spec, v)?.signals,
+        _ => c.setup.signals,
+    };
+    if k.key_length_sum > u128::from(signals) * u128::from(k.trials) {
+        return bad(format!("{} key bits over {} blocks of {signals} signals", k.key_length_sum, k.trials));
+    }
+    Ok(())
+}
+
 /// Adds up the units of one look (all of them, in any order) into its attack points'
 /// counts; an error if a unit is missing or given twice.
 pub fn assemble_look(c: &Campaign, spec: &Spec, id: LookId, units: &[UnitCounts]) -> Result<Vec<PointCounts>> {
@@ -615,6 +653,12 @@ pub fn assemble_look(c: &Campaign, spec: &Spec, id: LookId, units: &[UnitCounts]
             params: u.params.clone(),
             counts: Counts::default(),
         });
+        if (&entry.attack, &entry.params) != (&u.attack, &u.params) {
+            return Err(Error::input(format!(
+                "{id}: the units of point {} name different attacks (`{} {}` and `{} {}`)",
+                u.point, entry.attack, entry.params, u.attack, u.params
+            )));
+        }
         entry.counts.merge(counts);
     }
     if let Some(missing) = seen.iter().position(|s| !s) {

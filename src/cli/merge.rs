@@ -64,6 +64,10 @@ pub struct MergeArgs {
     /// No summary line on stderr (as `run --quiet`).
     #[arg(long, short)]
     pub quiet: bool,
+    /// `tolerance`: print the finished search's report as one JSON object instead of the
+    /// sentence (as `tolerance --json`).
+    #[arg(long)]
+    pub json: bool,
 }
 
 /// The partial files named by `paths` (folders expanded to their shard files, sorted).
@@ -160,7 +164,10 @@ pub fn check_partials(paths: &[PathBuf]) -> Result<Vec<Partial>> {
     }
     let missing: Vec<String> = slots.iter().enumerate().filter(|(_, s)| s.is_none()).map(|(i, _)| format!("{}/{n}", i + 1)).collect();
     if !missing.is_empty() {
-        return Err(Error::input(format!("missing shard(s) {}: a merge needs all {n}", missing.join(", "))));
+        return Err(Error::input(format!(
+            "missing shard(s) {}: a merge needs all {n} (run the missing ones with the same arguments, then merge again)",
+            missing.join(", ")
+        )));
     }
     Ok(slots.into_iter().map(|s| s.expect("checked").1).collect())
 }
@@ -175,6 +182,16 @@ fn reparse(command: &str, args: &[String]) -> Result<super::Command> {
 
 /// Runs `qkd-audit merge`.
 pub fn cmd_merge(a: MergeArgs) -> Result<Outcome> {
+    let tolerance = || super::tolerance::MergeOptions { output: a.output.clone(), force: a.force, quiet: a.quiet, json: a.json };
+    // A tolerance search's folder without partial results: its result again, or what it needs.
+    if let [dir] = a.partials.as_slice() {
+        if dir.is_dir() && partial_files(&a.partials).is_err() {
+            if let Some(state) = super::tolerance::read_state_file(dir)? {
+                let super::Command::Tolerance(t) = reparse("tolerance", &state.args)? else { unreachable!("reparsed as tolerance") };
+                return super::tolerance::report_state(t, state, dir, &tolerance());
+            }
+        }
+    }
     let files = partial_files(&a.partials)?;
     let parts = check_partials(&a.partials)?;
     let command = reparse(&parts[0].command, &parts[0].args)?;
@@ -182,7 +199,7 @@ pub fn cmd_merge(a: MergeArgs) -> Result<Outcome> {
         super::Command::Sweep(_) => merge_sweep(parts, &a),
         super::Command::Hunt(h) => super::hunt::merge_hunt(h, parts, a.output.clone(), a.force),
         super::Command::Run(r) => super::run::merge_run(r, parts, a.output.clone(), a.force, a.quiet),
-        super::Command::Tolerance(t) => super::tolerance::merge_tolerance(t, parts, &files, a.output.clone(), a.force),
+        super::Command::Tolerance(t) => super::tolerance::merge_tolerance(t, parts, &files, &tolerance()),
         _ => Err(Error::input(format!("`{}` is not a sharded command", parts[0].command))),
     }
 }

@@ -154,6 +154,7 @@ const NEUTRAL_OPTIONS: &[(&str, bool)] = &[
     ("--results-dir", true),
     ("--out-dir", true),
     ("--evidence", true),
+    ("--json", false),
     ("--force", false),
     ("--quiet", false),
     ("-q", false),
@@ -161,7 +162,7 @@ const NEUTRAL_OPTIONS: &[(&str, bool)] = &[
 
 /// The arguments of this process after the subcommand, without the options that never
 /// change a result (`--shard`, `--shard-dir`, `--threads`, the output location, `--force`,
-/// `--quiet`).
+/// `--quiet`, and `--json`, which only `tolerance` has and its merge takes instead).
 pub fn identity_args() -> Vec<String> {
     let all: Vec<String> = std::env::args().skip(2).collect();
     let mut out = Vec::new();

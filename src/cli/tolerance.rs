@@ -11,8 +11,8 @@ use crate::audit::engine::UnitCounts;
 use crate::audit::report::manifest::sha256_hex;
 use crate::audit::setup::SetupKey;
 use crate::audit::tolerance::{
-    assemble_look, evidence_csv, look_unit_counts, look_units, search, search_with, Criterion, Evaluation, Look, LookId, Looks, Report,
-    Side, Spec, Step,
+    assemble_look, check_unit, evidence_csv, look_unit_counts, look_units, search, search_with, Criterion, Evaluation, Look, LookId, Looks,
+    Report, Side, Spec, Step,
 };
 use crate::audit::Campaign;
 use crate::error::{Error, ErrorKind, Result};
@@ -147,8 +147,8 @@ fn state_path(dir: &Path) -> PathBuf {
     dir.join("tolerance-state.toml")
 }
 
-/// The state in `dir`, if any, checked to belong to the job identified by `args` and `inputs`.
-fn read_state(dir: &Path, args: &[String], inputs: &[InputId]) -> Result<Option<State>> {
+/// The state in `dir`, if any, as written (not checked against a search).
+pub fn read_state_file(dir: &Path) -> Result<Option<State>> {
     let path = state_path(dir);
     let text = match std::fs::read_to_string(&path) {
         Ok(t) => t,
@@ -157,23 +157,61 @@ fn read_state(dir: &Path, args: &[String], inputs: &[InputId]) -> Result<Option<
     };
     let state: State =
         toml::from_str(&text).map_err(|e| Error::input(format!("not a qkd-audit tolerance state: {}", e.message())).with_file(&path))?;
-    let other = |what: &str| {
-        Err(Error::input(format!(
-            "{} holds the state of another search (its {what} differ); give each search a --shard-dir of its own",
-            path.display()
-        )))
-    };
     if state.format != STATE_FORMAT {
         return Err(Error::input_key("format", format!("`{}` is not `{STATE_FORMAT}`", state.format)).with_file(&path));
     }
+    Ok(Some(state))
+}
+
+/// The input files whose hashes differ between `then` and `now`, for messages.
+fn changed_inputs(then: &[InputId], now: &[InputId]) -> String {
+    let mut changed: Vec<String> = then
+        .iter()
+        .filter(|t| !now.contains(t))
+        .map(|t| match now.iter().find(|n| n.origin == t.origin) {
+            Some(n) => format!(
+                "{} (SHA-256 {}… then, {}… now)",
+                t.origin,
+                &t.sha256[..12.min(t.sha256.len())],
+                &n.sha256[..12.min(n.sha256.len())]
+            ),
+            None => format!("{} (no longer an input)", t.origin),
+        })
+        .collect();
+    changed.extend(now.iter().filter(|n| !then.iter().any(|t| t.origin == n.origin)).map(|n| format!("{} (a new input)", n.origin)));
+    changed.join(", ")
+}
+
+/// The state in `dir`, if any, checked to belong to the search identified by `args` and
+/// `inputs`.
+fn read_state(dir: &Path, args: &[String], inputs: &[InputId]) -> Result<Option<State>> {
+    let path = state_path(dir);
+    let Some(state) = read_state_file(dir)? else {
+        return Ok(None);
+    };
     if state.version != env!("CARGO_PKG_VERSION") {
-        return other("tool versions");
+        return Err(Error::input(format!(
+            "{} was written by qkd-audit {}; this is {}: continue the search with that version, or start it again in an empty --shard-dir",
+            path.display(),
+            state.version,
+            env!("CARGO_PKG_VERSION")
+        )));
     }
     if state.args != args {
-        return other("arguments");
+        return Err(Error::input(format!(
+            "{} holds the state of another search: its arguments are `{}`, these are `{}`; continue it with its own arguments, \
+             or give this search an empty --shard-dir",
+            path.display(),
+            state.args.join(" "),
+            args.join(" ")
+        )));
     }
     if state.inputs != inputs {
-        return other("input files (SHA-256)");
+        return Err(Error::input(format!(
+            "input files changed since the search in {} began: {}; restore them, or start the search again in an empty --shard-dir",
+            dir.display(),
+            changed_inputs(&state.inputs, inputs)
+        )));
     }
     Ok(Some(state))
 }
@@ -318,6 +356,15 @@ fn run_shard(a: &ToleranceArgs, campaign: &Campaign, spec: &Spec, inputs: Vec<In
             format!("the search judges the rule file `{}`; sharded searches support built-in rules only (run it unsharded)", spec.rule),
         ));
     }
+    if a.evidence.is_some() {
+        return Err(Error::input_key(
+            "--evidence",
+            "a sharded search writes its evidence at the merge that finishes it: give the file to `qkd-audit merge <shard dir> -o FILE`",
+        ));
+    }
+    if a.json && !a.quiet {
+        note("note: --json is for the merge that finishes the search: `qkd-audit merge <shard dir> --json`");
+    }
     let clock = std::time::Instant::now();
     let dir = &a.shard.shard_dir;
     let args = identity_args();
@@ -325,7 +372,11 @@ fn run_shard(a: &ToleranceArgs, campaign: &Campaign, spec: &Spec, inputs: Vec<In
     let known = state.as_ref().map(|s| s.looks.as_slice()).unwrap_or_default();
     let needs = match search_with(campaign, spec, Looks::Known(known), &|_| {})? {
         Step::Done(_) => {
-            note(&format!("nothing to do: the search in {} is complete (its last merge printed the result)", dir.display()));
+            note(&format!(
+                "nothing to do: the search in {} is finished (`qkd-audit merge {}` gives its result again)",
+                dir.display(),
+                dir.display()
+            ));
             return Ok(Outcome::Clean);
         }
         Step::Needs(needs) => needs,
@@ -349,13 +400,29 @@ fn run_shard(a: &ToleranceArgs, campaign: &Campaign, spec: &Spec, inputs: Vec<In
     Ok(Outcome::Clean)
 }
 
+/// The merge's own options for a tolerance search.
+#[derive(Debug, Clone)]
+pub struct MergeOptions {
+    /// The evidence CSV, written when the search finishes.
+    pub output: Option<PathBuf>,
+    /// Replace an existing evidence file.
+    pub force: bool,
+    /// No notes on stderr.
+    pub quiet: bool,
+    /// Print the report as JSON instead of the sentence.
+    pub json: bool,
+}
+
 /// `merge` of one round of `tolerance` shards: adds the round's looks to the search's state
 /// (beside the partial files, which are then removed), and when the search is finished
 /// writes and prints its result as the unsharded search does (evidence to `output`).
-pub fn merge_tolerance(a: ToleranceArgs, parts: Vec<Partial>, files: &[PathBuf], output: Option<PathBuf>, force: bool) -> Result<Outcome> {
+pub fn merge_tolerance(a: ToleranceArgs, parts: Vec<Partial>, files: &[PathBuf], o: &MergeOptions) -> Result<Outcome> {
     let (campaign, spec, inputs) = build(&a)?;
     if parts[0].inputs != inputs {
-        return Err(Error::input("the search's input files changed since the shards ran (SHA-256 differ): run the round again"));
+        return Err(Error::input(format!(
+            "input files changed since the shards ran: {}; restore them and merge again, or start the search again in an empty --shard-dir",
+            changed_inputs(&parts[0].inputs, &inputs)
+        )));
     }
     let dir = files[0].parent().map(Path::to_path_buf).unwrap_or_default();
     if let Some(other) = files.iter().find(|f| f.parent() != Some(dir.as_path())) {
@@ -365,6 +432,8 @@ pub fn merge_tolerance(a: ToleranceArgs, parts: Vec<Partial>, files: &[PathBuf],
             dir.display()
         )));
     }
+    // The state's lock holds from here until the new state is in place: one merge at a time.
+    let state_guard = crate::output::prepare_file(&state_path(&dir), true)?;
     let args = parts[0].args.clone();
     let mut state = read_state(&dir, &args, &inputs)?.unwrap_or_else(|| State {
         format: STATE_FORMAT.to_string(),
@@ -377,17 +446,33 @@ pub fn merge_tolerance(a: ToleranceArgs, parts: Vec<Partial>, files: &[PathBuf],
     });
     let needs = match search_with(&campaign, &spec, Looks::Known(&state.looks), &|_| {})? {
         Step::Done(_) => {
-            return Err(Error::input(format!("the search in {} is already complete: these partial results are left over", dir.display())))
+            return Err(Error::input(format!(
+                "the search in {} is already finished: these partial results are left over (delete them; `qkd-audit merge {}` gives the result again)",
+                dir.display(),
+                dir.display()
+            )))
         }
         Step::Needs(needs) => needs,
     };
+    let names: Vec<String> = files.iter().map(|f| f.display().to_string()).collect();
     let mut units: Vec<Vec<UnitCounts>> = needs.iter().map(|_| Vec::new()).collect();
     for p in parts {
         let (k, n) = (p.shard, p.shards);
         let payload = p.tolerance.ok_or_else(|| Error::input(format!("shard {k}/{n} carries no tolerance looks")))?;
-        if payload.round != state.rounds {
+        if payload.round < state.rounds {
             return Err(Error::input(format!(
-                "shard {k}/{n} was computed after round {} but {} holds {} merged round(s): the partial results are left over from an earlier round",
+                "shard {k}/{n} was computed for round {}, which {} holds already ({} round(s) merged): the partial results are left \
+                 over from an earlier round; delete {} and run this round's shards",
+                payload.round + 1,
+                state_path(&dir).display(),
+                state.rounds,
+                names.join(", ")
+            )));
+        }
+        if payload.round > state.rounds {
+            return Err(Error::input(format!(
+                "shard {k}/{n} was computed after {} merged round(s), but {} holds {}: the state was replaced or removed; start the \
+                 search again in an empty --shard-dir",
                 payload.round,
                 state_path(&dir).display(),
                 state.rounds
@@ -397,13 +482,14 @@ pub fn merge_tolerance(a: ToleranceArgs, parts: Vec<Partial>, files: &[PathBuf],
             return Err(Error::input(format!("shard {k}/{n} computed other looks than the search needs next")));
         }
         for u in payload.units {
-            units
-                .get_mut(u.look)
-                .ok_or_else(|| Error::input(format!("shard {k}/{n} names look {} of {}", u.look, needs.len())))?
-                .push(u.counts);
+            let Some(look) = needs.get(u.look) else {
+                return Err(Error::input(format!("shard {k}/{n} names look {} of {}", u.look, needs.len())));
+            };
+            check_unit(&campaign, &spec, *look, &u.counts).map_err(|e| Error::input(format!("shard {k}/{n}: {e}")))?;
+            units[u.look].push(u.counts);
         }
     }
-    let guard = output.as_deref().map(|p| crate::output::prepare_file(p, force)).transpose()?;
+    let evidence = o.output.as_deref().map(|p| crate::output::prepare_file(p, o.force)).transpose()?;
     for (id, units) in needs.iter().zip(&units) {
         let points = assemble_look(&campaign, &spec, *id, units)?;
         state.looks.push(Look { id: *id, points });
@@ -412,27 +498,65 @@ pub fn merge_tolerance(a: ToleranceArgs, parts: Vec<Partial>, files: &[PathBuf],
     let step = search_with(&campaign, &spec, Looks::Known(&state.looks), &|_| {})?;
     state.finished = matches!(step, Step::Done(_));
     let text = toml::to_string(&state).map_err(|e| Error::new(ErrorKind::Io, format!("cannot encode the search's state: {e}")))?;
-    crate::output::write_atomic(&state_path(&dir), text.as_bytes(), true)?;
+    state_guard.commit(text.as_bytes())?;
     for f in files {
         std::fs::remove_file(f)
             .map_err(|e| Error::new(ErrorKind::Io, format!("cannot remove the merged partial result {}: {e}", f.display())))?;
     }
     match step {
         Step::Done(report) => {
-            if !a.quiet {
-                note(&format!("merged round {}: the search is complete ({} looks)", state.rounds, state.looks.len()));
+            if !o.quiet {
+                note(&format!("merged round {}: the search is finished ({} looks)", state.rounds, state.looks.len()));
             }
-            conclude(&report, guard, a.json, a.quiet)
+            conclude(&report, evidence, o.json, o.quiet)
         }
         Step::Needs(next) => {
-            let next: Vec<String> = next.iter().map(|id| id.describe(&spec)).collect();
-            note(&format!(
-                "merged round {} ({} looks so far); the search needs next: {}. Run the shards again with the same arguments, then merge",
-                state.rounds,
-                state.looks.len(),
-                next.join("; ")
-            ));
+            if !o.quiet {
+                let next: Vec<String> = next.iter().map(|id| id.describe(&spec)).collect();
+                note(&format!(
+                    "merged round {} ({} looks so far); the search needs next: {}. Run the shards again with the same arguments, then merge",
+                    state.rounds,
+                    state.looks.len(),
+                    next.join("; ")
+                ));
+            }
             Ok(Outcome::Clean)
+        }
+    }
+}
+
+/// `merge <shard dir>` on a search without partial results: a finished search gives its
+/// result again (the evidence to `output`, the sentence or the JSON on stdout, the exit
+/// status); an unfinished one is an error that names the looks it needs next.
+pub fn report_state(a: ToleranceArgs, state: State, dir: &Path, o: &MergeOptions) -> Result<Outcome> {
+    let (campaign, spec, inputs) = build(&a)?;
+    if state.version != env!("CARGO_PKG_VERSION") {
+        return Err(Error::input(format!(
+            "{} was written by qkd-audit {}; this is {}: report it with that version",
+            state_path(dir).display(),
+            state.version,
+            env!("CARGO_PKG_VERSION")
+        )));
+    }
+    if state.inputs != inputs {
+        return Err(Error::input(format!(
+            "input files changed since the search in {} ran: {}; restore them to report its result",
+            dir.display(),
+            changed_inputs(&state.inputs, &inputs)
+        )));
+    }
+    let evidence = o.output.as_deref().map(|p| crate::output::prepare_file(p, o.force)).transpose()?;
+    match search_with(&campaign, &spec, Looks::Known(&state.looks), &|_| {})? {
+        Step::Done(report) => conclude(&report, evidence, o.json, o.quiet),
+        Step::Needs(next) => {
+            let next: Vec<String> = next.iter().map(|id| id.describe(&spec)).collect();
+            Err(Error::input(format!(
+                "{} holds no partial results, and the search there is not finished ({} round(s) merged); it needs next: {}. Run \
+                 the shards with the search's arguments, then merge",
+                dir.display(),
+                state.rounds,
+                next.join("; ")
+            )))
         }
     }
 }

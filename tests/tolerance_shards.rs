@@ -1,6 +1,6 @@
-//! Review of `tolerance --shard` and its round-by-round `merge`: defects found by using the
-//! feature as a user would. Each test states the expected behaviour; they fail on the code
-//! they were written against.
+//! `tolerance --shard` and its round-by-round `merge` as a user gets them wrong: evidence
+//! asked of the shards, the last merge without `-o`, `--quiet` and `--json` at the merge, an
+//! input changed between rounds, and counts that do not fit the search.
 
 use std::path::Path;
 use std::process::{Command, Output};
@@ -150,9 +150,8 @@ fn json_can_be_asked_for_in_a_later_round() {
 }
 
 /// When the campaign file changes between the shards and the merge of a round after the
-/// first, `merge` says "run the round again"; but the state pins the old file's SHA-256, so
-/// the shards of that round are then refused as "another search". The advice cannot be
-/// followed (only restoring the file, or a new --shard-dir, helps).
+/// first, `merge` refuses, names the file, and says what helps: restoring it (or an empty
+/// --shard-dir). Restoring it lets the same round merge.
 #[test]
 fn the_advice_after_a_changed_input_can_be_followed() {
     let tmp = setup();
@@ -164,18 +163,22 @@ fn the_advice_after_a_changed_input_can_be_followed() {
     let m = qkd(&["merge", "sd"], dir);
     assert_eq!(m.status.code(), Some(2));
     let advice = stderr(&m);
-    if advice.contains("run the round again") {
-        let mut a = SEARCH.to_vec();
-        a.extend(["--shard", "1/2", "--shard-dir", "sd", "--force"]);
-        let o = qkd(&a, dir);
-        assert_eq!(o.status.code(), Some(0), "merge said `{}`, but the shard then says: {}", advice.trim(), stderr(&o));
-    }
+    assert!(advice.contains("c.toml") && advice.contains("restore"), "{advice}");
+    // A shard of the changed search is refused with the same advice.
+    let mut a = SEARCH.to_vec();
+    a.extend(["--shard", "1/2", "--shard-dir", "sd", "--force"]);
+    let o = qkd(&a, dir);
+    assert_eq!(o.status.code(), Some(2));
+    assert!(stderr(&o).contains("c.toml") && stderr(&o).contains("restore"), "{}", stderr(&o));
+    // Restored, the round merges.
+    std::fs::write(dir.join("c.toml"), CAMPAIGN).unwrap();
+    let m = qkd(&["merge", "sd"], dir);
+    assert!(matches!(m.status.code(), Some(0 | 1)), "{}", stderr(&m));
 }
 
-/// `merge` accepts a unit whose counts do not fit the job: here 7 trials (verdicts adding
-/// up to 1) where the chunk has 300, under a made-up attack label. It merges them into the
-/// state, and the search goes on from evidence nobody computed. Expected: exit 2 naming the
-/// shard file, the state untouched.
+/// `merge` refuses a unit whose counts do not fit the job: here 7 trials (verdicts adding
+/// up to 1) where the chunk has 300, under a made-up attack label: exit 2 naming the shard,
+/// the state untouched.
 #[test]
 fn merge_refuses_counts_that_do_not_fit_the_unit() {
     let tmp = setup();
@@ -192,5 +195,6 @@ fn merge_refuses_counts_that_do_not_fit_the_unit() {
     std::fs::write(&p, bad).unwrap();
     let m = qkd(&["merge", "sd"], dir);
     assert_eq!(m.status.code(), Some(2), "a unit of 7 trials (1 counted) in a 300-trial chunk was merged: {}", stderr(&m));
+    assert!(stderr(&m).contains("shard 1/2") && stderr(&m).contains("7 trials counted"), "{}", stderr(&m));
     assert!(!dir.join("sd/tolerance-state.toml").exists());
 }
