@@ -456,3 +456,37 @@ fn a_leaking_configured_value_between_safe_ends_is_not_called_safe_throughout() 
     // The search's notes follow the statement on stdout.
     assert!(stdout.contains("one-crossing assumption fails"), "{stdout}");
 }
+
+/// Both ends unsafe, each decided by a different attack: the sentence names both, each at
+/// its end (the finite-size leak of the asymptotic rule at 10⁴ signals under the honest
+/// line, the cloner inside the abort threshold at 10¹⁰).
+#[test]
+fn unsafe_ends_decided_by_different_attacks_are_both_named() {
+    let dir = tempfile::tempdir().unwrap();
+    let campaign = r#"
+name = "two-ends"
+seed = 3
+trials = 150
+[setup]
+signals = 200000
+abort_qber = 0.06
+key_rule = "asymptotic"
+[[attacks]]
+builtin = "phase-covariant-cloner"
+steps = 3
+from = 0.04
+to = 0.07
+[[attacks]]
+builtin = "intercept-resend"
+"#;
+    std::fs::write(dir.path().join("c.toml"), campaign).unwrap();
+    let out =
+        qkd(&["tolerance", "c.toml", "--key", "signals", "--from", "1e4", "--to", "1e10", "--scale", "log", "--json", "-q"], dir.path());
+    assert_eq!(out.status.code(), Some(1), "{}", String::from_utf8_lossy(&out.stderr));
+    let json: serde_json::Value = serde_json::from_slice(&out.stdout).unwrap();
+    assert_eq!(json["finding"]["kind"], "unsafe-throughout");
+    let (from, to) = (json["finding"]["attack"].as_str().unwrap(), json["finding"]["attack_at_to"].as_str().unwrap());
+    assert!(from.starts_with("intercept-resend") && to.starts_with("phase-covariant-cloner"), "{from} / {to}");
+    let statement = json["statement"].as_str().unwrap();
+    assert!(statement.contains(&format!("against `{from}` at 10000 signals, against `{to}` at 1e10 signals")), "{statement}");
+}

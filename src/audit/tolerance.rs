@@ -262,6 +262,8 @@ pub enum Finding {
     UnsafeThroughout {
         /// The attack point deciding at `from` (label and parameters).
         attack: String,
+        /// The attack point deciding at `to`.
+        attack_at_to: String,
     },
     /// An end stayed inconclusive: no boundary claim.
     InconclusiveEnd {
@@ -462,7 +464,10 @@ pub fn search_with(c: &Campaign, spec: &Spec, looks: Looks, progress: &(dyn Fn(&
     }
     let finding = match (s0, s1) {
         (Side::Safe, Side::Safe) => Finding::SafeThroughout,
-        (Side::Unsafe, Side::Unsafe) => Finding::UnsafeThroughout { attack: attack_text(evaluations[0].decisive()) },
+        (Side::Unsafe, Side::Unsafe) => Finding::UnsafeThroughout {
+            attack: attack_text(evaluations[0].decisive()),
+            attack_at_to: attack_text(evaluations[1].decisive()),
+        },
         (Side::Inconclusive, _) => Finding::InconclusiveEnd { value: spec.value_at(0.0) },
         (_, Side::Inconclusive) => Finding::InconclusiveEnd { value: spec.value_at(1.0) },
         _ => {
@@ -811,11 +816,25 @@ fn statement(spec: &Spec, finding: &Finding, configured: Side, configured_value:
              the configured value inside the range is on the other side, so the result is not monotone and no boundary is claimed"
         ),
         Finding::SafeThroughout => format!("the rule `{rule}` {good} against every listed attack at both ends of {key} = {range} ({level}; one crossing assumed, so throughout)"),
-        Finding::UnsafeThroughout { attack } if broken => format!(
-            "the rule `{rule}` {bad} against `{attack}` at both ends of {key} = {range} ({level}) but NOT throughout: the configured \
-             value inside the range is on the other side, so the result is not monotone and no boundary is claimed"
-        ),
-        Finding::UnsafeThroughout { attack } => format!("the rule `{rule}` {bad} against `{attack}` at both ends of {key} = {range} ({level})"),
+        Finding::UnsafeThroughout { attack, attack_at_to } => {
+            let against = if attack == attack_at_to {
+                format!("against `{attack}` at both ends of {key} = {range}")
+            } else {
+                format!(
+                    "at both ends of {key} = {range}: against `{attack}` at {}{unit}, against `{attack_at_to}` at {}{unit}",
+                    num(spec.value_at(0.0)),
+                    num(spec.value_at(1.0))
+                )
+            };
+            if broken {
+                format!(
+                    "the rule `{rule}` {bad} {against} ({level}) but NOT throughout: the configured value inside the range is on the \
+                     other side, so the result is not monotone and no boundary is claimed"
+                )
+            } else {
+                format!("the rule `{rule}` {bad} {against} ({level})")
+            }
+        }
         Finding::InconclusiveEnd { value } => format!(
             "no boundary claim: at {key} = {}{unit} the evidence stays inconclusive after {} trials per attack ({level}); raise --max-trials or move the range",
             num(*value),
