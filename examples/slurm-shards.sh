@@ -28,6 +28,8 @@
 #   SBATCH_OPTS  extra sbatch options for both jobs, e.g. "--partition=short --time=01:00:00"
 #   WAIT=1       block until the merge job ends and exit with its status (sbatch --wait);
 #                a tolerance search always waits
+#   MAX_ROUNDS   a tolerance search stops (exit 2, its state kept) after this many rounds
+#                (default 200); run the script again with the same SHARD_DIR to go on
 #
 # Every array task runs in the submission directory (sbatch's default) and writes
 # SHARD_DIR/<subcommand>-shard-K-of-N.toml; the merge refuses a missing, duplicated or
@@ -53,9 +55,31 @@ extra=(${SBATCH_OPTS:-})
 
 # The subcommand and its arguments, quoted for the job's shell.
 job=$(printf '%q ' "$bin" "$@")
+again=""
+json_opt=()
+for a in "$@"; do
+    if [[ $a == --json ]]; then
+        json_opt=(--json) # the search's report as JSON: asked of the merge that finishes it
+    fi
+done
+if [[ $1 == tolerance ]]; then
+    if [[ -e $output ]]; then
+        echo "error: $output exists; the search's last merge would refuse to replace it" >&2
+        exit 2
+    fi
+    # A task requeued by Slurm replaces its own partial file of this round.
+    again=" --force"
+    # Going on with a search begun earlier in SHARD_DIR: its rounds so far.
+    state="$dir/tolerance-state.toml"
+    if grep -q '^finished = true' "$state" 2>/dev/null; then
+        echo "the search in $dir is finished; its result again:" >&2
+        exec "$bin" merge "$dir" -o "$output" "${json_opt[@]}"
+    fi
+    done_rounds=$(sed -n 's/^rounds = \([0-9]*\)$/\1/p' "$state" 2>/dev/null || true)
+fi
 array_id=$(sbatch --parsable "${extra[@]}" --job-name=qkd-audit-shard --array="1-$n" \
     --output="$dir/slurm-%A_%a.out" \
-    --wrap="$job --shard \${SLURM_ARRAY_TASK_ID}/$n --shard-dir $(printf '%q' "$dir")")
+    --wrap="$job --shard \${SLURM_ARRAY_TASK_ID}/$n --shard-dir $(printf '%q' "$dir")$again")
 array_id=${array_id%%;*}
 echo "submitted array job $array_id ($n shards) writing to $dir" >&2
 
@@ -63,27 +87,36 @@ merge=$(printf '%q ' "$bin" merge "$dir" -o "$output")
 if [[ $1 == tolerance ]]; then
     # Rounds: the array computes the looks the search needs next; the merge adds them to
     # $dir/tolerance-state.toml and, once the search is finished, writes OUTPUT and prints
-    # the result.
-    round=1
+    # the result. A round whose merge did not advance the state (a failed or cancelled task)
+    # stops the loop, as does MAX_ROUNDS.
+    merge+="${json_opt[*]/#/ }"
+    max_rounds=${MAX_ROUNDS:-200}
+    round=$((${done_rounds:-0} + 1))
+    first=$round
     while :; do
         merge_id=$(sbatch --parsable "${extra[@]}" --wait --job-name=qkd-audit-merge \
             --dependency="afterok:$array_id" --kill-on-invalid-dep=yes \
             --output="$dir/merge-round-$round.out" --error="$dir/merge-round-$round.err" --wrap="$merge") && status=0 || status=$?
         merge_id=${merge_id%%;*}
-        if ((status > 1)); then
-            echo "round $round: the merge job $merge_id failed (status $status); see $dir/merge-round-$round.err" >&2
+        merged=$(sed -n 's/^rounds = \([0-9]*\)$/\1/p' "$dir/tolerance-state.toml" 2>/dev/null || true)
+        if ((status > 1)) || [[ ${merged:-0} != "$round" ]]; then
+            echo "round $round did not merge (merge job $merge_id, status $status); shard logs: $dir/slurm-${array_id}_*.out" >&2
             cat "$dir/merge-round-$round.err" >&2 2>/dev/null || true
-            exit "$status"
+            exit 2
         fi
         if grep -q '^finished = true' "$dir/tolerance-state.toml"; then
             echo "the search finished after $round round(s); evidence in $output" >&2
             cat "$dir/merge-round-$round.out"
             exit "$status"
         fi
+        if ((round - first + 1 >= max_rounds)); then
+            echo "stopped after MAX_ROUNDS=$max_rounds rounds; the state in $dir is kept: run this script again with SHARD_DIR=$dir to go on" >&2
+            exit 2
+        fi
         round=$((round + 1))
         array_id=$(sbatch --parsable "${extra[@]}" --job-name=qkd-audit-shard --array="1-$n" \
             --output="$dir/slurm-%A_%a.out" \
-            --wrap="$job --shard \${SLURM_ARRAY_TASK_ID}/$n --shard-dir $(printf '%q' "$dir")")
+            --wrap="$job --shard \${SLURM_ARRAY_TASK_ID}/$n --shard-dir $(printf '%q' "$dir") --force")
         array_id=${array_id%%;*}
         echo "round $round: submitted array job $array_id" >&2
     done

@@ -242,6 +242,22 @@ fn slurm_job_array_and_merge_equal_the_single_run() {
     assert!(err.contains("finished after") && !err.contains("finished after 1 round"), "{err}");
     assert_eq!(String::from_utf8_lossy(&out.stdout), String::from_utf8_lossy(&single.stdout));
     assert_eq!(std::fs::read(t.join("merged.csv")).unwrap(), std::fs::read(t.join("single.csv")).unwrap());
+    // Shards that fail (an unknown key) stop the rounds at once, with exit status 2.
+    let mut bad = search;
+    bad[3] = "colour";
+    let out = Command::new(&script)
+        .args(["2", "bad.csv", "--"])
+        .args(bad)
+        .current_dir(t)
+        .env("SLURM_CONF", &conf)
+        .env("QKD_AUDIT", bin)
+        .env("SHARD_DIR", "bad-shards")
+        .output()
+        .unwrap();
+    let err = String::from_utf8_lossy(&out.stderr);
+    assert_eq!(out.status.code(), Some(2), "{err}");
+    assert!(err.contains("round 1 did not merge"), "{err}");
+    assert!(!t.join("bad.csv").exists());
     drop(daemons);
 }
 
