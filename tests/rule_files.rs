@@ -153,6 +153,7 @@ fn every_failure_of_a_program_stops_the_run_naming_command_trial_and_output() {
         ("swap", "answered point 0 trial 1 where point 0 trial 0 was due", Some("trial 0")),
         ("short", "ended its output before answering", Some("trial 7")),
         ("error", "reported an error: cannot size the key", Some("trial 3")),
+        ("oversize", "more than the block's n =", Some("trial 3")),
         ("extra", "wrote more answers than blocks", None),
     ] {
         let dir = tempfile::tempdir().unwrap();
