@@ -79,3 +79,65 @@ fn sweep_takes_a_built_in_entry_by_name() {
     assert_eq!(neither.status.code(), Some(2));
     assert!(stderr(&neither).contains("--attack <NAME>|--attack-file <PATH>"), "{}", stderr(&neither));
 }
+
+/// Integer keys of campaign and setup files take a float with an integral value (`1e3`) as
+/// that integer, and refuse a fraction (`1.5e0`) with the file, line and key.
+#[test]
+fn integer_keys_written_as_floats_are_taken_exactly_or_refused_with_file_line_and_key() {
+    let dir = tempfile::tempdir().unwrap();
+    let campaign = |seed: &str, trials: &str, signals: &str, test_count: &str, steps: &str| {
+        format!(
+            "name = \"floats\"\nseed = {seed}\ntrials = {trials}\n[setup]\nsignals = {signals}\ntest_count = {test_count}\n\
+             [[attacks]]\nbuiltin = \"intercept-resend\"\nsteps = {steps}\n[[setup_sweeps]]\nkey = \"abort_qber\"\nfrom = 0.05\nto = 0.1\nsteps = {steps}\n"
+        )
+    };
+    let run = |name: &str, text: &str| {
+        std::fs::write(dir.path().join(name), text).unwrap();
+        qkd(&["run", name, "--results-dir", name.trim_end_matches(".toml"), "-q"], dir.path())
+    };
+    // Written as floats and as integers, the same campaign: the same table, byte for byte.
+    let floats = run("f.toml", &campaign("7e0", "2e1", "2e4", "1e2", "2e0"));
+    assert_eq!(floats.status.code(), Some(0), "{}", stderr(&floats));
+    let ints = run("i.toml", &campaign("7", "20", "20000", "100", "2"));
+    assert_eq!(ints.status.code(), Some(0), "{}", stderr(&ints));
+    let table = |d: &str| std::fs::read_to_string(dir.path().join(d).join("floats/attack_vs_bound.csv")).unwrap();
+    assert_eq!(table("f"), table("i"));
+    assert_eq!(table("f").lines().count(), 1 + 2 * 2);
+    let manifest = std::fs::read_to_string(dir.path().join("f/floats/manifest.json")).unwrap();
+    assert!(manifest.contains("\"seed\": 7,") && manifest.contains("\"trials\": 20,"), "{manifest}");
+
+    // A fraction, or a whole number out of range, at each integer key: file, line, key.
+    for (text, line, key, what) in [
+        (campaign("7", "1.5e0", "2e4", "100", "2"), 3, "trials", "1.5 is not a whole number"),
+        (campaign("0.5", "20", "2e4", "100", "2"), 2, "seed", "0.5 is not a whole number"),
+        (campaign("7", "20", "20000.5", "100", "2"), 5, "setup.signals", "20000.5 is not a whole number"),
+        (campaign("7", "20", "2e4", "1.255e2", "2"), 6, "setup.test_count", "125.5 is not a whole number"),
+        (campaign("7", "20", "2e4", "100", "2.5"), 9, "attacks[0].steps", "2.5 is not a whole number"),
+        (campaign("7", "2e6", "2e4", "100", "2"), 3, "trials", "2000000 is outside the allowed range [1, 1000000]"),
+        (campaign("7", "20", "1e16", "100", "2"), 5, "setup.signals", "outside the allowed range [100, 1e15]"),
+    ] {
+        let out = run("bad.toml", &text);
+        let err = stderr(&out);
+        assert_eq!(out.status.code(), Some(2), "{key}: {err}");
+        assert!(err.contains(&format!("bad.toml:{line}:")) && err.contains(&format!("key `{key}`")) && err.contains(what), "{key}: {err}");
+    }
+    // The setup sweep's steps (line 14, after the attack's own steps at line 9).
+    let text = campaign("7", "20", "2e4", "100", "2")
+        .replacen("steps = 2\n", "steps = 2\n", 1)
+        .replace("to = 0.1\nsteps = 2", "to = 0.1\nsteps = 2.5");
+    let out = run("bad.toml", &text);
+    assert_eq!(out.status.code(), Some(2));
+    assert!(stderr(&out).contains("bad.toml:14:") && stderr(&out).contains("2.5 is not a whole number"), "{}", stderr(&out));
+
+    // A setup file of its own: the same rule.
+    std::fs::write(dir.path().join("setup.toml"), "signals = 1e6\ntest_count = 1e3\n").unwrap();
+    assert_eq!(qkd(&["validate", "setup.toml"], dir.path()).status.code(), Some(0));
+    std::fs::write(dir.path().join("setup.toml"), "signals = 1e6\ntest_count = 1e-3\n").unwrap();
+    let out = qkd(&["validate", "setup.toml"], dir.path());
+    assert_eq!(out.status.code(), Some(2));
+    assert!(
+        stderr(&out).contains("setup.toml:2:") && stderr(&out).contains("key `test_count`: 0.001 is not a whole number"),
+        "{}",
+        stderr(&out)
+    );
+}
