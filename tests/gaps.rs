@@ -141,3 +141,26 @@ fn integer_keys_written_as_floats_are_taken_exactly_or_refused_with_file_line_an
         stderr(&out)
     );
 }
+
+/// A qubit attack's idle point (intercept-resend at fraction 0) on a lossy weak-coherent
+/// link with decoys is not the honest link; the run's summary and table say so, while the
+/// honest link (photon-number splitting at fraction 0) carries no such note.
+#[test]
+fn an_idle_qubit_attack_on_a_lossy_link_is_noted_in_the_summary() {
+    let dir = tempfile::tempdir().unwrap();
+    let campaign = "name = \"idle\"\ntrials = 5\n[setup]\nsignals = 1e8\ntest_count = 5000\nabort_qber = 0.06\nkey_rule = \"decoy-finite\"\n\
+        [setup.source]\nkind = \"weak-coherent\"\nintensity = 0.5\nprobability = 0.8\ndecoys = [0.1, 0.0]\ndecoy_probabilities = [0.15, 0.05]\n\
+        [setup.channel]\nlength_km = 25\nattenuation_db_per_km = 0.2\n[setup.detector]\nefficiency = 0.2\ndark_count_probability = 1e-6\n\
+        misalignment = 0.01\n[[attacks]]\nbuiltin = \"intercept-resend\"\nsteps = 2\n[[attacks]]\nbuiltin = \"photon-number-splitting\"\nsteps = 2\n";
+    std::fs::write(dir.path().join("c.toml"), campaign).unwrap();
+    let out = qkd(&["run", "c.toml", "--results-dir", "r", "-q"], dir.path());
+    assert!(matches!(out.status.code(), Some(0 | 1)), "{}", stderr(&out));
+    let summary = std::fs::read_to_string(dir.path().join("r/idle/summary.md")).unwrap();
+    let line = summary.lines().find(|l| l.starts_with("Note: at fraction=0, basis=random")).unwrap_or_else(|| panic!("{summary}"));
+    assert!(line.contains("not the honest one") && line.contains("at intensity 0.1 his gain is"), "{line}");
+    assert!(line.contains("`photon-number-splitting` at fraction 0"), "{line}");
+    let csv = std::fs::read_to_string(dir.path().join("r/idle/attack_vs_bound.csv")).unwrap();
+    let noted: Vec<&str> = csv.lines().filter(|l| l.contains("leaves every single photon alone")).collect();
+    assert_eq!(noted.len(), 1, "only the idle intercept-resend point: {noted:?}");
+    assert!(noted[0].contains(",intercept-resend,") && noted[0].contains(",fraction,0,"), "{}", noted[0]);
+}
