@@ -122,9 +122,7 @@ fn integer_keys_written_as_floats_are_taken_exactly_or_refused_with_file_line_an
         assert!(err.contains(&format!("bad.toml:{line}:")) && err.contains(&format!("key `{key}`")) && err.contains(what), "{key}: {err}");
     }
     // The setup sweep's steps (line 14, after the attack's own steps at line 9).
-    let text = campaign("7", "20", "2e4", "100", "2")
-        .replacen("steps = 2\n", "steps = 2\n", 1)
-        .replace("to = 0.1\nsteps = 2", "to = 0.1\nsteps = 2.5");
+    let text = campaign("7", "20", "2e4", "100", "2").replace("to = 0.1\nsteps = 2", "to = 0.1\nsteps = 2.5");
     let out = run("bad.toml", &text);
     assert_eq!(out.status.code(), Some(2));
     assert!(stderr(&out).contains("bad.toml:14:") && stderr(&out).contains("2.5 is not a whole number"), "{}", stderr(&out));

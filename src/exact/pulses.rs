@@ -150,7 +150,7 @@ fn idle_note(link: &Link, settings: &[(Photons, f64)], models: &[DetectionModel]
         } else {
             continue;
         };
-        if worst.as_ref().is_none_or(|w| (candidate.0, candidate.1) > (w.0, w.1)) {
+        if !worst.as_ref().is_some_and(|w| (candidate.0, candidate.1) <= (w.0, w.1)) {
             worst = Some(candidate);
         }
     }

@@ -344,7 +344,7 @@ impl Comparison {
         .map_err(io)?;
         for c in &self.setup_changes {
             let mut record = vec![String::new(), "setup".into(), "setup-changed".into()];
-            record.extend(std::iter::repeat_n(String::new(), 9));
+            record.extend(std::iter::repeat(String::new()).take(9));
             record.extend([c.key.clone(), c.a.clone().unwrap_or_default(), c.b.clone().unwrap_or_default(), c.unit.clone()]);
             w.write_record(&record).map_err(io)?;
         }
