@@ -8,7 +8,8 @@
 //!   (stops answering; both after writing the answers before T), `garbage` (writes a line that is not JSON), `nan` (answers NaN),
 //!   `swap` (answers two blocks in the wrong order), `short` (one answer too few in the
 //!   batch, then exits), `extra` (one answer too many after the last batch), `error` (an
-//!   error object);
+//!   error object), `oversize` (answers n + 1 key bits, one more than the block has, and
+//!   lets the setup's threshold decide the abort);
 //! - `--stderr` writes one line to stderr per batch; `--version` prints a version.
 
 use qkd_audit::audit::rules::{BlockStats, KeyRule, RuleParams};
@@ -81,6 +82,7 @@ fn main() {
             }
             let key_bits = match mode.as_str() {
                 "zero" => 0,
+                "oversize" if b.trial == at => b.n + 1,
                 _ => {
                     let obs = BlockStats {
                         n: b.n,

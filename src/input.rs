@@ -119,6 +119,44 @@ pub fn number(v: &toml::Value, key: &str) -> Result<f64> {
     }
 }
 
+/// Largest float accepted for an integer key: up to 2⁵³ every integer is a double, so a
+/// float such as `1e6` names exactly one integer; beyond, the written value may have been
+/// rounded on reading.
+pub const MAX_EXACT_FLOAT_INTEGER: f64 = 9_007_199_254_740_992.0;
+
+/// A whole number in `[lo, hi]`: a TOML integer, or a float with an integral value
+/// (`trials = 1e3`, `signals = 1e6`) up to [`MAX_EXACT_FLOAT_INTEGER`]. A fraction
+/// (`1.5e0`), a value out of range, or anything else is an error naming `key`, the value and
+/// the range.
+pub fn integer(v: &toml::Value, key: &str, lo: u64, hi: u64) -> Result<u64> {
+    let (lo_s, hi_s) = (range_end(lo), range_end(hi));
+    let outside = |x: &dyn std::fmt::Display| Error::input_key(key, format!("{x} is outside the allowed range [{lo_s}, {hi_s}]"));
+    match v {
+        toml::Value::Integer(i) => u64::try_from(*i).ok().filter(|n| (lo..=hi).contains(n)).ok_or_else(|| outside(i)),
+        toml::Value::Float(x) if x.is_finite() && x.fract() != 0.0 => {
+            Err(Error::input_key(key, format!("{x} is not a whole number: give an integer in [{lo_s}, {hi_s}]")))
+        }
+        toml::Value::Float(x) if x.is_finite() && !(*x >= lo as f64 && *x <= hi as f64) => Err(outside(x)),
+        toml::Value::Float(x) if x.is_finite() && *x > MAX_EXACT_FLOAT_INTEGER => Err(Error::input_key(
+            key,
+            format!("{x:e} is too large to name one integer as a float: write it as an integer, in [{lo_s}, {hi_s}]"),
+        )),
+        // Integral, in range and at most 2⁵³: exact.
+        toml::Value::Float(x) if x.is_finite() => Ok(*x as u64),
+        other => Err(Error::input_key(key, format!("must be an integer in [{lo_s}, {hi_s}], not {}", shown(other)))),
+    }
+}
+
+/// A range end as messages print it: a power of ten from 10⁹ on as `1e9`, `1e15`.
+fn range_end(n: u64) -> String {
+    let k = n.checked_ilog10().unwrap_or(0);
+    if k >= 9 && 10u64.pow(k) == n {
+        format!("1e{k}")
+    } else {
+        n.to_string()
+    }
+}
+
 /// A value as the user wrote it, for a message: TOML syntax, shortened, control characters
 /// escaped (it is printed on a terminal).
 pub fn shown(v: &toml::Value) -> String {
@@ -268,6 +306,33 @@ mod tests {
         assert_eq!(locate_key("[setup]\n[setup.detectr]\nx = 1\n", "setup.detectr"), Some((2, 1)));
         let e = locate(Error::input_key("setup.abort_qber", "too big"), text).with_file("c.toml");
         assert_eq!(e.to_string(), "c.toml:4:3: key `setup.abort_qber`: too big");
+    }
+
+    #[test]
+    fn integers_may_be_written_as_integral_floats() {
+        use toml::Value::{Float, Integer, String as Str};
+        assert_eq!(integer(&Integer(1000), "k", 1, 1_000_000).unwrap(), 1000);
+        assert_eq!(integer(&Float(1e3), "k", 1, 1_000_000).unwrap(), 1000);
+        assert_eq!(integer(&Float(1e6), "k", 1, 1_000_000).unwrap(), 1_000_000);
+        assert_eq!(integer(&Float(-0.0), "k", 0, 5).unwrap(), 0);
+        assert_eq!(integer(&Float(MAX_EXACT_FLOAT_INTEGER), "k", 0, u64::MAX).unwrap(), 1 << 53);
+        for (v, what) in [
+            (Float(1.5), "1.5 is not a whole number: give an integer in [1, 1000000]"),
+            (Float(1e-3), "0.001 is not a whole number"),
+            (Float(2e6), "2000000 is outside the allowed range [1, 1000000]"),
+            (Float(0.0), "0 is outside the allowed range [1, 1000000]"),
+            (Integer(-1), "-1 is outside the allowed range [1, 1000000]"),
+            (Integer(0), "0 is outside"),
+            (Float(f64::INFINITY), "must be an integer in [1, 1000000], not inf"),
+            (Float(f64::NAN), "must be an integer in [1, 1000000], not nan"),
+            (Str("10".into()), "must be an integer in [1, 1000000], not \"10\""),
+        ] {
+            let e = integer(&v, "trials", 1, 1_000_000).unwrap_err();
+            assert_eq!(e.key(), Some("trials"));
+            assert!(e.message().contains(what), "{v:?}: {e}");
+        }
+        let big = integer(&Float(1e16), "seed", 0, u64::MAX).unwrap_err();
+        assert!(big.message().contains("write it as an integer"), "{big}");
     }
 
     #[test]

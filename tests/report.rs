@@ -167,22 +167,46 @@ fn figures_answer_one_question_each_and_show_what_the_issue_asked() {
     }
 }
 
+/// `campaign`, with each `(from, to)` text replaced in the campaign file first.
+fn campaign_with(dir: &Path, name: &str, rule: &str, edits: &[(&str, &str)]) -> (PathBuf, Output) {
+    let file = dir.join(format!("{name}.toml"));
+    let mut text = CAMPAIGN.replace("NAME", name).replace("RULE", rule).replace("SETUP", &HOSTILE.replace('"', "\\\""));
+    for (from, to) in edits {
+        assert!(text.contains(from), "{from}");
+        text = text.replace(from, to);
+    }
+    std::fs::write(&file, text).unwrap();
+    let out = qkd(&["run", file.to_str().unwrap(), "-q", "--results-dir", "results"], dir);
+    (dir.join("results").join(name), out)
+}
+
+/// The count at the end of the text's line that starts with `title`.
+fn count(text: &str, title: &str) -> usize {
+    text.lines().find(|l| l.starts_with(title)).and_then(|l| l.rsplit(": ").next()).unwrap().parse().unwrap()
+}
+
 #[test]
 fn compare_reports_leaks_gained_and_lost_with_its_exit_status() {
     let dir = tempfile::tempdir().unwrap();
-    let (safe, out) = campaign(dir.path(), "before", "finite-uncertainty");
+    // One system rule, `vendor`, in both folders (a vendor's formula before and after a
+    // change): before it extracts no key, so it cannot leak; after, 90 % of the key bits,
+    // more than the stronger attacks leave secret.
+    for (folder, formula) in [("old", "0"), ("new", "0.9 * n")] {
+        std::fs::create_dir(dir.path().join(folder)).unwrap();
+        std::fs::write(dir.path().join(folder).join("vendor.toml"), format!("name = \"vendor\"\nkey_length = \"{formula}\"\n")).unwrap();
+    }
+    let (safe, out) = campaign_with(dir.path(), "before", "file:old/vendor.toml", &[("abort_qber = 0.11", "abort_qber = 0.1")]);
     assert_eq!(out.status.code(), Some(0), "{}", String::from_utf8_lossy(&out.stderr));
-    let (leaky, _) = campaign(dir.path(), "after", "individual");
+    let (leaky, out) = campaign(dir.path(), "after", "file:new/vendor.toml");
+    assert_eq!(out.status.code(), Some(1), "{}", String::from_utf8_lossy(&out.stderr));
     let (a, b) = (safe.to_str().unwrap(), leaky.to_str().unwrap());
     // Gained: B leaks where A did not.
     let gained = qkd(&["compare", a, b], dir.path());
     assert_eq!(gained.status.code(), Some(1), "{}", String::from_utf8_lossy(&gained.stderr));
     let text = String::from_utf8_lossy(&gained.stdout);
-    let count = |t: &str, title: &str| -> usize {
-        t.lines().find(|l| l.starts_with(title)).and_then(|l| l.rsplit(": ").next()).unwrap().parse().unwrap()
-    };
     assert!(count(&text, "leaks gained") > 0 && count(&text, "leaks lost") == 0, "{text}");
-    assert!(text.contains("`finite-uncertainty`) → B leak"), "{text}");
+    assert!(text.contains("[`vendor`, system]: A no-key (0 bits) → B leak ("), "{text}");
+    assert!(text.contains("  abort_qber: 0.1 → 0.11 (error rate)"), "{text}");
     // Lost: the other way round, exit 0.
     let lost = qkd(&["compare", b, a], dir.path());
     assert_eq!(lost.status.code(), Some(0));
@@ -212,6 +236,51 @@ fn compare_reports_leaks_gained_and_lost_with_its_exit_status() {
     let unrelated = qkd(&["compare", a, "results/other"], dir.path());
     assert_eq!(unrelated.status.code(), Some(2));
     assert!(String::from_utf8_lossy(&unrelated.stderr).contains("share no attack point"));
+}
+
+/// A system rule renamed between two runs (the same formula under another name) is a rule
+/// each folder alone has: its rows are only in A or only in B, never a verdict change; the
+/// rule both judge is matched row by row; the setup values that differ are listed in every
+/// output.
+#[test]
+fn compare_lists_setup_changes_and_keeps_renamed_rules_apart() {
+    let dir = tempfile::tempdir().unwrap();
+    let formula =
+        std::fs::read_to_string(Path::new(env!("CARGO_MANIFEST_DIR")).join("examples/rule-files/finite-uncertainty.toml")).unwrap();
+    for v in ["v1", "v2"] {
+        std::fs::write(dir.path().join(format!("{v}.toml")), formula.replace("finite-uncertainty-file", &format!("vendor-{v}"))).unwrap();
+    }
+    let (fa, out) = campaign(dir.path(), "first", "file:v1.toml");
+    assert_eq!(out.status.code(), Some(0), "{}", String::from_utf8_lossy(&out.stderr));
+    let (fb, out) = campaign_with(dir.path(), "second", "file:v2.toml", &[("signals = 20000", "signals = 30000")]);
+    assert_eq!(out.status.code(), Some(0), "{}", String::from_utf8_lossy(&out.stderr));
+    let (a, b) = (fa.to_str().unwrap(), fb.to_str().unwrap());
+    let out = qkd(&["compare", a, b], dir.path());
+    assert_eq!(out.status.code(), Some(0), "{}", String::from_utf8_lossy(&out.stderr));
+    let text = String::from_utf8_lossy(&out.stdout);
+    assert_eq!(count(&text, "other verdict changes"), 0, "{text}");
+    assert_eq!(count(&text, "setup values that differ"), 2, "{text}");
+    assert!(text.contains("  signals: 20000 → 30000 (signals per block)") && text.contains("  key_rule: vendor-v1 → vendor-v2"), "{text}");
+    let json: serde_json::Value = serde_json::from_slice(&qkd(&["compare", a, b, "--json"], dir.path()).stdout).unwrap();
+    let rows = json["rows"].as_array().unwrap();
+    let of = |rule: &str| rows.iter().filter(|r| r["a"]["rule"] == rule || r["b"]["rule"] == rule).collect::<Vec<_>>();
+    assert!(!of("vendor-v1").is_empty() && of("vendor-v1").iter().all(|r| r["change"] == "only-in-a" && r["role"] == "system"));
+    assert!(!of("vendor-v2").is_empty() && of("vendor-v2").iter().all(|r| r["change"] == "only-in-b" && r["role"] == "system"));
+    let shared = of("finite-uncertainty");
+    assert!(!shared.is_empty() && shared.iter().all(|r| r["role"] == "comparison" && r["a"].is_object() && r["b"].is_object()));
+    assert_eq!(json["setup_changes"][0], serde_json::json!({"key": "signals", "a": "20000", "b": "30000", "unit": "signals per block"}));
+    let csv = String::from_utf8_lossy(&qkd(&["compare", a, b, "--csv"], dir.path()).stdout).into_owned();
+    let header = csv.lines().next().unwrap();
+    assert!(header.ends_with(",setup_key,setup_value_a,setup_value_b,setup_unit"), "{header}");
+    assert!(csv.contains("\nsetup,setup-changed,") || csv.contains("\n,setup,setup-changed,"), "{csv}");
+    assert!(csv.contains(",signals,20000,30000,signals per block\n"), "{csv}");
+    assert!(!csv.contains("verdict-changed"), "{csv}");
+    assert_eq!(qkd(&["compare", a, b, "--html", "cmp.html"], dir.path()).status.code(), Some(0));
+    let page = read(&dir.path().join("cmp.html"));
+    assert!(
+        page.contains("id=\"setup-changes\"") && page.contains("<td><code>signals</code></td><td>20000</td><td>30000</td>"),
+        "setup table"
+    );
 }
 
 #[test]

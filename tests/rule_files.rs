@@ -153,6 +153,7 @@ fn every_failure_of_a_program_stops_the_run_naming_command_trial_and_output() {
         ("swap", "answered point 0 trial 1 where point 0 trial 0 was due", Some("trial 0")),
         ("short", "ended its output before answering", Some("trial 7")),
         ("error", "reported an error: cannot size the key", Some("trial 3")),
+        ("oversize", "more than the block's n =", Some("trial 3")),
         ("extra", "wrote more answers than blocks", None),
     ] {
         let dir = tempfile::tempdir().unwrap();
@@ -172,6 +173,26 @@ fn every_failure_of_a_program_stops_the_run_naming_command_trial_and_output() {
         }
         assert!(!dir.path().join("out/rules-test").exists(), "{mode}: no partial results");
     }
+}
+
+/// A program that answers more key bits than the block has, leaving the abort decision to
+/// the setup, is refused only for a block that goes on to key: at a point where the setup's
+/// threshold aborts every block (intercept-resend on every signal, QBER 25 %) its length is
+/// never used, and the run goes on, as for a formula.
+#[test]
+fn an_oversize_answer_for_a_block_the_setup_aborts_is_not_used() {
+    let dir = tempfile::tempdir().unwrap();
+    let command = [double().display().to_string(), "--mode".into(), "oversize".into(), "--at".into(), "3".into()];
+    let command: Vec<String> = command.iter().map(|a| format!("{a:?}")).collect();
+    std::fs::write(dir.path().join("double.toml"), format!("name = \"double\"\ncommand = [{}]\n", command.join(", "))).unwrap();
+    let text = campaign_text(&["file:double.toml".into()], 100_000, 8);
+    let text = text.replace("builtin = \"intercept-resend\"\n", "builtin = \"intercept-resend\"\nfrom = 1\nto = 1\nsteps = 1\n");
+    let only_aborting = text[..text.find("[[attacks]]").unwrap()].to_string() + &text[text.rfind("[[attacks]]").unwrap()..];
+    std::fs::write(dir.path().join("c.toml"), &only_aborting).unwrap();
+    let out = qkd(&["run", "c.toml", "--results-dir", "out", "--quiet"], dir.path());
+    assert_eq!(out.status.code(), Some(0), "{}", String::from_utf8_lossy(&out.stderr));
+    let table = std::fs::read_to_string(dir.path().join("out/rules-test/attack_vs_bound.csv")).unwrap();
+    assert!(table.lines().skip(1).all(|l| l.contains(",aborted,")), "every block aborts: {table}");
 }
 
 #[test]

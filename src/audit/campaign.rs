@@ -30,7 +30,9 @@
 //! one setup of the file). Every swept setup is built by [`Setup::with_value`], so a value
 //! out of the key's range is an error before any work; integer keys (`signals`,
 //! `test_count`) are rounded to the nearest integer, and a sweep whose rounded values
-//! repeat is refused. The engine that runs a campaign is [`super::engine`].
+//! repeat is refused. The integer keys of the file (`seed`, `trials`, `steps`) take a float
+//! with a whole value (`trials = 1e3`) as that integer ([`crate::input::integer`]), and
+//! refuse a fraction. The engine that runs a campaign is [`super::engine`].
 
 use crate::attack::file::{builtin_entry_text, parse as parse_attack, AttackFile, Sweep};
 use crate::attack::Value;
@@ -230,20 +232,12 @@ impl Campaign {
             }
         };
         let seed = match t.get("seed") {
-            Some(toml::Value::Integer(i)) if *i >= 0 => *i as u64,
+            Some(v) => p.check(crate::input::integer(v, "seed", 0, i64::MAX as u64)).unwrap_or(0),
             None => 0,
-            _ => {
-                p.push(Error::input_key("seed", "must be an integer ≥ 0"));
-                0
-            }
         };
         let trials = match t.get("trials") {
-            Some(toml::Value::Integer(i)) if (1..=1_000_000).contains(i) => *i as u64,
+            Some(v) => p.check(crate::input::integer(v, "trials", 1, 1_000_000)).unwrap_or(200),
             None => 200,
-            _ => {
-                p.push(Error::input_key("trials", "must be an integer in [1, 1000000]"));
-                200
-            }
         };
         let sampler = match t.get("sampler").map(|v| v.as_str()) {
             None | Some(Some("count")) => Some(Sampler::Count),
@@ -623,11 +617,7 @@ fn parse_setup_sweep(t: &toml::Table) -> std::result::Result<SetupSweep, Vec<Err
     }
     let max = crate::exact::sweep::MAX_SWEEP_STEPS;
     let steps = match t.get("steps") {
-        Some(toml::Value::Integer(i)) if (1..=max as i64).contains(i) => Some(*i as usize),
-        Some(v) => {
-            p.push(Error::input_key("steps", format!("must be an integer in [1, {max}], not {}", crate::input::shown(v))));
-            None
-        }
+        Some(v) => p.check(crate::input::integer(v, "steps", 1, max as u64)).map(|n| n as usize),
         None => {
             p.push(Error::input_key("steps", "missing: the number of values"));
             None
@@ -797,11 +787,11 @@ fn parse_entry(t: &toml::Table, base: Option<&Path>) -> std::result::Result<Atta
     for key in ["steps", "from", "to"] {
         let Some(v) = t.get(key) else { continue };
         let value = match (key, v) {
-            ("steps", toml::Value::Integer(i)) if (1..=crate::exact::sweep::MAX_SWEEP_STEPS as i64).contains(i) => Some(*i as f64),
-            ("from" | "to", toml::Value::Float(x)) if x.is_finite() => Some(*x),
-            ("from" | "to", toml::Value::Integer(i)) => Some(*i as f64),
+            ("steps", v) => p.check(crate::input::integer(v, "steps", 1, crate::exact::sweep::MAX_SWEEP_STEPS as u64)).map(|n| n as f64),
+            (_, toml::Value::Float(x)) if x.is_finite() => Some(*x),
+            (_, toml::Value::Integer(i)) => Some(*i as f64),
             _ => {
-                p.push(Error::input_key(key, "must be a number (steps: an integer in [1, 100000])"));
+                p.push(Error::input_key(key, format!("must be a finite number, not {}", crate::input::shown(v))));
                 None
             }
         };

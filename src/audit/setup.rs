@@ -3,14 +3,15 @@
 //! TOML setup file and validated key by key.
 //!
 //! Keys (all documented with units and ranges in README.md):
-//! `protocol` (bb84 | six-state), `signals` (integer ≥ 100: signals sent, each detected in
-//! the single-photon model), `basis_z_probability` (0, 1), `test_fraction` [0, 1) or
-//! `test_count` ≥ 0 (sifted Z bits disclosed to estimate the bit error rate; at most one of
+//! `protocol` (bb84 | six-state), `signals` (integer in [100, 1e15]: signals sent, each
+//! detected in the single-photon model), `basis_z_probability` (0, 1), `test_fraction` [0, 1)
+//! or `test_count` integer ≥ 0 (sifted Z bits disclosed to estimate the bit error rate; at most one of
 //! the two, default `test_fraction = 0.1`), `abort_qber` [0, 0.5], `ec_efficiency` [1, 3],
 //! `epsilon_sec` and `epsilon_cor` (0, 0.1], `key_rule` (finite-uncertainty | asymptotic |
 //! individual | game-min-entropy | naive-single-photon | gllp-no-decoy | decoy-vacuum-weak),
 //! optional `name`, and the link tables `[source]`, `[channel]`, `[detector]` of
-//! [`crate::protocol::optical`].
+//! [`crate::protocol::optical`]. An integer key takes a float with a whole value
+//! (`signals = 1e6`) as that integer and refuses a fraction ([`crate::input::integer`]).
 
 use crate::audit::rules::{KeyRule, Rule, RuleParams};
 use crate::error::{check_range, Error, Result};
@@ -153,12 +154,7 @@ impl Setup {
             }
         }
         if let Some(v) = t.get("signals") {
-            let n = number(v, "signals").and_then(|n| {
-                if n.fract() != 0.0 || !(100.0..=1e15).contains(&n) {
-                    return Err(Error::input_key("signals", format!("{n} is not an integer in [100, 1e15]")));
-                }
-                Ok(n as u64)
-            });
+            let n = crate::input::integer(v, "signals", 100, 1_000_000_000_000_000);
             if let Some(n) = p.check(n) {
                 s.signals = n;
             }
@@ -188,12 +184,7 @@ impl Setup {
                 }
             }
             (None, Some(v)) => {
-                let c = number(v, "test_count").and_then(|c| {
-                    if c.fract() != 0.0 || !(0.0..=1e15).contains(&c) {
-                        return Err(Error::input_key("test_count", format!("{c} is not an integer in [0, 1e15]")));
-                    }
-                    Ok(c as u64)
-                });
+                let c = crate::input::integer(v, "test_count", 0, 1_000_000_000_000_000);
                 if let Some(c) = p.check(c) {
                     s.test_sample = TestSample::Count(c);
                 }

@@ -15,7 +15,8 @@ pub struct CompareArgs {
     /// The folder compared with it (e.g. after the change).
     #[arg(value_name = "B")]
     pub b: PathBuf,
-    /// Print tidy CSV (one row per point and rule role) instead of text.
+    /// Print CSV instead of text: one row per setup value that differs (change
+    /// `setup-changed`), then one row per point and rule.
     #[arg(long, conflicts_with = "json")]
     pub csv: bool,
     /// Print one JSON object instead of text.
@@ -27,13 +28,14 @@ pub struct CompareArgs {
     /// Replace the --html file if it exists.
     #[arg(long)]
     pub force: bool,
-    /// Exit with status 1 when B leaks where A did not under any rule (by default only rows
-    /// under each folder's own system rule count).
+    /// Exit with status 1 when B leaks where A showed no leak under any rule (by default only
+    /// rows under B's own system rule count).
     #[arg(long)]
     pub fail_on_any_rule: bool,
 }
 
-/// Runs `qkd-audit compare`: exit 1 when B leaks where A did not, 2 when a folder is
+/// Runs `qkd-audit compare`: exit 1 when B leaks where A showed no leak (under the same
+/// rule at the same point, or under a rule or at a point only B has), 2 when a folder is
 /// missing or the two share no attack point.
 pub fn cmd_compare(a: CompareArgs) -> Result<Outcome> {
     if let Some(h) = &a.html {

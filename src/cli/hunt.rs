@@ -60,6 +60,10 @@ pub struct HuntArgs {
     /// Replace the output folder if it exists.
     #[arg(long)]
     pub force: bool,
+    /// No status lines on stderr (the folder written); warnings, a bound violation and
+    /// errors are still shown.
+    #[arg(long, short)]
+    pub quiet: bool,
     /// Sharding (by target and start; not for --rounds).
     #[command(flatten)]
     pub shard: super::shard::ShardArgs,
@@ -123,7 +127,9 @@ fn hunt_with(a: HuntArgs, merged: Option<Vec<Result<crate::search::hunt::HuntPoi
             ("strategy.toml".to_string(), strategy_toml(&r)),
             (crate::audit::report::REPORT_FILE.to_string(), page),
         ])?;
-        note(&format!("wrote {}", dir.display()));
+        if !a.quiet {
+            note(&format!("wrote {}", dir.display()));
+        }
         write_stdout(&mut std::io::stdout().lock(), &text)?;
         if exceeded {
             note("BOUND VIOLATED: the game hunt exceeded (1/2 + 1/(2 sqrt 2))^n; this is a finding about the code or the bound");
@@ -240,7 +246,9 @@ fn hunt_with(a: HuntArgs, merged: Option<Vec<Result<crate::search::hunt::HuntPoi
     files.push((crate::audit::report::REPORT_FILE.to_string(), page));
     folder.commit(&files)?;
     write_stdout(&mut std::io::stdout().lock(), &csv_text)?;
-    note(&format!("wrote {}", dir.display()));
+    if !a.quiet {
+        note(&format!("wrote {}", dir.display()));
+    }
     if violations > 0 {
         note(&format!("BOUND VIOLATED at {violations} target(s): keep the attack files as regression fixtures; this is a finding about the code or the bound"));
         return Ok(Outcome::Findings);

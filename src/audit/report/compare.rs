@@ -1,11 +1,18 @@
 //! `qkd-audit compare A B`: two results folders side by side (before and after a
-//! configuration change, or two vendors' rules): the overall verdicts, leaks gained and lost,
-//! verdict changes and the key-length change per point, as text, CSV, JSON or an HTML section.
+//! configuration change, or two vendors' rules): the overall verdicts, the setup values that
+//! differ, leaks gained and lost, verdict changes and the key-length change per point, as
+//! text, CSV, JSON or an HTML section.
 //!
-//! Points are matched by attack label and parameter values. Rows under each folder's own
-//! system rule are matched with each other (role `system`), even when the two systems use
-//! different rules; rows under comparison rules are matched by rule name. A "gained" leak is
-//! a row that leaks in B where the matching row of A did not leak or did not exist.
+//! Rows are matched by point (attack label and parameter values, and the swept setup values)
+//! and by rule name: a row is compared only with the row of the same rule at the same point.
+//! A rule judged in one folder only (a system rule renamed or replaced, a comparison rule
+//! added or dropped) gives rows "only in A" or "only in B", never a verdict change. Each row
+//! says whether its rule is the system's (the setup's own `key_rule`) in each folder. A
+//! "gained" leak is a matched row that leaks in B and did not in A; a leaking row only B has
+//! is listed with the rows only in B and counts as a new leak for the exit status.
+//!
+//! The setup values of the two manifests (`setup` in `manifest.json`) are compared key by
+//! key; every key whose value differs, or that one folder lacks, is listed with both values.
 
 use super::evidence::{bits, Evidence, Overall};
 use super::svg::esc;
@@ -14,21 +21,21 @@ use crate::error::{Error, ErrorKind, Result};
 use serde::Serialize;
 use std::fmt::Write;
 
-/// What changed at one (point, role).
+/// What changed at one (point, rule).
 #[derive(Clone, Copy, Debug, PartialEq, Eq, Serialize)]
 #[serde(rename_all = "kebab-case")]
 pub enum Change {
-    /// B leaks where A did not.
+    /// B leaks where A, under the same rule at the same point, did not.
     LeakGained,
-    /// A leaked where B does not.
+    /// A leaked where B, under the same rule at the same point, does not.
     LeakLost,
     /// The verdict changed otherwise.
     VerdictChanged,
     /// Same verdict.
     Same,
-    /// Only A has this point.
+    /// Only A has this point under this rule.
     OnlyInA,
-    /// Only B has this point.
+    /// Only B has this point under this rule.
     OnlyInB,
 }
 
@@ -51,6 +58,8 @@ impl Change {
 pub struct Side {
     /// Rule.
     pub rule: String,
+    /// Whether the rule is this folder's system rule.
+    pub system: bool,
     /// Verdict.
     pub verdict: String,
     /// Mean key length, bits.
@@ -59,12 +68,14 @@ pub struct Side {
     pub mean_excess_bits: f64,
 }
 
-/// One compared (point, role).
+/// One compared (point, rule).
 #[derive(Clone, Debug, Serialize)]
 pub struct Row {
     /// The point: attack label and parameter values.
     pub point: String,
-    /// `system` or the comparison rule's name.
+    /// The rule's role: `system` (the system's rule in every folder that has the row),
+    /// `comparison` (in none), `system-in-a` or `system-in-b` (the system's in that folder
+    /// only).
     pub role: String,
     /// A's row.
     pub a: Option<Side>,
@@ -72,6 +83,32 @@ pub struct Row {
     pub b: Option<Side>,
     /// What changed.
     pub change: Change,
+}
+
+impl Row {
+    /// The rule of the row (the same on both sides).
+    pub fn rule(&self) -> &str {
+        self.a.as_ref().or(self.b.as_ref()).map_or("", |s| s.rule.as_str())
+    }
+
+    /// Whether B leaks here and A showed no leak (A's row does not leak, or A has none).
+    pub fn new_leak(&self) -> bool {
+        let leaks = |s: &Option<Side>| s.as_ref().is_some_and(|s| s.verdict == Verdict::Leak.to_string());
+        leaks(&self.b) && !leaks(&self.a)
+    }
+}
+
+/// One setup key whose value differs between the two folders' manifests.
+#[derive(Clone, Debug, Serialize, PartialEq)]
+pub struct SetupChange {
+    /// The setup file's key (`signals`, `channel.length_km`).
+    pub key: String,
+    /// A's value, as the manifest writes it (`None`: A's setup has no such key).
+    pub a: Option<String>,
+    /// B's value (`None`: B's setup has no such key).
+    pub b: Option<String>,
+    /// Its unit (`–` for none).
+    pub unit: String,
 }
 
 /// A comparison.
@@ -89,17 +126,29 @@ pub struct Comparison {
     pub a_verdict: String,
     /// B's overall verdict, in words.
     pub b_verdict: String,
+    /// The setup values that differ, in A's order, then B's extra keys.
+    pub setup_changes: Vec<SetupChange>,
     /// Every compared row, in A's order then B's extra rows.
     pub rows: Vec<Row>,
 }
 
-fn side(r: &super::evidence::Row) -> Side {
-    Side { rule: r.rule.clone(), verdict: r.verdict.to_string(), key_length_mean_bits: r.key_length.0, mean_excess_bits: r.mean_excess }
+fn side(r: &super::evidence::Row, system: &str) -> Side {
+    Side {
+        rule: r.rule.clone(),
+        system: r.rule == system,
+        verdict: r.verdict.to_string(),
+        key_length_mean_bits: r.key_length.0,
+        mean_excess_bits: r.mean_excess,
+    }
 }
 
-fn keyed(ev: &Evidence) -> Vec<((String, String), &super::evidence::Row)> {
-    let system = ev.system_rule();
-    ev.rows.iter().map(|r| ((r.point_key(), if r.rule == system { "system".to_string() } else { r.rule.clone() }), r)).collect()
+fn role(a: Option<&Side>, b: Option<&Side>) -> &'static str {
+    match (a.map(|s| s.system), b.map(|s| s.system)) {
+        (Some(true), Some(false)) => "system-in-a",
+        (Some(false), Some(true)) => "system-in-b",
+        (Some(true), _) | (_, Some(true)) => "system",
+        _ => "comparison",
+    }
 }
 
 fn overall_words(ev: &Evidence) -> String {
@@ -111,33 +160,35 @@ fn overall_words(ev: &Evidence) -> String {
     }
 }
 
+/// The setup keys whose values differ (or that one side lacks), in A's order then B's.
+pub fn setup_changes(a: &[super::manifest::SetupValue], b: &[super::manifest::SetupValue]) -> Vec<SetupChange> {
+    let find = |list: &[super::manifest::SetupValue], key: &str| list.iter().find(|v| v.key == key).map(|v| v.value.clone());
+    let mut out: Vec<SetupChange> = a
+        .iter()
+        .filter_map(|va| {
+            let vb = find(b, &va.key);
+            (vb.as_deref() != Some(va.value.as_str())).then(|| SetupChange {
+                key: va.key.clone(),
+                a: Some(va.value.clone()),
+                b: vb,
+                unit: va.unit.clone(),
+            })
+        })
+        .collect();
+    out.extend(b.iter().filter(|vb| find(a, &vb.key).is_none()).map(|vb| SetupChange {
+        key: vb.key.clone(),
+        a: None,
+        b: Some(vb.value.clone()),
+        unit: vb.unit.clone(),
+    }));
+    out
+}
+
 impl Comparison {
     /// Compares A with B. An error (exit 2) when the two share no attack point.
     pub fn new(a: &Evidence, b: &Evidence) -> Result<Comparison> {
-        let ka = keyed(a);
-        let kb = keyed(b);
-        let mut rows = Vec::new();
-        // Each row of B matches at most one row of A (two entries with one label and the
-        // same parameters match in order).
-        let mut used = vec![false; kb.len()];
-        for (k, ra) in &ka {
-            let found = kb.iter().enumerate().position(|(i, (kk, _))| !used[i] && kk == k);
-            let rb = found.map(|i| {
-                used[i] = true;
-                kb[i].1
-            });
-            let change = match rb {
-                None => Change::OnlyInA,
-                Some(rb) => match (ra.verdict == Verdict::Leak, rb.verdict == Verdict::Leak) {
-                    (false, true) => Change::LeakGained,
-                    (true, false) => Change::LeakLost,
-                    _ if ra.verdict != rb.verdict || ra.rule != rb.rule => Change::VerdictChanged,
-                    _ => Change::Same,
-                },
-            };
-            rows.push(Row { point: k.0.clone(), role: k.1.clone(), a: Some(side(ra)), b: rb.map(side), change });
-        }
-        if rows.iter().all(|r| r.change == Change::OnlyInA) {
+        let (sa, sb) = (a.system_rule(), b.system_rule());
+        if !a.rows.iter().any(|ra| b.rows.iter().any(|rb| rb.point_key() == ra.point_key())) {
             return Err(Error::new(
                 ErrorKind::Input,
                 format!(
@@ -147,19 +198,50 @@ impl Comparison {
                 ),
             ));
         }
-        for (i, (k, rb)) in kb.iter().enumerate() {
+        let kb: Vec<(String, &super::evidence::Row)> = b.rows.iter().map(|r| (r.point_key(), r)).collect();
+        let mut rows = Vec::new();
+        // Each row of B matches at most one row of A: the same point under the same rule (two
+        // entries with one label and the same parameters match in order).
+        let mut used = vec![false; kb.len()];
+        for ra in &a.rows {
+            let point = ra.point_key();
+            let found = kb.iter().enumerate().position(|(i, (k, rb))| !used[i] && *k == point && rb.rule == ra.rule);
+            let rb = found.map(|i| {
+                used[i] = true;
+                kb[i].1
+            });
+            let change = match rb {
+                None => Change::OnlyInA,
+                Some(rb) => match (ra.verdict == Verdict::Leak, rb.verdict == Verdict::Leak) {
+                    (false, true) => Change::LeakGained,
+                    (true, false) => Change::LeakLost,
+                    _ if ra.verdict != rb.verdict => Change::VerdictChanged,
+                    _ => Change::Same,
+                },
+            };
+            let (side_a, side_b) = (side(ra, &sa), rb.map(|rb| side(rb, &sb)));
+            rows.push(Row { point, role: role(Some(&side_a), side_b.as_ref()).into(), a: Some(side_a), b: side_b, change });
+        }
+        for (i, (point, rb)) in kb.iter().enumerate() {
             if !used[i] {
-                let change = if rb.verdict == Verdict::Leak { Change::LeakGained } else { Change::OnlyInB };
-                rows.push(Row { point: k.0.clone(), role: k.1.clone(), a: None, b: Some(side(rb)), change });
+                let side_b = side(rb, &sb);
+                rows.push(Row {
+                    point: point.clone(),
+                    role: role(None, Some(&side_b)).into(),
+                    a: None,
+                    b: Some(side_b),
+                    change: Change::OnlyInB,
+                });
             }
         }
         Ok(Comparison {
             a_campaign: a.campaign(),
             b_campaign: b.campaign(),
-            a_system_rule: a.system_rule(),
-            b_system_rule: b.system_rule(),
+            a_system_rule: sa,
+            b_system_rule: sb,
             a_verdict: overall_words(a),
             b_verdict: overall_words(b),
+            setup_changes: setup_changes(&a.manifest.setup, &b.manifest.setup),
             rows,
         })
     }
@@ -169,16 +251,26 @@ impl Comparison {
         self.rows.iter().filter(|r| r.change == change).collect()
     }
 
-    /// Whether B leaks where A did not: under the system's rule, or under any rule.
+    /// The rows where B leaks and A showed no leak (a leak gained, or a leaking row only B
+    /// has): under B's system rule, or under any rule.
+    pub fn new_leaks(&self, any_rule: bool) -> Vec<&Row> {
+        self.rows.iter().filter(|r| r.new_leak() && (any_rule || r.b.as_ref().is_some_and(|b| b.system))).collect()
+    }
+
+    /// Whether B leaks where A showed no leak ([`Comparison::new_leaks`]): the exit status.
     pub fn gained(&self, any_rule: bool) -> bool {
-        self.with(Change::LeakGained).iter().any(|r| any_rule || r.role == "system")
+        !self.new_leaks(any_rule).is_empty()
     }
 
     fn describe(r: &Row) -> String {
         let s = |x: &Option<Side>| {
-            x.as_ref().map_or("absent".to_string(), |s| format!("{} ({} bits, `{}`)", s.verdict, bits(s.key_length_mean_bits), s.rule))
+            x.as_ref().map_or("absent".to_string(), |s| format!("{} ({} bits)", s.verdict, bits(s.key_length_mean_bits)))
         };
-        format!("{} [{}]: A {} → B {}", r.point, r.role, s(&r.a), s(&r.b))
+        format!("{} [`{}`, {}]: A {} → B {}", r.point, r.rule(), r.role, s(&r.a), s(&r.b))
+    }
+
+    fn value_words(v: &Option<String>) -> &str {
+        v.as_deref().unwrap_or("absent")
     }
 
     /// Plain text for the terminal.
@@ -186,12 +278,17 @@ impl Comparison {
         let mut s = String::new();
         let _ = writeln!(s, "A: {} — {}", self.a_campaign, self.a_verdict);
         let _ = writeln!(s, "B: {} — {}", self.b_campaign, self.b_verdict);
+        let _ = writeln!(s, "setup values that differ (key: A → B): {}", self.setup_changes.len());
+        for c in &self.setup_changes {
+            let _ = writeln!(s, "  {}: {} → {} ({})", c.key, Self::value_words(&c.a), Self::value_words(&c.b), c.unit);
+        }
+        let b_only_leaks = self.with(Change::OnlyInB).iter().filter(|r| r.new_leak()).count();
         for (title, change) in [
-            ("leaks gained (B leaks where A did not)", Change::LeakGained),
-            ("leaks lost (A leaked, B does not)", Change::LeakLost),
-            ("other changes (verdict, or the rule judging the point)", Change::VerdictChanged),
-            ("only in A", Change::OnlyInA),
-            ("only in B", Change::OnlyInB),
+            ("leaks gained (B leaks where A, under the same rule, did not)".to_string(), Change::LeakGained),
+            ("leaks lost (A leaked, B does not under the same rule)".to_string(), Change::LeakLost),
+            ("other verdict changes (same rule)".to_string(), Change::VerdictChanged),
+            ("only in A (a point or rule B does not have)".to_string(), Change::OnlyInA),
+            (format!("only in B (a point or rule A does not have; {b_only_leaks} of them leak)"), Change::OnlyInB),
         ] {
             let rows = self.with(change);
             let _ = writeln!(s, "{title}: {}", rows.len());
@@ -199,13 +296,17 @@ impl Comparison {
                 let _ = writeln!(s, "  {}", Self::describe(r));
             }
         }
+        if self.rows.iter().all(|r| r.a.is_none() || r.b.is_none()) {
+            let _ = writeln!(s, "no rule judges a point in both folders: the rows above cannot be compared pairwise");
+        }
         let _ = writeln!(s, "key length per point (mean bits per block, A → B, change):");
         for r in self.rows.iter().filter(|r| r.a.is_some() && r.b.is_some()) {
             let (a, b) = (r.a.as_ref().expect("both"), r.b.as_ref().expect("both"));
             let _ = writeln!(
                 s,
-                "  {} [{}]: {} → {} ({}{})",
+                "  {} [`{}`, {}]: {} → {} ({}{})",
                 r.point,
+                r.rule(),
                 r.role,
                 bits(a.key_length_mean_bits),
                 bits(b.key_length_mean_bits),
@@ -216,7 +317,9 @@ impl Comparison {
         s
     }
 
-    /// Tidy CSV, one row per (point, role).
+    /// CSV: first one row per setup value that differs (`change` = `setup-changed`, the
+    /// `setup_*` columns filled, the others empty), then one row per (point, rule) (the
+    /// `setup_*` columns empty).
     pub fn csv(&self) -> Result<String> {
         let mut w = csv::Writer::from_writer(Vec::new());
         let io = |e: csv::Error| Error::new(ErrorKind::Io, e.to_string());
@@ -233,8 +336,18 @@ impl Comparison {
             "key_length_change_bits",
             "mean_excess_a_bits",
             "mean_excess_b_bits",
+            "setup_key",
+            "setup_value_a",
+            "setup_value_b",
+            "setup_unit",
         ])
         .map_err(io)?;
+        for c in &self.setup_changes {
+            let mut record = vec![String::new(), "setup".into(), "setup-changed".into()];
+            record.extend(std::iter::repeat(String::new()).take(9));
+            record.extend([c.key.clone(), c.a.clone().unwrap_or_default(), c.b.clone().unwrap_or_default(), c.unit.clone()]);
+            w.write_record(&record).map_err(io)?;
+        }
         let n = crate::exact::sweep::fmt_num;
         for r in &self.rows {
             let get = |s: &Option<Side>, f: &dyn Fn(&Side) -> String| s.as_ref().map_or(String::new(), f);
@@ -255,6 +368,10 @@ impl Comparison {
                 delta,
                 get(&r.a, &|s| n(s.mean_excess_bits)),
                 get(&r.b, &|s| n(s.mean_excess_bits)),
+                String::new(),
+                String::new(),
+                String::new(),
+                String::new(),
             ])
             .map_err(io)?;
         }
@@ -273,25 +390,43 @@ impl Comparison {
         let _ = writeln!(s, "<tr><th scope=\"row\">B</th><td>{}</td><td>{}</td></tr>", esc(&self.b_campaign), esc(&self.b_verdict));
         s.push_str("</tbody></table>\n");
         let gained = self.with(Change::LeakGained).len();
+        let new_leaks = self.new_leaks(true).len();
         let lost = self.with(Change::LeakLost).len();
         let _ = writeln!(
             s,
-            "<div class=\"verdict{}\" id=\"comparison-verdict\"><p class=\"headline\">{}</p><p>{} leak(s) gained, {} lost, {} other verdict change(s).</p></div>",
-            if gained > 0 { " fail" } else { "" },
-            if gained > 0 { "B leaks where A did not" } else { "B gains no leak over A" },
+            "<div class=\"verdict{}\" id=\"comparison-verdict\"><p class=\"headline\">{}</p><p>{} leak(s) gained under the same rule, \
+             {} leaking row(s) under a rule or at a point only B has, {} leak(s) lost, {} other verdict change(s).</p></div>",
+            if new_leaks > 0 { " fail" } else { "" },
+            if new_leaks > 0 { "B leaks where A did not" } else { "B gains no leak over A" },
             gained,
+            new_leaks - gained,
             lost,
             self.with(Change::VerdictChanged).len()
         );
+        s.push_str("<h3>Setup values that differ</h3>\n");
+        if self.setup_changes.is_empty() {
+            s.push_str("<p>The two setups have the same values.</p>\n");
+        } else {
+            s.push_str("<table class=\"points\" id=\"setup-changes\"><thead><tr><th>key</th><th>A</th><th>B</th><th>unit</th></tr></thead>\n<tbody>\n");
+            for c in &self.setup_changes {
+                let _ = writeln!(
+                    s,
+                    "<tr><td><code>{}</code></td><td>{}</td><td>{}</td><td>{}</td></tr>",
+                    esc(&c.key),
+                    esc(Self::value_words(&c.a)),
+                    esc(Self::value_words(&c.b)),
+                    esc(&c.unit)
+                );
+            }
+            s.push_str("</tbody></table>\n");
+        }
         s.push_str(
-            "<table class=\"points\"><thead><tr><th>point</th><th>role</th><th>change</th><th>A</th><th>B</th>\
+            "<table class=\"points\"><thead><tr><th>point</th><th>rule</th><th>role</th><th>change</th><th>A</th><th>B</th>\
              <th class=\"num\">key length change, bits</th></tr></thead>\n<tbody>\n",
         );
         for r in &self.rows {
             let cell = |x: &Option<Side>| {
-                x.as_ref().map_or("–".to_string(), |s| {
-                    format!("{} <code>{}</code>, {} bits", esc(&s.verdict), esc(&s.rule), bits(s.key_length_mean_bits))
-                })
+                x.as_ref().map_or("–".to_string(), |s| format!("{}, {} bits", esc(&s.verdict), bits(s.key_length_mean_bits)))
             };
             let delta = match (&r.a, &r.b) {
                 (Some(a), Some(b)) => bits(b.key_length_mean_bits - a.key_length_mean_bits),
@@ -299,9 +434,10 @@ impl Comparison {
             };
             let _ = writeln!(
                 s,
-                "<tr class=\"{}\"><td>{}</td><td>{}</td><td>{}</td><td>{}</td><td>{}</td><td class=\"num\">{}</td></tr>",
-                if r.change == Change::LeakGained { "leak" } else { "" },
+                "<tr class=\"{}\"><td>{}</td><td><code>{}</code></td><td>{}</td><td>{}</td><td>{}</td><td>{}</td><td class=\"num\">{}</td></tr>",
+                if r.new_leak() { "leak" } else { "" },
                 esc(&r.point),
+                esc(r.rule()),
                 esc(&r.role),
                 r.change.name(),
                 cell(&r.a),

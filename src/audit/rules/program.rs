@@ -10,8 +10,8 @@
 //! The program runs in the rule file's folder, is started once per campaign run
 //! ([`ProgramRule::start`]) and gets one request line per batch; it answers one line per
 //! block, in order. Anything else — an exit, a batch unanswered within the timeout, a line
-//! that is not JSON, a NaN, an answer for another trial, an `error` object, more answers
-//! than blocks — stops the run with an error naming the command, the trial and the last
+//! that is not JSON, a NaN, more key bits than the block's n (unless the block aborts), an
+//! answer for another trial, an `error` object, more answers than blocks — stops the run with an error naming the command, the trial and the last
 //! bytes the program wrote. Its stderr is kept (up to [`STDERR_LOG_MAX_BYTES`]) for the
 //! log file the report writes, with the notes of its answers.
 //!
@@ -498,6 +498,15 @@ pub fn request(rule: &str, batch: u64, blocks: &[(TrialId, &BlockStats, &RulePar
     s
 }
 
+/// The setup's abort test of a block: an observed error rate (Z sample, X, Y) above
+/// `abort_qber`; NaN rates never abort. The same test as `audit::trial::threshold_aborts`,
+/// which the rules may not import (it imports them); `tests/rule_files.rs` checks that a
+/// block the setup aborts is not held to the key-length limit.
+fn setup_aborts(obs: &BlockStats, params: &RuleParams) -> bool {
+    let exceeds = |e: f64| !e.is_nan() && e > params.abort_qber;
+    exceeds(obs.e_x) || exceeds(obs.e_z) || exceeds(obs.e_y)
+}
+
 impl Session {
     /// Asks the program about one batch of blocks (in the engine's order) and reads one
     /// answer per block, checking each.
@@ -512,29 +521,27 @@ impl Session {
         }
         let deadline = Instant::now() + self.timeout;
         let mut answers = Vec::with_capacity(blocks.len());
-        for (id, _, _) in blocks {
+        for &(id, obs, params) in blocks {
             let wait = deadline.saturating_duration_since(Instant::now());
             let line = match self.lines.recv_timeout(wait) {
                 Ok(Line::Data(l)) => l,
                 Ok(Line::TooLong(t)) => {
                     self.keep_tail(&t);
-                    return Err(self.fail(&format!("wrote a line longer than {MAX_LINE_BYTES} bytes"), Some(*id)));
+                    return Err(self.fail(&format!("wrote a line longer than {MAX_LINE_BYTES} bytes"), Some(id)));
                 }
                 Ok(Line::Eof) | Err(RecvTimeoutError::Disconnected) => {
                     let status = wait_with_grace(&mut self.child).map_or("did not exit".to_string(), |s| s.to_string());
-                    return Err(self.fail(&format!("ended its output before answering ({status})"), Some(*id)));
+                    return Err(self.fail(&format!("ended its output before answering ({status})"), Some(id)));
                 }
-                Ok(Line::Failed(e)) => return Err(self.fail(&format!("its output could not be read: {e}"), Some(*id))),
+                Ok(Line::Failed(e)) => return Err(self.fail(&format!("its output could not be read: {e}"), Some(id))),
                 Err(RecvTimeoutError::Timeout) => {
-                    return Err(
-                        self.fail(&format!("did not answer within the batch timeout of {} s", self.timeout.as_secs_f64()), Some(*id))
-                    )
+                    return Err(self.fail(&format!("did not answer within the batch timeout of {} s", self.timeout.as_secs_f64()), Some(id)))
                 }
             };
             self.keep_tail(&line);
-            match self.parse_answer(&line, *id) {
+            match self.parse_answer(&line, id, obs, params) {
                 Ok(a) => answers.push(a),
-                Err(what) => return Err(self.fail(&what, Some(*id))),
+                Err(what) => return Err(self.fail(&what, Some(id))),
             }
         }
         self.batch += 1;
@@ -548,8 +555,9 @@ impl Session {
         }
     }
 
-    /// Checks one answer line; the error says what is wrong with it.
-    fn parse_answer(&mut self, line: &[u8], id: TrialId) -> std::result::Result<Answer, String> {
+    /// Checks one answer line for the block `obs` (judged with `params`); the error says
+    /// what is wrong with it.
+    fn parse_answer(&mut self, line: &[u8], id: TrialId, obs: &BlockStats, params: &RuleParams) -> std::result::Result<Answer, String> {
         let text = std::str::from_utf8(line).map_err(|_| "wrote an answer that is not UTF-8".to_string())?.trim();
         let v: serde_json::Value = serde_json::from_str(text).map_err(|e| {
             if ["NaN", "Infinity"].iter().any(|w| text.contains(w)) {
@@ -579,8 +587,8 @@ impl Session {
                 id.trial
             ));
         }
-        let key_bits = match obj.get("key_bits").and_then(|k| k.as_f64()) {
-            Some(x) if (0.0..u64::MAX as f64).contains(&x) => x.floor() as u64,
+        let raw_bits = match obj.get("key_bits").and_then(|k| k.as_f64()) {
+            Some(x) if (0.0..u64::MAX as f64).contains(&x) => x,
             Some(x) => return Err(format!("answered key_bits = {x}; key_bits must be a finite number ≥ 0")),
             None => return Err("answered without a numeric key_bits".into()),
         };
@@ -589,6 +597,12 @@ impl Session {
             Some(serde_json::Value::Bool(b)) => Some(*b),
             Some(other) => return Err(format!("answered abort = {other}; abort must be true or false")),
         };
+        // As for a formula ([`super::Rule::answer`]): no key is longer than the block's key
+        // bits, so a larger answer for a block that goes on to key is a broken program, not
+        // a leak to be measured. An aborted block's length is never used.
+        if !abort.unwrap_or_else(|| setup_aborts(obs, params)) && raw_bits > obs.n as f64 {
+            return Err(format!("answered key_bits = {raw_bits}, more than the block's n = {} key bits", obs.n));
+        }
         if let Some(note) = obj.get("note").and_then(|n| n.as_str()) {
             if self.log.notes.len() < MAX_NOTES {
                 self.log.notes.push((id, note.chars().take(1000).collect()));
@@ -596,7 +610,7 @@ impl Session {
                 self.log.notes_dropped += 1;
             }
         }
-        Ok(Answer { abort, length: key_bits })
+        Ok(Answer { abort, length: raw_bits.floor() as u64 })
     }
 
     /// Stops the program and builds the error: the command, what went wrong at which trial,
