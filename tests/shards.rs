@@ -114,7 +114,10 @@ fn hunt_shards_merge_to_the_single_run_folder() {
         let sd = format!("hunt-{n}");
         shard_all(&base, n, tmp.path(), &sd);
         let out = format!("merged-{n}");
-        ok(&qkd(&["merge", &sd, "-o", &out], tmp.path()));
+        // `--quiet` is the merge's own: no status line.
+        let merged = qkd(&["merge", &sd, "-o", &out, "--quiet"], tmp.path());
+        ok(&merged);
+        assert!(merged.stderr.is_empty(), "{}", String::from_utf8_lossy(&merged.stderr));
         assert!(files(&tmp.path().join(&out)) == full, "N = {n}");
     }
 }

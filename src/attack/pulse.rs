@@ -324,8 +324,14 @@ pub fn qubit_on_single_photons(
             add_clicks(&mut m, n, p, photon, link, 0.5, 1.0);
         }
     }
-    (m, t, t_needed <= 1.0)
+    // On a lossless line t_needed is 1 up to rounding in the sums above (a few ulps):
+    // within 1e-12 it is reachable.
+    (m, t, t_needed <= 1.0 + REACH_TOLERANCE)
 }
+
+/// Rounding slack of the forwarding probability a qubit attack needs to match the honest
+/// gain: the sums over photon numbers that give it are exact to a few ulps.
+const REACH_TOLERANCE: f64 = 1e-12;
 
 #[cfg(test)]
 mod tests {
@@ -339,6 +345,21 @@ mod tests {
             channel_loss_db: loss_db,
             detector_efficiency: 1.0,
             ..Link::default()
+        }
+    }
+
+    #[test]
+    fn an_idle_qubit_attack_reaches_the_honest_gain_of_a_lossless_line() {
+        // Eve forwards every pulse (t = 1, up to rounding): the gain is reachable, for any
+        // mean photon number and Bob's efficiency, with or without dark counts.
+        let grid = (1..=20).flat_map(|i| (1..=10).flat_map(move |j| [0.0, 1e-6, 3e-5].map(|y0| (0.05 * i as f64, 0.1 * j as f64, y0))));
+        for (mu, eta_b, y0) in grid {
+            let l = Link { detector_efficiency: eta_b, dark_count_probability: y0, ..link(0.0) }.at_mu(mu);
+            let signal = Photons::Poisson { mean: mu };
+            let idle = [[0.5, 0.0, 0.5, 0.0]; 3];
+            let (_, t, reachable) = qubit_on_single_photons(&l, idle, 1.0, [0.5; 3], signal, signal);
+            assert!(reachable, "mu {mu}, eta_b {eta_b}, y0 {y0}: t = {t}");
+            assert!((t - 1.0).abs() < 1e-12, "{t}");
         }
     }
 

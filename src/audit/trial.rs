@@ -146,8 +146,7 @@ pub fn is_empty(stats: &BlockStats) -> bool {
 
 /// The setup's abort test: an observed error rate (Z sample, X, Y) above `abort_qber`.
 pub fn threshold_aborts(stats: &BlockStats, params: &RuleParams) -> bool {
-    let exceeds = |e: f64| !e.is_nan() && e > params.abort_qber;
-    exceeds(stats.e_x) || exceeds(stats.e_z) || exceeds(stats.e_y)
+    params.threshold_aborts(stats)
 }
 
 /// Post-processes a block with `rule` (a [`crate::audit::rules::KeyRule`] or a [`Rule`]) and judges the key

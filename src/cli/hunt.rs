@@ -308,8 +308,16 @@ fn hunt_shard(a: &HuntArgs, opts: &crate::search::hunt::HuntOptions, spec: super
 
 /// `merge` of `hunt` shards: every start's final parameters, scored and reported as the
 /// unsharded hunt does, into `output` (default: the hunt's default folder).
-pub fn merge_hunt(mut a: HuntArgs, parts: Vec<super::shard::Partial>, output: Option<PathBuf>, force: bool) -> Result<Outcome> {
+pub fn merge_hunt(
+    mut a: HuntArgs,
+    parts: Vec<super::shard::Partial>,
+    output: Option<PathBuf>,
+    force: bool,
+    quiet: bool,
+) -> Result<Outcome> {
     use crate::search::hunt::{hunt_score, HuntOptions, Objective};
+    // `--quiet` is not part of a job's identity: the merge's own flag decides.
+    a.quiet = quiet;
     let units = parts[0].units as usize;
     let mut finals: Vec<Option<Vec<f64>>> = vec![None; units];
     for p in parts {

@@ -197,7 +197,7 @@ pub fn cmd_merge(a: MergeArgs) -> Result<Outcome> {
     let command = reparse(&parts[0].command, &parts[0].args)?;
     match command {
         super::Command::Sweep(_) => merge_sweep(parts, &a),
-        super::Command::Hunt(h) => super::hunt::merge_hunt(h, parts, a.output.clone(), a.force),
+        super::Command::Hunt(h) => super::hunt::merge_hunt(h, parts, a.output.clone(), a.force, a.quiet),
         super::Command::Run(r) => super::run::merge_run(r, parts, a.output.clone(), a.force, a.quiet),
         super::Command::Tolerance(t) => super::tolerance::merge_tolerance(t, parts, &files, &tolerance()),
         _ => Err(Error::input(format!("`{}` is not a sharded command", parts[0].command))),

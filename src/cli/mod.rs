@@ -39,7 +39,8 @@ pub struct Cli {
 pub enum Command {
     /// Evaluate one single-photon attack exactly: error rates, Eve's information, bounds.
     Eval(eval::EvalArgs),
-    /// Evaluate an attack file's parameter sweep and write a tidy CSV.
+    /// Evaluate a catalogue entry's parameter sweep (a built-in by name, or a file) and
+    /// write a tidy CSV.
     Sweep(sweep::SweepArgs),
     /// Print the zero-rate and attack thresholds, each computed and with its source.
     Thresholds(thresholds::ThresholdArgs),

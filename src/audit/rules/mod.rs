@@ -217,6 +217,15 @@ pub struct RuleParams {
     pub blinding_catch: f64,
 }
 
+impl RuleParams {
+    /// The setup's abort test of a block: an observed error rate (Z sample, X, Y) above
+    /// `abort_qber`; NaN rates (a basis without rounds) never abort.
+    pub fn threshold_aborts(&self, obs: &BlockStats) -> bool {
+        let exceeds = |e: f64| !e.is_nan() && e > self.abort_qber;
+        exceeds(obs.e_x) || exceeds(obs.e_z) || exceeds(obs.e_y)
+    }
+}
+
 /// What a block showed, as the post-processing sees it (and, in `key_errors`, what error
 /// correction learns). Every field is a variable of rule files and rule programs
 /// ([`block_vars`]).

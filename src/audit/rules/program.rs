@@ -498,15 +498,6 @@ pub fn request(rule: &str, batch: u64, blocks: &[(TrialId, &BlockStats, &RulePar
     s
 }
 
-/// The setup's abort test of a block: an observed error rate (Z sample, X, Y) above
-/// `abort_qber`; NaN rates never abort. The same test as `audit::trial::threshold_aborts`,
-/// which the rules may not import (it imports them); `tests/rule_files.rs` checks that a
-/// block the setup aborts is not held to the key-length limit.
-fn setup_aborts(obs: &BlockStats, params: &RuleParams) -> bool {
-    let exceeds = |e: f64| !e.is_nan() && e > params.abort_qber;
-    exceeds(obs.e_x) || exceeds(obs.e_z) || exceeds(obs.e_y)
-}
-
 impl Session {
     /// Asks the program about one batch of blocks (in the engine's order) and reads one
     /// answer per block, checking each.
@@ -600,7 +591,7 @@ impl Session {
         // As for a formula ([`super::Rule::answer`]): no key is longer than the block's key
         // bits, so a larger answer for a block that goes on to key is a broken program, not
         // a leak to be measured. An aborted block's length is never used.
-        if !abort.unwrap_or_else(|| setup_aborts(obs, params)) && raw_bits > obs.n as f64 {
+        if !abort.unwrap_or_else(|| params.threshold_aborts(obs)) && raw_bits > obs.n as f64 {
             return Err(format!("answered key_bits = {raw_bits}, more than the block's n = {} key bits", obs.n));
         }
         if let Some(note) = obj.get("note").and_then(|n| n.as_str()) {
