@@ -98,10 +98,12 @@ pub struct ToleranceArgs {
     /// or to neighbouring integers for integer keys.
     #[arg(long, default_value_t = 10, value_name = "N")]
     pub bisections: u32,
-    /// Write the evidence (one row per classified value and attack point) as CSV to this file.
+    /// Write the evidence (one row per classified value and attack point) as CSV to this file
+    /// (a sharded search: `qkd-audit merge <shard dir> -o FILE` writes it).
     #[arg(long, value_name = "FILE")]
     pub evidence: Option<PathBuf>,
-    /// Replace the evidence file if it exists.
+    /// Replace the evidence file if it exists (with --shard: this shard's partial file of
+    /// the round).
     #[arg(long)]
     pub force: bool,
     /// Print the whole report as one JSON object instead of sentences.
