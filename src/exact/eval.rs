@@ -363,15 +363,25 @@ impl BasisStats {
     /// Clamps the probabilities and snaps the Holevo quantity (see [`PROBABILITY_SLACK`],
     /// [`ROUNDING_SLACK`]); `basis` names them in errors.
     fn checked(mut self, basis: &str) -> Result<BasisStats> {
-        self.qber = clamp_probability(&format!("qber_{basis}"), self.qber)?;
-        self.p_guess = clamp_probability(&format!("p_guess_{basis}"), self.p_guess)?;
+        self.qber = clamp_named(|| format!("qber_{basis}"), self.qber)?;
+        self.p_guess = clamp_named(|| format!("p_guess_{basis}"), self.p_guess)?;
         for row in &mut self.joint_ab {
             for p in row {
-                *p = clamp_probability(&format!("P(Alice, Bob) in basis {basis}"), *p)?;
+                *p = clamp_named(|| format!("P(Alice, Bob) in basis {basis}"), *p)?;
             }
         }
         self.holevo = snap(self.holevo, 0.0, 1.0);
         Ok(self)
+    }
+}
+
+/// [`clamp_probability`] with the name made only when it is needed (a value outside
+/// [0, 1] or NaN): the same result, without formatting a name for every probability.
+fn clamp_named(name: impl FnOnce() -> String, p: f64) -> Result<f64> {
+    if (0.0..=1.0).contains(&p) {
+        Ok(snap(p, 0.0, 1.0))
+    } else {
+        clamp_probability(&name(), p)
     }
 }
 

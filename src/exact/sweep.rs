@@ -148,6 +148,17 @@ fn push_integer(out: &mut String, n: i64) {
     out.push_str(std::str::from_utf8(&buf[at..]).expect("ASCII digits"));
 }
 
+/// `5^k` for `k` in 0..=27.
+const POW5: [u128; 28] = {
+    let mut t = [1u128; 28];
+    let mut k = 1;
+    while k < 28 {
+        t[k] = t[k - 1] * 5;
+        k += 1;
+    }
+    t
+};
+
 /// `(n, E)` with `10¹¹ ≤ n < 10¹²` and `n·10^(E−11)` the positive finite `a` rounded to
 /// twelve significant digits, ties to even; `None` outside the range of the exact integer
 /// route (see [`push_num`]).
@@ -161,14 +172,17 @@ fn twelve_digits(a: f64) -> Option<(u64, i32)> {
     }
     let m = u128::from((bits & ((1u64 << 52) - 1)) | (1u64 << 52));
     let e2 = biased - 1075; // a = m·2^e2
-                            // A first guess of ⌊log₁₀ a⌋, corrected below if it is one off.
-    let mut exponent = a.log10().floor() as i32;
+                            // A first guess of ⌊log₁₀ a⌋ from the binary exponent, ⌊(biased − 1023)·log₁₀ 2⌋
+                            // (78913 / 2¹⁸ = 0.30103 to six digits, exact in the floor for the exponents of f64):
+                            // `a` lies in [2^b, 2^(b+1)), so the guess is the answer or one below it, and the loop
+                            // corrects it.
+    let mut exponent = ((biased - 1023) * 78913) >> 18;
     for _ in 0..3 {
         let k = 11 - exponent;
         if !(0..=27).contains(&k) {
             return None;
         }
-        let scaled = m * 5u128.pow(k as u32); // < 2⁵³·5²⁷ < 2¹¹⁶
+        let scaled = m * POW5[k as usize]; // < 2⁵³·5²⁷ < 2¹¹⁶
         let shift = e2 + k; // a·10^k = scaled·2^shift
                             // v = a·10^k = scaled·2^shift: its integer part and its rounding to an integer.
         let (floor, rounded) = if shift >= 0 {

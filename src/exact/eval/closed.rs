@@ -26,24 +26,29 @@
 //!   pass flag or her basis and outcome, so her states are diagonal,
 //!   `e_x = (1 − p, p w_β |<φ_βo|ψ_x>|², …)`; they commute, and the accessible information
 //!   is the Holevo quantity, reached by reading the record (Holevo 1973): the classical
-//!   mutual information of the two diagonals.
+//!   mutual information of the two diagonals, `H(½(e_0 + e_1)) − ½(H(e_0) + H(e_1))`, which
+//!   is how the Holevo quantity is computed here too (Eve's average state is the same in
+//!   every basis, `(1 − p, ½ p w_β, …)`).
 //! - **Entangling probe** (`entangling-probe`, d_E = 2): the state `V|ψ>` is a 2 × 2
 //!   coefficient matrix in the σ_Y eigenbases of B and E, from which Bob's and Eve's 2 × 2
-//!   states follow without Kraus operators. Eve's pair of qubit states goes straight to
-//!   [`qubit_pair::solve`] (the general route's last stage for it), and to the general
-//!   [`accessible_information`] when they commute or the dual bound does not certify the
-//!   projective value, as the general route does.
+//!   states follow without Kraus operators. In Z and X, `|<y_0|ψ>| = |<y_1|ψ>|`, so Eve's
+//!   two states have Bloch vectors of equal length (`(±sin η · n, cos² η)` for a unit `n`
+//!   in the plane ⟂ her σ_Y axis) and their accessible information is `1 − h((1 − sin η)/2)`
+//!   by the lemma of [`equal_length_pair_information`] (a dephasing channel applied to two
+//!   pure states, and Levitin's value); with `sin η = 2√(D(1−D))` this is, from memory, the
+//!   optimal individual information of Fuchs et al. (PRA 56, 1163, 1997), which the lemma
+//!   does not rely on. Should the lengths differ, the pair goes to
+//!   [`qubit_pair::solve`] (the general route's last stage) and, when they commute or its
+//!   dual bound does not certify the value, to the general [`accessible_information`].
 //!
-//! Stack values only, no allocation except the probe's two 2 × 2 matrices.
+//! Stack values only, no allocation on the paths the sweeps take.
 
 use super::{accessible_summary, assemble, binary_spectrum_entropy, check_bounds, BasisStats, EvalOptions, Evaluation};
 use crate::attack::{cloner, entangling_probe, intercept_resend, pauli, ParamSet};
 use crate::error::Result;
 use crate::numeric::linalg::{c, CMat, C64};
 use crate::protocol::Basis;
-use crate::quantum::measures::{
-    accessible_information, measured_information, mutual_information, qubit_pair, shannon_entropy, AccessibleOptions,
-};
+use crate::quantum::measures::{accessible_information, measured_information, qubit_pair, shannon_entropy, AccessibleOptions};
 use std::f64::consts::LN_2;
 
 /// Most bases Eve measures in (`random-zxy`).
@@ -116,18 +121,19 @@ impl ClosedForm {
             ClosedForm::MeasureResend { fraction, bases, count } => measure_resend_stats(*fraction, &bases[..*count]),
             ClosedForm::Probe(cos_eta, sin_eta) => probe_stats(*cos_eta, *sin_eta),
         };
+        let holevo = [z.holevo, x.holevo];
         let checked = [z.checked("z")?, x.checked("x")?, y.checked("y")?];
         let accessible = match opts.accessible.as_ref() {
             None => None,
-            Some(acc) => Some(self.accessible(acc)?),
+            Some(acc) => Some(self.accessible(acc, holevo)?),
         };
         assemble(label, self.eve_dim(), checked, accessible_summary(accessible), opts)
     }
 
     /// The Z and X accessible information `(bits, upper bound, converged)`: in closed form,
     /// or, when the options turn the general route's shortcuts off, by that route on
-    /// Eve's states.
-    fn accessible(&self, acc: &AccessibleOptions) -> Result<[(f64, Option<f64>, bool); 2]> {
+    /// Eve's states. `holevo`: the Z and X Holevo quantities, unsnapped.
+    fn accessible(&self, acc: &AccessibleOptions, holevo: [f64; 2]) -> Result<[(f64, Option<f64>, bool); 2]> {
         if !shortcuts_on(acc) {
             let mut out = [(0.0, None, true); 2];
             for (basis, slot) in out.iter_mut().enumerate() {
@@ -138,11 +144,19 @@ impl ClosedForm {
         }
         match self {
             ClosedForm::Pauli(w) => Ok(pauli_accessible(w)),
-            ClosedForm::MeasureResend { fraction, bases, count } => Ok(measure_resend_accessible(*fraction, &bases[..*count])),
-            ClosedForm::Probe(..) => {
+            // Reading the record reaches the Holevo quantity (module docs): the value and its
+            // bound are the classical I(X : record) = H(record) − H(record | X).
+            ClosedForm::MeasureResend { .. } => Ok(holevo.map(|chi| (chi, Some(chi), true))),
+            ClosedForm::Probe(cos_eta, sin_eta) => {
+                let y = basis_kets()[2];
                 let mut out = [(0.0, None, true); 2];
                 for (basis, slot) in out.iter_mut().enumerate() {
-                    *slot = qubit_pair_accessible(&self.eve_states(basis), acc)?;
+                    let k = basis_kets()[basis];
+                    let r = k.map(|k| bloch(&probe_eve(&probe_coefficients(&y, *cos_eta, *sin_eta, &k))));
+                    *slot = match equal_length_pair_information(&r) {
+                        Some(bits) => (bits, Some(bits), true),
+                        None => qubit_pair_accessible(&self.eve_states(basis), acc)?,
+                    };
                 }
                 Ok(out)
             }
@@ -164,11 +178,14 @@ impl ClosedForm {
                     (v.adjoint() * &v).transpose()
                 })
             }
-            ClosedForm::MeasureResend { fraction, bases, count } => kets.map(|k| {
-                let e = record(*fraction, &bases[..*count], &k, 1);
+            ClosedForm::MeasureResend { fraction, bases, count } => {
+                let r = Record::new(*fraction, &bases[..*count], &kets);
                 let d = 1 + 2 * count;
-                CMat::from_fn(d, d, |i, j| c(if i == j { e[i] } else { 0.0 }, 0.0))
-            }),
+                [0, 1].map(|x| {
+                    let e = r.eve(x, 1);
+                    CMat::from_fn(d, d, |i, j| c(if i == j { e[i] } else { 0.0 }, 0.0))
+                })
+            }
             ClosedForm::Probe(cos_eta, sin_eta) => {
                 let y = basis_kets()[2];
                 kets.map(|k| {
@@ -186,11 +203,14 @@ fn shortcuts_on(acc: &AccessibleOptions) -> bool {
     acc.commuting_shortcut && acc.block_reduction
 }
 
-/// The kets of the bases Z, X, Y, as [`Basis::ket`] gives them.
+/// The kets of the bases Z, X, Y, as [`Basis::ket`] gives them (computed once).
 fn basis_kets() -> [[Ket2; 2]; 3] {
-    [Basis::Z, Basis::X, Basis::Y].map(|b| {
-        let (k0, k1) = (b.ket(0), b.ket(1));
-        [[k0[0], k0[1]], [k1[0], k1[1]]]
+    static KETS: std::sync::OnceLock<[[Ket2; 2]; 3]> = std::sync::OnceLock::new();
+    *KETS.get_or_init(|| {
+        [Basis::Z, Basis::X, Basis::Y].map(|b| {
+            let (k0, k1) = (b.ket(0), b.ket(1));
+            [[k0[0], k0[1]], [k1[0], k1[1]]]
+        })
     })
 }
 
@@ -255,18 +275,41 @@ fn pauli_accessible(w: &[f64; 4]) -> [(f64, Option<f64>, bool); 2] {
 /// outcome.
 const RECORD: usize = 1 + 2 * MAX_BASES;
 
-/// Eve's register for Alice's ket `k` under intercept-resend: `(1 − p, p w_β |<φ_βo|k>|², …)`
-/// with `power = 1`, the same with the overlaps' squared moduli squared again with
-/// `power = 2` (her state when Bob finds `k`).
-fn record(fraction: f64, bases: &[(f64, [Ket2; 2])], k: &Ket2, power: i32) -> [f64; RECORD] {
-    let mut e = [0.0; RECORD];
-    e[0] = 1.0 - fraction;
-    for (beta, (weight, phis)) in bases.iter().enumerate() {
-        for (o, phi) in phis.iter().enumerate() {
-            e[1 + 2 * beta + o] = fraction * weight * inner(phi, k).norm_sqr().powi(power);
+/// Intercept-resend seen from one of Alice's bases: `overlap[x][j] = |<φ_j|k_x>|²` for her
+/// kets `k_x` and Eve's measurement kets `φ_j` (`j = 2β + o`), and the weights `p w_β`.
+struct Record {
+    overlap: [[f64; 2 * MAX_BASES]; 2],
+    weight: [f64; 2 * MAX_BASES],
+    fraction: f64,
+    /// Eve's outcomes in use, `2 · count`.
+    outcomes: usize,
+}
+
+impl Record {
+    fn new(fraction: f64, bases: &[(f64, [Ket2; 2])], k: &[Ket2; 2]) -> Record {
+        let mut r = Record { overlap: [[0.0; 2 * MAX_BASES]; 2], weight: [0.0; 2 * MAX_BASES], fraction, outcomes: 2 * bases.len() };
+        for (beta, (w, phis)) in bases.iter().enumerate() {
+            for (o, phi) in phis.iter().enumerate() {
+                r.weight[2 * beta + o] = fraction * w;
+                for x in 0..2 {
+                    r.overlap[x][2 * beta + o] = inner(phi, &k[x]).norm_sqr();
+                }
+            }
         }
+        r
     }
-    e
+
+    /// Eve's register given Alice's bit `x`: `(1 − p, p w_β |<φ_βo|k_x>|², …)` with
+    /// `power = 1`; with `power = 2` the overlaps enter squared (her state when Bob finds
+    /// `k_x`).
+    fn eve(&self, x: usize, power: i32) -> [f64; RECORD] {
+        let mut e = [0.0; RECORD];
+        e[0] = 1.0 - self.fraction;
+        for j in 0..self.outcomes {
+            e[1 + j] = self.weight[j] * self.overlap[x][j].powi(power);
+        }
+        e
+    }
 }
 
 /// `½(a + b)` entry by entry.
@@ -277,22 +320,19 @@ fn midpoint(a: &[f64; RECORD], b: &[f64; RECORD]) -> [f64; RECORD] {
 /// The intercept-resend statistics (module docs).
 fn measure_resend_stats(fraction: f64, bases: &[(f64, [Ket2; 2])]) -> [BasisStats; 3] {
     let d = 1 + 2 * bases.len();
-    let kets = basis_kets();
-    let z_eve = [record(fraction, bases, &kets[0][0], 1), record(fraction, bases, &kets[0][1], 1)];
-    let s_avg = shannon_entropy(&midpoint(&z_eve[0], &z_eve[1])[..d]);
+    let records = basis_kets().map(|k| Record::new(fraction, bases, &k));
+    let s_avg = shannon_entropy(&midpoint(&records[0].eve(0, 1), &records[0].eve(1, 1))[..d]);
     let distance = |a: &[f64], b: &[f64]| a.iter().zip(b).map(|(u, v)| (u - v).abs()).sum::<f64>();
-    kets.map(|k| {
-        let e = [record(fraction, bases, &k[0], 1), record(fraction, bases, &k[1], 1)];
-        let sigma = [record(fraction, bases, &k[0], 2), record(fraction, bases, &k[1], 2)];
+    records.map(|r| {
+        let e = [r.eve(0, 1), r.eve(1, 1)];
+        let sigma = [r.eve(0, 2), r.eve(1, 2)];
         let mut joint_ab = [[0.0; 2]; 2];
         for (x, row) in joint_ab.iter_mut().enumerate() {
             for (b, cell) in row.iter_mut().enumerate() {
-                // ½<k_b|ρ_B|k_b>, ρ_B = (1 − p)|k_x><k_x| + p Σ w_β |<φ|k_x>|² |φ><φ|.
+                // ½<k_b|ρ_B|k_b>, ρ_B = (1 − p)|k_x><k_x| + Σ_j p w_β |<φ_j|k_x>|² |φ_j><φ_j|.
                 let mut p = if b == x { 1.0 - fraction } else { 0.0 };
-                for (weight, phis) in bases {
-                    for phi in phis {
-                        p += fraction * weight * inner(phi, &k[x]).norm_sqr() * inner(&k[b], phi).norm_sqr();
-                    }
+                for j in 0..r.outcomes {
+                    p += r.weight[j] * r.overlap[x][j] * r.overlap[b][j];
                 }
                 *cell = 0.5 * p;
             }
@@ -304,20 +344,6 @@ fn measure_resend_stats(fraction: f64, bases: &[(f64, [Ket2; 2])]) -> [BasisStat
             game: 0.25 * (sigma[0][..d].iter().sum::<f64>() + sigma[1][..d].iter().sum::<f64>() + distance(&sigma[0][..d], &sigma[1][..d])),
             joint_ab,
         }
-    })
-}
-
-/// The intercept-resend accessible information, Z and X: Eve reads her record, which
-/// reaches the Holevo quantity (module docs), the upper bound.
-fn measure_resend_accessible(fraction: f64, bases: &[(f64, [Ket2; 2])]) -> [(f64, Option<f64>, bool); 2] {
-    let d = 1 + 2 * bases.len();
-    let kets = basis_kets();
-    [0, 1].map(|basis| {
-        let e = [record(fraction, bases, &kets[basis][0], 1), record(fraction, bases, &kets[basis][1], 1)];
-        let rows = [e[0].map(|v| 0.5 * v), e[1].map(|v| 0.5 * v)];
-        let bits = mutual_information(&[&rows[0][..d], &rows[1][..d]]);
-        let chi = shannon_entropy(&midpoint(&e[0], &e[1])[..d]) - 0.5 * (shannon_entropy(&e[0][..d]) + shannon_entropy(&e[1][..d]));
-        (bits, Some(chi), true)
     })
 }
 
@@ -380,6 +406,40 @@ fn probe_stats(cos_eta: f64, sin_eta: f64) -> [BasisStats; 3] {
             joint_ab,
         }
     })
+}
+
+/// Bloch vector `(2 Re ρ₀₁, −2 Im ρ₀₁, ρ₀₀ − ρ₁₁)` of a 2 × 2 state given as
+/// `([ρ₀₀, ρ₁₁], ρ₀₁)`.
+fn bloch(r: &([f64; 2], C64)) -> [f64; 3] {
+    [2.0 * r.1.re, -2.0 * r.1.im, r.0[0] - r.0[1]]
+}
+
+/// How far apart the squared lengths of two Bloch vectors may be for
+/// [`equal_length_pair_information`] to treat them as equal: rounding level (their entries
+/// are sums of a few products of numbers at most one).
+const EQUAL_LENGTH_TOL: f64 = 1e-14;
+
+/// Accessible information, in bits, of two equiprobable qubit states whose Bloch vectors
+/// `r₀, r₁` have equal length: `1 − h((1 − s)/2)` with `s = |r₀ − r₁|/2`, reached by the
+/// projective measurement along `r₀ − r₁`. `None` when the lengths differ.
+///
+/// Proof: write `r_± = a e ± s u` with `u` along `r₀ − r₁` and `e ⟂ u` (equal lengths make
+/// the mean `a e` orthogonal to the difference), `a² + s² = |r|² ≤ 1`. The pure states with
+/// Bloch vectors `m_± = √(1 − s²) e ± s u` go to `r_±` under the dephasing channel
+/// `ρ ↦ ½(1 + μ)ρ + ½(1 − μ)(u·σ)ρ(u·σ)`, `μ = a/√(1 − s²) ∈ [0, 1]`, which keeps the
+/// component along `u` and scales the rest by `μ`. A measurement after a channel is a
+/// measurement before it, so the accessible information is at most that of the pure pair,
+/// whose overlap `|<m₊|m₋>|² = (1 + m₊·m₋)/2 = 1 − s²` gives Levitin's value
+/// `1 − h((1 − s)/2)` (two equiprobable pure states). Measuring `u·σ` on `r_±` gives
+/// outcome `±` with probabilities `(1 ± s)/2`, a binary symmetric channel of error
+/// `(1 − s)/2`, which reaches it. (For `s = 1` the states are the orthogonal pure `±u`.)
+fn equal_length_pair_information(r: &[[f64; 3]; 2]) -> Option<f64> {
+    let len2 = |v: &[f64; 3]| v[0] * v[0] + v[1] * v[1] + v[2] * v[2];
+    if (len2(&r[0]) - len2(&r[1])).abs() > EQUAL_LENGTH_TOL {
+        return None;
+    }
+    let diff = [r[0][0] - r[1][0], r[0][1] - r[1][1], r[0][2] - r[1][2]];
+    Some(symmetric_channel_information(0.5 * len2(&diff).sqrt()))
 }
 
 /// Largest commutator entry for which the general route measures two states in a common
@@ -538,6 +598,49 @@ mod tests {
             for (a, b) in [(closed.accessible_z, general.accessible_z), (closed.accessible_x, general.accessible_x)] {
                 // The search's own accuracy: its stopping rules work at 1e-9 to 1e-11 bits.
                 assert!((a.unwrap() - b.unwrap()).abs() < 1e-8, "{family}: {a:?} vs {b:?}");
+            }
+        }
+    }
+
+    #[test]
+    fn equal_length_pairs_have_the_helstrom_information_of_the_lemma() {
+        // Random pairs with Bloch vectors of equal length (one a random rotation of the
+        // other), against the general route (qubit-pair solver with its dual bound), and
+        // pairs of unequal length refused.
+        let mut rng = rand_chacha::ChaCha8Rng::seed_from_u64(0x1e33a);
+        let density = |r: [f64; 3]| {
+            CMat::from_row_slice(
+                2,
+                2,
+                &[c(0.5 * (1.0 + r[2]), 0.0), c(0.5 * r[0], -0.5 * r[1]), c(0.5 * r[0], 0.5 * r[1]), c(0.5 * (1.0 - r[2]), 0.0)],
+            )
+        };
+        let unit = |rng: &mut rand_chacha::ChaCha8Rng| loop {
+            let v: [f64; 3] = std::array::from_fn(|_| rng.gen_range(-1.0..1.0));
+            let n = (v[0] * v[0] + v[1] * v[1] + v[2] * v[2]).sqrt();
+            if n > 0.1 && n <= 1.0 {
+                break v.map(|x| x / n);
+            }
+        };
+        for i in 0..200 {
+            let length = if i % 10 == 0 { 1.0 } else { rng.gen_range(0.05..1.0) };
+            let r = [unit(&mut rng).map(|x| x * length), unit(&mut rng).map(|x| x * length)];
+            let bits = equal_length_pair_information(&r).expect("equal lengths");
+            let general = accessible_information(&[0.5, 0.5], &[density(r[0]), density(r[1])], &AccessibleOptions::default()).unwrap();
+            assert!((bits - general.bits).abs() <= TOL, "{r:?}: lemma {bits}, general {}", general.bits);
+            assert!(bits <= general.upper_bound.unwrap() + TOL);
+            let shorter = [r[0], r[1].map(|x| x * 0.999)];
+            assert!(equal_length_pair_information(&shorter).is_none());
+        }
+        // The probe's states in Z and X are such pairs.
+        for d in [0.0, 0.01, 0.1, 0.3, 0.5] {
+            let (cos_eta, sin_eta) = entangling_probe::probe_angle(d);
+            let y = basis_kets()[2];
+            for k in &basis_kets()[..2] {
+                let r = k.map(|k| bloch(&probe_eve(&probe_coefficients(&y, cos_eta, sin_eta, &k))));
+                let bits = equal_length_pair_information(&r).expect("equal lengths");
+                let direct = symmetric_channel_information(sin_eta);
+                assert!((bits - direct).abs() < 1e-14, "D = {d}: {bits} vs {direct}");
             }
         }
     }
