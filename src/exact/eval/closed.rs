@@ -43,7 +43,7 @@
 //!
 //! Stack values only, no allocation on the paths the sweeps take.
 
-use super::{accessible_summary, assemble, binary_spectrum_entropy, check_bounds, BasisStats, EvalOptions, Evaluation};
+use super::{accessible_summary, assemble, check_bounds, BasisStats, EvalOptions, Evaluation};
 use crate::attack::{cloner, entangling_probe, intercept_resend, pauli, ParamSet};
 use crate::error::Result;
 use crate::numeric::linalg::{c, CMat, C64};
@@ -214,6 +214,20 @@ fn basis_kets() -> [[Ket2; 2]; 3] {
     })
 }
 
+/// Shannon entropy, in bits, of a probability vector whose entries sum to one in exact
+/// arithmetic (they may not in floating point). The largest entry `p_m` has its logarithm
+/// taken as `ln(1 − r)` with `r` the sum of the others when `r < ½`: near one, `p_m` itself
+/// has lost the digits of `r` to rounding (an absolute error of 1e-16 in `ln p_m`, a
+/// relative one of 1e-16/r in the term), while `r` keeps them. Other terms as
+/// [`shannon_entropy`] takes them.
+fn unit_sum_entropy(p: &[f64]) -> f64 {
+    let Some(m) = (0..p.len()).max_by(|&i, &j| p[i].total_cmp(&p[j])) else { return 0.0 };
+    let rest: f64 = p.iter().enumerate().filter(|&(i, _)| i != m).map(|(_, &x)| x).sum();
+    let others = shannon_entropy(&p[..m]) + shannon_entropy(&p[m + 1..]);
+    let top = if p[m] > 0.0 && rest < 0.5 { -p[m] * (-rest).ln_1p() / LN_2 } else { shannon_entropy(&p[m..=m]) };
+    others + top
+}
+
 /// `<a|b>`.
 fn inner(a: &Ket2, b: &Ket2) -> C64 {
     a[0].conj() * b[0] + a[1].conj() * b[1]
@@ -248,14 +262,14 @@ const PAULI_AXES: [(usize, usize, usize); 3] = [(3, 1, 2), (1, 3, 2), (2, 1, 3)]
 
 /// The Pauli-channel statistics (module docs).
 fn pauli_stats(w: &[f64; 4]) -> [BasisStats; 3] {
-    let s_avg = shannon_entropy(w);
+    let s_avg = unit_sum_entropy(w);
     PAULI_AXES.map(|(t, a, b)| {
         let (keep, flip) = (w[0] + w[t], w[a] + w[b]);
         let (r_keep, r_flip) = ((w[0] * w[t]).sqrt(), (w[a] * w[b]).sqrt());
         BasisStats {
             qber: 0.5 * flip + 0.5 * flip,
             p_guess: 0.5 + r_keep + r_flip,
-            holevo: s_avg - shannon_entropy(&[keep, flip]),
+            holevo: s_avg - unit_sum_entropy(&[keep, flip]),
             game: 0.5 * keep + r_keep,
             joint_ab: [[0.5 * keep, 0.5 * flip], [0.5 * flip, 0.5 * keep]],
         }
@@ -321,7 +335,7 @@ fn midpoint(a: &[f64; RECORD], b: &[f64; RECORD]) -> [f64; RECORD] {
 fn measure_resend_stats(fraction: f64, bases: &[(f64, [Ket2; 2])]) -> [BasisStats; 3] {
     let d = 1 + 2 * bases.len();
     let records = basis_kets().map(|k| Record::new(fraction, bases, &k));
-    let s_avg = shannon_entropy(&midpoint(&records[0].eve(0, 1), &records[0].eve(1, 1))[..d]);
+    let s_avg = unit_sum_entropy(&midpoint(&records[0].eve(0, 1), &records[0].eve(1, 1))[..d]);
     let distance = |a: &[f64], b: &[f64]| a.iter().zip(b).map(|(u, v)| (u - v).abs()).sum::<f64>();
     records.map(|r| {
         let e = [r.eve(0, 1), r.eve(1, 1)];
@@ -340,7 +354,7 @@ fn measure_resend_stats(fraction: f64, bases: &[(f64, [Ket2; 2])]) -> [BasisStat
         BasisStats {
             qber: joint_ab[0][1] + joint_ab[1][0],
             p_guess: 0.5 + 0.25 * distance(&e[0][..d], &e[1][..d]),
-            holevo: s_avg - 0.5 * (shannon_entropy(&e[0][..d]) + shannon_entropy(&e[1][..d])),
+            holevo: s_avg - 0.5 * (unit_sum_entropy(&e[0][..d]) + unit_sum_entropy(&e[1][..d])),
             game: 0.25 * (sigma[0][..d].iter().sum::<f64>() + sigma[1][..d].iter().sum::<f64>() + distance(&sigma[0][..d], &sigma[1][..d])),
             joint_ab,
         }
@@ -365,6 +379,16 @@ fn probe_eve(m: &[[C64; 2]; 2]) -> ([f64; 2], C64) {
     r
 }
 
+/// Entropy, in bits, of the 2 × 2 state `[[a, z], [z*, d]]` (trace one) with determinant
+/// `det`, which the caller computes without cancellation: the larger eigenvalue
+/// `½(a + d + √((a − d)² + 4|z|²))` is a sum, and the smaller is `det` over it rather than
+/// the difference `½(a + d) − ½√(…)`, which loses the digits of a small eigenvalue.
+fn qubit_entropy(a: f64, d: f64, z: C64, det: f64) -> f64 {
+    let large = 0.5 * (a + d + ((a - d) * (a - d) + 4.0 * z.norm_sqr()).sqrt());
+    let small = if large > 0.0 { det.max(0.0) / large } else { 0.0 };
+    unit_sum_entropy(&[small, large])
+}
+
 /// The entangling-probe statistics (module docs).
 fn probe_stats(cos_eta: f64, sin_eta: f64) -> [BasisStats; 3] {
     let kets = basis_kets();
@@ -374,12 +398,20 @@ fn probe_stats(cos_eta: f64, sin_eta: f64) -> [BasisStats; 3] {
         let (u0, u1) = (inner(kb, &y[0]), inner(kb, &y[1]));
         [u0 * m[0][0] + u1 * m[1][0], u0 * m[0][1] + u1 * m[1][1]]
     };
-    let entropy = |r: &([f64; 2], C64)| binary_spectrum_entropy(r.0[0], r.0[1], r.1);
+    // Eve's state given Alice's ket is half of a pure state on B ⊗ E with coefficient
+    // matrix m, so its determinant is |det m|², free of the cancellation in ad − |z|².
+    let entropy_of = |m: &[[C64; 2]; 2]| {
+        let r = probe_eve(m);
+        qubit_entropy(r.0[0], r.0[1], r.1, (m[0][0] * m[1][1] - m[0][1] * m[1][0]).norm_sqr())
+    };
     let z = [
         probe_eve(&probe_coefficients(&y, cos_eta, sin_eta, &kets[0][0])),
         probe_eve(&probe_coefficients(&y, cos_eta, sin_eta, &kets[0][1])),
     ];
-    let s_avg = entropy(&([0.5 * (z[0].0[0] + z[1].0[0]), 0.5 * (z[0].0[1] + z[1].0[1])], (z[0].1 + z[1].1) * 0.5));
+    let avg = ([0.5 * (z[0].0[0] + z[1].0[0]), 0.5 * (z[0].0[1] + z[1].0[1])], (z[0].1 + z[1].1) * 0.5);
+    // Eve's average state is diagonal in her σ_Y eigenbasis (the phases of |<y_0|ψ>| and
+    // |<y_1|ψ>| cancel over Alice's bit), so ad − |z|² does not cancel here.
+    let s_avg = qubit_entropy(avg.0[0], avg.0[1], avg.1, avg.0[0] * avg.0[1] - avg.1.norm_sqr());
     kets.map(|k| {
         let m = [probe_coefficients(&y, cos_eta, sin_eta, &k[0]), probe_coefficients(&y, cos_eta, sin_eta, &k[1])];
         let e = [probe_eve(&m[0]), probe_eve(&m[1])];
@@ -401,7 +433,7 @@ fn probe_stats(cos_eta: f64, sin_eta: f64) -> [BasisStats; 3] {
         BasisStats {
             qber: joint_ab[0][1] + joint_ab[1][0],
             p_guess: 0.5 + 0.25 * ((mean + radius).abs() + (mean - radius).abs()),
-            holevo: s_avg - 0.5 * (entropy(&e[0]) + entropy(&e[1])),
+            holevo: s_avg - 0.5 * (entropy_of(&m[0]) + entropy_of(&m[1])),
             game: 0.25 * (n0 + n1 + game_norm),
             joint_ab,
         }
@@ -643,6 +675,27 @@ mod tests {
                 assert!((bits - direct).abs() < 1e-14, "D = {d}: {bits} vs {direct}");
             }
         }
+    }
+
+    #[test]
+    fn unit_sum_entropy_is_the_shannon_entropy_and_keeps_the_digits_near_one() {
+        let mut rng = rand_chacha::ChaCha8Rng::seed_from_u64(0x5a7);
+        for n in 1..8 {
+            for _ in 0..50 {
+                let raw: Vec<f64> = (0..n).map(|_| rng.gen::<f64>().powi(3)).collect();
+                let total: f64 = raw.iter().sum();
+                let p: Vec<f64> = raw.iter().map(|x| x / total).collect();
+                assert!((unit_sum_entropy(&p) - shannon_entropy(&p)).abs() < 1e-14, "{p:?}");
+            }
+        }
+        // [1 − ε, ε]: h(ε) = ε log₂(1/ε) + (1 − ε)(ε + ε²/2 + ε³/3 + …)/ln 2; the plain sum
+        // takes log₂(1 − ε) from the rounded 1 − ε, an error of order 1e-16/ε relative.
+        for eps in [1e-5_f64, 3e-9, 1e-12] {
+            let series = eps * -eps.log2() + (1.0 - eps) * (eps + eps * eps / 2.0 + eps.powi(3) / 3.0) / LN_2;
+            assert!((unit_sum_entropy(&[1.0 - eps, eps]) / series - 1.0).abs() < 4e-16, "ε = {eps}");
+        }
+        assert_eq!(unit_sum_entropy(&[1.0, 0.0]), 0.0);
+        assert_eq!(unit_sum_entropy(&[]), 0.0);
     }
 
     #[test]
