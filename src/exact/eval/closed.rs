@@ -41,7 +41,9 @@
 //!   [`qubit_pair::solve`] (the general route's last stage) and, when they commute or its
 //!   dual bound does not certify the value, to the general [`accessible_information`].
 //!
-//! Stack values only, no allocation on the paths the sweeps take.
+//! The kernels work on stack values (2-vectors, 2 × 2 coefficient matrices, Eve's
+//! diagonal); only building an intercept-resend form allocates (its measurement kets, once
+//! per point), and the general-route fallbacks build matrices.
 
 use super::{accessible_summary, assemble, check_bounds, BasisStats, EvalOptions, Evaluation};
 use crate::attack::{cloner, entangling_probe, intercept_resend, pauli, ParamSet};
