@@ -4,7 +4,7 @@
 
 use criterion::{black_box, criterion_group, criterion_main, Criterion, Throughput};
 use qkd_audit::attack::file::{builtin_catalogue, parse};
-use qkd_audit::exact::eval::{evaluate, EvalOptions};
+use qkd_audit::exact::eval::{evaluate, ClosedForm, EvalOptions};
 use qkd_audit::protocol::Protocol;
 use std::collections::BTreeMap;
 
@@ -30,6 +30,13 @@ fn bench_eval(c: &mut Criterion) {
                 let a = file.attack(&BTreeMap::new()).unwrap();
                 evaluate(black_box(&a), &EvalOptions::fast(Protocol::Bb84)).unwrap()
             })
+        });
+        // What a sweep point of a built-in family costs: its closed form, with accessible
+        // information (`exact::eval::ClosedForm`, no Kraus operators).
+        let fam = qkd_audit::attack::family(&attack.family).expect("a built-in family");
+        let form = ClosedForm::of(fam.name(), &attack.params).expect("every built-in family has a closed form");
+        group.bench_function(format!("{label}/closed-form-with-accessible"), |b| {
+            b.iter(|| black_box(&form).evaluate(&attack.label, &EvalOptions::full(Protocol::Bb84)).unwrap())
         });
     }
     group.finish();

@@ -1,7 +1,9 @@
 //! Sweep throughput per built-in single-photon family, with accessible information (what
-//! `qkd-audit sweep` computes), on one thread and on two. Target (issue: speed and scale):
-//! ≥ 2 × 10⁵ points per second per core for every family. Results are recorded in
-//! DEVELOPERS.md ("Speed and scale").
+//! `qkd-audit sweep` computes: closed forms per family, then the CSV), on one thread and on
+//! two. Target (issue: speed and scale): ≥ 2 × 10⁵ points per second per core for every
+//! family. Results are recorded in DEVELOPERS.md ("Speed and scale"); the machine is shared,
+//! so that table gives CPU seconds of whole `qkd-audit sweep` runs, which load disturbs
+//! less than these wall-clock figures.
 
 use criterion::{criterion_group, criterion_main, Criterion, Throughput};
 use qkd_audit::attack::file::{builtin_catalogue, parse};

@@ -59,11 +59,19 @@ impl Family for Cloner {
     }
 }
 
+/// The cloner's Pauli weights in the order (I, X, Y, Z) for error rate `d`: Bob receives
+/// the Pauli channel with these weights.
+pub fn cloner_weights(universal: bool, d: f64) -> [f64; 4] {
+    if universal {
+        [1.0 - 1.5 * d, d / 2.0, d / 2.0, d / 2.0]
+    } else {
+        [(1.0 - d) * (1.0 - d), d * (1.0 - d), d * d, d * (1.0 - d)]
+    }
+}
+
 /// The cloner isometry for error rate `d`.
 pub fn cloner_isometry(universal: bool, d: f64) -> CMat {
-    // Weights in the order (I, X, Y, Z).
-    let w =
-        if universal { [1.0 - 1.5 * d, d / 2.0, d / 2.0, d / 2.0] } else { [(1.0 - d) * (1.0 - d), d * (1.0 - d), d * d, d * (1.0 - d)] };
+    let w = cloner_weights(universal, d);
     let phi_plus =
         CVec::from_vec(vec![c(std::f64::consts::FRAC_1_SQRT_2, 0.0), c(0.0, 0.0), c(0.0, 0.0), c(std::f64::consts::FRAC_1_SQRT_2, 0.0)]);
     let sig = paulis();

@@ -32,9 +32,7 @@ impl Family for EntanglingProbe {
         Value::Num(0.1)
     }
     fn kraus(&self, p: &ParamSet) -> (usize, Vec<CMat>) {
-        let d = p.num("qber");
-        let cos_eta = 1.0 - 2.0 * d;
-        let sin_eta = 2.0 * (d * (1.0 - d)).sqrt();
+        let (cos_eta, sin_eta) = probe_angle(p.num("qber"));
         let y0 = Basis::Y.ket(0);
         let y1 = Basis::Y.ket(1);
         let out0: CVec = kron_vec(&y0, &y0);
@@ -42,4 +40,9 @@ impl Family for EntanglingProbe {
         let v = &out0 * y0.adjoint() + &out1 * y1.adjoint();
         (2, vec![v])
     }
+}
+
+/// `(cos η, sin η)` of the probe for error rate `d`: `cos η = 1 − 2D`, `sin η = 2√(D(1−D))`.
+pub fn probe_angle(d: f64) -> (f64, f64) {
+    (1.0 - 2.0 * d, 2.0 * (d * (1.0 - d)).sqrt())
 }

@@ -46,13 +46,7 @@ impl Family for InterceptResend {
     }
     fn kraus(&self, p: &ParamSet) -> (usize, Vec<CMat>) {
         let fraction = p.num("fraction");
-        let bases: Vec<(f64, [CVec; 2])> = match p.text("basis") {
-            "z" => vec![(1.0, [Basis::Z.ket(0), Basis::Z.ket(1)])],
-            "x" => vec![(1.0, [Basis::X.ket(0), Basis::X.ket(1)])],
-            "breidbart" => vec![(1.0, breidbart())],
-            "random-zxy" => [Basis::Z, Basis::X, Basis::Y].iter().map(|b| (1.0 / 3.0, [b.ket(0), b.ket(1)])).collect(),
-            _ => vec![(0.5, [Basis::Z.ket(0), Basis::Z.ket(1)]), (0.5, [Basis::X.ket(0), Basis::X.ket(1)])],
-        };
+        let bases = measurement_bases(p.text("basis"));
         let d_e = 1 + 2 * bases.len();
         let record = |i: usize| CVec::from_fn(d_e, |r, _| c(if r == i { 1.0 } else { 0.0 }, 0.0));
         let mut ops = Vec::new();
@@ -67,6 +61,18 @@ impl Family for InterceptResend {
             }
         }
         (d_e, ops)
+    }
+}
+
+/// Eve's measurements for the `basis` keyword: each basis with the probability she picks
+/// it, in the order of her register's records (`1 + 2β + o` for basis β, outcome o).
+pub fn measurement_bases(basis: &str) -> Vec<(f64, [CVec; 2])> {
+    match basis {
+        "z" => vec![(1.0, [Basis::Z.ket(0), Basis::Z.ket(1)])],
+        "x" => vec![(1.0, [Basis::X.ket(0), Basis::X.ket(1)])],
+        "breidbart" => vec![(1.0, breidbart())],
+        "random-zxy" => [Basis::Z, Basis::X, Basis::Y].iter().map(|b| (1.0 / 3.0, [b.ket(0), b.ket(1)])).collect(),
+        _ => vec![(0.5, [Basis::Z.ket(0), Basis::Z.ket(1)]), (0.5, [Basis::X.ket(0), Basis::X.ket(1)])],
     }
 }
 

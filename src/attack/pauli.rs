@@ -39,11 +39,17 @@ impl Family for Pauli {
         Ok(())
     }
     fn kraus(&self, p: &ParamSet) -> (usize, Vec<CMat>) {
-        let (px, py, pz) = (p.num("px"), p.num("py"), p.num("pz"));
-        let weights = [(1.0 - px - py - pz).max(0.0), px, py, pz];
+        let weights = pauli_weights(p);
         let basis: Vec<CVec> = (0..4).map(|k| CVec::from_fn(4, |i, _| c(if i == k { 1.0 } else { 0.0 }, 0.0))).collect();
         (4, vec![pauli_isometry(weights, &basis)])
     }
+}
+
+/// The channel's weights (I, X, Y, Z) from resolved parameters `px`, `py`, `pz`; the weight
+/// of I is `1 − px − py − pz`, read as 0 when the sum exceeds 1 within the family's slack.
+pub fn pauli_weights(p: &ParamSet) -> [f64; 4] {
+    let (px, py, pz) = (p.num("px"), p.num("py"), p.num("pz"));
+    [(1.0 - px - py - pz).max(0.0), px, py, pz]
 }
 
 /// `V = Σ_k √w_k σ_k ⊗ |e_k>`: a (2·4) × 2 isometry when the weights `(I, X, Y, Z)` sum to

@@ -26,6 +26,9 @@ use crate::error::{Error, ErrorKind, Result};
 use crate::exact::bounds::{game_bound, six_state_entropy, six_state_weights};
 use crate::numeric::linalg::{c, CMat, CVec, C64};
 use crate::protocol::{Basis, Protocol};
+mod closed;
+pub use closed::ClosedForm;
+
 use crate::quantum::measures::{
     accessible_information, binary_entropy, mutual_information, trace_norm, von_neumann_entropy, AccessibleOptions,
 };
@@ -84,8 +87,17 @@ pub fn accessible_pair(
     let Some(acc) = acc else { return Ok((None, None, None, None)) };
     let az = accessible_information(z.0, z.1, acc)?;
     let ax = accessible_information(x.0, x.1, acc)?;
-    let gap = az.upper_bound.zip(ax.upper_bound).map(|(uz, ux)| snap((uz - az.bits).max(ux - ax.bits), 0.0, f64::INFINITY));
-    Ok((Some(snap(az.bits, 0.0, 1.0)), Some(snap(ax.bits, 0.0, 1.0)), Some(az.converged && ax.converged), gap))
+    Ok(accessible_summary(Some([(az.bits, az.upper_bound, az.converged), (ax.bits, ax.upper_bound, ax.converged)])))
+}
+
+/// What [`accessible_pair`] reports from the Z and X results `(bits, upper bound,
+/// converged)`: the values snapped to [0, 1], whether both converged, and the larger
+/// certified gap snapped to [0, ∞). All `None` for `None`.
+#[allow(clippy::type_complexity)]
+fn accessible_summary(zx: Option<[(f64, Option<f64>, bool); 2]>) -> (Option<f64>, Option<f64>, Option<bool>, Option<f64>) {
+    let Some([(bz, uz, cz), (bx, ux, cx)]) = zx else { return (None, None, None, None) };
+    let gap = uz.zip(ux).map(|(uz, ux)| snap((uz - bz).max(ux - bx), 0.0, f64::INFINITY));
+    (Some(snap(bz, 0.0, 1.0)), Some(snap(bx, 0.0, 1.0)), Some(cz && cx), gap)
 }
 
 /// Evaluation settings.
@@ -344,7 +356,6 @@ struct BasisStats {
     p_guess: f64,
     holevo: f64,
     game: f64,
-    eve: [CMat; 2],
     joint_ab: [[f64; 2]; 2],
 }
 
@@ -352,11 +363,11 @@ impl BasisStats {
     /// Clamps the probabilities and snaps the Holevo quantity (see [`PROBABILITY_SLACK`],
     /// [`ROUNDING_SLACK`]); `basis` names them in errors.
     fn checked(mut self, basis: &str) -> Result<BasisStats> {
-        self.qber = clamp_probability(&format!("qber_{basis}"), self.qber)?;
-        self.p_guess = clamp_probability(&format!("p_guess_{basis}"), self.p_guess)?;
+        self.qber = clamp_named(|| format!("qber_{basis}"), self.qber)?;
+        self.p_guess = clamp_named(|| format!("p_guess_{basis}"), self.p_guess)?;
         for row in &mut self.joint_ab {
             for p in row {
-                *p = clamp_probability(&format!("P(Alice, Bob) in basis {basis}"), *p)?;
+                *p = clamp_named(|| format!("P(Alice, Bob) in basis {basis}"), *p)?;
             }
         }
         self.holevo = snap(self.holevo, 0.0, 1.0);
@@ -364,11 +375,22 @@ impl BasisStats {
     }
 }
 
-fn basis_stats(attack: &Attack, basis: Basis, s_avg: f64) -> BasisStats {
+/// [`clamp_probability`] with the name made only when it is needed (a value outside
+/// [0, 1] or NaN): the same result, without formatting a name for every probability.
+fn clamp_named(name: impl FnOnce() -> String, p: f64) -> Result<f64> {
+    if (0.0..=1.0).contains(&p) {
+        Ok(snap(p, 0.0, 1.0))
+    } else {
+        clamp_probability(&name(), p)
+    }
+}
+
+/// The basis's statistics and Eve's two conditional states.
+fn basis_stats(attack: &Attack, basis: Basis, s_avg: f64) -> (BasisStats, [CMat; 2]) {
     basis_stats_from(basis, [conditional(attack, &basis.ket(0)), conditional(attack, &basis.ket(1))], s_avg)
 }
 
-fn basis_stats_from(basis: Basis, cond: [Conditional; 2], s_avg: f64) -> BasisStats {
+fn basis_stats_from(basis: Basis, cond: [Conditional; 2], s_avg: f64) -> (BasisStats, [CMat; 2]) {
     let kets = [basis.ket(0), basis.ket(1)];
     let mut qber = 0.0;
     let mut joint_ab = [[0.0; 2]; 2];
@@ -388,7 +410,7 @@ fn basis_stats_from(basis: Basis, cond: [Conditional; 2], s_avg: f64) -> BasisSt
     let s1 = &cond[1].sigma_right;
     let game = 0.25 * (s0.trace().re + s1.trace().re + trace_norm(&(s0 - s1)));
     let [c0, c1] = cond;
-    BasisStats { qber, p_guess, holevo, game, eve: [c0.rho_e, c1.rho_e], joint_ab }
+    (BasisStats { qber, p_guess, holevo, game, joint_ab }, [c0.rho_e, c1.rho_e])
 }
 
 /// Evaluates `attack` exactly. Returns a [`ErrorKind::BoundViolation`] error when a proven
@@ -409,9 +431,26 @@ pub fn evaluate_unchecked(attack: &Attack, opts: &EvalOptions) -> Result<Evaluat
     let z_cond = [conditional(attack, &Basis::Z.ket(0)), conditional(attack, &Basis::Z.ket(1))];
     let rho_e_avg = (&z_cond[0].rho_e + &z_cond[1].rho_e) * c(0.5, 0.0);
     let s_avg = von_neumann_entropy(&rho_e_avg);
-    let z = basis_stats_from(Basis::Z, z_cond, s_avg).checked("z")?;
-    let x = basis_stats(attack, Basis::X, s_avg).checked("x")?;
-    let y = basis_stats(attack, Basis::Y, s_avg).checked("y")?;
+    let (z, z_eve) = basis_stats_from(Basis::Z, z_cond, s_avg);
+    let z = z.checked("z")?;
+    let (x, x_eve) = basis_stats(attack, Basis::X, s_avg);
+    let x = x.checked("x")?;
+    let y = basis_stats(attack, Basis::Y, s_avg).0.checked("y")?;
+    let accessible = accessible_pair((&[0.5, 0.5], &z_eve), (&[0.5, 0.5], &x_eve), opts.accessible.as_ref())?;
+    assemble(&attack.label, d, [z, x, y], accessible, opts)
+}
+
+/// The evaluation of attack `label` (Eve's register of dimension `eve_dim`) from the
+/// checked statistics of the bases Z, X, Y and the accessible-information summary of
+/// [`accessible_pair`]: every derived quantity, then the NaN check.
+#[allow(clippy::type_complexity)]
+fn assemble(
+    label: &str,
+    eve_dim: usize,
+    [z, x, y]: [BasisStats; 3],
+    accessible: (Option<f64>, Option<f64>, Option<bool>, Option<f64>),
+    opts: &EvalOptions,
+) -> Result<Evaluation> {
     let h_x_given_e = 1.0 - z.holevo;
     let hz = binary_entropy(z.qber);
     let hx = binary_entropy(x.qber);
@@ -423,8 +462,7 @@ pub fn evaluate_unchecked(attack: &Attack, opts: &EvalOptions) -> Result<Evaluat
             (1.0 - h, h_x_given_e - (1.0 - h + hz))
         }
     };
-    let (accessible_z, accessible_x, accessible_converged, accessible_gap) =
-        accessible_pair((&[0.5, 0.5], &z.eve), (&[0.5, 0.5], &x.eve), opts.accessible.as_ref())?;
+    let (accessible_z, accessible_x, accessible_converged, accessible_gap) = accessible;
     let eval = Evaluation {
         qber_z: z.qber,
         qber_x: x.qber,
@@ -448,10 +486,10 @@ pub fn evaluate_unchecked(attack: &Attack, opts: &EvalOptions) -> Result<Evaluat
         margin: snap(margin, 0.0, f64::INFINITY),
         h_min_x_given_e: -z.p_guess.log2(),
         pauli_weights: weights,
-        eve_dim: d,
+        eve_dim,
         protocol: opts.protocol,
     };
-    check_no_nan(&attack.label, &eval)?;
+    check_no_nan(label, &eval)?;
     Ok(eval)
 }
 
