@@ -596,7 +596,7 @@ pub fn look_unit_counts(c: &Campaign, spec: &Spec, id: LookId, keep: &(dyn Fn(u6
 /// one rule's counts, the chunk's number of trials, verdicts adding up to them, the point's
 /// attack label, and no more key than the look's blocks hold.
 pub fn check_unit(c: &Campaign, spec: &Spec, id: LookId, u: &UnitCounts) -> Result<()> {
-    let labels: Vec<&str> = c.attacks.iter().flat_map(|e| std::iter::repeat_n(e.label.as_str(), e.points().len())).collect();
+    let labels: Vec<&str> = c.attacks.iter().flat_map(|e| std::iter::repeat(e.label.as_str()).take(e.points().len())).collect();
     let trials = id.trials(spec);
     let chunks = trials.div_ceil(CHUNK_TRIALS);
     let at = format!("{}, unit (point {}, chunk {})", id.describe(spec), u.point, u.chunk);
