@@ -351,6 +351,7 @@ fn binary_spectrum_entropy(a: f64, d: f64, z: C64) -> f64 {
 }
 
 /// Per-basis quantities.
+#[derive(Clone, Copy, Debug)]
 struct BasisStats {
     qber: f64,
     p_guess: f64,
@@ -359,10 +360,20 @@ struct BasisStats {
     joint_ab: [[f64; 2]; 2],
 }
 
+/// A basis's statistics checked: `raw` with the probabilities clamped to [0, 1] (within
+/// [`PROBABILITY_SLACK`]), which every entropy and information is computed from, and `shown`
+/// with them (and the Holevo quantity) also snapped within [`ROUNDING_SLACK`], as reported.
+/// Entropies must not see the snap: h(10⁻¹²) ≈ 4·10⁻¹¹ bits is far above the slack.
+#[derive(Clone, Copy, Debug)]
+struct Checked {
+    shown: BasisStats,
+    raw: BasisStats,
+}
+
 impl BasisStats {
-    /// Clamps the probabilities and snaps the Holevo quantity (see [`PROBABILITY_SLACK`],
-    /// [`ROUNDING_SLACK`]); `basis` names them in errors.
-    fn checked(mut self, basis: &str) -> Result<BasisStats> {
+    /// Clamps the probabilities, and snaps them and the Holevo quantity for the report (see
+    /// [`Checked`]); `basis` names them in errors.
+    fn checked(mut self, basis: &str) -> Result<Checked> {
         self.qber = clamp_named(|| format!("qber_{basis}"), self.qber)?;
         self.p_guess = clamp_named(|| format!("p_guess_{basis}"), self.p_guess)?;
         for row in &mut self.joint_ab {
@@ -370,18 +381,23 @@ impl BasisStats {
                 *p = clamp_named(|| format!("P(Alice, Bob) in basis {basis}"), *p)?;
             }
         }
-        self.holevo = snap(self.holevo, 0.0, 1.0);
-        Ok(self)
+        let raw = self;
+        let mut shown = self;
+        shown.qber = snap(shown.qber, 0.0, 1.0);
+        shown.p_guess = snap(shown.p_guess, 0.0, 1.0);
+        shown.joint_ab = shown.joint_ab.map(|row| row.map(|p| snap(p, 0.0, 1.0)));
+        shown.holevo = snap(shown.holevo, 0.0, 1.0);
+        Ok(Checked { shown, raw })
     }
 }
 
-/// [`clamp_probability`] with the name made only when it is needed (a value outside
-/// [0, 1] or NaN): the same result, without formatting a name for every probability.
+/// Clamps probability `p` to [0, 1] within [`PROBABILITY_SLACK`] (an error naming it, the
+/// name made only then, beyond the slack or for NaN); no snap.
 fn clamp_named(name: impl FnOnce() -> String, p: f64) -> Result<f64> {
     if (0.0..=1.0).contains(&p) {
-        Ok(snap(p, 0.0, 1.0))
+        Ok(p)
     } else {
-        clamp_probability(&name(), p)
+        clamp_probability(&name(), p).map(|_| p.clamp(0.0, 1.0))
     }
 }
 
@@ -447,14 +463,15 @@ pub fn evaluate_unchecked(attack: &Attack, opts: &EvalOptions) -> Result<Evaluat
 fn assemble(
     label: &str,
     eve_dim: usize,
-    [z, x, y]: [BasisStats; 3],
+    [cz, cx, cy]: [Checked; 3],
     accessible: (Option<f64>, Option<f64>, Option<bool>, Option<f64>),
     opts: &EvalOptions,
 ) -> Result<Evaluation> {
+    let (z, x, y) = (cz.shown, cx.shown, cy.shown);
     let h_x_given_e = 1.0 - z.holevo;
-    let hz = binary_entropy(z.qber);
-    let hx = binary_entropy(x.qber);
-    let weights = six_state_weights(x.qber, y.qber, z.qber);
+    let hz = binary_entropy(cz.raw.qber);
+    let hx = binary_entropy(cx.raw.qber);
+    let weights = six_state_weights(cx.raw.qber, cy.raw.qber, cz.raw.qber);
     let (bound_rate, margin) = match opts.protocol {
         Protocol::Bb84 => (1.0 - hx - hz, h_x_given_e - (1.0 - hx)),
         Protocol::SixState => {
@@ -478,13 +495,13 @@ fn assemble(
         accessible_x,
         accessible_converged,
         accessible_gap,
-        i_ab: mutual_information(&z.joint_ab),
+        i_ab: mutual_information(&cz.raw.joint_ab),
         game_win: 0.5 * (z.game + x.game),
         bound_rate,
         attack_rate: h_x_given_e - hz,
         individual_rate: accessible_z.map(|a| 1.0 - hz - a),
         margin: snap(margin, 0.0, f64::INFINITY),
-        h_min_x_given_e: -z.p_guess.log2(),
+        h_min_x_given_e: -cz.raw.p_guess.log2(),
         pauli_weights: weights,
         eve_dim,
         protocol: opts.protocol,

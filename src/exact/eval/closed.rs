@@ -428,10 +428,14 @@ fn probe_stats(cos_eta: f64, sin_eta: f64) -> [BasisStats; 3] {
         let (d00, d11, d01) = (e[0].0[0] - e[1].0[0], e[0].0[1] - e[1].0[1], e[0].1 - e[1].1);
         let mean = 0.5 * (d00 + d11);
         let radius = (0.25 * (d00 - d11) * (d00 - d11) + d01.norm_sqr()).sqrt();
-        // ‖w₀w₀† − w₁w₁†‖₁ = √((n₀ + n₁)² − 4|<w₀|w₁>|²), Eve's states when Bob is right.
+        // ‖w₀w₀† − w₁w₁†‖₁ = √((n₀ + n₁)² − 4|<w₀|w₁>|²), Eve's states when Bob is right;
+        // by Lagrange's identity n₀n₁ − |<w₀|w₁>|² = |w₀[0]w₁[1] − w₀[1]w₁[0]|², so the
+        // radicand is (n₀ − n₁)² + 4|w₀[0]w₁[1] − w₀[1]w₁[0]|², free of cancellation when
+        // the two states are nearly parallel (small QBER).
         let (w0, w1) = (bob_finds(&m[0], &k[0]), bob_finds(&m[1], &k[1]));
         let (n0, n1) = (w0[0].norm_sqr() + w0[1].norm_sqr(), w1[0].norm_sqr() + w1[1].norm_sqr());
-        let game_norm = ((n0 + n1) * (n0 + n1) - 4.0 * inner(&w0, &w1).norm_sqr()).max(0.0).sqrt();
+        let cross = (w0[0] * w1[1] - w0[1] * w1[0]).norm_sqr();
+        let game_norm = ((n0 - n1) * (n0 - n1) + 4.0 * cross).sqrt();
         BasisStats {
             qber: joint_ab[0][1] + joint_ab[1][0],
             p_guess: 0.5 + 0.25 * ((mean + radius).abs() + (mean - radius).abs()),
@@ -586,6 +590,31 @@ mod tests {
             for protocol in [Protocol::Bb84, Protocol::SixState] {
                 let (d, what) = worst_difference(family, &given, None, protocol);
                 assert!(d <= TOL, "{family} {given:?} ({protocol}): {what}, difference {d:e}");
+            }
+        }
+    }
+
+    #[test]
+    fn tiny_error_rates_keep_their_digits() {
+        // Near-parallel states of Eve (QBER 10⁻¹⁶ to 10⁻⁹): quantities built from differences
+        // of nearly equal terms must still agree with the general evaluator, and entropies
+        // must not see the report's snap of probabilities within 10⁻¹² of 0 (h(10⁻¹²) is
+        // 4·10⁻¹¹ bits). Exactly at the snap's edge (QBER 10⁻¹²) the last ulp of either route
+        // decides whether the reported QBER shows as 0, a difference of the slack itself, so
+        // the values straddle it.
+        for q in [1e-16, 1e-14, 1e-13, 0.9e-12, 1.1e-12, 3e-12, 1e-9] {
+            for (family, given) in [
+                ("entangling-probe", params(&[("qber", Value::Num(q))])),
+                ("cloner", params(&[("kind", Value::Text("phase-covariant".into())), ("qber", Value::Num(q))])),
+                ("cloner", params(&[("qber", Value::Num(q))])),
+            ] {
+                for protocol in [Protocol::Bb84, Protocol::SixState] {
+                    let (d, what) = worst_difference(family, &given, None, protocol);
+                    assert!(d <= TOL, "{family} at QBER {q:e} ({protocol}): {what}, difference {d:e}");
+                    // No rounding shows as a negative margin, on either route.
+                    let general = evaluate(&Attack::builtin(family, &given).unwrap(), &EvalOptions::full(protocol)).unwrap();
+                    assert!(general.margin >= 0.0, "{family} at QBER {q:e} ({protocol}): margin {:e}", general.margin);
+                }
             }
         }
     }
