@@ -205,7 +205,9 @@ fn compare_reports_leaks_gained_and_lost_with_its_exit_status() {
     assert_eq!(gained.status.code(), Some(1), "{}", String::from_utf8_lossy(&gained.stderr));
     let text = String::from_utf8_lossy(&gained.stdout);
     assert!(count(&text, "leaks gained") > 0 && count(&text, "leaks lost") == 0, "{text}");
-    assert!(text.contains("[`vendor`, system]: A no-key (0 bits) → B leak ("), "{text}");
+    assert!(text.contains("[`vendor`, system]: A no-key (key 0 bits) → B leak (key "), "{text}");
+    assert!(text.contains(" bits over the secret)"), "a leak shows its excess: {text}");
+    assert!(count(&text, "points where B's system rule `vendor` leaks and A's system rule `vendor` did not") > 0, "{text}");
     assert!(text.contains("  abort_qber: 0.1 → 0.11 (error rate)"), "{text}");
     // Lost: the other way round, exit 0.
     let lost = qkd(&["compare", b, a], dir.path());
@@ -225,7 +227,8 @@ fn compare_reports_leaks_gained_and_lost_with_its_exit_status() {
     assert!(json["rows"].as_array().unwrap().iter().any(|r| r["change"] == "leak-gained"));
     assert_eq!(qkd(&["compare", a, b, "--html", "cmp.html"], dir.path()).status.code(), Some(1));
     let page = read(&dir.path().join("cmp.html"));
-    assert!(page.contains("B leaks where A did not") && !page.to_lowercase().contains("<script"));
+    assert!(page.contains("B&#39;s system rule leaks at") || page.contains("B's system rule leaks at"), "headline");
+    assert!(!page.to_lowercase().contains("<script"));
     assert_eq!(qkd(&["compare", a, b, "--html", "cmp.html"], dir.path()).status.code(), Some(2));
     // Missing or unrelated folders: exit 2.
     assert_eq!(qkd(&["compare", a, "nowhere"], dir.path()).status.code(), Some(2));
@@ -236,6 +239,29 @@ fn compare_reports_leaks_gained_and_lost_with_its_exit_status() {
     let unrelated = qkd(&["compare", a, "results/other"], dir.path());
     assert_eq!(unrelated.status.code(), Some(2));
     assert!(String::from_utf8_lossy(&unrelated.stderr).contains("share no attack point"));
+}
+
+/// The system rule replaced by one that A judged only as a comparison rule and that leaked
+/// there too: no row gains a leak under its own rule, yet B's system verdict goes from no
+/// leak to LEAK, and that is what the exit status and the headline report.
+#[test]
+fn compare_fails_when_the_system_rule_starts_to_leak_under_a_rule_a_only_compared() {
+    let dir = tempfile::tempdir().unwrap();
+    let (fa, out) =
+        campaign_with(dir.path(), "sys-a", "finite-uncertainty", &[("rules = [\"finite-uncertainty\"]", "rules = [\"asymptotic\"]")]);
+    assert_eq!(out.status.code(), Some(0), "{}", String::from_utf8_lossy(&out.stderr));
+    let (fb, out) = campaign(dir.path(), "sys-b", "asymptotic");
+    assert_eq!(out.status.code(), Some(1), "B's system rule must leak for this test: {}", String::from_utf8_lossy(&out.stderr));
+    let (a, b) = (fa.to_str().unwrap(), fb.to_str().unwrap());
+    let out = qkd(&["compare", a, b, "--html", "c.html"], dir.path());
+    assert_eq!(out.status.code(), Some(1), "{}", String::from_utf8_lossy(&out.stdout));
+    let text = String::from_utf8_lossy(&out.stdout);
+    assert_eq!(count(&text, "leaks gained"), 0, "no row gains a leak under its own rule: {text}");
+    assert!(count(&text, "points where B's system rule `asymptotic` leaks and A's system rule `finite-uncertainty` did not") > 0, "{text}");
+    let page = read(&dir.path().join("c.html"));
+    assert!(page.contains("class=\"verdict fail\"") && !page.contains("B gains no leak over A"), "headline");
+    // The other way round B's system rule does not leak: exit 0.
+    assert_eq!(qkd(&["compare", b, a], dir.path()).status.code(), Some(0));
 }
 
 /// A system rule renamed between two runs (the same formula under another name) is a rule
@@ -259,7 +285,9 @@ fn compare_lists_setup_changes_and_keeps_renamed_rules_apart() {
     assert_eq!(out.status.code(), Some(0), "{}", String::from_utf8_lossy(&out.stderr));
     let text = String::from_utf8_lossy(&out.stdout);
     assert_eq!(count(&text, "other verdict changes"), 0, "{text}");
-    assert_eq!(count(&text, "setup values that differ"), 2, "{text}");
+    // The setup's signals and rule, and the inputs: each run's own campaign and rule file.
+    assert_eq!(count(&text, "setup, run and input values that differ"), 2 + 4, "{text}");
+    assert!(text.contains("v1.toml: SHA-256 ") && text.contains("v2.toml: absent → SHA-256 "), "{text}");
     assert!(text.contains("  signals: 20000 → 30000 (signals per block)") && text.contains("  key_rule: vendor-v1 → vendor-v2"), "{text}");
     let json: serde_json::Value = serde_json::from_slice(&qkd(&["compare", a, b, "--json"], dir.path()).stdout).unwrap();
     let rows = json["rows"].as_array().unwrap();

@@ -28,15 +28,16 @@ pub struct CompareArgs {
     /// Replace the --html file if it exists.
     #[arg(long)]
     pub force: bool,
-    /// Exit with status 1 when B leaks where A showed no leak under any rule (by default only
-    /// rows under B's own system rule count).
+    /// Exit with status 1 also when B leaks where A showed no leak under the same rule, for
+    /// any rule (by default: when B's system rule leaks at a point where A's system rule did
+    /// not).
     #[arg(long)]
     pub fail_on_any_rule: bool,
 }
 
-/// Runs `qkd-audit compare`: exit 1 when B leaks where A showed no leak (under the same
-/// rule at the same point, or under a rule or at a point only B has), 2 when a folder is
-/// missing or the two share no attack point.
+/// Runs `qkd-audit compare`: exit 1 when B's system rule leaks at a point where A's system
+/// rule did not (or A lacks the point), 2 when a folder is missing or the two share no
+/// attack point.
 pub fn cmd_compare(a: CompareArgs) -> Result<Outcome> {
     if let Some(h) = &a.html {
         crate::output::check_overwrite(h, a.force)?;

@@ -9,10 +9,16 @@
 //! added or dropped) gives rows "only in A" or "only in B", never a verdict change. Each row
 //! says whether its rule is the system's (the setup's own `key_rule`) in each folder. A
 //! "gained" leak is a matched row that leaks in B and did not in A; a leaking row only B has
-//! is listed with the rows only in B and counts as a new leak for the exit status.
+//! is listed with the rows only in B.
 //!
 //! The setup values of the two manifests (`setup` in `manifest.json`) are compared key by
-//! key; every key whose value differs, or that one folder lacks, is listed with both values.
+//! key; every key whose value differs, or that one folder lacks, is listed with both values,
+//! and so are the run values (trials, seed, sampler, version) and the input files whose
+//! SHA-256 differ (a rule file changed under the same name, a campaign's sweeps).
+//!
+//! The exit status asks whether B's *system* rule leaks at a point where A's system rule
+//! (whatever its name) did not ([`Comparison::system_worse`]); `--fail-on-any-rule` adds
+//! every new leak under the same rule.
 
 use super::evidence::{bits, Evidence, Overall};
 use super::svg::esc;
@@ -126,8 +132,13 @@ pub struct Comparison {
     pub a_verdict: String,
     /// B's overall verdict, in words.
     pub b_verdict: String,
-    /// The setup values that differ, in A's order, then B's extra keys.
+    /// The setup values that differ, in A's order, then B's extra keys; then the run's own
+    /// values that differ (`trials`, `seed`, `sampler`, `version`) and the input files whose
+    /// SHA-256 differ (`input <path>`, the first 12 hex digits), with unit `–`.
     pub setup_changes: Vec<SetupChange>,
+    /// The points where B's system rule leaks and A's system rule (whatever its name) did
+    /// not, or A lacks the point: these decide the exit status.
+    pub system_worse: Vec<String>,
     /// Every compared row, in A's order then B's extra rows.
     pub rows: Vec<Row>,
 }
@@ -184,6 +195,34 @@ pub fn setup_changes(a: &[super::manifest::SetupValue], b: &[super::manifest::Se
     out
 }
 
+/// The run values (`trials`, `seed`, `sampler`, `version`) and input files (by SHA-256)
+/// that differ between two manifests.
+pub fn run_changes(a: &super::manifest::Record, b: &super::manifest::Record) -> Vec<SetupChange> {
+    let mut out = Vec::new();
+    for (key, va, vb) in [
+        ("trials", a.trials.to_string(), b.trials.to_string()),
+        ("seed", a.seed.to_string(), b.seed.to_string()),
+        ("sampler", a.sampler.clone(), b.sampler.clone()),
+        ("version", a.version.clone(), b.version.clone()),
+    ] {
+        if va != vb {
+            out.push(SetupChange { key: key.into(), a: Some(va), b: Some(vb), unit: "–".into() });
+        }
+    }
+    let short = |h: &str| format!("SHA-256 {}…", &h[..12.min(h.len())]);
+    let find = |list: &[super::manifest::InputHash], origin: &str| list.iter().find(|i| i.origin == origin).map(|i| short(&i.sha256));
+    for ia in &a.inputs {
+        let vb = find(&b.inputs, &ia.origin);
+        if vb.as_deref() != Some(short(&ia.sha256).as_str()) {
+            out.push(SetupChange { key: format!("input {}", ia.origin), a: Some(short(&ia.sha256)), b: vb, unit: "–".into() });
+        }
+    }
+    for ib in b.inputs.iter().filter(|ib| find(&a.inputs, &ib.origin).is_none()) {
+        out.push(SetupChange { key: format!("input {}", ib.origin), a: None, b: Some(short(&ib.sha256)), unit: "–".into() });
+    }
+    out
+}
+
 impl Comparison {
     /// Compares A with B. An error (exit 2) when the two share no attack point.
     pub fn new(a: &Evidence, b: &Evidence) -> Result<Comparison> {
@@ -192,7 +231,9 @@ impl Comparison {
             return Err(Error::new(
                 ErrorKind::Input,
                 format!(
-                    "the folders share no attack point (A: campaign `{}`, B: campaign `{}`): compare runs of the same attacks",
+                    "the folders share no attack point (A: campaign `{}`, B: campaign `{}`): a point is an attack with the same \
+                     parameters at the same swept setup values, so a fixed setup value does not match a swept one; compare runs of \
+                     the same attacks and setup sweeps",
                     a.campaign(),
                     b.campaign()
                 ),
@@ -234,6 +275,16 @@ impl Comparison {
                 });
             }
         }
+        let leaks_system = |s: &Option<Side>| s.as_ref().is_some_and(|s| s.system && s.verdict == Verdict::Leak.to_string());
+        let mut system_worse: Vec<String> = Vec::new();
+        for r in rows.iter().filter(|r| leaks_system(&r.b)) {
+            let a_leaks = rows.iter().any(|x| x.point == r.point && leaks_system(&x.a));
+            if !a_leaks && !system_worse.contains(&r.point) {
+                system_worse.push(r.point.clone());
+            }
+        }
+        let mut changes = setup_changes(&a.manifest.setup, &b.manifest.setup);
+        changes.extend(run_changes(&a.manifest, &b.manifest));
         Ok(Comparison {
             a_campaign: a.campaign(),
             b_campaign: b.campaign(),
@@ -241,7 +292,8 @@ impl Comparison {
             b_system_rule: sb,
             a_verdict: overall_words(a),
             b_verdict: overall_words(b),
-            setup_changes: setup_changes(&a.manifest.setup, &b.manifest.setup),
+            setup_changes: changes,
+            system_worse,
             rows,
         })
     }
@@ -257,16 +309,27 @@ impl Comparison {
         self.rows.iter().filter(|r| r.new_leak() && (any_rule || r.b.as_ref().is_some_and(|b| b.system))).collect()
     }
 
-    /// Whether B leaks where A showed no leak ([`Comparison::new_leaks`]): the exit status.
+    /// The exit status's question: does B's system rule leak at a point where A's system
+    /// rule did not ([`Comparison::system_worse`])? With `any_rule`, also any row where B
+    /// leaks and A showed no leak under the same rule ([`Comparison::new_leaks`]).
     pub fn gained(&self, any_rule: bool) -> bool {
-        !self.new_leaks(any_rule).is_empty()
+        !self.system_worse.is_empty() || (any_rule && !self.new_leaks(true).is_empty())
+    }
+
+    /// A row's side in words: the verdict, the mean key length, and for a leak the mean
+    /// excess over what the attack leaves secret.
+    fn side_words(x: &Option<Side>) -> String {
+        x.as_ref().map_or("absent".to_string(), |s| {
+            if s.verdict == Verdict::Leak.to_string() {
+                format!("{} (key {} bits, {} bits over the secret)", s.verdict, bits(s.key_length_mean_bits), bits(s.mean_excess_bits))
+            } else {
+                format!("{} (key {} bits)", s.verdict, bits(s.key_length_mean_bits))
+            }
+        })
     }
 
     fn describe(r: &Row) -> String {
-        let s = |x: &Option<Side>| {
-            x.as_ref().map_or("absent".to_string(), |s| format!("{} ({} bits)", s.verdict, bits(s.key_length_mean_bits)))
-        };
-        format!("{} [`{}`, {}]: A {} → B {}", r.point, r.rule(), r.role, s(&r.a), s(&r.b))
+        format!("{} [`{}`, {}]: A {} → B {}", r.point, r.rule(), r.role, Self::side_words(&r.a), Self::side_words(&r.b))
     }
 
     fn value_words(v: &Option<String>) -> &str {
@@ -278,9 +341,19 @@ impl Comparison {
         let mut s = String::new();
         let _ = writeln!(s, "A: {} — {}", self.a_campaign, self.a_verdict);
         let _ = writeln!(s, "B: {} — {}", self.b_campaign, self.b_verdict);
-        let _ = writeln!(s, "setup values that differ (key: A → B): {}", self.setup_changes.len());
+        let _ = writeln!(s, "setup, run and input values that differ (key: A → B): {}", self.setup_changes.len());
         for c in &self.setup_changes {
             let _ = writeln!(s, "  {}: {} → {} ({})", c.key, Self::value_words(&c.a), Self::value_words(&c.b), c.unit);
+        }
+        let _ = writeln!(
+            s,
+            "points where B's system rule `{}` leaks and A's system rule `{}` did not (these decide the exit status): {}",
+            self.b_system_rule,
+            self.a_system_rule,
+            self.system_worse.len()
+        );
+        for p in &self.system_worse {
+            let _ = writeln!(s, "  {p}");
         }
         let b_only_leaks = self.with(Change::OnlyInB).iter().filter(|r| r.new_leak()).count();
         for (title, change) in [
@@ -392,20 +465,28 @@ impl Comparison {
         let gained = self.with(Change::LeakGained).len();
         let new_leaks = self.new_leaks(true).len();
         let lost = self.with(Change::LeakLost).len();
+        let worse = self.system_worse.len();
+        let headline = if worse > 0 {
+            format!("B's system rule leaks at {worse} point(s) where A's system rule did not")
+        } else if new_leaks > 0 {
+            "B's system rule gains no leak over A's, but comparison rules leak in B where they did not in A".to_string()
+        } else {
+            "B gains no leak over A".to_string()
+        };
         let _ = writeln!(
             s,
             "<div class=\"verdict{}\" id=\"comparison-verdict\"><p class=\"headline\">{}</p><p>{} leak(s) gained under the same rule, \
              {} leaking row(s) under a rule or at a point only B has, {} leak(s) lost, {} other verdict change(s).</p></div>",
-            if new_leaks > 0 { " fail" } else { "" },
-            if new_leaks > 0 { "B leaks where A did not" } else { "B gains no leak over A" },
+            if worse > 0 { " fail" } else { "" },
+            esc(&headline),
             gained,
             new_leaks - gained,
             lost,
             self.with(Change::VerdictChanged).len()
         );
-        s.push_str("<h3>Setup values that differ</h3>\n");
+        s.push_str("<h3>Setup, run and input values that differ</h3>\n");
         if self.setup_changes.is_empty() {
-            s.push_str("<p>The two setups have the same values.</p>\n");
+            s.push_str("<p>The two runs have the same setup values, run values and input files.</p>\n");
         } else {
             s.push_str("<table class=\"points\" id=\"setup-changes\"><thead><tr><th>key</th><th>A</th><th>B</th><th>unit</th></tr></thead>\n<tbody>\n");
             for c in &self.setup_changes {
@@ -425,9 +506,7 @@ impl Comparison {
              <th class=\"num\">key length change, bits</th></tr></thead>\n<tbody>\n",
         );
         for r in &self.rows {
-            let cell = |x: &Option<Side>| {
-                x.as_ref().map_or("–".to_string(), |s| format!("{}, {} bits", esc(&s.verdict), bits(s.key_length_mean_bits)))
-            };
+            let cell = |x: &Option<Side>| if x.is_none() { "–".to_string() } else { esc(&Self::side_words(x)) };
             let delta = match (&r.a, &r.b) {
                 (Some(a), Some(b)) => bits(b.key_length_mean_bits - a.key_length_mean_bits),
                 _ => "–".into(),
