@@ -119,13 +119,13 @@ pub fn number(v: &toml::Value, key: &str) -> Result<f64> {
     }
 }
 
-/// Largest float accepted for an integer key: up to 2⁵³ every integer is a double, so a
-/// float such as `1e6` names exactly one integer; beyond, the written value may have been
-/// rounded on reading.
+/// The first float refused for an integer key: below 2⁵³ every integer is a double, so a
+/// float such as `1e6` names exactly the integer written; from 2⁵³ on, a written integer may
+/// have been rounded on reading (`9007199254740993.0` reads as 2⁵³).
 pub const MAX_EXACT_FLOAT_INTEGER: f64 = 9_007_199_254_740_992.0;
 
 /// A whole number in `[lo, hi]`: a TOML integer, or a float with an integral value
-/// (`trials = 1e3`, `signals = 1e6`) up to [`MAX_EXACT_FLOAT_INTEGER`]. A fraction
+/// (`trials = 1e3`, `signals = 1e6`) below [`MAX_EXACT_FLOAT_INTEGER`]. A fraction
 /// (`1.5e0`), a value out of range, or anything else is an error naming `key`, the value and
 /// the range.
 pub fn integer(v: &toml::Value, key: &str, lo: u64, hi: u64) -> Result<u64> {
@@ -137,11 +137,11 @@ pub fn integer(v: &toml::Value, key: &str, lo: u64, hi: u64) -> Result<u64> {
             Err(Error::input_key(key, format!("{x} is not a whole number: give an integer in [{lo_s}, {hi_s}]")))
         }
         toml::Value::Float(x) if x.is_finite() && !(*x >= lo as f64 && *x <= hi as f64) => Err(outside(x)),
-        toml::Value::Float(x) if x.is_finite() && *x > MAX_EXACT_FLOAT_INTEGER => Err(Error::input_key(
+        toml::Value::Float(x) if x.is_finite() && *x >= MAX_EXACT_FLOAT_INTEGER => Err(Error::input_key(
             key,
             format!("{x:e} is too large to name one integer as a float: write it as an integer, in [{lo_s}, {hi_s}]"),
         )),
-        // Integral, in range and at most 2⁵³: exact.
+        // Integral, in range and below 2⁵³: exact.
         toml::Value::Float(x) if x.is_finite() => Ok(*x as u64),
         other => Err(Error::input_key(key, format!("must be an integer in [{lo_s}, {hi_s}], not {}", shown(other)))),
     }
@@ -315,7 +315,10 @@ mod tests {
         assert_eq!(integer(&Float(1e3), "k", 1, 1_000_000).unwrap(), 1000);
         assert_eq!(integer(&Float(1e6), "k", 1, 1_000_000).unwrap(), 1_000_000);
         assert_eq!(integer(&Float(-0.0), "k", 0, 5).unwrap(), 0);
-        assert_eq!(integer(&Float(MAX_EXACT_FLOAT_INTEGER), "k", 0, u64::MAX).unwrap(), 1 << 53);
+        assert_eq!(integer(&Float(MAX_EXACT_FLOAT_INTEGER - 1.0), "k", 0, u64::MAX).unwrap(), (1 << 53) - 1);
+        // 9007199254740993.0 reads as 2⁵³: refused rather than taken as another number.
+        let rounded: f64 = "9007199254740993.0".parse().unwrap();
+        assert!(integer(&Float(rounded), "k", 0, u64::MAX).unwrap_err().to_string().contains("write it as an integer"));
         for (v, what) in [
             (Float(1.5), "1.5 is not a whole number: give an integer in [1, 1000000]"),
             (Float(1e-3), "0.001 is not a whole number"),

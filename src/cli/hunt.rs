@@ -302,7 +302,7 @@ fn hunt_shard(a: &HuntArgs, opts: &crate::search::hunt::HuntOptions, spec: super
             })
             .collect(),
     );
-    partial.write(&a.shard.shard_dir, a.force)?;
+    partial.write(&a.shard.shard_dir, a.force, a.quiet)?;
     Ok(Outcome::Clean)
 }
 

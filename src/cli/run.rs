@@ -167,7 +167,7 @@ pub fn cmd_run(a: RunArgs) -> Result<Outcome> {
         let inputs = campaign.inputs.iter().map(|(o, t)| InputId { origin: o.clone(), sha256: sha256_hex(t) }).collect();
         let mut partial = Partial::new("run", inputs, spec, point_count(&campaign) as u64, clock.elapsed().as_secs_f64());
         partial.run = Some(results);
-        partial.write(&a.shard.shard_dir, a.force)?;
+        partial.write(&a.shard.shard_dir, a.force, a.quiet)?;
         return Ok(Outcome::Clean);
     }
     // Every output problem shows now, before the computation; the lock holds until written.

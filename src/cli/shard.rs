@@ -206,13 +206,22 @@ impl Partial {
     }
 
     /// Writes the partial to `<dir>/<command>-shard-K-of-N.toml` (replacing an older one
-    /// only with `force`) and says so on stderr.
-    pub fn write(&self, dir: &Path, force: bool) -> Result<()> {
+    /// only with `force`) and, unless `quiet`, says so on stderr.
+    pub fn write(&self, dir: &Path, force: bool, quiet: bool) -> Result<()> {
         std::fs::create_dir_all(dir).map_err(|e| Error::new(ErrorKind::Io, format!("cannot create {}: {e}", dir.display())))?;
         let path = dir.join(format!("{}-shard-{}-of-{}.toml", self.command, self.shard, self.shards));
         let text = toml::to_string(self).map_err(|e| Error::new(ErrorKind::Io, format!("cannot encode the partial result: {e}")))?;
         crate::output::write_atomic(&path, text.as_bytes(), force)?;
-        note(&format!("wrote shard {}/{} ({} of {} units) to {}", self.shard, self.shards, self.indices.len(), self.units, path.display()));
+        if !quiet {
+            note(&format!(
+                "wrote shard {}/{} ({} of {} units) to {}",
+                self.shard,
+                self.shards,
+                self.indices.len(),
+                self.units,
+                path.display()
+            ));
+        }
         Ok(())
     }
 }

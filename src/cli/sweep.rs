@@ -70,7 +70,7 @@ pub fn cmd_sweep(a: SweepArgs) -> Result<Outcome> {
         let inputs = vec![InputId { origin, sha256: crate::audit::report::manifest::sha256_hex(&text) }];
         let mut partial = Partial::new("sweep", inputs, spec, values.len() as u64, clock.elapsed().as_secs_f64());
         partial.sweep = Some(SweepPayload { header, rows });
-        partial.write(&a.shard.shard_dir, a.force)?;
+        partial.write(&a.shard.shard_dir, a.force, false)?;
         return Ok(Outcome::Clean);
     }
     let points =

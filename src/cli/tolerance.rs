@@ -398,7 +398,7 @@ fn run_shard(a: &ToleranceArgs, campaign: &Campaign, spec: &Spec, inputs: Vec<In
     let round = state.as_ref().map_or(0, |s| s.rounds);
     let mut partial = Partial::new("tolerance", inputs, shard, total, clock.elapsed().as_secs_f64());
     partial.tolerance = Some(TolerancePayload { round, looks: needs, units });
-    partial.write(dir, a.force)?;
+    partial.write(dir, a.force, a.quiet)?;
     Ok(Outcome::Clean)
 }
 

@@ -161,7 +161,7 @@ fn idle_note(link: &Link, settings: &[(Photons, f64)], models: &[DetectionModel]
         "{at} the attack leaves every single photon alone, yet the link is not the honest one: Eve still replaces the lossy line by a \
          lossless one and forwards each pulse whole with probability {t:.4}, where the honest line passes each photon on its own \
          with probability {:.4}; Bob's signal gain matches by construction, but multi-photon pulses reach him otherwise ({words}). \
-         The honest link is `photon-number-splitting` at fraction 0",
+         For the honest link, run `photon-number-splitting` at fraction 0",
         link.channel_transmittance()
     ))
 }
