@@ -421,8 +421,14 @@ fn tables_html(ev: &Evidence) -> String {
             }
         }
         s.push_str("</tbody></table>\n");
-        if let Some(r) = ev.rows.iter().find(|r| r.entry == g.entry && !r.note.is_empty()) {
-            let _ = writeln!(s, "<p class=\"meta\">Note: {}.</p>", esc(&r.note));
+        let mut notes: Vec<&str> = Vec::new();
+        for r in ev.rows.iter().filter(|r| r.entry == g.entry && !r.note.is_empty()) {
+            if !notes.contains(&r.note.as_str()) {
+                notes.push(&r.note);
+            }
+        }
+        for n in notes {
+            let _ = writeln!(s, "<p class=\"meta\">Note: {}.</p>", esc(n));
         }
     }
     s.push_str("</section>\n");

@@ -353,8 +353,16 @@ pub fn render(c: &Campaign, results: &[PointResult]) -> String {
             "no leak".to_string()
         };
         let _ = writeln!(s, "Verdict: **{verdict}**.\n");
-        if let Some(r) = pts.iter().find(|r| !r.note.is_empty()) {
-            let _ = writeln!(s, "Note: {}.\n", r.note);
+        // Every distinct note of the entry's points, in point order (one point's remark,
+        // such as an idle attack, need not hold at the others).
+        let mut notes: Vec<&str> = Vec::new();
+        for r in pts.iter().filter(|r| !r.note.is_empty()) {
+            if !notes.contains(&r.note.as_str()) {
+                notes.push(&r.note);
+            }
+        }
+        for n in notes {
+            let _ = writeln!(s, "Note: {n}.\n");
         }
         let not_caught =
             pts.iter().filter(|r| r.stats.abort_probability <= 0.5).max_by(|a, b| a.exact.holevo_z.total_cmp(&b.exact.holevo_z));
