@@ -162,3 +162,37 @@ fn an_idle_qubit_attack_on_a_lossy_link_is_noted_in_the_summary() {
     assert_eq!(noted.len(), 1, "only the idle intercept-resend point: {noted:?}");
     assert!(noted[0].contains(",intercept-resend,") && noted[0].contains(",fraction,0,"), "{}", noted[0]);
 }
+
+/// An attack file's integer keys (`[sweep] steps`, a kraus file's `eve_dim`) take a float
+/// with a whole value as that integer, as campaigns and setups do, and refuse a fraction with
+/// file, line and key.
+#[test]
+fn attack_files_take_whole_floats_for_their_integer_keys() {
+    let dir = tempfile::tempdir().unwrap();
+    let root = Path::new(env!("CARGO_MANIFEST_DIR"));
+    let pauli = std::fs::read_to_string(root.join("attacks/pauli.toml")).unwrap();
+    assert!(pauli.contains("steps = 21"));
+    std::fs::write(dir.path().join("float.toml"), pauli.replace("steps = 21", "steps = 2.1e1")).unwrap();
+    std::fs::write(dir.path().join("fraction.toml"), pauli.replace("steps = 21", "steps = 2.5")).unwrap();
+    let ok = qkd(&["sweep", "--attack-file", "float.toml", "-o", "a.csv"], dir.path());
+    assert_eq!(ok.status.code(), Some(0), "{}", stderr(&ok));
+    let reference = qkd(&["sweep", "--attack", "pauli", "-o", "b.csv"], dir.path());
+    assert_eq!(reference.status.code(), Some(0), "{}", stderr(&reference));
+    assert_eq!(std::fs::read(dir.path().join("a.csv")).unwrap(), std::fs::read(dir.path().join("b.csv")).unwrap());
+    let bad = qkd(&["sweep", "--attack-file", "fraction.toml", "-o", "c.csv"], dir.path());
+    assert_eq!(bad.status.code(), Some(2));
+    assert!(stderr(&bad).contains("fraction.toml:14:") && stderr(&bad).contains("2.5 is not a whole number"), "{}", stderr(&bad));
+    let kraus = std::fs::read_to_string(root.join("attacks/custom-example.toml")).unwrap();
+    assert!(kraus.contains("eve_dim = 2\n"));
+    std::fs::write(dir.path().join("k.toml"), kraus.replace("eve_dim = 2\n", "eve_dim = 2.0\n")).unwrap();
+    let (a, b) = (
+        qkd(&["eval", "--attack-file", "k.toml", "--json"], dir.path()),
+        qkd(&["eval", "--attack-file", &root.join("attacks/custom-example.toml").display().to_string(), "--json"], dir.path()),
+    );
+    assert_eq!(a.status.code(), Some(0), "{}", stderr(&a));
+    assert_eq!(a.stdout, b.stdout);
+    std::fs::write(dir.path().join("k.toml"), kraus.replace("eve_dim = 2\n", "eve_dim = 1.5\n")).unwrap();
+    let bad = qkd(&["validate", "k.toml"], dir.path());
+    assert_eq!(bad.status.code(), Some(2));
+    assert!(stderr(&bad).contains("k.toml:") && stderr(&bad).contains("key `eve_dim`: 1.5 is not a whole number"), "{}", stderr(&bad));
+}

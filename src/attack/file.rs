@@ -317,9 +317,10 @@ fn parse_sweep(s: &toml::Table) -> Result<Sweep> {
             _ => Err(Error::input_key(k, "missing or not a finite number")),
         }
     };
+    // Whole-valued floats (`steps = 1e3`) are taken as the integer they name (`input::integer`).
     let steps = match s.get("steps") {
-        Some(toml::Value::Integer(i)) if (1..=100_000).contains(i) => *i as usize,
-        _ => return Err(Error::input_key("steps", "missing or not an integer in [1, 100000]")),
+        Some(v) => crate::input::integer(v, "steps", 1, 100_000)? as usize,
+        None => return Err(Error::input_key("steps", "missing: give an integer in [1, 100000]")),
     };
     Ok(Sweep { param, from: num("from")?, to: num("to")?, steps })
 }
@@ -344,13 +345,15 @@ fn parse_kraus(t: &toml::Table) -> std::result::Result<AttackFile, Vec<Error>> {
         }
     };
     let description = t.get("description").and_then(|v| v.as_str()).unwrap_or("").to_string();
-    let eve_dim = match t.get("eve_dim") {
-        Some(toml::Value::Integer(i)) if (1..=MAX_EVE_DIM as i64).contains(i) => Some(*i as usize),
-        _ => {
-            errs.push(Error::input_key(
-                "eve_dim",
-                format!("missing or not an integer in [1, {MAX_EVE_DIM}] (the cap keeps an exact evaluation within about a minute)"),
-            ));
+    // The cap keeps an exact evaluation within about a minute.
+    let eve_dim = match t.get("eve_dim").map(|v| crate::input::integer(v, "eve_dim", 1, MAX_EVE_DIM as u64)) {
+        Some(Ok(n)) => Some(n as usize),
+        Some(Err(e)) => {
+            errs.push(e);
+            None
+        }
+        None => {
+            errs.push(Error::input_key("eve_dim", format!("missing: give an integer in [1, {MAX_EVE_DIM}]")));
             None
         }
     };
