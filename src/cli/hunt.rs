@@ -289,6 +289,13 @@ fn strategy_toml(r: &crate::search::game::GameResult) -> String {
 /// One shard of a hunt: its (target, start) units, written as a partial result.
 fn hunt_shard(a: &HuntArgs, opts: &crate::search::hunt::HuntOptions, spec: super::shard::ShardSpec) -> Result<Outcome> {
     use super::shard::{HuntStart, Partial};
+    if let (Some(dir), false) = (&a.out_dir, a.quiet) {
+        note(&format!(
+            "note: --out-dir is not used by a shard; the merge writes the folder: `qkd-audit merge {} -o {}`",
+            a.shard.shard_dir.display(),
+            dir.display()
+        ));
+    }
     let clock = std::time::Instant::now();
     let starts = crate::search::hunt::hunt_starts(opts, &a.q, &|u| spec.owns(u))?;
     let units = (a.q.len() * a.starts) as u64;
