@@ -205,7 +205,7 @@ fn compare_reports_leaks_gained_and_lost_with_its_exit_status() {
     assert_eq!(gained.status.code(), Some(1), "{}", String::from_utf8_lossy(&gained.stderr));
     let text = String::from_utf8_lossy(&gained.stdout);
     assert!(count(&text, "leaks gained") > 0 && count(&text, "leaks lost") == 0, "{text}");
-    assert!(text.contains("[`vendor`, system]: A no-key (key 0 bits) → B leak (key "), "{text}");
+    assert!(text.contains("[`vendor`, system]: A no-key (key 0 bits) → B leak in "), "{text}");
     assert!(text.contains(" bits over the secret)"), "a leak shows its excess: {text}");
     assert!(count(&text, "points where B's system rule `vendor` leaks and A's system rule `vendor` did not") > 0, "{text}");
     assert!(text.contains("  abort_qber: 0.1 → 0.11 (error rate)"), "{text}");

@@ -63,7 +63,7 @@
 use crate::attack::device::DeviceAttack;
 use crate::error::{Error, ErrorKind, Result};
 use crate::exact::bounds::{six_state_entropy, six_state_weights};
-use crate::exact::eval::{accessible_pair, check_no_nan, clamp_probability, snap, EvalOptions, Evaluation, BOUND_SLACK, ROUNDING_SLACK};
+use crate::exact::eval::{accessible_pair, check_no_nan, clamp_unsnapped, snap, EvalOptions, Evaluation, BOUND_SLACK, ROUNDING_SLACK};
 use crate::exact::signal::{cell, SignalModel};
 use crate::numeric::linalg::{c, hermitian_eigen, CMat};
 use crate::protocol::detector::{DetectorFlaws, BOB_DIM};
@@ -181,16 +181,16 @@ pub fn evaluate_device(
         let mut joint = [[0.0; 2]; 2];
         for x in 0..2 {
             for b in 0..2 {
-                joint[x][b] =
-                    clamp_probability(&format!("P(Alice, Bob | click) in basis {}", basis.name()), 0.5 * sig[x][b].trace().re / p)?;
+                joint[x][b] = clamp_unsnapped(&format!("P(Alice, Bob | click) in basis {}", basis.name()), 0.5 * sig[x][b].trace().re / p)?;
             }
         }
-        let qber = clamp_probability(&format!("qber_{}", basis.name()), joint[0][1] + joint[1][0])?;
-        let p_guess = clamp_probability(&format!("p_guess_{}", basis.name()), 0.5 * (1.0 + trace_norm(&(&tau[0] - &tau[1]))))?;
+        // Unsnapped (clamped to [0, 1] only): entropies must not see the report's snap.
+        let qber = clamp_unsnapped(&format!("qber_{}", basis.name()), joint[0][1] + joint[1][0])?;
+        let p_guess = clamp_unsnapped(&format!("p_guess_{}", basis.name()), 0.5 * (1.0 + trace_norm(&(&tau[0] - &tau[1]))))?;
         let s_cond: f64 =
             (0..2).filter(|&x| priors[x] > 0.0).map(|x| priors[x] * von_neumann_entropy(&(&tau[x] * c(1.0 / priors[x], 0.0)))).sum();
-        let holevo = snap(von_neumann_entropy(&(&tau[0] + &tau[1])) - s_cond, 0.0, 1.0);
-        let h_x_given_e = snap(binary_entropy(priors[0].clamp(0.0, 1.0)) - holevo, 0.0, 1.0);
+        let holevo = (von_neumann_entropy(&(&tau[0] + &tau[1])) - s_cond).clamp(-ROUNDING_SLACK, 1.0 + ROUNDING_SLACK);
+        let h_x_given_e = binary_entropy(priors[0].clamp(0.0, 1.0)) - holevo;
         let s = [&sig[0][0] * scale, &sig[1][1] * scale];
         let game = 0.5 * (s[0].trace().re + s[1].trace().re + trace_norm(&(&s[0] - &s[1])));
         let ens = [&tau[0] * c(1.0 / priors[0].max(f64::MIN_POSITIVE), 0.0), &tau[1] * c(1.0 / priors[1].max(f64::MIN_POSITIVE), 0.0)];
@@ -212,22 +212,24 @@ pub fn evaluate_device(
     };
     let (accessible_z, accessible_x, accessible_converged, accessible_gap) =
         accessible_pair((&z.priors, &z.ens), (&x.priors, &x.ens), opts.accessible.as_ref())?;
+    // Reported values snapped within the rounding slack; everything above computed unsnapped.
+    let shown = |v: f64| snap(v, 0.0, 1.0);
     let evaluation = Evaluation {
-        qber_z: z.qber,
-        qber_x: x.qber,
-        qber_y: y.qber,
-        p_guess_z: z.p_guess,
-        p_guess_x: x.p_guess,
-        p_guess_y: y.p_guess,
-        holevo_z: z.holevo,
-        holevo_x: x.holevo,
-        holevo_y: y.holevo,
-        h_x_given_e: z.h_x_given_e,
+        qber_z: shown(z.qber),
+        qber_x: shown(x.qber),
+        qber_y: shown(y.qber),
+        p_guess_z: shown(z.p_guess),
+        p_guess_x: shown(x.p_guess),
+        p_guess_y: shown(y.p_guess),
+        holevo_z: shown(z.holevo),
+        holevo_x: shown(x.holevo),
+        holevo_y: shown(y.holevo),
+        h_x_given_e: shown(z.h_x_given_e),
         accessible_z,
         accessible_x,
         accessible_converged,
         accessible_gap,
-        i_ab: mutual_information(&z.joint),
+        i_ab: shown(mutual_information(&z.joint)),
         game_win: 0.5 * (z.game + x.game),
         bound_rate,
         attack_rate: z.h_x_given_e - hz,

@@ -64,6 +64,12 @@ pub fn clamp_probability(name: &str, p: f64) -> Result<f64> {
     Ok(snap(p.clamp(0.0, 1.0), 0.0, 1.0))
 }
 
+/// [`clamp_probability`] without the snap: `p` clamped to [0, 1] within
+/// [`PROBABILITY_SLACK`], for the entropies and informations computed from it.
+pub fn clamp_unsnapped(name: &str, p: f64) -> Result<f64> {
+    clamp_probability(name, p).map(|_| p.clamp(0.0, 1.0))
+}
+
 /// Snaps `x` to `lo` or `hi` when it lies within [`ROUNDING_SLACK`] of either.
 pub fn snap(x: f64, lo: f64, hi: f64) -> f64 {
     if (x - lo).abs() <= ROUNDING_SLACK {
@@ -468,7 +474,9 @@ fn assemble(
     opts: &EvalOptions,
 ) -> Result<Evaluation> {
     let (z, x, y) = (cz.shown, cx.shown, cy.shown);
-    let h_x_given_e = 1.0 - z.holevo;
+    // H(X|E) enters the rates and the margin from the unsnapped Holevo quantity; the report
+    // shows it snapped, as every bounded quantity.
+    let h_x_given_e = 1.0 - cz.raw.holevo;
     let hz = binary_entropy(cz.raw.qber);
     let hx = binary_entropy(cx.raw.qber);
     let weights = six_state_weights(cx.raw.qber, cy.raw.qber, cz.raw.qber);
@@ -490,12 +498,12 @@ fn assemble(
         holevo_z: z.holevo,
         holevo_x: x.holevo,
         holevo_y: y.holevo,
-        h_x_given_e,
+        h_x_given_e: snap(h_x_given_e, 0.0, 1.0),
         accessible_z,
         accessible_x,
         accessible_converged,
         accessible_gap,
-        i_ab: mutual_information(&cz.raw.joint_ab),
+        i_ab: snap(mutual_information(&cz.raw.joint_ab), 0.0, 1.0),
         game_win: 0.5 * (z.game + x.game),
         bound_rate,
         attack_rate: h_x_given_e - hz,

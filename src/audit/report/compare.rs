@@ -70,8 +70,13 @@ pub struct Side {
     pub verdict: String,
     /// Mean key length, bits.
     pub key_length_mean_bits: f64,
-    /// Mean excess over the capacity, bits.
+    /// Mean excess over the capacity, bits (over all trials: negative when most trials
+    /// stay below what the attack leaves secret).
     pub mean_excess_bits: f64,
+    /// Mean excess over the leaking trials only, bits (NaN without a leaking trial).
+    pub leak_excess_bits: f64,
+    /// Fraction of trials that leaked.
+    pub leak_probability: f64,
 }
 
 /// One compared (point, rule).
@@ -150,6 +155,8 @@ fn side(r: &super::evidence::Row, system: &str) -> Side {
         verdict: r.verdict.to_string(),
         key_length_mean_bits: r.key_length.0,
         mean_excess_bits: r.mean_excess,
+        leak_excess_bits: r.leak_excess(),
+        leak_probability: r.leak.0,
     }
 }
 
@@ -209,16 +216,26 @@ pub fn run_changes(a: &super::manifest::Record, b: &super::manifest::Record) -> 
             out.push(SetupChange { key: key.into(), a: Some(va), b: Some(vb), unit: "–".into() });
         }
     }
-    let short = |h: &str| format!("SHA-256 {}…", &h[..12.min(h.len())]);
-    let find = |list: &[super::manifest::InputHash], origin: &str| list.iter().find(|i| i.origin == origin).map(|i| short(&i.sha256));
-    for ia in &a.inputs {
-        let vb = find(&b.inputs, &ia.origin);
-        if vb.as_deref() != Some(short(&ia.sha256).as_str()) {
-            out.push(SetupChange { key: format!("input {}", ia.origin), a: Some(short(&ia.sha256)), b: vb, unit: "–".into() });
+    // Inputs are compared by content (full SHA-256): the same file read from another working
+    // directory, or under another name, is no change. A file of A whose content B lacks is
+    // paired with B's file of the same path, if any.
+    let has = |list: &[super::manifest::InputHash], h: &str| list.iter().any(|i| i.sha256 == h);
+    let sha = |h: &str| format!("SHA-256 {h}");
+    let mut paired = Vec::new();
+    for ia in a.inputs.iter().filter(|ia| !has(&b.inputs, &ia.sha256)) {
+        let same_path = b.inputs.iter().find(|ib| ib.origin == ia.origin && !has(&a.inputs, &ib.sha256));
+        if let Some(ib) = same_path {
+            paired.push(ib.origin.clone());
         }
+        out.push(SetupChange {
+            key: format!("input {}", ia.origin),
+            a: Some(sha(&ia.sha256)),
+            b: same_path.map(|ib| sha(&ib.sha256)),
+            unit: "–".into(),
+        });
     }
-    for ib in b.inputs.iter().filter(|ib| find(&a.inputs, &ib.origin).is_none()) {
-        out.push(SetupChange { key: format!("input {}", ib.origin), a: None, b: Some(short(&ib.sha256)), unit: "–".into() });
+    for ib in b.inputs.iter().filter(|ib| !has(&a.inputs, &ib.sha256) && !paired.contains(&ib.origin)) {
+        out.push(SetupChange { key: format!("input {}", ib.origin), a: None, b: Some(sha(&ib.sha256)), unit: "–".into() });
     }
     out
 }
@@ -321,7 +338,13 @@ impl Comparison {
     fn side_words(x: &Option<Side>) -> String {
         x.as_ref().map_or("absent".to_string(), |s| {
             if s.verdict == Verdict::Leak.to_string() {
-                format!("{} (key {} bits, {} bits over the secret)", s.verdict, bits(s.key_length_mean_bits), bits(s.mean_excess_bits))
+                format!(
+                    "{} in {} of trials (key {} bits; the leaking trials {} bits over the secret)",
+                    s.verdict,
+                    super::evidence::pct(s.leak_probability),
+                    bits(s.key_length_mean_bits),
+                    bits(s.leak_excess_bits)
+                )
             } else {
                 format!("{} (key {} bits)", s.verdict, bits(s.key_length_mean_bits))
             }
@@ -347,7 +370,7 @@ impl Comparison {
         }
         let _ = writeln!(
             s,
-            "points where B's system rule `{}` leaks and A's system rule `{}` did not (these decide the exit status): {}",
+            "points where B's system rule `{}` leaks and A's system rule `{}` did not, or A lacks the point (these decide the exit status): {}",
             self.b_system_rule,
             self.a_system_rule,
             self.system_worse.len()
@@ -469,7 +492,15 @@ impl Comparison {
         let headline = if worse > 0 {
             format!("B's system rule leaks at {worse} point(s) where A's system rule did not")
         } else if new_leaks > 0 {
-            "B's system rule gains no leak over A's, but comparison rules leak in B where they did not in A".to_string()
+            let under_b_system = self.new_leaks(false).len();
+            if under_b_system > 0 {
+                format!(
+                    "B's system rule leaks at {under_b_system} point(s) where the same rule did not leak in A; A's own system rule \
+                     leaked there too, so B's system verdict is no worse"
+                )
+            } else {
+                "B's system rule gains no leak over A's, but comparison rules leak in B where they did not in A".to_string()
+            }
         } else {
             "B gains no leak over A".to_string()
         };
