@@ -63,7 +63,7 @@
 use crate::attack::device::DeviceAttack;
 use crate::error::{Error, ErrorKind, Result};
 use crate::exact::bounds::{six_state_entropy, six_state_weights};
-use crate::exact::eval::{accessible_pair, check_no_nan, clamp_unsnapped, snap, EvalOptions, Evaluation, BOUND_SLACK, ROUNDING_SLACK};
+use crate::exact::eval::{accessible_pair, check_no_nan, clamp_named, snap, EvalOptions, Evaluation, BOUND_SLACK, ROUNDING_SLACK};
 use crate::exact::signal::{cell, SignalModel};
 use crate::numeric::linalg::{c, hermitian_eigen, CMat};
 use crate::protocol::detector::{DetectorFlaws, BOB_DIM};
@@ -181,12 +181,12 @@ pub fn evaluate_device(
         let mut joint = [[0.0; 2]; 2];
         for x in 0..2 {
             for b in 0..2 {
-                joint[x][b] = clamp_unsnapped(&format!("P(Alice, Bob | click) in basis {}", basis.name()), 0.5 * sig[x][b].trace().re / p)?;
+                joint[x][b] = clamp_named(|| format!("P(Alice, Bob | click) in basis {}", basis.name()), 0.5 * sig[x][b].trace().re / p)?;
             }
         }
         // Unsnapped (clamped to [0, 1] only): entropies must not see the report's snap.
-        let qber = clamp_unsnapped(&format!("qber_{}", basis.name()), joint[0][1] + joint[1][0])?;
-        let p_guess = clamp_unsnapped(&format!("p_guess_{}", basis.name()), 0.5 * (1.0 + trace_norm(&(&tau[0] - &tau[1]))))?;
+        let qber = clamp_named(|| format!("qber_{}", basis.name()), joint[0][1] + joint[1][0])?;
+        let p_guess = clamp_named(|| format!("p_guess_{}", basis.name()), 0.5 * (1.0 + trace_norm(&(&tau[0] - &tau[1]))))?;
         let s_cond: f64 =
             (0..2).filter(|&x| priors[x] > 0.0).map(|x| priors[x] * von_neumann_entropy(&(&tau[x] * c(1.0 / priors[x], 0.0)))).sum();
         let holevo = (von_neumann_entropy(&(&tau[0] + &tau[1])) - s_cond).clamp(-ROUNDING_SLACK, 1.0 + ROUNDING_SLACK);

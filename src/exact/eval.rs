@@ -64,12 +64,6 @@ pub fn clamp_probability(name: &str, p: f64) -> Result<f64> {
     Ok(snap(p.clamp(0.0, 1.0), 0.0, 1.0))
 }
 
-/// [`clamp_probability`] without the snap: `p` clamped to [0, 1] within
-/// [`PROBABILITY_SLACK`], for the entropies and informations computed from it.
-pub fn clamp_unsnapped(name: &str, p: f64) -> Result<f64> {
-    clamp_probability(name, p).map(|_| p.clamp(0.0, 1.0))
-}
-
 /// Snaps `x` to `lo` or `hi` when it lies within [`ROUNDING_SLACK`] of either.
 pub fn snap(x: f64, lo: f64, hi: f64) -> f64 {
     if (x - lo).abs() <= ROUNDING_SLACK {
@@ -397,9 +391,10 @@ impl BasisStats {
     }
 }
 
-/// Clamps probability `p` to [0, 1] within [`PROBABILITY_SLACK`] (an error naming it, the
-/// name made only then, beyond the slack or for NaN); no snap.
-fn clamp_named(name: impl FnOnce() -> String, p: f64) -> Result<f64> {
+/// [`clamp_probability`] without the snap, for the entropies and informations computed from
+/// `p`: clamped to [0, 1] within [`PROBABILITY_SLACK`] (an error naming it, the name made
+/// only then, beyond the slack or for NaN).
+pub fn clamp_named(name: impl FnOnce() -> String, p: f64) -> Result<f64> {
     if (0.0..=1.0).contains(&p) {
         Ok(p)
     } else {
