@@ -40,7 +40,7 @@
 //! look (see [`value_seed`]), never on the order of evaluation or the thread count.
 //!
 //! **Shards.** A look's evidence is integer counts ([`Counts`]) per attack point, the sum of
-//! its (attack point, chunk of trials) units ([`look_unit_counts`], [`assemble_look`]), so
+//! its (attack point, chunk of trials) units ([`look_unit_counts`], [`LookShape::assemble`]), so
 //! separate processes can compute a look's units and the sum is exact. [`search_with`] runs
 //! the search on the looks known so far and, where it lacks one, names the looks it needs
 //! next ([`Step::Needs`]); `tolerance --shard` and `merge` drive it round by round.
@@ -405,7 +405,7 @@ pub fn search_with(c: &Campaign, spec: &Spec, looks: Looks, progress: &(dyn Fn(&
     if !c.setup_sweeps.is_empty() {
         return Err(Error::input_key("setup_sweeps", "a tolerance search varies one key itself: remove the campaign's [[setup_sweeps]]"));
     }
-    let points: usize = c.attacks.iter().map(|e| e.points().len()).sum();
+    let points = attack_points(c);
     let alpha = 1.0 - spec.confidence;
     let level = alpha / (points as f64 * f64::from(spec.looks()));
     let setup_at = |v: f64| setup_at(c, spec, v);
@@ -580,11 +580,15 @@ pub fn look_campaign(c: &Campaign, spec: &Spec, id: LookId) -> Result<Campaign> 
     Ok(camp)
 }
 
+/// Attack points of the campaign (each entry at each of its sweep values).
+fn attack_points(c: &Campaign) -> usize {
+    c.attacks.iter().map(|e| e.points().len()).sum()
+}
+
 /// The work units of one look: (attack point, chunk of trials) pairs, numbered point-major;
 /// their number is points × ⌈trials / chunk⌉.
 pub fn look_units(c: &Campaign, spec: &Spec, id: LookId) -> u64 {
-    let points: usize = c.attacks.iter().map(|e| e.points().len()).sum();
-    points as u64 * id.trials(spec).div_ceil(CHUNK_TRIALS)
+    attack_points(c) as u64 * id.trials(spec).div_ceil(CHUNK_TRIALS)
 }
 
 /// Computes the units of one look that `keep` (point, chunk) accepts.
@@ -592,94 +596,118 @@ pub fn look_unit_counts(c: &Campaign, spec: &Spec, id: LookId, keep: &(dyn Fn(u6
     run_units(&look_campaign(c, spec, id)?, keep)
 }
 
-/// Checks that a unit computed elsewhere fits the search: a point and chunk of the look,
-/// one rule's counts, the chunk's number of trials, verdicts adding up to them, the point's
-/// attack label, and no more key than the look's blocks hold.
-pub fn check_unit(c: &Campaign, spec: &Spec, id: LookId, u: &UnitCounts) -> Result<()> {
-    let labels: Vec<&str> = c.attacks.iter().flat_map(|e| std::iter::repeat(e.label.as_str()).take(e.points().len())).collect();
-    let trials = id.trials(spec);
-    let chunks = trials.div_ceil(CHUNK_TRIALS);
-    let at = format!("{}, unit (point {}, chunk {})", id.describe(spec), u.point, u.chunk);
-    let bad = |what: String| Err(Error::input(format!("{at}: {what}; the partial result does not fit the search")));
-    let Some(&label) = labels.get(u.point as usize) else {
-        return bad(format!("the search has {} attack points", labels.len()));
-    };
-    if u.chunk >= chunks {
-        return bad(format!("the look has {chunks} chunk(s)"));
-    }
-    let [k] = u.counts.as_slice() else {
-        return bad(format!("{} rules' counts, not 1", u.counts.len()));
-    };
-    let expected = CHUNK_TRIALS.min(trials - u.chunk * CHUNK_TRIALS);
-    if k.trials != expected {
-        return bad(format!("{} trials counted, the chunk has {expected}", k.trials));
-    }
-    if k.verdicts.iter().sum::<u64>() != k.trials {
-        return bad(format!("verdicts {:?} do not add up to its {} trials", k.verdicts, k.trials));
-    }
-    if u.attack != label {
-        return bad(format!("attack `{}`, the point's is `{label}`", u.attack));
-    }
-    let signals = match (id.value, id.configured) {
-        (Some(v), false) => setup_at(c, spec, v)?.signals,
-        _ => c.setup.signals,
-    };
-    if k.key_length_sum > u128::from(signals) * u128::from(k.trials) {
-        return bad(format!("{} key bits over {} blocks of {signals} signals", k.key_length_sum, k.trials));
-    }
-    Ok(())
+/// What the units of one look must fit, worked out once per look: its attack points'
+/// labels, its trials and chunks, and the signals of its blocks.
+#[derive(Clone, Debug)]
+pub struct LookShape {
+    /// The look, in words (for messages).
+    what: String,
+    /// Attack label of each point.
+    labels: Vec<String>,
+    /// Trials of every point.
+    trials: u64,
+    /// Chunks of every point.
+    chunks: u64,
+    /// Signals per block.
+    signals: u64,
 }
 
-/// Adds up the units of one look (all of them, in any order) into its attack points'
-/// counts; an error if a unit is missing or given twice.
-pub fn assemble_look(c: &Campaign, spec: &Spec, id: LookId, units: &[UnitCounts]) -> Result<Vec<PointCounts>> {
-    let points: usize = c.attacks.iter().map(|e| e.points().len()).sum();
-    let chunks = id.trials(spec).div_ceil(CHUNK_TRIALS);
-    let mut seen = vec![false; points * chunks as usize];
-    let mut out: Vec<Option<PointCounts>> = vec![None; points];
-    let id = id.describe(spec);
-    for u in units {
-        let slot = (u.point as usize).checked_mul(chunks as usize).and_then(|i| i.checked_add(u.chunk as usize));
-        let fresh = slot.filter(|&i| u.chunk < chunks && i < seen.len() && !seen[i]);
-        let Some(i) = fresh else {
-            return Err(Error::input(format!("{id}: unit (point {}, chunk {}) is out of range or given twice", u.point, u.chunk)));
+impl LookShape {
+    /// The shape of look `id` of the search.
+    pub fn of(c: &Campaign, spec: &Spec, id: LookId) -> Result<LookShape> {
+        let trials = id.trials(spec);
+        Ok(LookShape {
+            what: id.describe(spec),
+            labels: c.attacks.iter().flat_map(|e| std::iter::repeat(e.label.clone()).take(e.points().len())).collect(),
+            trials,
+            chunks: trials.div_ceil(CHUNK_TRIALS),
+            signals: match (id.value, id.configured) {
+                (Some(v), false) => setup_at(c, spec, v)?.signals,
+                _ => c.setup.signals,
+            },
+        })
+    }
+
+    /// Checks that a unit computed elsewhere fits the search: a point and chunk of the
+    /// look, one rule's counts, the chunk's number of trials, verdicts adding up to them,
+    /// the point's attack label, and no more key than the look's blocks hold.
+    pub fn check(&self, u: &UnitCounts) -> Result<()> {
+        let bad = |what: String| {
+            Err(Error::input(format!(
+                "{}, unit (point {}, chunk {}): {what}; the partial result does not fit the search",
+                self.what, u.point, u.chunk
+            )))
         };
-        seen[i] = true;
-        let [counts] = u.counts.as_slice() else {
-            return Err(Error::input(format!(
-                "{id}: unit (point {}, chunk {}) has {} rules' counts, not 1",
-                u.point,
-                u.chunk,
-                u.counts.len()
-            )));
+        let Some(label) = self.labels.get(u.point as usize) else {
+            return bad(format!("the search has {} attack points", self.labels.len()));
         };
-        let entry = out[u.point as usize].get_or_insert_with(|| PointCounts {
-            attack: u.attack.clone(),
-            params: u.params.clone(),
-            counts: Counts::default(),
-        });
-        if (&entry.attack, &entry.params) != (&u.attack, &u.params) {
-            return Err(Error::input(format!(
-                "{id}: the units of point {} name different attacks (`{} {}` and `{} {}`)",
-                u.point, entry.attack, entry.params, u.attack, u.params
-            )));
+        if u.chunk >= self.chunks {
+            return bad(format!("the look has {} chunk(s)", self.chunks));
         }
-        entry.counts.merge(counts);
+        let [k] = u.counts.as_slice() else {
+            return bad(format!("{} rules' counts, not 1", u.counts.len()));
+        };
+        let expected = CHUNK_TRIALS.min(self.trials - u.chunk * CHUNK_TRIALS);
+        if k.trials != expected {
+            return bad(format!("{} trials counted, the chunk has {expected}", k.trials));
+        }
+        if k.verdicts.iter().sum::<u64>() != k.trials {
+            return bad(format!("verdicts {:?} do not add up to its {} trials", k.verdicts, k.trials));
+        }
+        if &u.attack != label {
+            return bad(format!("attack `{}`, the point's is `{label}`", u.attack));
+        }
+        if k.key_length_sum > u128::from(self.signals) * u128::from(k.trials) {
+            return bad(format!("{} key bits over {} blocks of {} signals", k.key_length_sum, k.trials, self.signals));
+        }
+        Ok(())
     }
-    if let Some(missing) = seen.iter().position(|s| !s) {
-        return Err(Error::input(format!(
-            "{id}: unit (point {}, chunk {}) is missing",
-            missing / chunks as usize,
-            missing % chunks as usize
-        )));
+
+    /// Adds up the units of the look (all of them, in any order) into its attack points'
+    /// counts; an error if a unit is missing or given twice.
+    pub fn assemble(&self, units: &[UnitCounts]) -> Result<Vec<PointCounts>> {
+        let (points, chunks, id) = (self.labels.len(), self.chunks as usize, &self.what);
+        let mut seen = vec![false; points * chunks];
+        let mut out: Vec<Option<PointCounts>> = vec![None; points];
+        for u in units {
+            let slot = (u.point as usize).checked_mul(chunks).and_then(|i| i.checked_add(u.chunk as usize));
+            let fresh = slot.filter(|&i| (u.chunk as usize) < chunks && i < seen.len() && !seen[i]);
+            let Some(i) = fresh else {
+                return Err(Error::input(format!("{id}: unit (point {}, chunk {}) is out of range or given twice", u.point, u.chunk)));
+            };
+            seen[i] = true;
+            let [counts] = u.counts.as_slice() else {
+                return Err(Error::input(format!(
+                    "{id}: unit (point {}, chunk {}) has {} rules' counts, not 1",
+                    u.point,
+                    u.chunk,
+                    u.counts.len()
+                )));
+            };
+            let entry = out[u.point as usize].get_or_insert_with(|| PointCounts {
+                attack: u.attack.clone(),
+                params: u.params.clone(),
+                counts: Counts::default(),
+            });
+            if (&entry.attack, &entry.params) != (&u.attack, &u.params) {
+                return Err(Error::input(format!(
+                    "{id}: the units of point {} name different attacks (`{} {}` and `{} {}`)",
+                    u.point, entry.attack, entry.params, u.attack, u.params
+                )));
+            }
+            entry.counts.merge(counts);
+        }
+        if let Some(missing) = seen.iter().position(|s| !s) {
+            return Err(Error::input(format!("{id}: unit (point {}, chunk {}) is missing", missing / chunks, missing % chunks)));
+        }
+        Ok(out.into_iter().map(|p| p.expect("every unit is present")).collect())
     }
-    Ok(out.into_iter().map(|p| p.expect("every unit is present")).collect())
 }
 
 /// Computes a whole look here.
 fn look_counts(c: &Campaign, spec: &Spec, id: LookId, keep: &(dyn Fn(u64, u64) -> bool + Sync)) -> Result<Vec<PointCounts>> {
     let units = look_unit_counts(c, spec, id, keep)?;
-    assemble_look(c, spec, id, &units)
+    LookShape::of(c, spec, id)?.assemble(&units)
 }
 
 /// Classifies one value: looks of doubling trials until the value is safe or unsafe, or the
@@ -964,8 +992,9 @@ mod tests {
             bisections: 3,
         };
         let id = LookId { value: Some(0.05), configured: false, look: 0 };
-        let points: usize = c.attacks.iter().map(|e| e.points().len()).sum();
+        let points = attack_points(&c);
         assert_eq!(look_units(&c, &spec, id), 2 * points as u64);
+        let shape = LookShape::of(&c, &spec, id).unwrap();
         let unit = |point: u64, chunk: u64| UnitCounts {
             point,
             chunk,
@@ -974,16 +1003,16 @@ mod tests {
             counts: vec![Counts { trials: 1, verdicts: [0, 0, 1, 0, 0], key_length_sum: 7 }],
         };
         let all: Vec<UnitCounts> = (0..points as u64).flat_map(|p| [unit(p, 1), unit(p, 0)]).collect();
-        let assembled = assemble_look(&c, &spec, id, &all).unwrap();
+        let assembled = shape.assemble(&all).unwrap();
         assert_eq!(assembled.len(), points);
         assert!(assembled.iter().all(|p| p.counts == Counts { trials: 2, verdicts: [0, 0, 2, 0, 0], key_length_sum: 14 }));
-        let missing = assemble_look(&c, &spec, id, &all[1..]).unwrap_err().to_string();
+        let missing = shape.assemble(&all[1..]).unwrap_err().to_string();
         assert!(missing.contains("missing"), "{missing}");
         let mut twice = all.clone();
         twice.push(unit(0, 0));
-        assert!(assemble_look(&c, &spec, id, &twice).unwrap_err().to_string().contains("twice"));
+        assert!(shape.assemble(&twice).unwrap_err().to_string().contains("twice"));
         let beyond = [unit(0, 2)];
-        assert!(assemble_look(&c, &spec, id, &beyond).unwrap_err().to_string().contains("out of range"));
+        assert!(shape.assemble(&beyond).unwrap_err().to_string().contains("out of range"));
         // Counts survive a text round trip, sums past 2⁶⁴ included.
         let big = Counts { trials: 3, verdicts: [1, 0, 0, 0, 2], key_length_sum: u128::from(u64::MAX) * 5 };
         let text = toml::to_string(&PointCounts { attack: "a".into(), params: String::new(), counts: big }).unwrap();

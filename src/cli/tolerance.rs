@@ -11,8 +11,8 @@ use crate::audit::engine::UnitCounts;
 use crate::audit::report::manifest::sha256_hex;
 use crate::audit::setup::SetupKey;
 use crate::audit::tolerance::{
-    assemble_look, check_unit, evidence_csv, look_unit_counts, look_units, search, search_with, Criterion, Evaluation, Look, LookId, Looks,
-    Report, Side, Spec, Step,
+    evidence_csv, look_unit_counts, look_units, search, search_with, Criterion, Evaluation, Look, LookId, LookShape, Looks, Report, Side,
+    Spec, Step,
 };
 use crate::audit::Campaign;
 use crate::error::{Error, ErrorKind, Result};
@@ -458,6 +458,7 @@ pub fn merge_tolerance(a: ToleranceArgs, parts: Vec<Partial>, files: &[PathBuf],
     };
     let names: Vec<String> = files.iter().map(|f| f.display().to_string()).collect();
     let mut units: Vec<Vec<UnitCounts>> = needs.iter().map(|_| Vec::new()).collect();
+    let shapes = needs.iter().map(|id| LookShape::of(&campaign, &spec, *id)).collect::<Result<Vec<_>>>()?;
     for p in parts {
         let (k, n) = (p.shard, p.shards);
         let payload = p.tolerance.ok_or_else(|| Error::input(format!("shard {k}/{n} carries no tolerance looks")))?;
@@ -484,16 +485,16 @@ pub fn merge_tolerance(a: ToleranceArgs, parts: Vec<Partial>, files: &[PathBuf],
             return Err(Error::input(format!("shard {k}/{n} computed other looks than the search needs next")));
         }
         for u in payload.units {
-            let Some(look) = needs.get(u.look) else {
+            let Some(shape) = shapes.get(u.look) else {
                 return Err(Error::input(format!("shard {k}/{n} names look {} of {}", u.look, needs.len())));
             };
-            check_unit(&campaign, &spec, *look, &u.counts).map_err(|e| Error::input(format!("shard {k}/{n}: {e}")))?;
+            shape.check(&u.counts).map_err(|e| Error::input(format!("shard {k}/{n}: {e}")))?;
             units[u.look].push(u.counts);
         }
     }
     let evidence = o.output.as_deref().map(|p| crate::output::prepare_file(p, o.force)).transpose()?;
-    for (id, units) in needs.iter().zip(&units) {
-        let points = assemble_look(&campaign, &spec, *id, units)?;
+    for ((id, shape), units) in needs.iter().zip(&shapes).zip(&units) {
+        let points = shape.assemble(units)?;
         state.looks.push(Look { id: *id, points });
     }
     state.rounds += 1;
