@@ -187,10 +187,17 @@ fn changed_inputs(then: &[InputId], now: &[InputId]) -> String {
 /// The state in `dir`, if any, checked to belong to the search identified by `args` and
 /// `inputs`.
 fn read_state(dir: &Path, args: &[String], inputs: &[InputId]) -> Result<Option<State>> {
-    let path = state_path(dir);
     let Some(state) = read_state_file(dir)? else {
         return Ok(None);
     };
+    check_state(&state, dir, args, inputs)?;
+    Ok(Some(state))
+}
+
+/// Checks that `state` (in `dir`) was written by this version for the search identified by
+/// `args` and `inputs`; the error says which differs and what to do.
+fn check_state(state: &State, dir: &Path, args: &[String], inputs: &[InputId]) -> Result<()> {
+    let path = state_path(dir);
     if state.version != env!("CARGO_PKG_VERSION") {
         return Err(Error::input(format!(
             "{} was written by qkd-audit {}; this is {}: continue the search with that version, or start it again in an empty --shard-dir",
@@ -215,7 +222,7 @@ fn read_state(dir: &Path, args: &[String], inputs: &[InputId]) -> Result<Option<
             changed_inputs(&state.inputs, inputs)
         )));
     }
-    Ok(Some(state))
+    Ok(())
 }
 
 /// The campaign, the search and the input files of the command's arguments.
@@ -533,21 +540,7 @@ pub fn merge_tolerance(a: ToleranceArgs, parts: Vec<Partial>, files: &[PathBuf],
 /// status); an unfinished one is an error that names the looks it needs next.
 pub fn report_state(a: ToleranceArgs, state: State, dir: &Path, o: &MergeOptions) -> Result<Outcome> {
     let (campaign, spec, inputs) = build(&a)?;
-    if state.version != env!("CARGO_PKG_VERSION") {
-        return Err(Error::input(format!(
-            "{} was written by qkd-audit {}; this is {}: report it with that version",
-            state_path(dir).display(),
-            state.version,
-            env!("CARGO_PKG_VERSION")
-        )));
-    }
-    if state.inputs != inputs {
-        return Err(Error::input(format!(
-            "input files changed since the search in {} ran: {}; restore them to report its result",
-            dir.display(),
-            changed_inputs(&state.inputs, &inputs)
-        )));
-    }
+    check_state(&state, dir, &state.args, &inputs)?;
     let evidence = o.output.as_deref().map(|p| crate::output::prepare_file(p, o.force)).transpose()?;
     match search_with(&campaign, &spec, Looks::Known(&state.looks), &|_| {})? {
         Step::Done(report) => conclude(&report, evidence, o.json, o.quiet),
