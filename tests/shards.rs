@@ -172,19 +172,7 @@ fn merge_refuses_missing_duplicate_and_mismatched_shards() {
 /// A campaign whose abort-threshold search (with the arguments below) bisects, with values
 /// that need more than one look (a leak threshold of 10⁻³ needs 4400 trials to show a value
 /// safe), looks of several trial chunks (8800 trials) and an inconclusive value.
-const TOLERANCE_CAMPAIGN: &str = r#"
-name = "abort-threshold"
-seed = 4
-trials = 60
-[setup]
-signals = 1000000
-abort_qber = 0.05
-key_rule = "individual"
-[[attacks]]
-builtin = "phase-covariant-cloner"
-steps = 1
-from = 0.06
-"#;
+const TOLERANCE_CAMPAIGN: &str = include_str!("data/abort-threshold.toml");
 
 const TOLERANCE_ARGS: [&str; 16] = [
     "tolerance",

@@ -262,16 +262,4 @@ fn slurm_job_array_and_merge_equal_the_single_run() {
 }
 
 /// The search of `tests/shards.rs`: bisections, and values needing several looks.
-const TOLERANCE_CAMPAIGN: &str = r#"
-name = "abort-threshold"
-seed = 4
-trials = 60
-[setup]
-signals = 1000000
-abort_qber = 0.05
-key_rule = "individual"
-[[attacks]]
-builtin = "phase-covariant-cloner"
-steps = 1
-from = 0.06
-"#;
+const TOLERANCE_CAMPAIGN: &str = include_str!("data/abort-threshold.toml");

@@ -205,19 +205,7 @@ steps = 3
 /// A system whose rule assumes individual attacks, against the optimal collective attack at
 /// QBER 6 %: every block with an observed error rate above the abort threshold aborts, so
 /// the rule is safe while the threshold stays below the attack's error rate.
-const ABORT_CAMPAIGN: &str = r#"
-name = "abort-threshold"
-seed = 4
-trials = 60
-[setup]
-signals = 1000000
-abort_qber = 0.05
-key_rule = "individual"
-[[attacks]]
-builtin = "phase-covariant-cloner"
-steps = 1
-from = 0.06
-"#;
+const ABORT_CAMPAIGN: &str = include_str!("data/abort-threshold.toml");
 
 fn abort_spec(trials: u64) -> Spec {
     Spec {
