@@ -129,23 +129,11 @@ fn lay_out(out: &mut String, negative: bool, digits: &str, exponent: i32) {
     }
 }
 
-/// Appends the decimal digits of `n`.
+/// Appends the decimal digits of `n` (the standard library's integer formatting writes
+/// into `out` without an allocation of its own).
 fn push_integer(out: &mut String, n: i64) {
-    let mut buf = [0u8; 20];
-    let mut at = buf.len();
-    let mut m = n.unsigned_abs();
-    loop {
-        at -= 1;
-        buf[at] = b'0' + (m % 10) as u8;
-        m /= 10;
-        if m == 0 {
-            break;
-        }
-    }
-    if n < 0 {
-        out.push('-');
-    }
-    out.push_str(std::str::from_utf8(&buf[at..]).expect("ASCII digits"));
+    use std::fmt::Write;
+    write!(out, "{n}").expect("writing to a String cannot fail");
 }
 
 /// `5^k` for `k` in 0..=27.
