@@ -75,7 +75,9 @@ if [[ $1 == tolerance ]]; then
         echo "the search in $dir is finished; its result again:" >&2
         exec "$bin" merge "$dir" -o "$output" "${json_opt[@]}"
     fi
-    done_rounds=$(sed -n 's/^rounds = \([0-9]*\)$/\1/p' "$state" 2>/dev/null || true)
+    # Rounds merged so far, from the search's state (empty before the first merge).
+    merged_rounds() { sed -n 's/^rounds = \([0-9]*\)$/\1/p' "$state" 2>/dev/null || true; }
+    done_rounds=$(merged_rounds)
 fi
 array_id=$(sbatch --parsable "${extra[@]}" --job-name=qkd-audit-shard --array="1-$n" \
     --output="$dir/slurm-%A_%a.out" \
@@ -98,13 +100,13 @@ if [[ $1 == tolerance ]]; then
             --dependency="afterok:$array_id" --kill-on-invalid-dep=yes \
             --output="$dir/merge-round-$round.out" --error="$dir/merge-round-$round.err" --wrap="$merge") && status=0 || status=$?
         merge_id=${merge_id%%;*}
-        merged=$(sed -n 's/^rounds = \([0-9]*\)$/\1/p' "$dir/tolerance-state.toml" 2>/dev/null || true)
+        merged=$(merged_rounds)
         if ((status > 1)) || [[ ${merged:-0} != "$round" ]]; then
             echo "round $round did not merge (merge job $merge_id, status $status); shard logs: $dir/slurm-${array_id}_*.out" >&2
             cat "$dir/merge-round-$round.err" >&2 2>/dev/null || true
             exit 2
         fi
-        if grep -q '^finished = true' "$dir/tolerance-state.toml"; then
+        if grep -q '^finished = true' "$state"; then
             echo "the search finished after $round round(s); evidence in $output" >&2
             cat "$dir/merge-round-$round.out"
             exit "$status"
